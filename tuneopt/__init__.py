@@ -1,0 +1,4 @@
+"""tuneopt: damper tuning optimiser for mountain-bike suspension."""
+
+__all__ = ["__version__"]
+__version__ = "0.1.0"

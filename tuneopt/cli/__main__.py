@@ -1,0 +1,5 @@
+import sys
+
+from tuneopt.cli import main
+
+sys.exit(main())

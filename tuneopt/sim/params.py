@@ -1,0 +1,96 @@
+"""Plain parameter objects the simulators take: tabulated parts in wheel-vertical coordinates.
+
+Every array with a leading ``B`` axis holds one row per setup of the batch. Travel and velocity
+are positive in compression (wheel moving up relative to the frame). The physics layer builds
+these from a scenario and a setup; the simulators never see pressures, clicks or leverage
+tables, only forces at the wheel, which keeps the compiled loops small.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+__all__ = ["WheelEnd", "RiderBody", "HalfCarParams"]
+
+FloatArray = NDArray[np.float64]
+
+
+@dataclass(frozen=True)
+class WheelEnd:
+    """One suspension end seen vertically at the wheel, for a batch of B setups.
+
+    travel_grid: (K,) uniform grid of vertical wheel travel [m], starting below 0 and ending
+        beyond the full travel so that the top-out and bottom-out stops are inside the table.
+    spring_force: (B, K) vertical force of the spring at the wheel including the stops [N];
+        positive pushes the wheel down (extends the suspension).
+    velocity_grid: (V,) uniform grid of vertical wheel velocity [m/s], symmetric about 0;
+        compression positive. Beyond the grid the force is extrapolated with the end slopes.
+    damper_force: (B, V) vertical damper force at the wheel [N], same sign as the velocity.
+    travel: (B,) full vertical wheel travel [m] (bottom-out beyond this).
+    unsprung_mass: (B,) [kg].
+    tyre_stiffness: (B,) radial tyre stiffness [N/m]; the tyre cannot pull (lift-off).
+    tyre_damping: (B,) radial tyre damping [N s/m].
+    rim_strike_deflection: (B,) tyre deflection at which the rim hits [m].
+    wheel_radius: rolling radius [m] (the terrain's envelope uses it).
+    """
+
+    travel_grid: FloatArray
+    spring_force: FloatArray
+    velocity_grid: FloatArray
+    damper_force: FloatArray
+    travel: FloatArray
+    unsprung_mass: FloatArray
+    tyre_stiffness: FloatArray
+    tyre_damping: FloatArray
+    rim_strike_deflection: FloatArray
+    wheel_radius: float
+
+    @property
+    def batch(self) -> int:
+        return int(self.spring_force.shape[0])
+
+
+@dataclass(frozen=True)
+class RiderBody:
+    """The rider as a compliant body coupled to the frame at the hands and the feet.
+
+    mass [kg], pitch_inertia about the rider's own CoM [kg m^2], com_x (from the rear axle,
+    forward positive) and com_height (above ground at static ride height) [m]; hand_x and
+    foot_x [m] where the couplings act; arm/leg stiffness [N/m] and damping [N s/m] are
+    vertical.
+    """
+
+    mass: float
+    pitch_inertia: float
+    com_x: float
+    com_height: float
+    hand_x: float
+    foot_x: float
+    arm_stiffness: float
+    arm_damping: float
+    leg_stiffness: float
+    leg_damping: float
+
+
+@dataclass(frozen=True)
+class HalfCarParams:
+    """Pitch-plane half-car: frame (bounce, pitch), rider (bounce, pitch), two unsprung masses.
+
+    Geometry in the side view at static ride height, x from the rear axle forward [m].
+    frame_mass [kg] and frame_pitch_inertia [kg m^2] are the sprung bike without the rider;
+    frame_com_x / frame_com_height [m]. wheelbase [m]. brake_front_share: share of the braking
+    force taken by the front tyre (0..1).
+    """
+
+    front: WheelEnd
+    rear: WheelEnd
+    rider: RiderBody
+    frame_mass: float
+    frame_pitch_inertia: float
+    frame_com_x: float
+    frame_com_height: float
+    wheelbase: float
+    brake_front_share: float = 0.6
