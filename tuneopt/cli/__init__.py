@@ -41,6 +41,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except InputError as exc:
         print(exc.describe(), file=sys.stderr)
         return 2
+    except BrokenPipeError:  # output piped into a pager or head that closed early
+        sys.stderr.close()
+        return 0
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130

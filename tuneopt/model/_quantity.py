@@ -25,6 +25,7 @@ __all__ = [
     "Velocity",
     "Volume",
     "Inertia",
+    "convert",
     "parse_quantity",
 ]
 
@@ -33,7 +34,10 @@ __all__ = [
 def _registry() -> Any:
     import pint  # deferred: pint costs ~0.5 s and most inputs are bare numbers
 
-    return pint.UnitRegistry()
+    try:  # the parsed definitions are cached on disk: 0.05 s instead of 0.5 s per start
+        return pint.UnitRegistry(cache_folder=":auto:")
+    except OSError:
+        return pint.UnitRegistry()
 
 
 def parse_quantity(value: Any, si_unit: str, *, bare_unit: str | None = None) -> float:
@@ -105,3 +109,8 @@ Force = _quantity("N", "force [N]")
 Volume = _quantity("m**3", "volume [m^3]")
 Inertia = _quantity("kg*m**2", "moment of inertia [kg m^2]")
 Angle = _quantity("deg", "angle [deg]", bare_unit="deg")
+
+
+def convert(value: float, from_unit: str, to_unit: str) -> float:
+    """Convert a number between units (for showing trade units next to SI)."""
+    return float(_registry().Quantity(value, from_unit).to(to_unit).magnitude)

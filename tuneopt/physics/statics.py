@@ -1,0 +1,115 @@
+"""Static picture: load split, load transfer, sag, ride frequencies, bounce and pitch modes.
+
+Side view, x from the rear axle forward [m], heights above ground [m], g = 9.80665 m/s².
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tuneopt.physics._numeric import find_root
+
+__all__ = [
+    "GRAVITY",
+    "Modes",
+    "bounce_pitch_modes",
+    "braking_split",
+    "damping_ratio",
+    "load_transfer",
+    "natural_frequency",
+    "rear_lift_deceleration",
+    "solve_travel",
+    "static_split",
+]
+
+GRAVITY = 9.80665  # [m/s²], standard gravity
+
+
+def static_split(mass: float, com_x: float, wheelbase: float) -> tuple[float, float]:
+    """Tyre loads (front, rear) [N] by moment balance about the axles: F_f = m·g·l_r/L,
+    with l_r = com_x the CoM's distance ahead of the rear axle."""
+    front = mass * GRAVITY * com_x / wheelbase
+    return front, mass * GRAVITY - front
+
+
+def load_transfer(mass: float, deceleration: float, com_height: float, wheelbase: float) -> float:
+    """Braking load transfer ΔF = m·a·h/L [N], onto the front (Gillespie 1992, ch. 2)."""
+    return mass * deceleration * com_height / wheelbase
+
+
+def braking_split(
+    mass: float, com_x: float, com_height: float, wheelbase: float, deceleration: float
+) -> tuple[float, float]:
+    """Tyre loads (front, rear) [N] under steady braking; the rear may reach zero but not go
+    below it (the rear wheel lifts, and the loads stop following the formula)."""
+    front, rear = static_split(mass, com_x, wheelbase)
+    dF = load_transfer(mass, deceleration, com_height, wheelbase)
+    return front + dF, rear - dF
+
+
+def rear_lift_deceleration(com_x: float, com_height: float, wheelbase: float) -> float:
+    """Deceleration [m/s²] at which the rear unloads completely: a/g = l_f/h with l_f the CoM's
+    distance behind the front axle."""
+    return GRAVITY * (wheelbase - com_x) / com_height
+
+
+def natural_frequency(stiffness: float, mass: float) -> float:
+    """f = √(k/m)/2π [Hz]."""
+    return float(np.sqrt(stiffness / mass) / (2 * np.pi))
+
+
+def damping_ratio(damping: float, stiffness: float, mass: float) -> float:
+    """ζ = c/(2·√(k·m))."""
+    return float(damping / (2 * np.sqrt(stiffness * mass)))
+
+
+def solve_travel(force: Callable[[float], float], load: float, travel: float) -> float:
+    """Travel x in [0, travel] where ``force(x) == load``. ``force`` must rise with x.
+
+    Raises ValueError when the spring holds the load without moving (returns 0 if it holds it
+    at full extension) or cannot hold it within the travel.
+    """
+    f0 = force(0.0) - load
+    if f0 >= 0:
+        return 0.0
+    f1 = force(travel) - load
+    if f1 < 0:
+        raise ValueError("the spring cannot hold the load within the travel")
+    return find_root(lambda x: force(x) - load, 0.0, travel, xtol=1e-9)
+
+
+@dataclass(frozen=True)
+class Modes:
+    """Bounce/pitch modes of a rigid sprung body on two springs.
+
+    frequencies: (2,) [Hz], ascending; shapes: (2, 2) columns (heave [m], pitch [rad]) scaled
+    to unit modal mass; node_x: (2,) where each mode has no vertical motion, x from the rear
+    axle [m] (inf for pure heave).
+    """
+
+    frequencies: NDArray[np.float64]
+    shapes: NDArray[np.float64]
+    node_x: NDArray[np.float64]
+
+
+def bounce_pitch_modes(
+    k_front: float, k_rear: float, l_front: float, l_rear: float, mass: float, inertia: float
+) -> Modes:
+    """Generalised eigenproblem K·φ = ω²·M·φ with coordinates (heave at the CoM, pitch nose
+    up), l_front/l_rear the CoM's distances to the axles:
+    K = [[k_f+k_r, k_f·l_f − k_r·l_r], [k_f·l_f − k_r·l_r, k_f·l_f² + k_r·l_r²]]."""
+    c = k_front * l_front - k_rear * l_rear
+    K = np.array([[k_front + k_rear, c], [c, k_front * l_front**2 + k_rear * l_rear**2]])
+    # M is diagonal: solve the symmetric problem M^-1/2·K·M^-1/2 (checked against scipy's eigh)
+    s = 1 / np.sqrt(np.array([mass, inertia]))
+    w2, v = np.linalg.eigh(K * np.outer(s, s))
+    shapes = v * s[:, None]
+    freqs = np.sqrt(w2) / (2 * np.pi)
+    # vertical motion at a point d ahead of the CoM: z + d·θ = 0 → d = −z/θ
+    with np.errstate(divide="ignore"):
+        node_ahead = -shapes[0] / shapes[1]
+    return Modes(freqs, shapes, l_rear + node_ahead)
