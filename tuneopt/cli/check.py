@@ -73,7 +73,7 @@ def _print_table(name: str, c: StaticCheck) -> None:
     row("wheel rate at sag",
         f"{fr.wheel_rate / 1e3:.1f} N/mm ({convert(fr.wheel_rate, 'N/m', 'lbf/in'):.0f} lbf/in)",
         f"{rr.wheel_rate / 1e3:.1f} N/mm ({convert(rr.wheel_rate, 'N/m', 'lbf/in'):.0f} lbf/in)")
-    row("leverage ratio at sag", f"{fr.leverage_at_sag:.2f}", f"{rr.leverage_at_sag:.2f}")
+    row("motion ratio at sag (wheel/stroke)", f"{fr.leverage_at_sag:.2f}", f"{rr.leverage_at_sag:.2f}")
     row("tyre stiffness", f"{fr.tyre_stiffness / 1e3:.0f} N/mm", f"{rr.tyre_stiffness / 1e3:.0f} N/mm")
     row("natural frequency", f"{fr.frequency:.2f} Hz", f"{rr.frequency:.2f} Hz")
     row("  with tyre in series", f"{fr.frequency_with_tyre:.2f} Hz", f"{rr.frequency_with_tyre:.2f} Hz")

@@ -64,8 +64,8 @@ def parse_damper_csv(text: str, source: str) -> dict[str, Any]:
     rows = [(n, r) for n, r in enumerate(reader, start=1) if r and any(c.strip() for c in r)]
     if not rows:
         raise InputError.single(source, "the damper table is empty")
-    header = [c.strip().lower() for c in rows[0][1]]
-    names = [h.split("[")[0].strip() for h in header]
+    header = [c.strip() for c in rows[0][1]]
+    names = [h.split("[")[0].strip().lower() for h in header]
     if names != ["adjuster", "click", "velocity", "force"]:
         raise InputError.single(
             f"{source}:1", "header must be adjuster,click,velocity,force (units in brackets)"

@@ -177,7 +177,7 @@ class SuspensionEnd:
     def ratio(self, z: ArrayLike) -> FloatArray:
         """d(vertical wheel travel)/d(stroke)."""
         if self.incline is not None:
-            return np.full_like(np.asarray(z, dtype=float), 1.0 / self.incline.sin)
+            return np.full_like(np.asarray(z, dtype=float), self.incline.sin)
         assert self.linkage is not None
         return self.linkage.ratio_at(np.clip(z, 0.0, self.linkage.wheel_travel))
 
