@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-__all__ = ["WheelEnd", "RiderBody", "HalfCarParams"]
+__all__ = ["WheelEnd", "RiderBody", "HalfCarParams", "QuarterCarParams"]
 
 FloatArray = NDArray[np.float64]
 
@@ -94,3 +94,19 @@ class HalfCarParams:
     frame_com_height: float
     wheelbase: float
     brake_front_share: float = 0.6
+
+
+@dataclass(frozen=True)
+class QuarterCarParams:
+    """One wheel end carrying its share of the sprung mass (quarter-car), for B setups.
+
+    wheel: the suspension end, tyre and unsprung mass. sprung_mass: (B,) sprung mass resting on
+    this end [kg] (its share of frame and rider).
+    """
+
+    wheel: WheelEnd
+    sprung_mass: FloatArray
+
+    @property
+    def batch(self) -> int:
+        return self.wheel.batch

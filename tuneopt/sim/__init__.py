@@ -1,0 +1,66 @@
+"""Batch time-domain simulators (quarter-car, half-car with a compliant rider) and their metrics.
+
+Each simulator takes plain parameter objects with a leading batch axis B (one row per setup) and
+one ``RoadInput``, and returns a frozen result with named (B,) metric arrays.
+"""
+
+from tuneopt.sim.halfcar import (
+    HalfCarResult,
+    HalfCarTraces,
+    simulate_halfcar,
+    simulate_halfcar_reference,
+    static_tyre_loads,
+)
+from tuneopt.sim.iso2631 import (
+    vibration_dose_value,
+    weighted_rms,
+    weighting_coefficients,
+    weighting_response,
+    weighting_sos,
+)
+from tuneopt.sim.metrics import (
+    FailureReason,
+    GripPhase,
+    PitchMetrics,
+    ShortWheel,
+    VibrationMetrics,
+    WheelMetrics,
+)
+from tuneopt.sim.params import HalfCarParams, QuarterCarParams, RiderBody, WheelEnd
+from tuneopt.sim.quartercar import (
+    QuarterCarResult,
+    QuarterCarTraces,
+    simulate_quartercar,
+    simulate_quartercar_reference,
+)
+from tuneopt.sim.road import RoadInput, distance_derivative, road_input_from_wheel_inputs
+
+__all__ = [
+    "FailureReason",
+    "GripPhase",
+    "HalfCarParams",
+    "HalfCarResult",
+    "HalfCarTraces",
+    "PitchMetrics",
+    "QuarterCarParams",
+    "QuarterCarResult",
+    "QuarterCarTraces",
+    "RiderBody",
+    "RoadInput",
+    "ShortWheel",
+    "VibrationMetrics",
+    "WheelEnd",
+    "WheelMetrics",
+    "distance_derivative",
+    "road_input_from_wheel_inputs",
+    "simulate_halfcar",
+    "simulate_halfcar_reference",
+    "simulate_quartercar",
+    "simulate_quartercar_reference",
+    "static_tyre_loads",
+    "vibration_dose_value",
+    "weighted_rms",
+    "weighting_coefficients",
+    "weighting_response",
+    "weighting_sos",
+]

@@ -1,0 +1,193 @@
+"""Compiled helpers shared by the quarter-car and half-car kernels.
+
+Tables, the one-sided tyre, the ISO weighting filter step and the streaming metric
+accumulators. Every metric is accumulated sample by sample so that a run stores no long arrays
+unless traces are asked for; the same accumulator serves the RK4 kernels and the solve_ivp
+reference (fed with the reference's states at the same sample times).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+GRAVITY = 9.81  # [m/s^2]
+# Rim strike: beyond rim_strike_deflection the tyre stiffens by this factor times its own rate.
+# Stiff enough to stop the rim within millimetres, soft enough for RK4 at a 1 ms step with
+# 2-5 kg unsprung masses (omega*h < 0.7).
+RIM_STIFFNESS_FACTOR = 10.0
+# Count a bottom-out or rim strike only past this penetration [m]: grazing contacts of a few
+# micrometres are what first makes counts differ between step sizes.
+BOTTOM_OUT_MIN_DEPTH = 2e-3
+RIM_STRIKE_MIN_DEPTH = 1e-3
+# A tyre counts as unloaded below this fraction of its static load (common practice, no source).
+UNLOADED_FRACTION = 0.1
+# Phases for the grip margin (common practice, no source) [m/s^2].
+BRAKING_THRESHOLD = 0.5
+CORNERING_THRESHOLD = 1.0
+# Travel histogram for median and 95th percentile: range [-HIST_LOW, HIST_HIGH * travel].
+HIST_BINS = 2048
+HIST_LOW = 0.02
+HIST_HIGH = 1.3
+
+# Failure codes.
+FAIL_NONE = 0
+FAIL_NON_FINITE = 1
+FAIL_RUNAWAY = 2
+FAIL_STATIC = 3
+# Runaway limits: beyond these the stops or the tyre have been overrun [m], [rad].
+RUNAWAY_TRAVEL = 0.1
+RUNAWAY_TYRE = 0.3
+RUNAWAY_ANGLE = 0.6
+
+# Per-wheel accumulator layout (offset + field).
+W_SUM_F = 0
+W_SUM_F2 = 1
+W_N_UNLOADED = 2
+W_N_BOTTOM = 3
+W_BOTTOM_MAX = 4
+W_BOTTOM_SUM = 5
+W_IN_BOTTOM = 6
+W_EVENT_MAX = 7
+W_N_RIM = 8
+W_IN_RIM = 9
+W_SUM_S = 10
+W_S_MAX = 11
+W_N_SHORT_BRAKE = 12
+W_SUM_MARGIN_BRAKE = 13
+W_FIRST_SHORT_BRAKE = 14
+W_N_SHORT_CORNER = 15
+W_SUM_MARGIN_CORNER = 16
+W_FIRST_SHORT_CORNER = 17
+W_FIELDS = 18
+
+# Vibration accumulator layout (offset + field).
+V_SUM_AW2 = 0
+V_SUM_AW4 = 1
+V_MAX_AW = 2
+V_FIELDS = 3
+
+
+def init_wheel_acc(acc: np.ndarray, off: int) -> None:
+    """Set the starting values that are not zero (runs in numpy before the kernel)."""
+    acc[:, off + W_S_MAX] = -np.inf
+    acc[:, off + W_FIRST_SHORT_BRAKE] = -1.0
+    acc[:, off + W_FIRST_SHORT_CORNER] = -1.0
+
+
+@njit(cache=True)
+def table_value(row, x0, dx, x):
+    """Linear interpolation on a uniform grid, extrapolated with the end slopes."""
+    if x != x:
+        return np.nan
+    u = (x - x0) / dx
+    n = row.shape[0]
+    if u < 0.0:
+        i = 0
+    elif u > n - 2.0:
+        i = n - 2
+    else:
+        i = int(u)
+    f = u - i
+    return row[i] + f * (row[i + 1] - row[i])
+
+
+@njit(cache=True)
+def tyre_force(defl, defl_rate, k, c, rim_defl):
+    """One-sided tyre: k*d + c*d' while in contact, never pulling; rim strike past rim_defl."""
+    if defl <= 0.0:
+        return 0.0
+    f = k * defl + c * defl_rate
+    if defl > rim_defl:
+        f += RIM_STIFFNESS_FACTOR * k * (defl - rim_defl)
+    return f if f > 0.0 else 0.0
+
+
+@njit(cache=True)
+def sos_step(sos, zi, x):
+    """One sample through second-order sections (transposed direct form II, as scipy)."""
+    for j in range(sos.shape[0]):
+        y = sos[j, 0] * x + zi[j, 0]
+        zi[j, 0] = sos[j, 1] * x - sos[j, 4] * y + zi[j, 1]
+        zi[j, 1] = sos[j, 2] * x - sos[j, 5] * y
+        x = y
+    return x
+
+
+@njit(cache=True)
+def accumulate_wheel(
+    acc, off, hist, k, load, travel, tyre_defl, full_travel, rim_defl, static_load,
+    hist_low, hist_width, braking, cornering, demand, mu,
+):
+    """Add one sample of one wheel: load [N], travel [m], tyre deflection [m], grip demand [N]."""
+    acc[off + W_SUM_F] += load
+    acc[off + W_SUM_F2] += load * load
+    if load < UNLOADED_FRACTION * static_load:
+        acc[off + W_N_UNLOADED] += 1.0
+    depth = travel - full_travel
+    if acc[off + W_IN_BOTTOM] > 0.0:
+        if depth > acc[off + W_EVENT_MAX]:
+            acc[off + W_EVENT_MAX] = depth
+        if depth < 0.0:
+            acc[off + W_IN_BOTTOM] = 0.0
+            acc[off + W_BOTTOM_SUM] += acc[off + W_EVENT_MAX]
+            if acc[off + W_EVENT_MAX] > acc[off + W_BOTTOM_MAX]:
+                acc[off + W_BOTTOM_MAX] = acc[off + W_EVENT_MAX]
+    elif depth > BOTTOM_OUT_MIN_DEPTH:
+        acc[off + W_IN_BOTTOM] = 1.0
+        acc[off + W_N_BOTTOM] += 1.0
+        acc[off + W_EVENT_MAX] = depth
+    rim = tyre_defl - rim_defl
+    if acc[off + W_IN_RIM] > 0.0:
+        if rim < 0.0:
+            acc[off + W_IN_RIM] = 0.0
+    elif rim > RIM_STRIKE_MIN_DEPTH:
+        acc[off + W_IN_RIM] = 1.0
+        acc[off + W_N_RIM] += 1.0
+    acc[off + W_SUM_S] += travel
+    if travel > acc[off + W_S_MAX]:
+        acc[off + W_S_MAX] = travel
+    nb = hist.shape[0]
+    u = (travel + hist_low) / hist_width
+    if u < 0.0:
+        j = 0
+    elif u >= nb - 1:
+        j = nb - 1
+    else:
+        j = int(u)
+    hist[j] += 1.0
+    margin = mu * load - demand
+    if braking:
+        acc[off + W_SUM_MARGIN_BRAKE] += margin
+        if margin < 0.0:
+            acc[off + W_N_SHORT_BRAKE] += 1.0
+            if acc[off + W_FIRST_SHORT_BRAKE] < 0.0:
+                acc[off + W_FIRST_SHORT_BRAKE] = k
+    if cornering:
+        acc[off + W_SUM_MARGIN_CORNER] += margin
+        if margin < 0.0:
+            acc[off + W_N_SHORT_CORNER] += 1.0
+            if acc[off + W_FIRST_SHORT_CORNER] < 0.0:
+                acc[off + W_FIRST_SHORT_CORNER] = k
+
+
+@njit(cache=True)
+def close_wheel(acc, off):
+    """Close a bottom-out event still open at the end of the run."""
+    if acc[off + W_IN_BOTTOM] > 0.0:
+        acc[off + W_IN_BOTTOM] = 0.0
+        acc[off + W_BOTTOM_SUM] += acc[off + W_EVENT_MAX]
+        if acc[off + W_EVENT_MAX] > acc[off + W_BOTTOM_MAX]:
+            acc[off + W_BOTTOM_MAX] = acc[off + W_EVENT_MAX]
+
+
+@njit(cache=True)
+def accumulate_vibration(acc, off, sos, zi, accel):
+    """Weight one acceleration sample [m/s^2] and add it; returns the weighted value."""
+    aw = sos_step(sos, zi, accel)
+    a2 = aw * aw
+    acc[off + V_SUM_AW2] += a2
+    acc[off + V_SUM_AW4] += a2 * a2
+    if abs(aw) > acc[off + V_MAX_AW]:
+        acc[off + V_MAX_AW] = abs(aw)
+    return aw

@@ -1,0 +1,109 @@
+"""Static state of a wheel end and its packing into the kernels' parameter rows."""
+
+from __future__ import annotations
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tuneopt.sim import _common as c
+from tuneopt.sim.params import WheelEnd
+
+FloatArray = NDArray[np.float64]
+
+# Columns of one wheel end inside a kernel parameter row (added to the end's offset).
+E_M_U = 0
+E_K_T = 1
+E_C_T = 2
+E_D_RIM = 3
+E_S0 = 4
+E_D0 = 5
+E_TRAVEL = 6
+E_T0 = 7
+E_TD = 8
+E_V0 = 9
+E_VD = 10
+E_F_STATIC = 11
+E_BRAKE_SHARE = 12
+E_LAT_SHARE = 13
+E_HIST_W = 14
+E_FIELDS = 15
+
+
+def _uniform_step(grid: FloatArray, name: str) -> float:
+    step = np.diff(grid)
+    if grid.ndim != 1 or grid.shape[0] < 2 or not np.allclose(step, step[0], rtol=1e-9):
+        raise ValueError(f"{name} must be a uniform 1-D grid")
+    return float(step[0])
+
+
+def static_travel(wheel: WheelEnd, spring_load: FloatArray) -> FloatArray:
+    """Travel [m] at which each setup's spring carries spring_load [N], (B,).
+
+    Inverts the linear interpolant of the table, so the kernels start exactly in equilibrium.
+    The table must increase with travel.
+    """
+    grid = np.asarray(wheel.travel_grid, dtype=np.float64)
+    step = _uniform_step(grid, "travel_grid")
+    out = np.empty(wheel.batch)
+    for b in range(wheel.batch):
+        row = wheel.spring_force[b]
+        if not np.all(np.diff(row) > 0):
+            raise ValueError(f"spring force table of setup {b} must increase with travel")
+        load = float(spring_load[b])
+        if load < row[0]:
+            out[b] = grid[0] + (load - row[0]) / (row[1] - row[0]) * step
+        elif load > row[-1]:
+            out[b] = grid[-1] + (load - row[-1]) / (row[-1] - row[-2]) * step
+        else:
+            out[b] = np.interp(load, row, grid)
+    return out
+
+
+def static_tyre_deflection(wheel: WheelEnd, tyre_load: FloatArray) -> FloatArray:
+    """Tyre deflection [m] under tyre_load [N], including the rim-strike stiffening, (B,)."""
+    k = wheel.tyre_stiffness
+    d = tyre_load / k
+    rim = wheel.rim_strike_deflection
+    beyond = d > rim
+    stiff = k * (1.0 + c.RIM_STIFFNESS_FACTOR)
+    return np.where(beyond, rim + (tyre_load - k * rim) / stiff, d)
+
+
+def pack_wheel(
+    p: FloatArray,
+    off: int,
+    wheel: WheelEnd,
+    spring_load: FloatArray,
+    brake_share: float,
+    lateral_share: FloatArray,
+) -> None:
+    """Fill the end's columns of the parameter rows p (B, n) for a static spring load [N]."""
+    tyre_load = spring_load + wheel.unsprung_mass * c.GRAVITY
+    p[:, off + E_M_U] = wheel.unsprung_mass
+    p[:, off + E_K_T] = wheel.tyre_stiffness
+    p[:, off + E_C_T] = wheel.tyre_damping
+    p[:, off + E_D_RIM] = wheel.rim_strike_deflection
+    p[:, off + E_S0] = static_travel(wheel, spring_load)
+    p[:, off + E_D0] = static_tyre_deflection(wheel, tyre_load)
+    p[:, off + E_TRAVEL] = wheel.travel
+    p[:, off + E_T0] = wheel.travel_grid[0]
+    p[:, off + E_TD] = _uniform_step(np.asarray(wheel.travel_grid), "travel_grid")
+    p[:, off + E_V0] = wheel.velocity_grid[0]
+    p[:, off + E_VD] = _uniform_step(np.asarray(wheel.velocity_grid), "velocity_grid")
+    p[:, off + E_F_STATIC] = tyre_load
+    p[:, off + E_BRAKE_SHARE] = brake_share
+    p[:, off + E_LAT_SHARE] = lateral_share
+    p[:, off + E_HIST_W] = (c.HIST_LOW + c.HIST_HIGH * wheel.travel) / c.HIST_BINS
+
+
+def check_wheel(wheel: WheelEnd) -> None:
+    """Shapes of a wheel end's arrays against its batch size."""
+    b = wheel.batch
+    if wheel.spring_force.shape != (b, wheel.travel_grid.shape[0]):
+        raise ValueError("spring_force must have shape (B, K) matching travel_grid")
+    if wheel.damper_force.shape != (b, wheel.velocity_grid.shape[0]):
+        raise ValueError("damper_force must have shape (B, V) matching velocity_grid")
+    for name in ("travel", "unsprung_mass", "tyre_stiffness", "tyre_damping",
+                 "rim_strike_deflection"):
+        if np.shape(getattr(wheel, name)) != (b,):
+            raise ValueError(f"{name} must have shape ({b},)")

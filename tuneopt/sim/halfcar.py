@@ -1,0 +1,584 @@
+"""Pitch-plane half-car with the rider as a compliant body.
+
+Bodies: frame (bounce z_c, pitch th), rider (bounce z_d, pitch ph), front and rear unsprung
+masses (z_f, z_r). x is measured from the rear axle forward, pitch is positive nose-up and small
+(a point at x on the frame moves by z_c + (x - x_c) th). States from static equilibrium on level
+ground [m], [rad] and their rates:
+    y = [z_c, th, z_d, ph, z_f, z_r, and the six rates]
+Suspension (wheel-vertical tables, compression positive), front at x = L, rear at x = 0:
+    s_i = s0_i + z_i - z_frame(x_i),  F_i = spring_i(s_i) + damper_i(s_i')   (up on the frame)
+Tyres: one-sided with rim strike, as in the quarter-car, on the front and rear road heights.
+Rider couplings at the hands (x_h) and feet (x_ft), vertical linear springs and dampers preloaded
+with the static hand and foot loads:
+    F_h = F_h0 + k_a (z_frame(x_h) - z_rider(x_h)) + c_a (...)'   (up on the rider), same at feet
+Braking deceleration a [m/s^2] (no anti-dive or anti-squat): every body's inertial force m a
+acts forward at its own height, the tyres' braking forces act at the ground, the wheels pass
+their share to the frame at axle height and the rider is held back at the frame's CoM height.
+The resulting pitch moments are
+    on the frame  M_f = -a [(m_frame + m_rider) h_c + m_uf R_f + m_ur R_r]
+    on the rider  M_d = -a m_rider (h_d - h_c)
+which in steady state move dF = a (m_frame h_c + m_rider h_d + m_uf R_f + m_ur R_r) / L from the
+rear tyre to the front. The braking force is split between the tyres by brake_front_share (it
+enters the grip demand); the lateral force a corner demands is split like the static loads.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numba import njit, prange
+from numpy.typing import NDArray
+from scipy.integrate import solve_ivp
+
+from tuneopt.sim import _common as c
+from tuneopt.sim import _wheel as w
+from tuneopt.sim.iso2631 import weighting_sos
+from tuneopt.sim.metrics import (
+    GripPhase,
+    PitchMetrics,
+    VibrationMetrics,
+    WheelMetrics,
+    failure_reasons,
+    first_short,
+    vibration_metrics,
+    wheel_metrics,
+)
+from tuneopt.sim.params import HalfCarParams
+from tuneopt.sim.road import RoadInput
+
+__all__ = [
+    "HalfCarResult",
+    "HalfCarTraces",
+    "simulate_halfcar",
+    "simulate_halfcar_reference",
+    "static_tyre_loads",
+]
+
+FloatArray = NDArray[np.float64]
+
+# Parameter row.
+_M_FR = 0
+_I_FR = 1
+_X_C = 2
+_L = 3
+_M_D = 4
+_I_D = 5
+_X_D = 6
+_X_H = 7
+_X_FT = 8
+_K_A = 9
+_C_A = 10
+_K_L = 11
+_C_L = 12
+_F_H0 = 13
+_F_FT0 = 14
+_MB_F = 15
+_MB_D = 16
+_M_TOT = 17
+_F = 18
+_R = _F + w.E_FIELDS
+_NP = _R + w.E_FIELDS
+_NS = 12
+# Accumulator row.
+_ACC_F = 0
+_ACC_R = c.W_FIELDS
+_ACC_V = 2 * c.W_FIELDS
+_ACC_CAR = 2 * c.W_FIELDS + c.V_FIELDS
+_CAR_N_BRAKE = 0
+_CAR_N_CORNER = 1
+_CAR_SUM_W2 = 2
+_CAR_DIVE_TRAVEL = 3
+_CAR_DIVE_PITCH = 4
+_NACC = _ACC_CAR + 5
+# Output channels of one sample; traces add the weighted rider acceleration.
+_O_LOAD_F = 0
+_O_LOAD_R = 1
+_O_TRAVEL_F = 2
+_O_TRAVEL_R = 3
+_O_DEFL_F = 4
+_O_DEFL_R = 5
+_O_ACCEL_D = 6
+_O_PITCH = 7
+_O_PITCH_RATE = 8
+_O_HAND = 9
+_O_FOOT = 10
+_NOUT = 11
+_NTRACE = _NOUT + 1
+# A rider coupling stretched or squeezed this far has come apart [m].
+_RUNAWAY_COUPLING = 0.5
+
+
+@dataclass(frozen=True)
+class HalfCarTraces:
+    """Time series every ``trace_every`` samples: time (M,) [s]; the rest (B, M).
+
+    front/rear_tyre_load [N], front/rear_travel [m], front/rear_tyre_deflection [m],
+    rider_accel (vertical, unweighted) [m/s^2], rider_accel_weighted (Wk) [m/s^2],
+    pitch [rad] (nose-up positive), pitch_rate [rad/s].
+    """
+
+    time: FloatArray
+    front_tyre_load: FloatArray
+    rear_tyre_load: FloatArray
+    front_travel: FloatArray
+    rear_travel: FloatArray
+    front_tyre_deflection: FloatArray
+    rear_tyre_deflection: FloatArray
+    rider_accel: FloatArray
+    rider_accel_weighted: FloatArray
+    pitch: FloatArray
+    pitch_rate: FloatArray
+
+
+@dataclass(frozen=True)
+class HalfCarResult:
+    """Outcome of a half-car batch run; metric arrays are (B,).
+
+    front, rear: WheelMetrics; pitch: PitchMetrics; rider_vibration: Wk metrics of the rider
+    body's vertical acceleration; braking, cornering: GripPhase; static_travel_front/rear [m]
+    and static_load_front/rear (tyres) [N]; duration [s]; failed (B,) bool; failure (B,)
+    FailureReason strings; traces or None.
+    """
+
+    front: WheelMetrics
+    rear: WheelMetrics
+    pitch: PitchMetrics
+    rider_vibration: VibrationMetrics
+    braking: GripPhase
+    cornering: GripPhase
+    static_travel_front: FloatArray
+    static_travel_rear: FloatArray
+    static_load_front: FloatArray
+    static_load_rear: FloatArray
+    duration: float
+    failed: NDArray[np.bool_]
+    failure: NDArray[np.str_]
+    traces: HalfCarTraces | None
+
+
+@njit(cache=True)
+def _suspension(p, o, s, sd, spring, damper):
+    return c.table_value(spring, p[o + w.E_T0], p[o + w.E_TD], s) + c.table_value(
+        damper, p[o + w.E_V0], p[o + w.E_VD], sd
+    )
+
+
+@njit(cache=True)
+def _rhs(y, zf, zfd, zr, zrd, a, p, sf, df, sr, dr, dy, out):
+    lwb = p[_L]
+    xc = p[_X_C]
+    xd = p[_X_D]
+    xh = p[_X_H]
+    xft = p[_X_FT]
+    zc, th, zd, ph, zuf, zur = y[0], y[1], y[2], y[3], y[4], y[5]
+    vc, om, vd, omd, vuf, vur = y[6], y[7], y[8], y[9], y[10], y[11]
+    # suspension at the axles
+    s_f = p[_F + w.E_S0] + zuf - (zc + (lwb - xc) * th)
+    s_r = p[_R + w.E_S0] + zur - (zc - xc * th)
+    f_f = _suspension(p, _F, s_f, vuf - (vc + (lwb - xc) * om), sf, df)
+    f_r = _suspension(p, _R, s_r, vur - (vc - xc * om), sr, dr)
+    # tyres
+    d_f = p[_F + w.E_D0] + zf - zuf
+    d_r = p[_R + w.E_D0] + zr - zur
+    t_f = c.tyre_force(d_f, zfd - vuf, p[_F + w.E_K_T], p[_F + w.E_C_T], p[_F + w.E_D_RIM])
+    t_r = c.tyre_force(d_r, zrd - vur, p[_R + w.E_K_T], p[_R + w.E_C_T], p[_R + w.E_D_RIM])
+    # rider couplings (compression = frame point above its static place relative to the rider's)
+    e_h = (zc + (xh - xc) * th) - (zd + (xh - xd) * ph)
+    e_hd = (vc + (xh - xc) * om) - (vd + (xh - xd) * omd)
+    e_ft = (zc + (xft - xc) * th) - (zd + (xft - xd) * ph)
+    e_ftd = (vc + (xft - xc) * om) - (vd + (xft - xd) * omd)
+    f_h = p[_F_H0] + p[_K_A] * e_h + p[_C_A] * e_hd
+    f_ft = p[_F_FT0] + p[_K_L] * e_ft + p[_C_L] * e_ftd
+    g = c.GRAVITY
+    a_d = (f_h + f_ft) / p[_M_D] - g
+    for i in range(6):
+        dy[i] = y[6 + i]
+    dy[6] = (f_f + f_r - f_h - f_ft) / p[_M_FR] - g
+    dy[7] = (f_f * (lwb - xc) - f_r * xc - f_h * (xh - xc) - f_ft * (xft - xc)
+             + p[_MB_F] * a) / p[_I_FR]
+    dy[8] = a_d
+    dy[9] = (f_h * (xh - xd) + f_ft * (xft - xd) + p[_MB_D] * a) / p[_I_D]
+    dy[10] = (t_f - f_f) / p[_F + w.E_M_U] - g
+    dy[11] = (t_r - f_r) / p[_R + w.E_M_U] - g
+    out[_O_LOAD_F] = t_f
+    out[_O_LOAD_R] = t_r
+    out[_O_TRAVEL_F] = s_f
+    out[_O_TRAVEL_R] = s_r
+    out[_O_DEFL_F] = d_f
+    out[_O_DEFL_R] = d_r
+    out[_O_ACCEL_D] = a_d
+    out[_O_PITCH] = th
+    out[_O_PITCH_RATE] = om
+    out[_O_HAND] = e_h
+    out[_O_FOOT] = e_ft
+
+
+@njit(cache=True)
+def _is_runaway(p, out):
+    for o, ch_s, ch_d in ((_F, _O_TRAVEL_F, _O_DEFL_F), (_R, _O_TRAVEL_R, _O_DEFL_R)):
+        s = out[ch_s]
+        if s > p[o + w.E_TRAVEL] + c.RUNAWAY_TRAVEL or s < -c.RUNAWAY_TRAVEL:
+            return True
+        if out[ch_d] > c.RUNAWAY_TYRE:
+            return True
+    if abs(out[_O_PITCH]) > c.RUNAWAY_ANGLE:
+        return True
+    return abs(out[_O_HAND]) > _RUNAWAY_COUPLING or abs(out[_O_FOOT]) > _RUNAWAY_COUPLING
+
+
+@njit(cache=True)
+def _sample(k, y, zf, zfd, zr, zrd, a, ay, mu, p, sf, df, sr, dr, dy, out, acc, hist, sos, zi,
+            trace, every):
+    """Derivative and outputs at sample k, checks, metric accumulation, trace. Returns a code."""
+    _rhs(y, zf, zfd, zr, zrd, a, p, sf, df, sr, dr, dy, out)
+    for i in range(_NS):
+        if not (np.isfinite(y[i]) and np.isfinite(dy[i])):
+            return c.FAIL_NON_FINITE
+    if _is_runaway(p, out):
+        return c.FAIL_RUNAWAY
+    braking = a > c.BRAKING_THRESHOLD
+    cornering = ay > c.CORNERING_THRESHOLD
+    m_tot = p[_M_TOT]
+    for off, o, ch_f, ch_s, ch_d, h in (
+        (_ACC_F, _F, _O_LOAD_F, _O_TRAVEL_F, _O_DEFL_F, hist[0]),
+        (_ACC_R, _R, _O_LOAD_R, _O_TRAVEL_R, _O_DEFL_R, hist[1]),
+    ):
+        demand = np.hypot(p[o + w.E_BRAKE_SHARE] * m_tot * a, p[o + w.E_LAT_SHARE] * m_tot * ay)
+        c.accumulate_wheel(
+            acc, off, h, k, out[ch_f], out[ch_s], out[ch_d], p[o + w.E_TRAVEL], p[o + w.E_D_RIM],
+            p[o + w.E_F_STATIC], c.HIST_LOW, p[o + w.E_HIST_W], braking, cornering, demand, mu,
+        )
+    aw = c.accumulate_vibration(acc, _ACC_V, sos, zi, out[_O_ACCEL_D])
+    acc[_ACC_CAR + _CAR_SUM_W2] += out[_O_PITCH_RATE] ** 2
+    if braking:
+        acc[_ACC_CAR + _CAR_N_BRAKE] += 1.0
+        dive = out[_O_TRAVEL_F] - p[_F + w.E_S0]
+        if dive > acc[_ACC_CAR + _CAR_DIVE_TRAVEL]:
+            acc[_ACC_CAR + _CAR_DIVE_TRAVEL] = dive
+        nose_down = (zf - zr) / p[_L] - out[_O_PITCH]
+        if nose_down > acc[_ACC_CAR + _CAR_DIVE_PITCH]:
+            acc[_ACC_CAR + _CAR_DIVE_PITCH] = nose_down
+    if cornering:
+        acc[_ACC_CAR + _CAR_N_CORNER] += 1.0
+    if trace.shape[1] > 0 and k % every == 0:
+        j = k // every
+        for ch in range(_NOUT):
+            trace[ch, j] = out[ch]
+        trace[_NOUT, j] = aw
+    return c.FAIL_NONE
+
+
+@njit(cache=True)
+def _initial_state(p, zf0, zr0):
+    """Static equilibrium carried rigidly onto the road's starting heights."""
+    y = np.zeros(_NS)
+    th = (zf0 - zr0) / p[_L]
+    y[0] = zr0 + p[_X_C] * th
+    y[1] = th
+    y[2] = zr0 + p[_X_D] * th
+    y[3] = th
+    y[4] = zf0
+    y[5] = zr0
+    return y
+
+
+@njit(cache=True, parallel=True)
+def _run(P, sfs, dfs, srs, drs, zf, zfd, zr, zrd, dec, lat, mu, dt, sos, acc, hist, fail,
+         trace, every):
+    n = zf.shape[0]
+    for b in prange(P.shape[0]):
+        if fail[b] != 0:
+            continue
+        p = P[b]
+        sf = sfs[b]
+        df = dfs[b]
+        sr = srs[b]
+        dr = drs[b]
+        y = _initial_state(p, zf[0], zr[0])
+        k1 = np.empty(_NS)
+        k2 = np.empty(_NS)
+        k3 = np.empty(_NS)
+        k4 = np.empty(_NS)
+        tmp = np.empty(_NS)
+        out = np.empty(_NOUT)
+        zi = np.zeros((sos.shape[0], 2))
+        h = dt
+        for k in range(n):
+            code = _sample(k, y, zf[k], zfd[k], zr[k], zrd[k], dec[k], lat[k], mu, p, sf, df, sr,
+                           dr, k1, out, acc[b], hist[b], sos, zi, trace[b], every)
+            if code != 0:
+                fail[b] = code
+                break
+            if k == n - 1:
+                break
+            zfm = 0.5 * (zf[k] + zf[k + 1])
+            zfdm = 0.5 * (zfd[k] + zfd[k + 1])
+            zrm = 0.5 * (zr[k] + zr[k + 1])
+            zrdm = 0.5 * (zrd[k] + zrd[k + 1])
+            am = 0.5 * (dec[k] + dec[k + 1])
+            for i in range(_NS):
+                tmp[i] = y[i] + 0.5 * h * k1[i]
+            _rhs(tmp, zfm, zfdm, zrm, zrdm, am, p, sf, df, sr, dr, k2, out)
+            for i in range(_NS):
+                tmp[i] = y[i] + 0.5 * h * k2[i]
+            _rhs(tmp, zfm, zfdm, zrm, zrdm, am, p, sf, df, sr, dr, k3, out)
+            for i in range(_NS):
+                tmp[i] = y[i] + h * k3[i]
+            _rhs(tmp, zf[k + 1], zfd[k + 1], zr[k + 1], zrd[k + 1], dec[k + 1], p, sf, df, sr,
+                 dr, k4, out)
+            for i in range(_NS):
+                y[i] += h / 6.0 * (k1[i] + 2.0 * k2[i] + 2.0 * k3[i] + k4[i])
+        c.close_wheel(acc[b], _ACC_F)
+        c.close_wheel(acc[b], _ACC_R)
+
+
+@njit(cache=True)
+def _rhs_at_time(t, y, zf, zfd, zr, zrd, dec, dt, p, sf, df, sr, dr):
+    """The same equations at any time, the road linear between samples (for solve_ivp)."""
+    u = t / dt
+    i = int(u)
+    if i > zf.shape[0] - 2:
+        i = zf.shape[0] - 2
+    if i < 0:
+        i = 0
+    f = u - i
+    dy = np.empty(_NS)
+    out = np.empty(_NOUT)
+    _rhs(y, zf[i] + f * (zf[i + 1] - zf[i]), zfd[i] + f * (zfd[i + 1] - zfd[i]),
+         zr[i] + f * (zr[i + 1] - zr[i]), zrd[i] + f * (zrd[i + 1] - zrd[i]),
+         dec[i] + f * (dec[i + 1] - dec[i]), p, sf, df, sr, dr, dy, out)
+    return dy
+
+
+@njit(cache=True)
+def _replay(Y, zf, zfd, zr, zrd, dec, lat, mu, p, sf, df, sr, dr, sos, acc, hist, trace, every):
+    """Accumulate metrics from given states Y (N, 12) at the sample times."""
+    dy = np.empty(_NS)
+    out = np.empty(_NOUT)
+    zi = np.zeros((sos.shape[0], 2))
+    code = 0
+    for k in range(Y.shape[0]):
+        code = _sample(k, Y[k], zf[k], zfd[k], zr[k], zrd[k], dec[k], lat[k], mu, p, sf, df, sr,
+                       dr, dy, out, acc, hist, sos, zi, trace, every)
+        if code != 0:
+            break
+    c.close_wheel(acc, _ACC_F)
+    c.close_wheel(acc, _ACC_R)
+    return code
+
+
+def static_tyre_loads(params: HalfCarParams) -> tuple[FloatArray, FloatArray]:
+    """Front and rear tyre loads at rest on level ground [N], each (B,), from moment balance."""
+    p = _pack(params)
+    return p[:, _F + w.E_F_STATIC].copy(), p[:, _R + w.E_F_STATIC].copy()
+
+
+def _pack(params: HalfCarParams) -> FloatArray:
+    fw, rw, rider = params.front, params.rear, params.rider
+    w.check_wheel(fw)
+    w.check_wheel(rw)
+    if fw.batch != rw.batch:
+        raise ValueError("front and rear must have the same batch size")
+    if not rider.foot_x < rider.hand_x:
+        raise ValueError("the rider's hands must be ahead of the feet")
+    bsz = fw.batch
+    g = c.GRAVITY
+    m_fr, m_d, lwb = params.frame_mass, rider.mass, params.wheelbase
+    P = np.zeros((bsz, _NP))
+    P[:, _M_FR] = m_fr
+    P[:, _I_FR] = params.frame_pitch_inertia
+    P[:, _X_C] = params.frame_com_x
+    P[:, _L] = lwb
+    P[:, _M_D] = m_d
+    P[:, _I_D] = rider.pitch_inertia
+    P[:, _X_D] = rider.com_x
+    P[:, _X_H] = rider.hand_x
+    P[:, _X_FT] = rider.foot_x
+    P[:, _K_A] = rider.arm_stiffness
+    P[:, _C_A] = rider.arm_damping
+    P[:, _K_L] = rider.leg_stiffness
+    P[:, _C_L] = rider.leg_damping
+    span = rider.hand_x - rider.foot_x
+    P[:, _F_H0] = m_d * g * (rider.com_x - rider.foot_x) / span
+    P[:, _F_FT0] = m_d * g * (rider.hand_x - rider.com_x) / span
+    h_c = params.frame_com_height
+    P[:, _MB_F] = -(
+        (m_fr + m_d) * h_c + fw.unsprung_mass * fw.wheel_radius + rw.unsprung_mass * rw.wheel_radius
+    )
+    P[:, _MB_D] = -m_d * (rider.com_height - h_c)
+    P[:, _M_TOT] = m_fr + m_d + fw.unsprung_mass + rw.unsprung_mass
+    sprung_weight = (m_fr + m_d) * g
+    sprung_moment = (m_fr * params.frame_com_x + m_d * rider.com_x) * g  # about the rear axle
+    spring_f = np.full(bsz, sprung_moment / lwb)
+    spring_r = sprung_weight - spring_f
+    load_f = spring_f + fw.unsprung_mass * g
+    load_r = spring_r + rw.unsprung_mass * g
+    share_f = load_f / (load_f + load_r)
+    w.pack_wheel(P, _F, fw, spring_f, params.brake_front_share, share_f)
+    w.pack_wheel(P, _R, rw, spring_r, 1.0 - params.brake_front_share, 1.0 - share_f)
+    return P
+
+
+@dataclass(frozen=True)
+class _Prepared:
+    P: FloatArray
+    tables: tuple[FloatArray, FloatArray, FloatArray, FloatArray]
+    acc: FloatArray
+    hist: FloatArray
+    fail: NDArray[np.int64]
+    trace: FloatArray
+    every: int
+    sos: FloatArray
+
+
+def _prepare(params: HalfCarParams, road: RoadInput, trace_every: int | None) -> _Prepared:
+    P = _pack(params)
+    bsz = P.shape[0]
+    fail = np.zeros(bsz, dtype=np.int64)
+    for o, wheel in ((_F, params.front), (_R, params.rear)):
+        s0 = P[:, o + w.E_S0]
+        fail[(s0 > wheel.travel) | (s0 < wheel.travel_grid[0])] = c.FAIL_STATIC
+    acc = np.zeros((bsz, _NACC))
+    c.init_wheel_acc(acc, _ACC_F)
+    c.init_wheel_acc(acc, _ACC_R)
+    acc[:, _ACC_CAR + _CAR_DIVE_TRAVEL] = -np.inf
+    acc[:, _ACC_CAR + _CAR_DIVE_PITCH] = -np.inf
+    every = int(trace_every) if trace_every else 1
+    m = (road.samples - 1) // every + 1 if trace_every else 0
+
+    def table(a: FloatArray) -> FloatArray:
+        return np.ascontiguousarray(a, dtype=np.float64)
+
+    return _Prepared(
+        P=P,
+        tables=(
+            table(params.front.spring_force),
+            table(params.front.damper_force),
+            table(params.rear.spring_force),
+            table(params.rear.damper_force),
+        ),
+        acc=acc,
+        hist=np.zeros((bsz, 2, c.HIST_BINS)),
+        fail=fail,
+        trace=np.zeros((bsz, _NTRACE, m)),
+        every=every,
+        sos=weighting_sos("Wk", 1.0 / road.dt),
+    )
+
+
+def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> HalfCarResult:
+    failed = prep.fail != 0
+    P, acc = prep.P, prep.acc
+    n, dt = road.samples, road.dt
+    n_brake = acc[:, _ACC_CAR + _CAR_N_BRAKE]
+    n_corner = acc[:, _ACC_CAR + _CAR_N_CORNER]
+    wheels = [
+        wheel_metrics(acc, off, prep.hist[:, i], n, dt, P[:, o + w.E_F_STATIC], P[:, o + w.E_S0],
+                      P[:, o + w.E_HIST_W], n_brake, n_corner, failed)
+        for i, (off, o) in enumerate(((_ACC_F, _F), (_ACC_R, _R)))
+    ]
+    with np.errstate(invalid="ignore"):
+        pitch = PitchMetrics(
+            pitch_rate_rms=np.sqrt(acc[:, _ACC_CAR + _CAR_SUM_W2] / n),
+            peak_dive_travel=np.where(n_brake > 0, acc[:, _ACC_CAR + _CAR_DIVE_TRAVEL], np.nan),
+            peak_dive_pitch=np.where(n_brake > 0, acc[:, _ACC_CAR + _CAR_DIVE_PITCH], np.nan),
+        )
+    for value in (pitch.pitch_rate_rms, pitch.peak_dive_travel, pitch.peak_dive_pitch):
+        value[failed] = np.nan
+    traces = None
+    if trace_every:
+        tr = prep.trace.copy()
+        tr[failed] = np.nan
+        traces = HalfCarTraces(
+            time=np.arange(tr.shape[2], dtype=np.float64) * (prep.every * dt),
+            front_tyre_load=tr[:, _O_LOAD_F],
+            rear_tyre_load=tr[:, _O_LOAD_R],
+            front_travel=tr[:, _O_TRAVEL_F],
+            rear_travel=tr[:, _O_TRAVEL_R],
+            front_tyre_deflection=tr[:, _O_DEFL_F],
+            rear_tyre_deflection=tr[:, _O_DEFL_R],
+            rider_accel=tr[:, _O_ACCEL_D],
+            rider_accel_weighted=tr[:, _NOUT],
+            pitch=tr[:, _O_PITCH],
+            pitch_rate=tr[:, _O_PITCH_RATE],
+        )
+    return HalfCarResult(
+        front=wheels[0],
+        rear=wheels[1],
+        pitch=pitch,
+        rider_vibration=vibration_metrics(acc, _ACC_V, n, dt, failed),
+        braking=GripPhase(
+            time=n_brake * dt,
+            first_short=first_short(acc[:, _ACC_F + c.W_FIRST_SHORT_BRAKE],
+                                    acc[:, _ACC_R + c.W_FIRST_SHORT_BRAKE]),
+        ),
+        cornering=GripPhase(
+            time=n_corner * dt,
+            first_short=first_short(acc[:, _ACC_F + c.W_FIRST_SHORT_CORNER],
+                                    acc[:, _ACC_R + c.W_FIRST_SHORT_CORNER]),
+        ),
+        static_travel_front=P[:, _F + w.E_S0].copy(),
+        static_travel_rear=P[:, _R + w.E_S0].copy(),
+        static_load_front=P[:, _F + w.E_F_STATIC].copy(),
+        static_load_rear=P[:, _R + w.E_F_STATIC].copy(),
+        duration=road.duration,
+        failed=failed,
+        failure=failure_reasons(prep.fail),
+        traces=traces,
+    )
+
+
+def simulate_halfcar(
+    params: HalfCarParams, road: RoadInput, *, trace_every: int | None = None
+) -> HalfCarResult:
+    """Run B half-car setups over the road with fixed-step RK4 (step road.dt).
+
+    trace_every: keep time series every that many samples (None: metrics only).
+    """
+    prep = _prepare(params, road, trace_every)
+    _run(prep.P, *prep.tables, road.front_z, road.front_zdot, road.rear_z, road.rear_zdot,
+         road.decel, road.lateral_accel, road.friction, road.dt, prep.sos, prep.acc, prep.hist,
+         prep.fail, prep.trace, prep.every)
+    return _finish(prep, road, trace_every)
+
+
+def simulate_halfcar_reference(
+    params: HalfCarParams,
+    road: RoadInput,
+    *,
+    rtol: float = 1e-8,
+    atol: float = 1e-10,
+    max_step: float | None = None,
+    method: str = "RK45",
+    trace_every: int | None = None,
+) -> HalfCarResult:
+    """The same equations integrated by scipy.integrate.solve_ivp, one setup at a time.
+
+    States come from the solver's dense output at the sample times and go through the same
+    metric accumulation as the RK4 kernel. max_step [s] defaults to the road's dt.
+    """
+    prep = _prepare(params, road, trace_every)
+    t = np.arange(road.samples) * road.dt
+    zf, zfd, zr, zrd = road.front_z, road.front_zdot, road.rear_z, road.rear_zdot
+    dec, lat = road.decel, road.lateral_accel
+    for b in range(prep.P.shape[0]):
+        if prep.fail[b] != 0:
+            continue
+        p = prep.P[b]
+        sf, df, sr, dr = (tab[b] for tab in prep.tables)
+
+        def fun(tt: float, yy: FloatArray, p: FloatArray = p, sf: FloatArray = sf,
+                df: FloatArray = df, sr: FloatArray = sr, dr: FloatArray = dr) -> FloatArray:
+            return _rhs_at_time(tt, yy, zf, zfd, zr, zrd, dec, road.dt, p, sf, df, sr, dr)
+
+        sol = solve_ivp(fun, (0.0, t[-1]), _initial_state(p, zf[0], zr[0]), method=method,
+                        t_eval=t, rtol=rtol, atol=atol,
+                        max_step=max_step if max_step is not None else road.dt)
+        if sol.status != 0 or sol.y.shape[1] != t.shape[0]:
+            prep.fail[b] = c.FAIL_NON_FINITE
+            continue
+        prep.fail[b] = _replay(np.ascontiguousarray(sol.y.T), zf, zfd, zr, zrd, dec, lat,
+                               road.friction, p, sf, df, sr, dr, prep.sos, prep.acc[b],
+                               prep.hist[b], prep.trace[b], prep.every)
+    return _finish(prep, road, trace_every)

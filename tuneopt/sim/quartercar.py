@@ -1,0 +1,352 @@
+"""Quarter-car: the sprung share over one unsprung mass over a tyre that cannot pull.
+
+States (each from the static equilibrium on level ground, up positive) [m], [m/s]:
+    y = [z_s, z_u, v_s, v_u]
+    travel s = s0 + z_u - z_s, its rate s' = v_u - v_s (compression positive)
+    F_susp = spring(s) + damper(s')                 (tables, stops included)
+    d = d0 + z_road - z_u, F_tyre = max(0, k_t d + c_t d') while d > 0, else 0,
+        plus RIM_STIFFNESS_FACTOR k_t (d - d_rim) past the rim-strike deflection
+    m_s z_s'' = F_susp - m_s g,   m_u z_u'' = F_tyre - F_susp - m_u g
+Integrated with fixed-step RK4 at the road's sample spacing; the road is linear between samples
+(the midpoint stage uses the mean of two samples).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numba import njit, prange
+from numpy.typing import NDArray
+from scipy.integrate import solve_ivp
+
+from tuneopt.sim import _common as c
+from tuneopt.sim import _wheel as w
+from tuneopt.sim.iso2631 import weighting_sos
+from tuneopt.sim.metrics import (
+    VibrationMetrics,
+    WheelMetrics,
+    failure_reasons,
+    vibration_metrics,
+    wheel_metrics,
+)
+from tuneopt.sim.params import QuarterCarParams
+from tuneopt.sim.road import RoadInput
+
+__all__ = [
+    "QuarterCarResult",
+    "QuarterCarTraces",
+    "simulate_quartercar",
+    "simulate_quartercar_reference",
+]
+
+FloatArray = NDArray[np.float64]
+
+# Parameter row: sprung mass then the wheel end's columns.
+_M_S = 0
+_W = 1
+_NP = 1 + w.E_FIELDS
+# Accumulator row: wheel block then vibration block.
+_ACC_W = 0
+_ACC_V = c.W_FIELDS
+_NACC = c.W_FIELDS + c.V_FIELDS
+# Output channels of one sample; traces add the weighted acceleration.
+_O_LOAD = 0
+_O_TRAVEL = 1
+_O_DEFL = 2
+_O_ACCEL = 3
+_NOUT = 4
+_NTRACE = 5
+
+
+@dataclass(frozen=True)
+class QuarterCarTraces:
+    """Time series every ``trace_every`` samples: time (M,) [s]; the rest (B, M).
+
+    tyre_load [N], travel [m], tyre_deflection [m], body_accel (sprung, unweighted) [m/s^2],
+    body_accel_weighted (ISO 2631-1 Wk) [m/s^2].
+    """
+
+    time: FloatArray
+    tyre_load: FloatArray
+    travel: FloatArray
+    tyre_deflection: FloatArray
+    body_accel: FloatArray
+    body_accel_weighted: FloatArray
+
+
+@dataclass(frozen=True)
+class QuarterCarResult:
+    """Outcome of a quarter-car batch run.
+
+    wheel: WheelMetrics (B,) (grip fields are NaN: the quarter-car has no phases);
+    body_vibration: Wk-weighted sprung-mass acceleration metrics (B,);
+    static_travel [m] and static_load (tyre) [N], (B,); duration [s];
+    failed (B,) bool; failure (B,) FailureReason strings; traces or None.
+    """
+
+    wheel: WheelMetrics
+    body_vibration: VibrationMetrics
+    static_travel: FloatArray
+    static_load: FloatArray
+    duration: float
+    failed: NDArray[np.bool_]
+    failure: NDArray[np.str_]
+    traces: QuarterCarTraces | None
+
+
+@njit(cache=True)
+def _rhs(y, zr, zrd, p, spring, damper, dy, out):
+    o = _W
+    s = p[o + w.E_S0] + y[1] - y[0]
+    sd = y[3] - y[2]
+    f_susp = c.table_value(spring, p[o + w.E_T0], p[o + w.E_TD], s) + c.table_value(
+        damper, p[o + w.E_V0], p[o + w.E_VD], sd
+    )
+    d = p[o + w.E_D0] + zr - y[1]
+    f_tyre = c.tyre_force(d, zrd - y[3], p[o + w.E_K_T], p[o + w.E_C_T], p[o + w.E_D_RIM])
+    a_s = f_susp / p[_M_S] - c.GRAVITY
+    dy[0] = y[2]
+    dy[1] = y[3]
+    dy[2] = a_s
+    dy[3] = (f_tyre - f_susp) / p[o + w.E_M_U] - c.GRAVITY
+    out[_O_LOAD] = f_tyre
+    out[_O_TRAVEL] = s
+    out[_O_DEFL] = d
+    out[_O_ACCEL] = a_s
+
+
+@njit(cache=True)
+def _sample(k, y, zr, zrd, p, spring, damper, dy, out, acc, hist, sos, zi, trace, every):
+    """Derivative and outputs at sample k, checks, metric accumulation, trace. Returns a code."""
+    _rhs(y, zr, zrd, p, spring, damper, dy, out)
+    for i in range(4):
+        if not (np.isfinite(y[i]) and np.isfinite(dy[i])):
+            return c.FAIL_NON_FINITE
+    o = _W
+    s = out[_O_TRAVEL]
+    if (
+        s > p[o + w.E_TRAVEL] + c.RUNAWAY_TRAVEL
+        or s < -c.RUNAWAY_TRAVEL
+        or out[_O_DEFL] > c.RUNAWAY_TYRE
+    ):
+        return c.FAIL_RUNAWAY
+    c.accumulate_wheel(
+        acc, _ACC_W, hist, k, out[_O_LOAD], s, out[_O_DEFL], p[o + w.E_TRAVEL],
+        p[o + w.E_D_RIM], p[o + w.E_F_STATIC], c.HIST_LOW, p[o + w.E_HIST_W],
+        False, False, 0.0, 0.0,
+    )
+    aw = c.accumulate_vibration(acc, _ACC_V, sos, zi, out[_O_ACCEL])
+    if trace.shape[1] > 0 and k % every == 0:
+        j = k // every
+        for ch in range(_NOUT):
+            trace[ch, j] = out[ch]
+        trace[_NOUT, j] = aw
+    return c.FAIL_NONE
+
+
+@njit(cache=True, parallel=True)
+def _run(P, springs, dampers, zr, zrd, dt, sos, acc, hist, fail, trace, every):
+    n = zr.shape[0]
+    for b in prange(P.shape[0]):
+        if fail[b] != 0:
+            continue
+        p = P[b]
+        spring = springs[b]
+        damper = dampers[b]
+        y = np.empty(4)
+        y[0] = zr[0]
+        y[1] = zr[0]
+        y[2] = 0.0
+        y[3] = 0.0
+        k1 = np.empty(4)
+        k2 = np.empty(4)
+        k3 = np.empty(4)
+        k4 = np.empty(4)
+        tmp = np.empty(4)
+        out = np.empty(_NOUT)
+        zi = np.zeros((sos.shape[0], 2))
+        h = dt
+        for k in range(n):
+            code = _sample(k, y, zr[k], zrd[k], p, spring, damper, k1, out, acc[b], hist[b],
+                           sos, zi, trace[b], every)
+            if code != 0:
+                fail[b] = code
+                break
+            if k == n - 1:
+                break
+            zm = 0.5 * (zr[k] + zr[k + 1])
+            zdm = 0.5 * (zrd[k] + zrd[k + 1])
+            for i in range(4):
+                tmp[i] = y[i] + 0.5 * h * k1[i]
+            _rhs(tmp, zm, zdm, p, spring, damper, k2, out)
+            for i in range(4):
+                tmp[i] = y[i] + 0.5 * h * k2[i]
+            _rhs(tmp, zm, zdm, p, spring, damper, k3, out)
+            for i in range(4):
+                tmp[i] = y[i] + h * k3[i]
+            _rhs(tmp, zr[k + 1], zrd[k + 1], p, spring, damper, k4, out)
+            for i in range(4):
+                y[i] += h / 6.0 * (k1[i] + 2.0 * k2[i] + 2.0 * k3[i] + k4[i])
+        c.close_wheel(acc[b], _ACC_W)
+
+
+@njit(cache=True)
+def _rhs_at_time(t, y, zr, zrd, dt, p, spring, damper):
+    """The same equations at any time, the road linear between samples (for solve_ivp)."""
+    u = t / dt
+    i = int(u)
+    if i > zr.shape[0] - 2:
+        i = zr.shape[0] - 2
+    if i < 0:
+        i = 0
+    f = u - i
+    dy = np.empty(4)
+    out = np.empty(_NOUT)
+    _rhs(y, zr[i] + f * (zr[i + 1] - zr[i]), zrd[i] + f * (zrd[i + 1] - zrd[i]), p, spring,
+         damper, dy, out)
+    return dy
+
+
+@njit(cache=True)
+def _replay(Y, zr, zrd, p, spring, damper, sos, acc, hist, trace, every):
+    """Accumulate metrics from given states Y (N, 4) at the sample times."""
+    dy = np.empty(4)
+    out = np.empty(_NOUT)
+    zi = np.zeros((sos.shape[0], 2))
+    code = 0
+    for k in range(Y.shape[0]):
+        code = _sample(k, Y[k], zr[k], zrd[k], p, spring, damper, dy, out, acc, hist, sos, zi,
+                       trace, every)
+        if code != 0:
+            break
+    c.close_wheel(acc, _ACC_W)
+    return code
+
+
+@dataclass(frozen=True)
+class _Prepared:
+    P: FloatArray
+    springs: FloatArray
+    dampers: FloatArray
+    acc: FloatArray
+    hist: FloatArray
+    fail: NDArray[np.int64]
+    trace: FloatArray
+    every: int
+    sos: FloatArray
+
+
+def _prepare(params: QuarterCarParams, road: RoadInput, trace_every: int | None) -> _Prepared:
+    wheel = params.wheel
+    w.check_wheel(wheel)
+    bsz = wheel.batch
+    sprung = np.broadcast_to(np.asarray(params.sprung_mass, dtype=np.float64), (bsz,))
+    P = np.zeros((bsz, _NP))
+    P[:, _M_S] = sprung
+    w.pack_wheel(P, _W, wheel, sprung * c.GRAVITY, 0.0, np.ones(bsz))
+    fail = np.zeros(bsz, dtype=np.int64)
+    s0 = P[:, _W + w.E_S0]
+    fail[(s0 > wheel.travel) | (s0 < wheel.travel_grid[0])] = c.FAIL_STATIC
+    acc = np.zeros((bsz, _NACC))
+    c.init_wheel_acc(acc, _ACC_W)
+    every = int(trace_every) if trace_every else 1
+    m = (road.samples - 1) // every + 1 if trace_every else 0
+    return _Prepared(
+        P=P,
+        springs=np.ascontiguousarray(wheel.spring_force, dtype=np.float64),
+        dampers=np.ascontiguousarray(wheel.damper_force, dtype=np.float64),
+        acc=acc,
+        hist=np.zeros((bsz, c.HIST_BINS)),
+        fail=fail,
+        trace=np.zeros((bsz, _NTRACE, m)),
+        every=every,
+        sos=weighting_sos("Wk", 1.0 / road.dt),
+    )
+
+
+def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> QuarterCarResult:
+    failed = prep.fail != 0
+    P = prep.P
+    none = np.zeros(P.shape[0])
+    traces = None
+    if trace_every:
+        tr = prep.trace.copy()
+        tr[failed] = np.nan
+        traces = QuarterCarTraces(
+            time=np.arange(tr.shape[2], dtype=np.float64) * (prep.every * road.dt),
+            tyre_load=tr[:, _O_LOAD],
+            travel=tr[:, _O_TRAVEL],
+            tyre_deflection=tr[:, _O_DEFL],
+            body_accel=tr[:, _O_ACCEL],
+            body_accel_weighted=tr[:, _NOUT],
+        )
+    return QuarterCarResult(
+        wheel=wheel_metrics(
+            prep.acc, _ACC_W, prep.hist, road.samples, road.dt, P[:, _W + w.E_F_STATIC],
+            P[:, _W + w.E_S0], P[:, _W + w.E_HIST_W], none, none, failed,
+        ),
+        body_vibration=vibration_metrics(prep.acc, _ACC_V, road.samples, road.dt, failed),
+        static_travel=P[:, _W + w.E_S0].copy(),
+        static_load=P[:, _W + w.E_F_STATIC].copy(),
+        duration=road.duration,
+        failed=failed,
+        failure=failure_reasons(prep.fail),
+        traces=traces,
+    )
+
+
+def simulate_quartercar(
+    params: QuarterCarParams, road: RoadInput, *, trace_every: int | None = None
+) -> QuarterCarResult:
+    """Run B quarter-car setups over the road's front channel with fixed-step RK4 (step road.dt).
+
+    trace_every: keep time series every that many samples (None: metrics only).
+    """
+    prep = _prepare(params, road, trace_every)
+    _run(prep.P, prep.springs, prep.dampers, road.front_z, road.front_zdot, road.dt, prep.sos,
+         prep.acc, prep.hist, prep.fail, prep.trace, prep.every)
+    return _finish(prep, road, trace_every)
+
+
+def simulate_quartercar_reference(
+    params: QuarterCarParams,
+    road: RoadInput,
+    *,
+    rtol: float = 1e-8,
+    atol: float = 1e-10,
+    max_step: float | None = None,
+    method: str = "RK45",
+    trace_every: int | None = None,
+) -> QuarterCarResult:
+    """The same equations integrated by scipy.integrate.solve_ivp, one setup at a time.
+
+    States are taken from the solver's dense output at the sample times and fed through the
+    same metric accumulation as the RK4 kernel. max_step [s] defaults to the road's dt.
+    """
+    prep = _prepare(params, road, trace_every)
+    t = np.arange(road.samples) * road.dt
+    zr, zrd = road.front_z, road.front_zdot
+    for b in range(prep.P.shape[0]):
+        if prep.fail[b] != 0:
+            continue
+        p, spring, damper = prep.P[b], prep.springs[b], prep.dampers[b]
+        y0 = np.array([zr[0], zr[0], 0.0, 0.0])
+        sol = solve_ivp(
+            lambda tt, yy, p=p, spring=spring, damper=damper: _rhs_at_time(
+                tt, yy, zr, zrd, road.dt, p, spring, damper
+            ),
+            (0.0, t[-1]),
+            y0,
+            method=method,
+            t_eval=t,
+            rtol=rtol,
+            atol=atol,
+            max_step=max_step if max_step is not None else road.dt,
+        )
+        if sol.status != 0 or sol.y.shape[1] != t.shape[0]:
+            prep.fail[b] = c.FAIL_NON_FINITE
+            continue
+        prep.fail[b] = _replay(np.ascontiguousarray(sol.y.T), zr, zrd, p, spring, damper,
+                               prep.sos, prep.acc[b], prep.hist[b], prep.trace[b], prep.every)
+    return _finish(prep, road, trace_every)
