@@ -64,35 +64,69 @@ def _print_table(name: str, c: StaticCheck) -> None:
         t.add_row(label, f, r)
 
     fr, rr = c.front, c.rear
-    row("tyre load", f"{fr.tyre_load:.0f} N ({fr.tyre_load / (fr.tyre_load + rr.tyre_load):.0%})",
-        f"{rr.tyre_load:.0f} N ({rr.tyre_load / (fr.tyre_load + rr.tyre_load):.0%})")
-    row("sag (stroke)", f"{_mm(fr.sag_stroke)} = {fr.sag_percent:.0f} %",
-        f"{_mm(rr.sag_stroke)} = {rr.sag_percent:.0f} %")
-    row("sag (wheel, vertical)", f"{_mm(fr.sag_wheel)} of {_mm(fr.wheel_travel)}",
-        f"{_mm(rr.sag_wheel)} of {_mm(rr.wheel_travel)}")
-    row("wheel rate at sag",
+    row(
+        "tyre load",
+        f"{fr.tyre_load:.0f} N ({fr.tyre_load / (fr.tyre_load + rr.tyre_load):.0%})",
+        f"{rr.tyre_load:.0f} N ({rr.tyre_load / (fr.tyre_load + rr.tyre_load):.0%})",
+    )
+    row(
+        "sag (stroke)",
+        f"{_mm(fr.sag_stroke)} = {fr.sag_percent:.0f} %",
+        f"{_mm(rr.sag_stroke)} = {rr.sag_percent:.0f} %",
+    )
+    row(
+        "sag (wheel, vertical)",
+        f"{_mm(fr.sag_wheel)} of {_mm(fr.wheel_travel)}",
+        f"{_mm(rr.sag_wheel)} of {_mm(rr.wheel_travel)}",
+    )
+    row(
+        "wheel rate at sag",
         f"{fr.wheel_rate / 1e3:.1f} N/mm ({convert(fr.wheel_rate, 'N/m', 'lbf/in'):.0f} lbf/in)",
-        f"{rr.wheel_rate / 1e3:.1f} N/mm ({convert(rr.wheel_rate, 'N/m', 'lbf/in'):.0f} lbf/in)")
-    row("motion ratio at sag (wheel/stroke)", f"{fr.leverage_at_sag:.2f}", f"{rr.leverage_at_sag:.2f}")
-    row("tyre stiffness", f"{fr.tyre_stiffness / 1e3:.0f} N/mm", f"{rr.tyre_stiffness / 1e3:.0f} N/mm")
+        f"{rr.wheel_rate / 1e3:.1f} N/mm ({convert(rr.wheel_rate, 'N/m', 'lbf/in'):.0f} lbf/in)",
+    )
+    row(
+        "motion ratio at sag (wheel/stroke)",
+        f"{fr.leverage_at_sag:.2f}",
+        f"{rr.leverage_at_sag:.2f}",
+    )
+    row(
+        "tyre stiffness",
+        f"{fr.tyre_stiffness / 1e3:.0f} N/mm",
+        f"{rr.tyre_stiffness / 1e3:.0f} N/mm",
+    )
     row("natural frequency", f"{fr.frequency:.2f} Hz", f"{rr.frequency:.2f} Hz")
-    row("  with tyre in series", f"{fr.frequency_with_tyre:.2f} Hz", f"{rr.frequency_with_tyre:.2f} Hz")
+    row(
+        "  with tyre in series",
+        f"{fr.frequency_with_tyre:.2f} Hz",
+        f"{rr.frequency_with_tyre:.2f} Hz",
+    )
     keys = [f"{d} {r}" for d in ("compression", "rebound") for r in ("low-speed", "high-speed")]
     for key in keys:
-        row(f"damping ratio, {key}",
+        row(
+            f"damping ratio, {key}",
             f"{fr.damping_ratios[key]:.2f}" if key in fr.damping_ratios else "-",
-            f"{rr.damping_ratios[key]:.2f}" if key in rr.damping_ratios else "-")
-    row(f"braking at {c.deceleration:.1f} m/s²: load",
-        f"{c.braking_front_load:.0f} N", f"{c.braking_rear_load:.0f} N")
-    row("  travel used", f"{c.braking_sag_front / fr.wheel_travel:.0%}",
-        f"{c.braking_sag_rear / rr.wheel_travel:.0%}")
+            f"{rr.damping_ratios[key]:.2f}" if key in rr.damping_ratios else "-",
+        )
+    row(
+        f"braking at {c.deceleration:.1f} m/s²: load",
+        f"{c.braking_front_load:.0f} N",
+        f"{c.braking_rear_load:.0f} N",
+    )
+    row(
+        "  travel used",
+        f"{c.braking_sag_front / fr.wheel_travel:.0%}",
+        f"{c.braking_sag_rear / rr.wheel_travel:.0%}",
+    )
     console.print(t)
 
     g = Table(title="Geometry")
     for col in ("", "head angle", "BB height", "wheelbase"):
         g.add_column(col, justify="right" if col else "left")
-    for label, geo in (("unsagged", c.geometry_unsagged), ("at sag", c.geometry_at_sag),
-                       (f"braking {c.deceleration:.1f} m/s²", c.geometry_braking)):
+    for label, geo in (
+        ("unsagged", c.geometry_unsagged),
+        ("at sag", c.geometry_at_sag),
+        (f"braking {c.deceleration:.1f} m/s²", c.geometry_braking),
+    ):
         g.add_row(label, f"{geo.head_angle:.1f}°", _mm(geo.bb_height), _mm(geo.wheelbase))
     console.print(g)
     console.print(

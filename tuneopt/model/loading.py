@@ -27,13 +27,22 @@ _MESSAGES = {
 }
 
 
+# Branch names that pydantic puts in the path of a discriminated union (``spring.kind``).
+_UNION_TAGS = {"air", "coil"}
+
+
 def _location(loc: tuple[Any, ...]) -> str:
     parts: list[str] = []
     for item in loc:
         text = str(item)
+        if text in _UNION_TAGS and parts and parts[-1] == "spring":
+            continue
         # pydantic names union branches and validators in the path; they mean nothing to a user
-        if "[" in text or "(" in text or text in {"Coefficient", "StiffnessPoint"} or (
-            text[:1].isupper() and isinstance(item, str)
+        if (
+            "[" in text
+            or "(" in text
+            or text in {"Coefficient", "StiffnessPoint"}
+            or (text[:1].isupper() and isinstance(item, str))
         ):
             continue
         parts.append(f"[{text}]" if isinstance(item, int) else text)
@@ -94,8 +103,12 @@ def parse_damper_csv(text: str, source: str) -> dict[str, Any]:
             problems.append(FieldProblem(f"{source}:{line}", "NaN in the row"))
             continue
         points.append(
-            {"adjuster": row[0].strip().lower(), "click": click, "velocity": velocity,
-             "force": force}
+            {
+                "adjuster": row[0].strip().lower(),
+                "click": click,
+                "velocity": velocity,
+                "force": force,
+            }
         )
     if problems:
         raise InputError(problems)

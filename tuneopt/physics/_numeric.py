@@ -47,7 +47,7 @@ class Pchip:
             return 3 * m0
         return float(d)
 
-    def _parts(self, xq: ArrayLike) -> tuple[FloatArray, ...]:
+    def _parts(self, xq: ArrayLike) -> tuple[NDArray[np.intp], FloatArray, FloatArray]:
         xq = np.asarray(xq, dtype=float)
         i = np.clip(np.searchsorted(self.x, xq, side="right") - 1, 0, self.x.size - 2)
         h = self.x[i + 1] - self.x[i]

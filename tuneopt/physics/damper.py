@@ -51,7 +51,9 @@ class BilinearCurve:
 @dataclass(frozen=True)
 class MeasuredDirection:
     """One direction from a dyno: velocities (increasing, > 0) and forces; linear through the
-    origin, extrapolated with the last segment's slope."""
+    origin. Beyond the last reading the force grows along the secant from the origin
+    (F_last·v/v_last): tables measured on a shared velocity grid then keep their click order,
+    which the last segment's slope, noisy on a dyno, would not."""
 
     velocity: tuple[float, ...]
     force: tuple[float, ...]
@@ -60,8 +62,7 @@ class MeasuredDirection:
         v = np.concatenate([[0.0], self.velocity])
         f = np.concatenate([[0.0], self.force])
         out = np.interp(speed, v, f)
-        slope = (f[-1] - f[-2]) / (v[-1] - v[-2])
-        return np.where(speed > v[-1], f[-1] + slope * (speed - v[-1]), out)
+        return np.where(speed > v[-1], f[-1] * speed / v[-1], out)
 
 
 @dataclass(frozen=True)
@@ -73,9 +74,7 @@ class DamperParams:
         """Damper force [N] at velocity v [m/s] (compression positive)."""
         v = np.asarray(v, dtype=float)
         speed = np.abs(v)
-        return np.where(
-            v >= 0, self.compression.magnitude(speed), -self.rebound.magnitude(speed)
-        )
+        return np.where(v >= 0, self.compression.magnitude(speed), -self.rebound.magnitude(speed))
 
     def low_speed_coefficient(self, direction: str, v: float = 0.02) -> float:
         """Slope near zero velocity [N s/m], for damping ratios."""

@@ -64,7 +64,12 @@ def spring_params(spring: Spring, setting: EndSetup) -> SpringParams:
                 else setting.pressure
             )
         return AirSpringParams(
-            area, volume, setting.pressure, neg_area, neg_volume, neg_pressure,
+            area,
+            volume,
+            setting.pressure,
+            neg_area,
+            neg_volume,
+            neg_pressure,
             spring.polytropic_index,
         )
     assert setting.rate is not None
@@ -181,9 +186,14 @@ class SuspensionEnd:
         assert self.linkage is not None
         return self.linkage.ratio_at(np.clip(z, 0.0, self.linkage.wheel_travel))
 
-    def spring_force(self, z: ArrayLike, n: float | None = None) -> FloatArray:
+    def spring_force(
+        self, z: ArrayLike, n: float | None = None, with_stops: bool = True
+    ) -> FloatArray:
         s = self.stroke(z)
-        return (self.spring.force(s, n) + self.stops.force(s)) / self.ratio(z)
+        f = self.spring.force(s, n)
+        if with_stops:
+            f = f + self.stops.force(s)
+        return f / self.ratio(z)
 
     def spring_rate(self, z: ArrayLike, n: float | None = None) -> FloatArray:
         """Vertical wheel rate [N/m] of the spring alone (stops excluded)."""
@@ -207,8 +217,13 @@ class SuspensionEnd:
             return self
         s_static = float(self.stroke(z_static))
         return SuspensionEnd(
-            self.name, rebase_air_spring(self.spring, s_static), self.damper, self.stops,
-            self.stroke_travel, self.incline, self.linkage,
+            self.name,
+            rebase_air_spring(self.spring, s_static),
+            self.damper,
+            self.stops,
+            self.stroke_travel,
+            self.incline,
+            self.linkage,
         )
 
 
@@ -224,7 +239,9 @@ def front_end(scenario: Scenario, setting: EndSetup) -> SuspensionEnd:
     )
 
 
-def rear_end(scenario: Scenario, setting: EndSetup, linkage: LeverageCurve | None = None) -> SuspensionEnd:
+def rear_end(
+    scenario: Scenario, setting: EndSetup, linkage: LeverageCurve | None = None
+) -> SuspensionEnd:
     shock = scenario.shock
     return SuspensionEnd(
         "shock",

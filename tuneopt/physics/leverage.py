@@ -34,7 +34,9 @@ class LeverageCurve:
     ratio_slope: FloatArray  # (G,) dLR/dx_w [1/m]
 
     @classmethod
-    def from_ratio(cls, wheel_travel: ArrayLike, ratio: ArrayLike, points: int = 2001) -> LeverageCurve:
+    def from_ratio(
+        cls, wheel_travel: ArrayLike, ratio: ArrayLike, points: int = 2001
+    ) -> LeverageCurve:
         w = np.asarray(wheel_travel, dtype=float)
         lr = Pchip(w, np.asarray(ratio, dtype=float))
         grid = np.linspace(w[0], w[-1], points)
@@ -63,28 +65,29 @@ class LeverageCurve:
         return float(self.stroke[-1])
 
     def stroke_at(self, x_w: ArrayLike) -> FloatArray:
-        return np.interp(x_w, self.wheel, self.stroke)
+        return np.interp(np.asarray(x_w, dtype=float), self.wheel, self.stroke)
 
     def wheel_at(self, stroke: ArrayLike) -> FloatArray:
-        return np.interp(stroke, self.stroke, self.wheel)
+        return np.interp(np.asarray(stroke, dtype=float), self.stroke, self.wheel)
 
     def ratio_at(self, x_w: ArrayLike) -> FloatArray:
-        return np.interp(x_w, self.wheel, self.ratio)
+        return np.interp(np.asarray(x_w, dtype=float), self.wheel, self.ratio)
 
     def ratio_slope_at(self, x_w: ArrayLike) -> FloatArray:
-        return np.interp(x_w, self.wheel, self.ratio_slope)
+        return np.interp(np.asarray(x_w, dtype=float), self.wheel, self.ratio_slope)
 
     def wheel_force(self, shock_force: ArrayLike, x_w: ArrayLike) -> FloatArray:
         """Vertical force at the wheel [N] from the shock force at wheel travel x_w."""
         return np.asarray(shock_force, dtype=float) / self.ratio_at(x_w)
 
-    def wheel_rate(self, shock_rate: ArrayLike, shock_force: ArrayLike, x_w: ArrayLike) -> FloatArray:
+    def wheel_rate(
+        self, shock_rate: ArrayLike, shock_force: ArrayLike, x_w: ArrayLike
+    ) -> FloatArray:
         """k_w = k_s/LR² − (F_s/LR²)·dLR/dx_w [N/m]."""
         lr = self.ratio_at(x_w)
-        return (
-            np.asarray(shock_rate, dtype=float) / lr**2
-            - np.asarray(shock_force, dtype=float) / lr**2 * self.ratio_slope_at(x_w)
-        )
+        return np.asarray(shock_rate, dtype=float) / lr**2 - np.asarray(
+            shock_force, dtype=float
+        ) / lr**2 * self.ratio_slope_at(x_w)
 
     def wheel_damping(self, shock_damping: ArrayLike, x_w: ArrayLike) -> FloatArray:
         return np.asarray(shock_damping, dtype=float) / self.ratio_at(x_w) ** 2

@@ -124,7 +124,9 @@ class EndStops:
         return bumper + self.stop_stiffness * beyond - self.stop_stiffness * top
 
 
-def rebase_air_spring(spring: AirSpringParams, x_ref: float, n_static: float = 1.0) -> AirSpringParams:
+def rebase_air_spring(
+    spring: AirSpringParams, x_ref: float, n_static: float = 1.0
+) -> AirSpringParams:
     """The spring as it behaves in riding about a static stroke ``x_ref``.
 
     Compressing slowly to sag is close to isothermal (n_static = 1); riding motion about it is

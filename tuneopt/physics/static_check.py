@@ -100,7 +100,9 @@ class StaticCheck:
 def _sag(end: SuspensionEnd, load: float, where: str) -> float:
     """Vertical wheel travel [m] carrying ``load`` on the static (isothermal) spring."""
     try:
-        return solve_travel(lambda z: float(end.spring_force(z, 1.0)), load, end.travel)
+        return solve_travel(
+            lambda z: float(end.spring_force(z, 1.0, with_stops=False)), load, end.travel
+        )
     except ValueError:
         raise InputError.single(
             where,
@@ -109,7 +111,9 @@ def _sag(end: SuspensionEnd, load: float, where: str) -> float:
         ) from None
 
 
-def _geometry(lay: Layout, scenario: Scenario, z_front: float, z_rear: float, s_front: float) -> Geometry:
+def _geometry(
+    lay: Layout, scenario: Scenario, z_front: float, z_rear: float, s_front: float
+) -> Geometry:
     """Frame attitude from vertical sag at each axle (small pitch angles; rear axle path taken as
     vertical; fork compression moves the front axle back along the fork axis)."""
     L = lay.wheelbase
@@ -175,7 +179,9 @@ def static_check(scenario: Scenario, setup: Setup | None = None) -> StaticCheck:
     rs = _end_statics(rear, r_load, lay.unsprung_rear, kt_r, z_r)
 
     sx = lay.sprung_com_x
-    modes = bounce_pitch_modes(fs.ride_rate, rs.ride_rate, L - sx, sx, lay.sprung_mass, lay.sprung_inertia)
+    modes = bounce_pitch_modes(
+        fs.ride_rate, rs.ride_rate, L - sx, sx, lay.sprung_mass, lay.sprung_inertia
+    )
 
     a = scenario.braking.deceleration
     dF = load_transfer(m, a, lay.com_height, L)
@@ -230,7 +236,8 @@ def _findings(
         if sag > 60:
             out.append(
                 Finding(
-                    "error", where,
+                    "error",
+                    where,
                     f"sag {sag:.0f} % of stroke: the travel is used up standing still; "
                     "the spring is far too soft",
                     "follows from the travel",
@@ -248,15 +255,16 @@ def _findings(
     share = fs.tyre_load / (fs.tyre_load + rs.tyre_load)
     if not 0.35 <= share <= 0.55:
         warn(
-            "rider", f"{share:.0%} of the weight on the front is outside 35-55 %",
+            "rider",
+            f"{share:.0%} of the weight on the front is outside 35-55 %",
             "common practice, no source; uncertain",
         )
-    for name, m, lo, hi in (
+    for name, m, low, high in (
         ("bike.unsprung_front", lay.unsprung_front, 2.0, 3.5),
         ("bike.unsprung_rear", lay.unsprung_rear, 3.0, 5.0),
     ):
-        if not lo <= m <= hi:
-            warn(name, f"{m:.1f} kg is outside the usual {lo}-{hi} kg")
+        if not low <= m <= high:
+            warn(name, f"{m:.1f} kg is outside the usual {low}-{high} kg")
     lift = rear_lift_deceleration(lay.com_x, lay.com_height, lay.wheelbase)
     if decel >= lift:
         warn(

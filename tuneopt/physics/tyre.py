@@ -39,4 +39,6 @@ def measured_stiffness(
 
 def tyre_force(deflection: ArrayLike, stiffness: ArrayLike) -> FloatArray:
     """Vertical tyre force [N]: k·δ for δ > 0, zero when the tyre leaves the ground."""
-    return np.asarray(stiffness, dtype=float) * np.clip(np.asarray(deflection, dtype=float), 0, None)
+    return np.asarray(stiffness, dtype=float) * np.clip(
+        np.asarray(deflection, dtype=float), 0, None
+    )
