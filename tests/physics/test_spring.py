@@ -63,7 +63,7 @@ def test_rebased_spring_passes_through_the_isothermal_static_state() -> None:
 def test_more_pressure_gives_less_sag(p: float, dp: float, load: float) -> None:
     def sag(pressure: float) -> float:
         s = AirSpringParams(AREA, 200e-6, pressure, AREA, 30e-6, pressure, 1.3)
-        return solve_travel(lambda x: float(s.force(x, 1.0)), load, 0.15)
+        return solve_travel(lambda x: s.force(x, 1.0), load, 0.15)
 
     assert sag(p + dp) <= sag(p)
 
@@ -82,7 +82,7 @@ def test_linear_spring_frequency_from_static_deflection() -> None:
     # f = √(g/δ)/2π for a linear spring without preload (REFERENCES [D])
     k, m = 12e3, 40.0
     coil = CoilSpringParams(k)
-    delta = solve_travel(lambda x: float(coil.force(x)), m * GRAVITY, 0.2)
+    delta = solve_travel(coil.force, m * GRAVITY, 0.2)
     assert_allclose(natural_frequency(k, m), np.sqrt(GRAVITY / delta) / (2 * np.pi), rtol=1e-7)
 
 

@@ -11,7 +11,7 @@ from scipy.interpolate import PchipInterpolator
 from scipy.linalg import eigh
 from scipy.optimize import brentq
 
-from tuneopt.physics._numeric import Pchip, find_root
+from tuneopt.physics._numeric import Pchip
 from tuneopt.physics.leverage import LeverageCurve
 from tuneopt.physics.statics import (
     GRAVITY,
@@ -19,6 +19,7 @@ from tuneopt.physics.statics import (
     braking_split,
     load_transfer,
     rear_lift_deceleration,
+    solve_travel,
     static_split,
 )
 
@@ -87,11 +88,17 @@ def test_pchip_matches_scipy() -> None:
         assert_allclose(ours.derivative(q, 2), ref.derivative(2)(q), rtol=1e-9, atol=1e-9)
 
 
-def test_find_root_matches_brentq() -> None:
-    f = lambda x: x**3 - 0.002 * x - 1e-4  # noqa: E731
-    assert_allclose(find_root(f, 0.0, 0.2), brentq(f, 0.0, 0.2, xtol=1e-14), atol=1e-10)
-    with pytest.raises(ValueError, match="not bracketed"):
-        find_root(f, 0.1, 0.2)
+def test_solve_travel_matches_brentq() -> None:
+    # a rising air-spring-like force law; scipy.optimize.brentq as the reference root finder
+    def force(x: np.ndarray) -> np.ndarray:
+        return 300 * (0.2 / (0.2 - np.asarray(x))) ** 1.3 - 250 + 2e3 * np.asarray(x)
+
+    for load in (60.0, 200.0, 900.0):
+        ref = brentq(lambda x, f=load: float(force(x)) - f, 0.0, 0.15, xtol=1e-14)
+        assert_allclose(solve_travel(force, load, 0.15), ref, atol=1e-8)
+    assert solve_travel(force, 10.0, 0.15) == 0.0
+    with pytest.raises(ValueError, match="cannot hold"):
+        solve_travel(force, 5e3, 0.15)
 
 
 def test_leverage_from_ratio_and_from_stroke_agree() -> None:

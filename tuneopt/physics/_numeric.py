@@ -1,16 +1,14 @@
 """Small numerical tools kept in numpy so the command line starts fast.
 
-Their results are checked against scipy (PchipInterpolator, brentq) in the tests.
+Checked against scipy.interpolate.PchipInterpolator in the tests.
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable
-
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-__all__ = ["Pchip", "find_root"]
+__all__ = ["Pchip"]
 
 FloatArray = NDArray[np.float64]
 
@@ -81,25 +79,3 @@ class Pchip:
                 + (6 * t - 2) / h * d1
             )
         raise ValueError("order must be 1 or 2")
-
-
-def find_root(f: Callable[[float], float], a: float, b: float, xtol: float = 1e-10) -> float:
-    """Root of f in [a, b] with f(a)·f(b) ≤ 0, by bisection (robust; ~35 calls for 0.1 m
-    to 1e-11 m)."""
-    fa, fb = f(a), f(b)
-    if fa == 0:
-        return a
-    if fb == 0:
-        return b
-    if fa * fb > 0:
-        raise ValueError("the root is not bracketed")
-    while abs(b - a) > xtol:
-        x = 0.5 * (a + b)
-        fx = f(x)
-        if fx == 0:
-            return x
-        if fa * fx < 0:
-            b, fb = x, fx
-        else:
-            a, fa = x, fx
-    return 0.5 * (a + b)

@@ -108,8 +108,22 @@ def damper_params(damper: Damper, setting: EndSetup) -> DamperParams:
     return DamperParams(curves["compression"], curves["rebound"])
 
 
+_CURVES: dict[str, LeverageCurve] = {}
+
+
 def leverage_curve(shock: Shock) -> LeverageCurve:
-    """The linkage's leverage curve; InputError when it disagrees with the shock's stroke."""
+    """The linkage's leverage curve; InputError when it disagrees with the shock's stroke.
+
+    Built once per distinct table (the optimiser asks for it for every setup)."""
+    key = shock.leverage.model_dump_json() + f"|{shock.stroke!r}"
+    if key not in _CURVES:
+        if len(_CURVES) > 64:
+            _CURVES.clear()
+        _CURVES[key] = _build_leverage_curve(shock)
+    return _CURVES[key]
+
+
+def _build_leverage_curve(shock: Shock) -> LeverageCurve:
     table = shock.leverage
     wheel = table.in_si(table.wheel_travel)
     if table.ratio is not None:

@@ -100,9 +100,7 @@ class StaticCheck:
 def _sag(end: SuspensionEnd, load: float, where: str) -> float:
     """Vertical wheel travel [m] carrying ``load`` on the static (isothermal) spring."""
     try:
-        return solve_travel(
-            lambda z: float(end.spring_force(z, 1.0, with_stops=False)), load, end.travel
-        )
+        return solve_travel(lambda z: end.spring_force(z, 1.0, with_stops=False), load, end.travel)
     except ValueError:
         raise InputError.single(
             where,
@@ -218,7 +216,7 @@ def _braking_sag(end: SuspensionEnd, load: float, z_static: float) -> float:
     if load <= 0:
         return 0.0
     try:
-        return solve_travel(lambda z: float(end.spring_force(z)), load, end.travel)
+        return solve_travel(end.spring_force, load, end.travel)
     except ValueError:
         return end.travel
 

@@ -11,8 +11,6 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tuneopt.physics._numeric import find_root
-
 __all__ = [
     "GRAVITY",
     "Modes",
@@ -67,19 +65,34 @@ def damping_ratio(damping: float, stiffness: float, mass: float) -> float:
     return float(damping / (2 * np.sqrt(stiffness * mass)))
 
 
-def solve_travel(force: Callable[[float], float], load: float, travel: float) -> float:
-    """Travel x in [0, travel] where ``force(x) == load``. ``force`` must rise with x.
+def solve_travel(
+    force: Callable[[NDArray[np.float64]], NDArray[np.float64]],
+    load: float,
+    travel: float,
+    points: int = 257,
+) -> float:
+    """Smallest travel x in [0, travel] where the rising, vectorised ``force(x)`` reaches
+    ``load``: a coarse grid finds the bracket, a fine grid inside it and linear interpolation
+    give x to well under a micrometre (two vectorised calls instead of ~35 scalar ones).
 
-    Raises ValueError when the spring holds the load without moving (returns 0 if it holds it
-    at full extension) or cannot hold it within the travel.
+    Raises ValueError when the spring cannot hold the load within the travel; returns 0 when it
+    holds it at full extension.
     """
-    f0 = force(0.0) - load
-    if f0 >= 0:
-        return 0.0
-    f1 = force(travel) - load
-    if f1 < 0:
-        raise ValueError("the spring cannot hold the load within the travel")
-    return find_root(lambda x: force(x) - load, 0.0, travel, xtol=1e-9)
+    lo, hi = 0.0, travel
+    for _ in range(2):
+        x = np.linspace(lo, hi, points)
+        f = force(x) - load
+        if f[0] >= 0:
+            if lo == 0.0:
+                return 0.0
+            return float(x[0])
+        above = np.flatnonzero(f >= 0)
+        if above.size == 0:
+            raise ValueError("the spring cannot hold the load within the travel")
+        i = int(above[0])
+        lo, hi = float(x[i - 1]), float(x[i])
+        f_lo, f_hi = float(f[i - 1]), float(f[i])
+    return lo + (hi - lo) * (-f_lo) / (f_hi - f_lo)
 
 
 @dataclass(frozen=True)
