@@ -1,0 +1,186 @@
+"""Courses built from a terrain mix and a seed: one segment per mix entry, reproducible bit for bit.
+
+Every segment starts with a flat, smooth lead-in of LEAD_IN metres (longer than any bike's
+wheelbase plus a wheel radius), so both wheels start on level ground; the background roughness
+then fades in over TAPER metres before the first feature, corner or braking zone. Each segment
+draws from its own random streams, seeded by (seed, segment index, stream), so the roughness of
+one segment does not change when another entry of the mix is edited.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tuneopt.model.course import CourseSpec, MixEntry
+from tuneopt.model.errors import FieldProblem, InputError
+from tuneopt.terrain.features import lay_braking_bumps, lay_features
+from tuneopt.terrain.library import terrain_type
+from tuneopt.terrain.parameters import Roughness, TerrainType, iso_8608_class_mean
+from tuneopt.terrain.roughness import synthesise_profile
+from tuneopt.terrain.speed import place_corners, speed_profile
+
+__all__ = ["Segment", "Course", "build_course", "build_segment", "LEAD_IN", "TAPER"]
+
+LEAD_IN = 3.0  # [m] flat and smooth start of every segment
+TAPER = 2.0  # [m] the roughness fades in over this distance after the lead-in
+
+_ROUGHNESS, _FEATURES, _CORNERS, _BUMPS = range(4)
+
+
+@dataclass(frozen=True)
+class Segment:
+    """One stretch of one terrain type, sampled at uniform spacing ``dx``.
+
+    terrain: terrain type name; weight: share of the mix (weights over a course sum to 1);
+    friction: tyre-ground friction coefficient [-]; dx [m]; x: (N,) distance from the segment
+    start [m]; z: (N,) profile elevation [m], features included, before any wheel envelope;
+    speed: (N,) riding speed [m/s] > 0; decel: (N,) braking deceleration [m/s^2] >= 0;
+    curvature: (N,) path curvature 1/radius [1/m], 0 on straights.
+    """
+
+    terrain: str
+    weight: float
+    friction: float
+    dx: float
+    x: NDArray[np.float64]
+    z: NDArray[np.float64]
+    speed: NDArray[np.float64]
+    decel: NDArray[np.float64]
+    curvature: NDArray[np.float64]
+
+    @property
+    def length(self) -> float:
+        """Segment length [m]."""
+        return float(self.x[-1] - self.x[0])
+
+
+@dataclass(frozen=True)
+class Course:
+    """The segments of a course in riding order, with the seed and surface they were built for."""
+
+    segments: tuple[Segment, ...]
+    seed: int
+    surface: str
+
+    @property
+    def length(self) -> float:
+        return sum(s.length for s in self.segments)
+
+
+def _rng(seed: int, index: int, stream: int) -> np.random.Generator:
+    return np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(index, stream)))
+
+
+def _apply_overrides(terrain: TerrainType, entry: MixEntry, where: str) -> TerrainType:
+    if entry.speed is not None:
+        terrain = replace(terrain, speed=entry.speed)
+    if isinstance(entry.roughness, str):
+        terrain = replace(terrain, roughness=Roughness(iso_8608_class_mean(entry.roughness)))
+    elif entry.roughness is not None:
+        terrain = replace(terrain, roughness=Roughness(float(entry.roughness)))
+    if entry.feature_height is not None:
+        if terrain.tallest_feature <= 0:
+            raise InputError.single(
+                f"{where}.feature_height",
+                f"{terrain.name} has no discrete features whose height could be set",
+            )
+        terrain = terrain.with_feature_height(entry.feature_height)
+    return terrain
+
+
+def build_segment(
+    terrain: TerrainType,
+    length: float,
+    dx: float,
+    friction: float,
+    weight: float,
+    seed: int,
+    index: int = 0,
+) -> Segment:
+    """Synthesise one segment of ``terrain`` [length m at spacing dx m] from (seed, index)."""
+    if length < LEAD_IN + TAPER + 1.0:
+        raise ValueError(f"segment length {length} m is shorter than the lead-in and fade-in")
+    n = int(round(length / dx)) + 1
+    x = np.arange(n, dtype=np.float64) * dx
+    start = LEAD_IN + TAPER
+
+    fade = np.clip((x - LEAD_IN) / TAPER, 0.0, 1.0)
+    fade = 0.5 - 0.5 * np.cos(np.pi * fade)
+    z = synthesise_profile(n, dx, terrain.roughness, _rng(seed, index, _ROUGHNESS)) * fade
+
+    features, _ = lay_features(x, terrain.features, start, x[-1], _rng(seed, index, _FEATURES))
+    z += features
+
+    if terrain.corners is not None:
+        events = place_corners(
+            terrain.corners, terrain.speed, friction, start, x[-1], _rng(seed, index, _CORNERS)
+        )
+    else:
+        events = ()
+    profile = speed_profile(x, terrain.speed, events)
+    if terrain.braking_bumps is not None and events:
+        zones = tuple((ev.brake_start, ev.entry) for ev in events)
+        z += lay_braking_bumps(x, zones, terrain.braking_bumps, _rng(seed, index, _BUMPS))
+    z[x < LEAD_IN] = 0.0
+
+    return Segment(
+        terrain=terrain.name,
+        weight=weight,
+        friction=friction,
+        dx=dx,
+        x=x,
+        z=z,
+        speed=profile.speed,
+        decel=profile.decel,
+        curvature=profile.curvature,
+    )
+
+
+def build_course(spec: CourseSpec, seed: int) -> Course:
+    """Build the course described by ``spec`` from ``seed``; same spec and seed, same course.
+
+    Raises InputError (field paths under ``course``) when an entry cannot be built, for example a
+    segment too short to hold its terrain type's features.
+    """
+    if isinstance(seed, bool) or not isinstance(seed, int | np.integer) or seed < 0:
+        raise InputError.single("seed", f"must be a whole number >= 0, got {seed!r}")
+    seed = int(seed)
+    problems: list[FieldProblem] = []
+    plans: list[tuple[TerrainType, float, float, float]] = []
+    for i, entry in enumerate(spec.mix):
+        where = f"course.mix[{i}]"
+        try:
+            terrain = _apply_overrides(terrain_type(entry.terrain), entry, where)
+        except InputError as exc:
+            problems.extend(exc.problems)
+            continue
+        length = spec.entry_length(i)
+        needed = max(terrain.min_length, LEAD_IN + TAPER + 1.0)
+        if length < needed:
+            field = "length" if entry.length is not None else "share"
+            how = (
+                "set a longer length"
+                if entry.length is not None
+                else f"is {entry.share:g} of {spec.length:g} m; raise the share or the course "
+                "length, or give the entry its own length"
+            )
+            problems.append(
+                FieldProblem(
+                    f"{where}.{field}",
+                    f"{entry.terrain} needs at least {needed:g} m to hold its features, this "
+                    f"entry gets {length:g} m ({how})",
+                )
+            )
+            continue
+        friction = entry.friction if entry.friction is not None else terrain.friction(spec.surface)
+        plans.append((terrain, length, friction, entry.share))
+    if problems:
+        raise InputError(problems)
+    segments = tuple(
+        build_segment(terrain, length, spec.spacing, friction, share, seed, i)
+        for i, (terrain, length, friction, share) in enumerate(plans)
+    )
+    return Course(segments=segments, seed=seed, surface=spec.surface)
