@@ -1,0 +1,105 @@
+"""`tuneopt terrain`: files written, what is printed, and clear errors on bad input."""
+
+from __future__ import annotations
+
+import io
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from tuneopt.cli import main
+from tuneopt.cli.terrain import write_course
+from tuneopt.model.course import CourseSpec
+from tuneopt.model.errors import InputError
+from tuneopt.terrain import build_course
+
+
+@dataclass
+class _Bike:
+    wheelbase: float
+
+
+@dataclass
+class _Tyre:
+    outer_radius: float
+
+
+@dataclass
+class _Scenario:
+    """The shape of a loaded scenario that the command reads."""
+
+    course: CourseSpec | None
+    bike: _Bike
+    front_tyre: _Tyre
+    rear_tyre: _Tyre
+
+
+COURSE = CourseSpec.model_validate(
+    {"surface": "wet", "length": "60 m", "seed": 3,
+     "mix": [{"terrain": "root_field", "share": 0.5}, {"terrain": "rock_garden", "share": 0.5}]}
+)
+
+
+def _scenario(course: CourseSpec | None = COURSE, wheelbase: float = 1.23) -> _Scenario:
+    return _Scenario(course, _Bike(wheelbase), _Tyre(0.372), _Tyre(0.372))
+
+
+def test_writes_csv_and_plot_per_segment(tmp_path: Path) -> None:
+    printed = io.StringIO()
+    assert write_course(_scenario(), tmp_path, stream=printed) == 0
+    text = printed.getvalue()
+    assert "2 segments" in text and "seed 3" in text and "surface wet" in text
+    expected = build_course(COURSE, 3)
+    for i, seg in enumerate(expected.segments, start=1):
+        csv_path = tmp_path / f"segment_{i:02d}_{seg.terrain}.csv"
+        png_path = csv_path.with_suffix(".png")
+        assert f"wrote {csv_path}" in text and f"wrote {png_path}" in text
+        assert png_path.read_bytes()[:4] == b"\x89PNG"
+        with csv_path.open() as f:
+            assert f.readline().strip() == "x,ground,front,rear,speed,decel,curvature"
+        table = np.loadtxt(csv_path, delimiter=",", skiprows=1)
+        assert table.shape == (seg.x.size, 7)
+        np.testing.assert_allclose(table[:, 1], seg.z, atol=1e-6)
+        np.testing.assert_allclose(table[:, 4], seg.speed, atol=1e-4)
+        assert np.all(table[:, 2] >= table[:, 1] - 1e-6)
+    summary = (tmp_path / "course.csv").read_text().splitlines()
+    assert len(summary) == 3 and summary[1].startswith("1,root_field,0.5000,0.300,")
+
+
+def test_seed_option_overrides_the_scenario(tmp_path: Path) -> None:
+    printed = io.StringIO()
+    write_course(_scenario(), tmp_path, seed=11, stream=printed)
+    assert "seed 11" in printed.getvalue()
+    table = np.loadtxt(tmp_path / "segment_01_root_field.csv", delimiter=",", skiprows=1)
+    np.testing.assert_allclose(table[:, 1], build_course(COURSE, 11).segments[0].z, atol=1e-6)
+
+
+@pytest.mark.parametrize(
+    ("scenario", "seed", "where"),
+    [
+        (_scenario(course=None), None, "course"),
+        (_scenario(wheelbase=4.0), None, "bike.wheelbase"),
+        (_scenario(wheelbase=-1.0), None, "bike.wheelbase"),
+        (_scenario(), -2, "--seed"),
+    ],
+)
+def test_bad_input_names_the_field(tmp_path: Path, scenario, seed, where: str) -> None:
+    with pytest.raises(InputError) as info:
+        write_course(scenario, tmp_path, seed=seed, stream=io.StringIO())
+    assert info.value.problems[0].location == where
+
+
+def test_unwritable_out_dir(tmp_path: Path) -> None:
+    blocker = tmp_path / "file"
+    blocker.write_text("x")
+    with pytest.raises(InputError) as info:
+        write_course(_scenario(), blocker / "sub", stream=io.StringIO())
+    assert info.value.problems[0].location == "--out"
+
+
+def test_command_line_reports_a_missing_scenario(tmp_path: Path, capsys) -> None:
+    code = main(["terrain", str(tmp_path / "nope.toml"), "--out", str(tmp_path / "out")])
+    assert code == 2
+    assert "nope.toml" in capsys.readouterr().err
