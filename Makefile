@@ -17,7 +17,7 @@ demo: $(STAMP)
 	$(BIN)/tuneopt check $(DEMO)
 
 lint: $(STAMP)
-	$(BIN)/ruff check tuneopt tests workers benchmarks
+	$(BIN)/ruff check .
 
 typecheck: $(STAMP)
 	$(BIN)/mypy tuneopt
