@@ -70,8 +70,8 @@ def test_writes_csv_and_plot_per_segment(tmp_path: Path) -> None:
 
 def test_seed_option_overrides_the_scenario(tmp_path: Path) -> None:
     printed = io.StringIO()
-    write_course(_scenario(), tmp_path, seed=11, stream=printed)
-    assert "seed 11" in printed.getvalue()
+    write_course(_scenario(), tmp_path, seed=11, stream=printed, plots=False)
+    assert "seed 11" in printed.getvalue() and ".png" not in printed.getvalue()
     table = np.loadtxt(tmp_path / "segment_01_root_field.csv", delimiter=",", skiprows=1)
     np.testing.assert_allclose(table[:, 1], build_course(COURSE, 11).segments[0].z, atol=1e-6)
 

@@ -60,9 +60,14 @@ def _number(obj: Any, path: str) -> float:
 
 
 def write_course(
-    scenario: Any, out: Path, seed: int | None = None, stream: TextIO | None = None
+    scenario: Any,
+    out: Path,
+    seed: int | None = None,
+    stream: TextIO | None = None,
+    plots: bool = True,
 ) -> int:
-    """Write the course of ``scenario`` into ``out``; returns the exit code (0).
+    """Write the course of ``scenario`` into ``out`` (plots too unless ``plots`` is False);
+    returns the exit code (0).
 
     ``scenario`` needs ``.course`` (a CourseSpec), ``.bike.wheelbase`` and
     ``.front_tyre.outer_radius`` / ``.rear_tyre.outer_radius`` [m]. Raises InputError on bad
@@ -109,16 +114,19 @@ def write_course(
         )
         np.savetxt(csv_path, table, delimiter=",", header=_CSV_HEADER, comments="",
                    fmt=["%.4f", "%.6f", "%.6f", "%.6f", "%.4f", "%.4f", "%.5f"])
-        png_path = draw_segment_plot(
-            segment_plot_data(i, segment, inputs, wheelbase), out / f"{stem}.png"
-        )
+        print(f"wrote {csv_path}", file=stream)
+        png_name = ""
+        if plots:
+            png_path = draw_segment_plot(
+                segment_plot_data(i, segment, inputs, wheelbase), out / f"{stem}.png"
+            )
+            png_name = png_path.name
+            print(f"wrote {png_path}", file=stream)
         summary.append(
             f"{i + 1},{segment.terrain},{segment.weight:.4f},{segment.friction:.3f},"
             f"{segment.length:.3f},{segment.speed.min():.3f},{segment.speed.max():.3f},"
-            f"{csv_path.name},{png_path.name}"
+            f"{csv_path.name},{png_name}"
         )
-        print(f"wrote {csv_path}", file=stream)
-        print(f"wrote {png_path}", file=stream)
     summary_path = out / "course.csv"
     summary_path.write_text("\n".join(summary) + "\n", encoding="utf-8")
     print(f"wrote {summary_path}", file=stream)
