@@ -7,6 +7,7 @@ from pydantic import Field
 from tuneopt.model._base import Strict
 from tuneopt.model._quantity import convert
 from tuneopt.model.bike import Bike
+from tuneopt.model.course import CourseSpec
 from tuneopt.model.errors import FieldProblem
 from tuneopt.model.rider import Rider
 from tuneopt.model.setup import Braking, EndSetup, Setup
@@ -28,6 +29,7 @@ class Scenario(Strict):
     shock: Shock
     setup: Setup
     braking: Braking = Braking()
+    course: CourseSpec | None = None
 
 
 def _psi(pascal: float) -> float:
