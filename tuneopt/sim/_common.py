@@ -75,7 +75,7 @@ def init_wheel_acc(acc: np.ndarray, off: int) -> None:
     acc[:, off + W_FIRST_SHORT_CORNER] = -1.0
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def table_value(row, x0, dx, x):
     """Linear interpolation on a uniform grid, extrapolated with the end slopes."""
     if x != x:
@@ -92,7 +92,7 @@ def table_value(row, x0, dx, x):
     return row[i] + f * (row[i + 1] - row[i])
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def tyre_force(defl, defl_rate, k, c, rim_defl):
     """One-sided tyre: k*d + c*d' while in contact, never pulling; rim strike past rim_defl."""
     if defl <= 0.0:
@@ -103,7 +103,7 @@ def tyre_force(defl, defl_rate, k, c, rim_defl):
     return f if f > 0.0 else 0.0
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def sos_step(sos, zi, x):
     """One sample through second-order sections (transposed direct form II, as scipy)."""
     for j in range(sos.shape[0]):

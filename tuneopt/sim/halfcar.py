@@ -157,14 +157,14 @@ class HalfCarResult:
     traces: HalfCarTraces | None
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _suspension(p, o, s, sd, spring, damper):
     return c.table_value(spring, p[o + w.E_T0], p[o + w.E_TD], s) + c.table_value(
         damper, p[o + w.E_V0], p[o + w.E_VD], sd
     )
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _rhs(y, zf, zfd, zr, zrd, a, p, sf, df, sr, dr, dy, out):
     lwb = p[_L]
     xc = p[_X_C]
@@ -228,10 +228,8 @@ def _is_runaway(p, out):
 
 
 @njit(cache=True)
-def _sample(k, y, zf, zfd, zr, zrd, a, ay, mu, p, sf, df, sr, dr, dy, out, acc, hist, sos, zi,
-            trace, every):
-    """Derivative and outputs at sample k, checks, metric accumulation, trace. Returns a code."""
-    _rhs(y, zf, zfd, zr, zrd, a, p, sf, df, sr, dr, dy, out)
+def _record(k, y, dy, out, zf, zr, a, ay, mu, p, acc, hist_f, hist_r, sos, zi, trace, every):
+    """Checks, metric accumulation and trace for sample k (derivative and outputs given)."""
     for i in range(_NS):
         if not (np.isfinite(y[i]) and np.isfinite(dy[i])):
             return c.FAIL_NON_FINITE
@@ -240,15 +238,18 @@ def _sample(k, y, zf, zfd, zr, zrd, a, ay, mu, p, sf, df, sr, dr, dy, out, acc, 
     braking = a > c.BRAKING_THRESHOLD
     cornering = ay > c.CORNERING_THRESHOLD
     m_tot = p[_M_TOT]
-    for off, o, ch_f, ch_s, ch_d, h in (
-        (_ACC_F, _F, _O_LOAD_F, _O_TRAVEL_F, _O_DEFL_F, hist[0]),
-        (_ACC_R, _R, _O_LOAD_R, _O_TRAVEL_R, _O_DEFL_R, hist[1]),
-    ):
-        demand = np.hypot(p[o + w.E_BRAKE_SHARE] * m_tot * a, p[o + w.E_LAT_SHARE] * m_tot * ay)
-        c.accumulate_wheel(
-            acc, off, h, k, out[ch_f], out[ch_s], out[ch_d], p[o + w.E_TRAVEL], p[o + w.E_D_RIM],
-            p[o + w.E_F_STATIC], c.HIST_LOW, p[o + w.E_HIST_W], braking, cornering, demand, mu,
-        )
+    demand = np.hypot(p[_F + w.E_BRAKE_SHARE] * m_tot * a, p[_F + w.E_LAT_SHARE] * m_tot * ay)
+    c.accumulate_wheel(
+        acc, _ACC_F, hist_f, k, out[_O_LOAD_F], out[_O_TRAVEL_F], out[_O_DEFL_F],
+        p[_F + w.E_TRAVEL], p[_F + w.E_D_RIM], p[_F + w.E_F_STATIC], c.HIST_LOW,
+        p[_F + w.E_HIST_W], braking, cornering, demand, mu,
+    )
+    demand = np.hypot(p[_R + w.E_BRAKE_SHARE] * m_tot * a, p[_R + w.E_LAT_SHARE] * m_tot * ay)
+    c.accumulate_wheel(
+        acc, _ACC_R, hist_r, k, out[_O_LOAD_R], out[_O_TRAVEL_R], out[_O_DEFL_R],
+        p[_R + w.E_TRAVEL], p[_R + w.E_D_RIM], p[_R + w.E_F_STATIC], c.HIST_LOW,
+        p[_R + w.E_HIST_W], braking, cornering, demand, mu,
+    )
     aw = c.accumulate_vibration(acc, _ACC_V, sos, zi, out[_O_ACCEL_D])
     acc[_ACC_CAR + _CAR_SUM_W2] += out[_O_PITCH_RATE] ** 2
     if braking:
@@ -267,6 +268,14 @@ def _sample(k, y, zf, zfd, zr, zrd, a, ay, mu, p, sf, df, sr, dr, dy, out, acc, 
             trace[ch, j] = out[ch]
         trace[_NOUT, j] = aw
     return c.FAIL_NONE
+
+
+@njit(cache=True)
+def _sample(k, y, zf, zfd, zr, zrd, a, ay, mu, p, sf, df, sr, dr, dy, out, acc, hist_f, hist_r,
+            sos, zi, trace, every):
+    """Derivative and outputs at sample k, then _record. Returns a failure code."""
+    _rhs(y, zf, zfd, zr, zrd, a, p, sf, df, sr, dr, dy, out)
+    return _record(k, y, dy, out, zf, zr, a, ay, mu, p, acc, hist_f, hist_r, sos, zi, trace, every)
 
 
 @njit(cache=True)
@@ -296,41 +305,46 @@ def _run(P, sfs, dfs, srs, drs, zf, zfd, zr, zrd, dec, lat, mu, dt, sos, acc, hi
         sr = srs[b]
         dr = drs[b]
         y = _initial_state(p, zf[0], zr[0])
-        k1 = np.empty(_NS)
-        k2 = np.empty(_NS)
-        k3 = np.empty(_NS)
-        k4 = np.empty(_NS)
+        kk = np.empty((4, _NS))
         tmp = np.empty(_NS)
         out = np.empty(_NOUT)
         zi = np.zeros((sos.shape[0], 2))
+        acc_b = acc[b]
+        hist_f = hist[b, 0]
+        hist_r = hist[b, 1]
+        trace_b = trace[b]
         h = dt
         for k in range(n):
-            code = _sample(k, y, zf[k], zfd[k], zr[k], zrd[k], dec[k], lat[k], mu, p, sf, df, sr,
-                           dr, k1, out, acc[b], hist[b], sos, zi, trace[b], every)
-            if code != 0:
-                fail[b] = code
+            done = False
+            for st in range(4):
+                # road at the stage time: sample k, the midpoint, or sample k + 1
+                if st == 0:
+                    j0, j1, wt, step = k, k, 0.0, 0.0
+                elif st < 3:
+                    j0, j1, wt, step = k, k + 1, 0.5, 0.5 * h
+                else:
+                    j0, j1, wt, step = k, k + 1, 1.0, h
+                for i in range(_NS):
+                    tmp[i] = y[i] + (step * kk[st - 1, i] if st > 0 else 0.0)
+                _rhs(tmp, zf[j0] + wt * (zf[j1] - zf[j0]), zfd[j0] + wt * (zfd[j1] - zfd[j0]),
+                     zr[j0] + wt * (zr[j1] - zr[j0]), zrd[j0] + wt * (zrd[j1] - zrd[j0]),
+                     dec[j0] + wt * (dec[j1] - dec[j0]), p, sf, df, sr, dr, kk[st], out)
+                if st == 0:
+                    code = _record(k, y, kk[0], out, zf[k], zr[k], dec[k], lat[k], mu, p, acc_b,
+                                   hist_f, hist_r, sos, zi, trace_b, every)
+                    if code != 0:
+                        fail[b] = code
+                        done = True
+                        break
+                    if k == n - 1:
+                        done = True
+                        break
+            if done:
                 break
-            if k == n - 1:
-                break
-            zfm = 0.5 * (zf[k] + zf[k + 1])
-            zfdm = 0.5 * (zfd[k] + zfd[k + 1])
-            zrm = 0.5 * (zr[k] + zr[k + 1])
-            zrdm = 0.5 * (zrd[k] + zrd[k + 1])
-            am = 0.5 * (dec[k] + dec[k + 1])
             for i in range(_NS):
-                tmp[i] = y[i] + 0.5 * h * k1[i]
-            _rhs(tmp, zfm, zfdm, zrm, zrdm, am, p, sf, df, sr, dr, k2, out)
-            for i in range(_NS):
-                tmp[i] = y[i] + 0.5 * h * k2[i]
-            _rhs(tmp, zfm, zfdm, zrm, zrdm, am, p, sf, df, sr, dr, k3, out)
-            for i in range(_NS):
-                tmp[i] = y[i] + h * k3[i]
-            _rhs(tmp, zf[k + 1], zfd[k + 1], zr[k + 1], zrd[k + 1], dec[k + 1], p, sf, df, sr,
-                 dr, k4, out)
-            for i in range(_NS):
-                y[i] += h / 6.0 * (k1[i] + 2.0 * k2[i] + 2.0 * k3[i] + k4[i])
-        c.close_wheel(acc[b], _ACC_F)
-        c.close_wheel(acc[b], _ACC_R)
+                y[i] += h / 6.0 * (kk[0, i] + 2.0 * kk[1, i] + 2.0 * kk[2, i] + kk[3, i])
+        c.close_wheel(acc_b, _ACC_F)
+        c.close_wheel(acc_b, _ACC_R)
 
 
 @njit(cache=True)
@@ -358,9 +372,14 @@ def _replay(Y, zf, zfd, zr, zrd, dec, lat, mu, p, sf, df, sr, dr, sos, acc, hist
     out = np.empty(_NOUT)
     zi = np.zeros((sos.shape[0], 2))
     code = 0
+    hist_f = hist[0]
+    hist_r = hist[1]
+    y = np.empty(_NS)
     for k in range(Y.shape[0]):
-        code = _sample(k, Y[k], zf[k], zfd[k], zr[k], zrd[k], dec[k], lat[k], mu, p, sf, df, sr,
-                       dr, dy, out, acc, hist, sos, zi, trace, every)
+        for i in range(_NS):
+            y[i] = Y[k, i]
+        code = _sample(k, y, zf[k], zfd[k], zr[k], zrd[k], dec[k], lat[k], mu, p, sf, df, sr,
+                       dr, dy, out, acc, hist_f, hist_r, sos, zi, trace, every)
         if code != 0:
             break
     c.close_wheel(acc, _ACC_F)

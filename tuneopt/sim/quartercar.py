@@ -95,7 +95,7 @@ class QuarterCarResult:
     traces: QuarterCarTraces | None
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _rhs(y, zr, zrd, p, spring, damper, dy, out):
     o = _W
     s = p[o + w.E_S0] + y[1] - y[0]
@@ -117,9 +117,8 @@ def _rhs(y, zr, zrd, p, spring, damper, dy, out):
 
 
 @njit(cache=True)
-def _sample(k, y, zr, zrd, p, spring, damper, dy, out, acc, hist, sos, zi, trace, every):
-    """Derivative and outputs at sample k, checks, metric accumulation, trace. Returns a code."""
-    _rhs(y, zr, zrd, p, spring, damper, dy, out)
+def _record(k, y, dy, out, p, acc, hist, sos, zi, trace, every):
+    """Checks, metric accumulation and trace for sample k (derivative and outputs given)."""
     for i in range(4):
         if not (np.isfinite(y[i]) and np.isfinite(dy[i])):
             return c.FAIL_NON_FINITE
@@ -145,6 +144,13 @@ def _sample(k, y, zr, zrd, p, spring, damper, dy, out, acc, hist, sos, zi, trace
     return c.FAIL_NONE
 
 
+@njit(cache=True)
+def _sample(k, y, zr, zrd, p, spring, damper, dy, out, acc, hist, sos, zi, trace, every):
+    """Derivative and outputs at sample k, then _record. Returns a failure code."""
+    _rhs(y, zr, zrd, p, spring, damper, dy, out)
+    return _record(k, y, dy, out, p, acc, hist, sos, zi, trace, every)
+
+
 @njit(cache=True, parallel=True)
 def _run(P, springs, dampers, zr, zrd, dt, sos, acc, hist, fail, trace, every):
     n = zr.shape[0]
@@ -159,36 +165,42 @@ def _run(P, springs, dampers, zr, zrd, dt, sos, acc, hist, fail, trace, every):
         y[1] = zr[0]
         y[2] = 0.0
         y[3] = 0.0
-        k1 = np.empty(4)
-        k2 = np.empty(4)
-        k3 = np.empty(4)
-        k4 = np.empty(4)
+        kk = np.empty((4, 4))
         tmp = np.empty(4)
         out = np.empty(_NOUT)
         zi = np.zeros((sos.shape[0], 2))
+        acc_b = acc[b]
+        hist_b = hist[b]
+        trace_b = trace[b]
         h = dt
         for k in range(n):
-            code = _sample(k, y, zr[k], zrd[k], p, spring, damper, k1, out, acc[b], hist[b],
-                           sos, zi, trace[b], every)
-            if code != 0:
-                fail[b] = code
+            done = False
+            for st in range(4):
+                # road at the stage time: sample k, the midpoint, or sample k + 1
+                if st == 0:
+                    j1, wt, step = k, 0.0, 0.0
+                elif st < 3:
+                    j1, wt, step = k + 1, 0.5, 0.5 * h
+                else:
+                    j1, wt, step = k + 1, 1.0, h
+                for i in range(4):
+                    tmp[i] = y[i] + (step * kk[st - 1, i] if st > 0 else 0.0)
+                _rhs(tmp, zr[k] + wt * (zr[j1] - zr[k]), zrd[k] + wt * (zrd[j1] - zrd[k]), p,
+                     spring, damper, kk[st], out)
+                if st == 0:
+                    code = _record(k, y, kk[0], out, p, acc_b, hist_b, sos, zi, trace_b, every)
+                    if code != 0:
+                        fail[b] = code
+                        done = True
+                        break
+                    if k == n - 1:
+                        done = True
+                        break
+            if done:
                 break
-            if k == n - 1:
-                break
-            zm = 0.5 * (zr[k] + zr[k + 1])
-            zdm = 0.5 * (zrd[k] + zrd[k + 1])
             for i in range(4):
-                tmp[i] = y[i] + 0.5 * h * k1[i]
-            _rhs(tmp, zm, zdm, p, spring, damper, k2, out)
-            for i in range(4):
-                tmp[i] = y[i] + 0.5 * h * k2[i]
-            _rhs(tmp, zm, zdm, p, spring, damper, k3, out)
-            for i in range(4):
-                tmp[i] = y[i] + h * k3[i]
-            _rhs(tmp, zr[k + 1], zrd[k + 1], p, spring, damper, k4, out)
-            for i in range(4):
-                y[i] += h / 6.0 * (k1[i] + 2.0 * k2[i] + 2.0 * k3[i] + k4[i])
-        c.close_wheel(acc[b], _ACC_W)
+                y[i] += h / 6.0 * (kk[0, i] + 2.0 * kk[1, i] + 2.0 * kk[2, i] + kk[3, i])
+        c.close_wheel(acc_b, _ACC_W)
 
 
 @njit(cache=True)
@@ -215,8 +227,11 @@ def _replay(Y, zr, zrd, p, spring, damper, sos, acc, hist, trace, every):
     out = np.empty(_NOUT)
     zi = np.zeros((sos.shape[0], 2))
     code = 0
+    y = np.empty(4)
     for k in range(Y.shape[0]):
-        code = _sample(k, Y[k], zr[k], zrd[k], p, spring, damper, dy, out, acc, hist, sos, zi,
+        for i in range(4):
+            y[i] = Y[k, i]
+        code = _sample(k, y, zr[k], zrd[k], p, spring, damper, dy, out, acc, hist, sos, zi,
                        trace, every)
         if code != 0:
             break

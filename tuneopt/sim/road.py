@@ -63,12 +63,18 @@ class RoadInput:
 class WheelInputsLike(Protocol):
     """What the terrain layer hands over for one segment (see tuneopt.terrain.wheel)."""
 
-    x: FloatArray
-    front: FloatArray
-    rear: FloatArray
-    speed: FloatArray
-    decel: FloatArray
-    curvature: FloatArray
+    @property
+    def x(self) -> FloatArray: ...
+    @property
+    def front(self) -> FloatArray: ...
+    @property
+    def rear(self) -> FloatArray: ...
+    @property
+    def speed(self) -> FloatArray: ...
+    @property
+    def decel(self) -> FloatArray: ...
+    @property
+    def curvature(self) -> FloatArray: ...
 
 
 def distance_derivative(z: FloatArray, dx: float) -> FloatArray:
