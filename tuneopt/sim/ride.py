@@ -1,0 +1,131 @@
+"""Riding a whole course: every segment simulated for a batch of setups, metrics aggregated
+with the mix weights.
+
+A course is turned into time-sampled road inputs once (``prepare_course``) and reused for every
+batch of an optimisation, so that every trial rides the same terrain realisations.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tuneopt.sim.halfcar import HalfCarResult, simulate_halfcar
+from tuneopt.sim.params import HalfCarParams
+from tuneopt.sim.road import RoadInput, road_input_from_wheel_inputs
+from tuneopt.terrain import Course, wheel_inputs
+
+__all__ = ["CourseMetrics", "PreparedCourse", "prepare_course", "ride_course"]
+
+FloatArray = NDArray[np.float64]
+
+
+@dataclass(frozen=True)
+class PreparedCourse:
+    """Road inputs per segment (time-sampled at ``dt``), with the segments' mix weights."""
+
+    roads: tuple[RoadInput, ...]
+    weights: FloatArray
+    terrains: tuple[str, ...]
+
+    @property
+    def duration(self) -> float:
+        """Simulated time of one run over the course [s]."""
+        return float(sum(r.duration for r in self.roads))
+
+
+def prepare_course(
+    course: Course, front_radius: float, rear_radius: float, wheelbase: float, dt: float = 1e-3
+) -> PreparedCourse:
+    roads = tuple(
+        road_input_from_wheel_inputs(
+            wheel_inputs(seg, front_radius, rear_radius, wheelbase), friction=seg.friction, dt=dt
+        )
+        for seg in course.segments
+    )
+    weights = np.array([seg.weight for seg in course.segments], dtype=float)
+    return PreparedCourse(roads, weights / weights.sum(), tuple(s.terrain for s in course.segments))
+
+
+# Metrics aggregated as the mix-weighted mean of the segments' values. Each is (B,).
+_MEAN_FIELDS = (
+    "load_variation",
+    "unloaded_share",
+    "bottom_outs_per_min",
+    "rim_strikes_per_min",
+    "travel_p95",
+    "pack_down",
+)
+
+
+@dataclass(frozen=True)
+class CourseMetrics:
+    """Metrics of B setups over a whole course, each (B,) unless said.
+
+    Wheel metrics (front_*/rear_*) are mix-weighted means over the segments: load_variation
+    (std/mean of the contact-patch load) [-], unloaded_share [-], bottom_outs_per_min [1/min],
+    rim_strikes_per_min [1/min], travel_p95 [m], pack_down [m]; travel_max [m] is the maximum
+    over the segments. pitch_rate_rms [rad/s] and rider_vibration_rms (ISO 2631-1 Wk) [m/s²]
+    are weighted means; peak_dive_travel [m] is the maximum over braking segments (NaN without
+    any). failed (B,) bool with failure reasons; segments: the per-segment results.
+    """
+
+    front_load_variation: FloatArray
+    rear_load_variation: FloatArray
+    front_unloaded_share: FloatArray
+    rear_unloaded_share: FloatArray
+    front_bottom_outs_per_min: FloatArray
+    rear_bottom_outs_per_min: FloatArray
+    front_rim_strikes_per_min: FloatArray
+    rear_rim_strikes_per_min: FloatArray
+    front_travel_p95: FloatArray
+    rear_travel_p95: FloatArray
+    front_pack_down: FloatArray
+    rear_pack_down: FloatArray
+    front_travel_max: FloatArray
+    rear_travel_max: FloatArray
+    pitch_rate_rms: FloatArray
+    peak_dive_travel: FloatArray
+    rider_vibration_rms: FloatArray
+    failed: NDArray[np.bool_]
+    failure: NDArray[np.str_]
+    segments: tuple[HalfCarResult, ...]
+
+    def row(self, i: int) -> dict[str, float]:
+        """Setup i's aggregated metrics as plain floats (for tables and JSON)."""
+        out: dict[str, float] = {}
+        for name in self.__dataclass_fields__:
+            if name in ("failed", "failure", "segments"):
+                continue
+            out[name] = float(getattr(self, name)[i])
+        return out
+
+
+def _weighted(values: list[FloatArray], weights: FloatArray) -> FloatArray:
+    return np.sum(np.stack(values) * weights[:, None], axis=0)
+
+
+def ride_course(params: HalfCarParams, course: PreparedCourse) -> CourseMetrics:
+    """Simulate B setups over every segment and aggregate."""
+    results = tuple(simulate_halfcar(params, road) for road in course.roads)
+    w = course.weights
+    agg: dict[str, FloatArray] = {}
+    for end in ("front", "rear"):
+        for name in _MEAN_FIELDS:
+            agg[f"{end}_{name}"] = _weighted([getattr(getattr(r, end), name) for r in results], w)
+        agg[f"{end}_travel_max"] = np.max(
+            np.stack([getattr(r, end).travel_max for r in results]), axis=0
+        )
+    agg["pitch_rate_rms"] = _weighted([r.pitch.pitch_rate_rms for r in results], w)
+    agg["rider_vibration_rms"] = _weighted([r.rider_vibration.rms for r in results], w)
+    dives = np.stack([r.pitch.peak_dive_travel for r in results])
+    agg["peak_dive_travel"] = (
+        np.nanmax(dives, axis=0) if np.any(np.isfinite(dives)) else np.full(params.front.batch, np.nan)
+    )
+    failed = np.any(np.stack([r.failed for r in results]), axis=0)
+    failure = np.array([""] * params.front.batch, dtype=object)
+    for r in reversed(results):
+        failure = np.where(r.failed, r.failure, failure)
+    return CourseMetrics(**agg, failed=failed, failure=failure.astype(str), segments=results)
