@@ -102,6 +102,14 @@ def test_unwritable_out_dir(tmp_path: Path) -> None:
     assert info.value.problems[0].location == "--out"
 
 
+
+def test_write_failure_names_the_out_dir(tmp_path: Path) -> None:
+    (tmp_path / "segment_01_root_field.csv").mkdir()  # a folder where the file should go
+    with pytest.raises(InputError) as info:
+        write_course(_scenario(), tmp_path, stream=io.StringIO(), plots=False)
+    assert info.value.problems[0].location == "--out"
+    assert "cannot write" in info.value.problems[0].message
+
 def test_command_line_reports_a_missing_scenario(tmp_path: Path, capsys) -> None:
     code = main(["terrain", str(tmp_path / "nope.toml"), "--out", str(tmp_path / "out")])
     assert code == 2

@@ -171,11 +171,11 @@ def _flat_then_step(dx: float = 0.005, length: float = 10.0, edge: float = 6.0,
     return Segment("test", 1.0, 0.6, dx, x, z, 5.0 * ones, 0.0 * ones, 0.0 * ones)
 
 
-@pytest.mark.parametrize("wheelbase", [1.2, 1.2345])
-def test_rear_sees_its_envelope_one_wheelbase_later(wheelbase: float) -> None:
+@pytest.mark.parametrize(("wheelbase", "Rr"), [(1.2, 0.36), (1.2345, 0.36), (1.2345, 0.37)])
+def test_rear_sees_its_envelope_one_wheelbase_later(wheelbase: float, Rr: float) -> None:
     # [D] the rear contact is one wheelbase behind the front: rear(x) = envelope_r(x - L)
     seg = _flat_then_step()
-    Rf, Rr = 0.37, 0.36
+    Rf = 0.37
     wi = wheel_inputs(seg, Rf, Rr, wheelbase)
     assert_allclose(wi.front, rolling_envelope(seg.z, seg.dx, Rf), atol=0)
     rear_env = rolling_envelope(seg.z, seg.dx, Rr)

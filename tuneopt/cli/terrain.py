@@ -107,27 +107,32 @@ def write_course(
                 for p in exc.problems
             ) from None
         stem = f"segment_{i + 1:02d}_{segment.terrain}"
-        csv_path = out / f"{stem}.csv"
         table = np.column_stack(
             [inputs.x, segment.z, inputs.front, inputs.rear, inputs.speed, inputs.decel,
              inputs.curvature]
         )
-        np.savetxt(csv_path, table, delimiter=",", header=_CSV_HEADER, comments="",
-                   fmt=["%.4f", "%.6f", "%.6f", "%.6f", "%.4f", "%.4f", "%.5f"])
-        print(f"wrote {csv_path}", file=stream)
+        csv_path = out / f"{stem}.csv"
         png_name = ""
-        if plots:
-            png_path = draw_segment_plot(
-                segment_plot_data(i, segment, inputs, wheelbase), out / f"{stem}.png"
-            )
-            png_name = png_path.name
-            print(f"wrote {png_path}", file=stream)
+        try:
+            np.savetxt(csv_path, table, delimiter=",", header=_CSV_HEADER, comments="",
+                       fmt=["%.4f", "%.6f", "%.6f", "%.6f", "%.4f", "%.4f", "%.5f"])
+            print(f"wrote {csv_path}", file=stream)
+            if plots:
+                data = segment_plot_data(i, segment, inputs, wheelbase)
+                png_path = draw_segment_plot(data, out / f"{stem}.png")
+                png_name = png_path.name
+                print(f"wrote {png_path}", file=stream)
+        except OSError as exc:
+            raise InputError.single("--out", f"cannot write into {out}: {exc}") from None
         summary.append(
             f"{i + 1},{segment.terrain},{segment.weight:.4f},{segment.friction:.3f},"
             f"{segment.length:.3f},{segment.speed.min():.3f},{segment.speed.max():.3f},"
             f"{csv_path.name},{png_name}"
         )
     summary_path = out / "course.csv"
-    summary_path.write_text("\n".join(summary) + "\n", encoding="utf-8")
+    try:
+        summary_path.write_text("\n".join(summary) + "\n", encoding="utf-8")
+    except OSError as exc:
+        raise InputError.single("--out", f"cannot write into {out}: {exc}") from None
     print(f"wrote {summary_path}", file=stream)
     return 0

@@ -133,7 +133,10 @@ def wheel_inputs(
             f"radius = {reach:.3f} m",
         )
     front = rolling_envelope(segment.z, segment.dx, front_radius)
-    rear_envelope = rolling_envelope(segment.z, segment.dx, rear_radius)
+    if rear_radius == front_radius:
+        rear_envelope = front
+    else:
+        rear_envelope = rolling_envelope(segment.z, segment.dx, rear_radius)
     rear = _delayed(rear_envelope, wheelbase / segment.dx)
     return WheelInputs(
         x=segment.x,
