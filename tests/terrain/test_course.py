@@ -42,6 +42,15 @@ def test_same_spec_and_seed_same_course_bit_for_bit(wet_course) -> None:
         assert a.dtype == b.dtype and a.tobytes() == b.tobytes()
 
 
+def test_course_arrays_are_read_only(wet_course) -> None:
+    # one course serves every trial of a study: nobody may change it in place
+    seg = wet_course.segments[0]
+    wi = wheel_inputs(seg, 0.37, 0.36, 1.25)
+    for array in (*_arrays(wet_course), wi.front, wi.rear):
+        with pytest.raises(ValueError, match="read-only"):
+            array[0] = 1.0
+
+
 def test_different_seeds_give_different_courses(wet_course) -> None:
     other = build_course(_spec(surface="wet"), seed=5)
     for a, b in zip(wet_course.segments, other.segments, strict=True):

@@ -128,6 +128,12 @@ def test_bad_course_fields(top: dict, where: str, text: str) -> None:
     assert text in found[f"course.{where}"]
 
 
+def test_course_too_big_for_memory() -> None:
+    found = _problems({"mix": [{"terrain": "root_field", "share": 1}], "length": "20 km",
+                       "spacing": "0.5 mm"})
+    assert "40 million samples, above the 20 million limit" in found["course"]
+
+
 def test_frozen() -> None:
     spec = CourseSpec.model_validate({"mix": [{"terrain": "rock_garden", "share": 1}]})
     with pytest.raises(ValidationError):

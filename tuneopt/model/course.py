@@ -27,7 +27,7 @@ from __future__ import annotations
 import math
 from typing import Literal
 
-from pydantic import BaseModel, ConfigDict, Field, field_validator
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 from tuneopt.model._quantity import Length, Velocity
 
@@ -40,6 +40,7 @@ __all__ = [
     "MAX_SPACING",
     "MIN_SPACING",
     "MAX_SPEED",
+    "MAX_SAMPLES",
 ]
 
 # The built-in terrain types (their parameters live in tuneopt.terrain.library).
@@ -58,6 +59,7 @@ MIN_SPACING = 0.0005  # [m] finer only costs memory
 MAX_SPEED = 30.0  # [m/s] 108 km/h; beyond that a bare number was probably meant in km/h
 MAX_LENGTH = 50_000.0  # [m]
 MAX_GD = 524288e-6  # [m^3] upper limit of ISO 8608 class H
+MAX_SAMPLES = 20_000_000  # profile samples over the whole course: about 1 GB of arrays
 
 
 class MixEntry(BaseModel):
@@ -216,6 +218,18 @@ class CourseSpec(BaseModel):
                 "(it would only cost memory)"
             )
         return value
+
+    @model_validator(mode="after")
+    def _size_fits_in_memory(self) -> CourseSpec:
+        total = sum(self.entry_length(i) for i in range(len(self.mix)))
+        samples = total / self.spacing
+        if samples > MAX_SAMPLES:
+            raise ValueError(
+                f"{total:g} m at {self.spacing * 1000:g} mm spacing is {samples / 1e6:.0f} million "
+                f"samples, above the {MAX_SAMPLES / 1e6:.0f} million limit; use a coarser spacing "
+                "or a shorter course"
+            )
+        return self
 
     def entry_length(self, index: int) -> float:
         """Length of mix entry ``index`` [m]: its own length, else its share of the course."""

@@ -70,6 +70,13 @@ class Course:
         return sum(s.length for s in self.segments)
 
 
+def read_only(array: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Mark ``array`` read-only and return it: one course serves every trial of a study, so no
+    consumer may change it in place."""
+    array.flags.writeable = False
+    return array
+
+
 def _rng(seed: int, index: int, stream: int) -> np.random.Generator:
     return np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(index, stream)))
 
@@ -131,11 +138,11 @@ def build_segment(
         weight=weight,
         friction=friction,
         dx=dx,
-        x=x,
-        z=z,
-        speed=profile.speed,
-        decel=profile.decel,
-        curvature=profile.curvature,
+        x=read_only(x),
+        z=read_only(z),
+        speed=read_only(profile.speed),
+        decel=read_only(profile.decel),
+        curvature=read_only(profile.curvature),
     )
 
 

@@ -17,7 +17,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tuneopt.model.errors import FieldProblem, InputError
-from tuneopt.terrain.course import LEAD_IN, Segment
+from tuneopt.terrain.course import LEAD_IN, Segment, read_only
 
 __all__ = ["MeasuredProfile", "parse_profile_csv", "read_profile_csv", "segment_from_profile"]
 
@@ -211,9 +211,9 @@ def segment_from_profile(
         weight=weight,
         friction=friction,
         dx=dx,
-        x=x,
-        z=z,
-        speed=v,
-        decel=decel,
-        curvature=np.zeros(n),
+        x=read_only(x),
+        z=read_only(z),
+        speed=read_only(v),
+        decel=read_only(decel),
+        curvature=read_only(np.zeros(n)),
     )

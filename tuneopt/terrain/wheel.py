@@ -16,7 +16,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tuneopt.model.errors import FieldProblem, InputError
-from tuneopt.terrain.course import Segment
+from tuneopt.terrain.course import Segment, read_only
 
 __all__ = ["WheelInputs", "rolling_envelope", "wheel_inputs"]
 
@@ -140,8 +140,8 @@ def wheel_inputs(
     rear = _delayed(rear_envelope, wheelbase / segment.dx)
     return WheelInputs(
         x=segment.x,
-        front=front,
-        rear=rear,
+        front=read_only(front),
+        rear=read_only(rear),
         speed=segment.speed,
         decel=segment.decel,
         curvature=segment.curvature,
