@@ -4,11 +4,14 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
 from tuneopt.model.errors import InputError
 from tuneopt.terrain import (
     LEAD_IN,
+    MeasuredProfile,
     parse_profile_csv,
     read_profile_csv,
     segment_from_profile,
@@ -134,3 +137,26 @@ def test_segment_from_a_profile_needs_a_speed() -> None:
     assert {p.location for p in info.value.problems} == {"friction", "speed"}
     seg = segment_from_profile(prof, friction=0.6, speed=4.0)
     assert np.all(seg.speed == 4.0) and np.all(seg.decel == 0.0)
+
+
+_cell = st.one_of(
+    st.floats(allow_nan=True, allow_infinity=True).map(repr),
+    st.integers(-5, 5).map(str),
+    st.sampled_from(["", " ", "x", "1e400", "-0", "nan", "0.01"]),
+)
+_row = st.lists(_cell, min_size=1, max_size=4).map(",".join)
+
+
+@settings(max_examples=150, deadline=None)
+@given(rows=st.lists(_row, max_size=12), speed=st.booleans())
+def test_any_text_gives_a_profile_or_a_named_error(rows: list[str], speed: bool) -> None:
+    # bad input never escapes as anything but InputError, and every problem has a location
+    header = "distance,elevation,speed" if speed else "distance,elevation"
+    try:
+        prof = parse_profile_csv(_csv(rows, header=header), dx=0.01)
+    except InputError as exc:
+        assert exc.problems and all(p.location.startswith("line ") or p.location == ""
+                                    for p in exc.problems)
+    else:
+        assert isinstance(prof, MeasuredProfile)
+        assert np.all(np.isfinite(prof.z)) and np.all(np.diff(prof.x) > 0)
