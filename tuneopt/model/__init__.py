@@ -12,6 +12,7 @@ from tuneopt.model.damper import (
 )
 from tuneopt.model.errors import FieldProblem, InputError
 from tuneopt.model.loading import load_scenario, scenario_from_data
+from tuneopt.model.objective import Objective, Search
 from tuneopt.model.rider import Compliance, Rider
 from tuneopt.model.scenario import Scenario, setup_problems
 from tuneopt.model.setup import Braking, EndSetup, Setup
@@ -38,8 +39,10 @@ __all__ = [
     "MeasuredCurve",
     "MeasuredPoint",
     "NegativeChamber",
+    "Objective",
     "Rider",
     "Scenario",
+    "Search",
     "Setup",
     "Shock",
     "Spring",

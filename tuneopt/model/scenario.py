@@ -9,6 +9,7 @@ from tuneopt.model._quantity import convert
 from tuneopt.model.bike import Bike
 from tuneopt.model.course import CourseSpec
 from tuneopt.model.errors import FieldProblem
+from tuneopt.model.objective import Objective, Search
 from tuneopt.model.rider import Rider
 from tuneopt.model.setup import Braking, EndSetup, Setup
 from tuneopt.model.spring import AirSpring, CoilSpring, Spring
@@ -30,6 +31,8 @@ class Scenario(Strict):
     setup: Setup
     braking: Braking = Braking()
     course: CourseSpec | None = None
+    objective: Objective = Objective()
+    search: Search = Search()
 
 
 def _psi(pascal: float) -> float:

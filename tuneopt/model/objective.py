@@ -1,0 +1,106 @@
+"""What the optimiser minimises and where it may search: the ``[objective]`` and ``[search]``
+sections of a scenario."""
+
+from __future__ import annotations
+
+from typing import Literal
+
+from pydantic import Field, model_validator
+
+from tuneopt.model._base import Strict
+from tuneopt.model._quantity import Pressure, Stiffness
+
+__all__ = ["Objective", "PressureRange", "RateRange", "Search", "SagWindow"]
+
+
+class Objective(Strict):
+    """Weights of the score's terms; each term is a metric divided by a fixed reference scale
+    (see ``tuneopt.optimise.score``), so scores compare across studies. The front's load
+    variation weighs more by default: a front that washes out is the more dangerous slide
+    (common practice, no source)."""
+
+    front_load_variation: float = Field(1.5, ge=0)
+    rear_load_variation: float = Field(1.0, ge=0)
+    unloaded_time: float = Field(1.0, ge=0)
+    bottom_outs: float = Field(1.0, ge=0)
+    pitch: float = Field(0.5, ge=0)
+    rider_vibration: float = Field(0.0, ge=0)
+
+    @model_validator(mode="after")
+    def _some_weight(self) -> Objective:
+        if sum(self.model_dump().values()) <= 0:
+            raise ValueError("at least one weight must be positive")
+        return self
+
+
+class PressureRange(Strict):
+    low: Pressure = Field(ge=0)
+    high: Pressure = Field(gt=0)
+
+    @model_validator(mode="after")
+    def _order(self) -> PressureRange:
+        if self.low >= self.high:
+            raise ValueError("range inverted: low must be below high")
+        return self
+
+
+class RateRange(Strict):
+    low: Stiffness = Field(gt=0)
+    high: Stiffness = Field(gt=0)
+
+    @model_validator(mode="after")
+    def _order(self) -> RateRange:
+        if self.low > self.high:
+            raise ValueError("range inverted: low must not exceed high")
+        return self
+
+
+class SagWindow(Strict):
+    """Allowed static sag [% of stroke]; setups outside it are infeasible."""
+
+    low: float = Field(ge=0, le=100)
+    high: float = Field(ge=0, le=100)
+
+    @model_validator(mode="after")
+    def _order(self) -> SagWindow:
+        if self.low >= self.high:
+            raise ValueError("window inverted: low must be below high")
+        return self
+
+
+Setting = Literal[
+    "fork.pressure",
+    "fork.spacers",
+    "fork.rate",
+    "fork.lsc",
+    "fork.hsc",
+    "fork.lsr",
+    "fork.hsr",
+    "shock.pressure",
+    "shock.spacers",
+    "shock.rate",
+    "shock.lsc",
+    "shock.hsc",
+    "shock.lsr",
+    "shock.hsr",
+    "front_tyre_pressure",
+    "rear_tyre_pressure",
+]
+
+
+class Search(Strict):
+    """Which settings are free and how far. Ranges narrow the hardware's; they may never widen
+    them. ``fixed`` settings stay at the scenario's current setup."""
+
+    fixed: list[Setting] = Field(default_factory=list)
+    fork_pressure: PressureRange | None = None
+    shock_pressure: PressureRange | None = None
+    fork_rate: RateRange | None = None
+    shock_rate: RateRange | None = None
+    front_tyre_pressure: PressureRange | None = None
+    rear_tyre_pressure: PressureRange | None = None
+    tyre_pressures: bool = Field(False, description="search tyre pressures too")
+    fork_sag: SagWindow | None = SagWindow(low=12, high=35)
+    shock_sag: SagWindow | None = SagWindow(low=20, high=40)
+    pressure_step: Pressure = Field(6894.757, gt=0, description="pump resolution, default 1 psi")
+    tyre_pressure_step: Pressure = Field(5000.0, gt=0, description="default 0.05 bar")

@@ -1,0 +1,234 @@
+"""The study runner: one code path for local runs and queued service runs.
+
+A study lives in an optuna storage (a journal file locally, Redis in the service). Shards ask
+batches of trials, evaluate them as one simulator batch, and tell the results, until the budget
+of finished trials, the deadline or a stop request is reached. Only the storage and who runs the
+shards differ between a local run and the service.
+
+Reproducibility: each batch's sampler is seeded from (study seed, shard, number of finished
+trials), so one shard re-run after an interruption asks the same points as an uninterrupted run;
+trials left RUNNING by a killed process are failed and their points enqueued again.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import socket
+import time
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import optuna
+from optuna.distributions import BaseDistribution, IntDistribution
+from optuna.storages import BaseStorage
+from optuna.trial import FrozenTrial, TrialState
+
+from tuneopt.optimise.evaluate import Evaluator, Outcome
+from tuneopt.optimise.space import SearchSpace
+
+__all__ = [
+    "INFEASIBLE_PENALTY",
+    "SAMPLERS",
+    "Progress",
+    "StudyPlan",
+    "count_finished",
+    "create_study",
+    "make_sampler",
+    "reap_stale_trials",
+    "run_shard",
+]
+
+log = logging.getLogger(__name__)
+optuna.logging.set_verbosity(optuna.logging.WARNING)
+
+# Told for setups that cannot be ridden (sag outside its window, a spring that cannot hold the
+# rider): far above any real score (they are around 5-20), plus the distance from feasibility so
+# the sampler is pulled back towards it.
+INFEASIBLE_PENALTY = 100.0
+
+SAMPLERS = ("tpe", "cmaes", "nsga2", "random")
+
+
+def make_sampler(kind: str, seed: int, batch_size: int) -> optuna.samplers.BaseSampler:
+    if kind == "tpe":
+        return optuna.samplers.TPESampler(
+            seed=seed,
+            multivariate=True,
+            constant_liar=True,
+            n_startup_trials=max(10, batch_size),
+        )
+    if kind == "cmaes":
+        return optuna.samplers.CmaEsSampler(seed=seed, with_margin=True)
+    if kind == "nsga2":
+        return optuna.samplers.NSGAIISampler(seed=seed, population_size=max(20, batch_size))
+    if kind == "random":
+        return optuna.samplers.RandomSampler(seed=seed)
+    raise ValueError(f"unknown sampler {kind!r}; choose from {', '.join(SAMPLERS)}")
+
+
+@dataclass(frozen=True)
+class StudyPlan:
+    """Budget and pacing of a study: stop at ``trials`` finished trials or at ``deadline``
+    (Unix time), whichever comes first; ask ``batch_size`` trials at a time."""
+
+    name: str
+    trials: int | None = 200
+    deadline: float | None = None
+    batch_size: int = 16
+    seed: int = 0
+    sampler: str = "tpe"
+
+    def __post_init__(self) -> None:
+        if self.trials is None and self.deadline is None:
+            raise ValueError("give a trial budget, a deadline, or both")
+        if self.trials is not None and self.trials < 1:
+            raise ValueError("the trial budget must be at least 1")
+        if self.batch_size < 1:
+            raise ValueError("batch_size must be at least 1")
+        if self.sampler not in SAMPLERS:
+            raise ValueError(f"unknown sampler {self.sampler!r}; choose from {', '.join(SAMPLERS)}")
+
+
+@dataclass(frozen=True)
+class Progress:
+    finished: int
+    budget: int | None
+    best_score: float | None
+    trials_per_minute: float
+    eta_seconds: float | None
+
+
+def _distributions(space: SearchSpace) -> dict[str, BaseDistribution]:
+    return {p.name: IntDistribution(0, len(p.values) - 1) for p in space.parameters}
+
+
+def _is_finished(t: FrozenTrial) -> bool:
+    return t.state == TrialState.COMPLETE or (
+        t.state == TrialState.FAIL and not t.user_attrs.get("reaped", False)
+    )
+
+
+def count_finished(study: optuna.Study) -> int:
+    return sum(_is_finished(t) for t in study.get_trials(deepcopy=False))
+
+
+def create_study(
+    storage: BaseStorage | str, plan: StudyPlan, space: SearchSpace, baseline: dict[str, int]
+) -> optuna.Study:
+    """Create the study (or load it when it exists), enqueueing the baseline once, as the first
+    trial, from the study's creator (enqueueing is not atomic across processes)."""
+    study = optuna.create_study(
+        storage=storage, study_name=plan.name, direction="minimize", load_if_exists=True
+    )
+    if "parameters" not in study.user_attrs:
+        study.set_user_attr("parameters", list(space.names))
+        study.set_user_attr("seed", plan.seed)
+        study.enqueue_trial(baseline, user_attrs={"baseline": True})
+    elif study.user_attrs["parameters"] != list(space.names):
+        raise ValueError(
+            f"study {plan.name!r} exists with other parameters: "
+            f"{study.user_attrs['parameters']} (it belongs to another scenario)"
+        )
+    return study
+
+
+def reap_stale_trials(study: optuna.Study, owner_prefix: str = "") -> int:
+    """Fail trials left RUNNING (their process died) and enqueue their points again.
+
+    Call it only where no live shard can own a RUNNING trial (before a local run starts, or
+    for the trials of one dead owner, named by ``owner_prefix``)."""
+    reaped = 0
+    for t in study.get_trials(deepcopy=False, states=(TrialState.RUNNING,)):
+        if not str(t.user_attrs.get("owner", "")).startswith(owner_prefix):
+            continue
+        study._storage.set_trial_user_attr(t._trial_id, "reaped", True)
+        study.tell(t.number, state=TrialState.FAIL, skip_if_finished=True)
+        attrs = {"baseline": True} if t.user_attrs.get("baseline") else None
+        study.enqueue_trial(dict(t.params), user_attrs=attrs)
+        reaped += 1
+    return reaped
+
+
+def _tell(study: optuna.Study, trial: optuna.Trial, outcome: Outcome) -> None:
+    trial.set_user_attr("sag", outcome.sag)
+    if outcome.ok:
+        trial.set_user_attr("terms", outcome.terms)
+        trial.set_user_attr("metrics", outcome.metrics)
+        study.tell(trial, outcome.score)
+        return
+    trial.set_user_attr("failure", outcome.failure)
+    if outcome.failure.startswith(("infeasible", "static")):
+        distance = 0.0
+        if outcome.sag:
+            distance = sum(abs(v - 25.0) for v in outcome.sag.values()) / 10
+        study.tell(trial, INFEASIBLE_PENALTY + distance)
+    else:
+        study.tell(trial, state=TrialState.FAIL)
+
+
+def run_shard(
+    study: optuna.Study,
+    plan: StudyPlan,
+    space: SearchSpace,
+    evaluator: Evaluator,
+    shard: int = 0,
+    should_stop: Callable[[], bool] = lambda: False,
+    on_batch: Callable[[Progress], None] | None = None,
+    clock: Callable[[], float] = time.time,
+) -> int:
+    """Ask, evaluate and tell batches until the budget, the deadline or ``should_stop()``.
+    Returns the number of trials this shard finished."""
+    owner = f"{socket.gethostname()}:{os.getpid()}:{shard}"
+    dists = _distributions(space)
+    started, done = clock(), 0
+    while True:
+        if should_stop():
+            break
+        now = clock()
+        if plan.deadline is not None and now >= plan.deadline:
+            break
+        trials = study.get_trials(deepcopy=False)
+        finished = sum(_is_finished(t) for t in trials)
+        running = sum(t.state == TrialState.RUNNING for t in trials)
+        size = plan.batch_size
+        if plan.trials is not None:
+            size = min(size, plan.trials - finished - running)
+            if size <= 0:
+                break
+        study.sampler = make_sampler(
+            plan.sampler, (plan.seed * 1_000_003 + shard * 10_007 + finished) % 2**32, size
+        )
+        batch = []
+        for _ in range(size):
+            trial = study.ask(dists)
+            trial.set_user_attr("owner", owner)
+            batch.append(trial)
+        setups = [space.setup(t.params) for t in batch]
+        outcomes = evaluator.evaluate(setups)
+        for trial, outcome in zip(batch, outcomes, strict=True):
+            _tell(study, trial, outcome)
+        done += len(batch)
+        if on_batch is not None:
+            on_batch(_progress(study, plan, started, done, clock()))
+    return done
+
+
+def _progress(
+    study: optuna.Study, plan: StudyPlan, started: float, done: int, now: float
+) -> Progress:
+    trials = study.get_trials(deepcopy=False)
+    finished = sum(_is_finished(t) for t in trials)
+    feasible = [
+        t.value
+        for t in trials
+        if t.state == TrialState.COMPLETE and "failure" not in t.user_attrs and t.value is not None
+    ]
+    rate = done / max(now - started, 1e-9) * 60
+    eta = None
+    if plan.trials is not None and rate > 0:
+        eta = (plan.trials - finished) / rate * 60
+    if plan.deadline is not None:
+        left = max(plan.deadline - now, 0.0)
+        eta = left if eta is None else min(eta, left)
+    return Progress(finished, plan.trials, min(feasible) if feasible else None, rate, eta)
