@@ -22,7 +22,7 @@ from tuneopt.terrain.parameters import Roughness, TerrainType, iso_8608_class_me
 from tuneopt.terrain.roughness import synthesise_profile
 from tuneopt.terrain.speed import place_corners, speed_profile
 
-__all__ = ["Segment", "Course", "build_course", "build_segment", "LEAD_IN", "TAPER"]
+__all__ = ["Segment", "Course", "build_course", "build_segment", "read_only", "LEAD_IN", "TAPER"]
 
 LEAD_IN = 3.0  # [m] flat and smooth start of every segment
 TAPER = 2.0  # [m] the roughness fades in over this distance after the lead-in
@@ -38,7 +38,8 @@ class Segment:
     friction: tyre-ground friction coefficient [-]; dx [m]; x: (N,) distance from the segment
     start [m]; z: (N,) profile elevation [m], features included, before any wheel envelope;
     speed: (N,) riding speed [m/s] > 0; decel: (N,) braking deceleration [m/s^2] >= 0;
-    curvature: (N,) path curvature 1/radius [1/m], 0 on straights.
+    curvature: (N,) path curvature 1/radius [1/m], 0 on straights. Segments built here hold
+    read-only arrays.
     """
 
     terrain: str
