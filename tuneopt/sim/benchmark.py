@@ -150,10 +150,13 @@ class _DemoWheels:
     curvature: FloatArray
 
 
-def demo_road(duration: float = 20.0, *, dt: float = 1e-3, seed: int = 1) -> RoadInput:
+def demo_road(
+    duration: float = 20.0, *, dt: float = 1e-3, seed: int = 1, bump_height: float = 0.11
+) -> RoadInput:
     """Synthetic rough trail at 6 m/s: random-phase cosines with a w = 2 slope spectrum
-    (wavelengths 0.1-20 m, about 6 mm RMS), a 9 cm bump every 7 m, a braking zone (4 m/s^2 for
-    1.5 s) every 8 s and a 15 m corner after it. Invented demo data."""
+    (wavelengths 0.1-20 m, about 3 mm RMS), a 0.5 m long bump of bump_height [m] every 7 m from
+    x = 3 m, a braking zone (4 m/s^2 for 1.5 s) every 8 s from t = 4 s and a 15 m radius corner
+    after it. Invented demo data."""
     rng = np.random.default_rng(seed)
     dx = 0.002
     length = duration * _DEMO_SPEED + _DEMO_WHEELBASE + 1.0
@@ -168,7 +171,7 @@ def demo_road(duration: float = 20.0, *, dt: float = 1e-3, seed: int = 1) -> Roa
         z += amp[i] * np.cos(2.0 * np.pi * n_freq[i] * x_all + phase[i])
     bump_len, spacing = 0.5, 7.0
     u = np.mod(x_all - 3.0, spacing)
-    z += np.where(u < bump_len, 0.11 * 0.5 * (1.0 - np.cos(2.0 * np.pi * u / bump_len)), 0.0)
+    z += np.where(u < bump_len, bump_height * 0.5 * (1.0 - np.cos(2.0 * np.pi * u / bump_len)), 0.0)
     shift = int(round(_DEMO_WHEELBASE / dx))
     front = z[shift:]
     rear = z[:-shift]

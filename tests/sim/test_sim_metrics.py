@@ -1,0 +1,60 @@
+"""The kernels' streaming metrics against the same quantities computed by numpy from the
+recorded traces [S numpy: std, mean, percentile]; counts by an independent loop over the trace
+[D]."""
+
+from __future__ import annotations
+
+import numpy as np
+from numpy.testing import assert_allclose
+from sim_setups import half_car
+
+from tuneopt.sim import simulate_halfcar
+from tuneopt.sim.benchmark import demo_road
+
+BOTTOM_DEPTH = 2e-3  # counting threshold of the simulator (STACK.md: about 2 mm)
+
+
+def _count_events(depth: np.ndarray) -> tuple[int, float]:
+    """Events that go past BOTTOM_DEPTH, each ending when the depth falls below 0."""
+    count, inside, deepest = 0, False, 0.0
+    for d in depth:
+        if inside:
+            deepest = max(deepest, d)
+            if d < 0:
+                inside = False
+        elif d > BOTTOM_DEPTH:
+            inside, count = True, count + 1
+            deepest = max(deepest, d)
+    return count, deepest
+
+
+def test_streaming_metrics_match_traces() -> None:
+    road = demo_road(2.0, seed=3, bump_height=0.17)
+    params = half_car(2, front=dict(rate=[6e3, 8e3], compression=300.0),
+                      rear=dict(rate=[10e3, 14e3], compression=400.0))
+    res = simulate_halfcar(params, road, trace_every=1)
+    tr = res.traces
+    assert tr is not None and not res.failed.any()
+    minutes = road.duration / 60.0
+    for name, m, load, travel, static_load, static_travel, full in (
+        ("front", res.front, tr.front_tyre_load, tr.front_travel, res.static_load_front,
+         res.static_travel_front, params.front.travel),
+        ("rear", res.rear, tr.rear_tyre_load, tr.rear_travel, res.static_load_rear,
+         res.static_travel_rear, params.rear.travel),
+    ):
+        assert_allclose(m.load_mean, load.mean(axis=1), rtol=1e-9, err_msg=name)
+        assert_allclose(m.load_variation, load.std(axis=1) / load.mean(axis=1), rtol=1e-8)
+        assert_allclose(m.unloaded_share,
+                        np.mean(load < 0.1 * static_load[:, None], axis=1), rtol=1e-12)
+        bin_width = (0.02 + 1.3 * full) / 2048
+        for q, got in ((50, m.travel_median), (95, m.travel_p95)):
+            assert np.all(np.abs(got - np.percentile(travel, q, axis=1)) <= bin_width)
+        assert_allclose(m.travel_max, travel.max(axis=1), rtol=1e-12)
+        assert_allclose(m.pack_down, travel.mean(axis=1) - static_travel, rtol=1e-8)
+        for b in range(2):
+            count, deepest = _count_events(travel[b] - full[b])
+            assert_allclose(m.bottom_outs_per_min[b], count / minutes, rtol=1e-12)
+            assert_allclose(m.bottom_out_depth_max[b], deepest, rtol=1e-12)
+    assert res.front.bottom_outs_per_min.max() > 0
+    assert_allclose(res.pitch.pitch_rate_rms, np.sqrt(np.mean(tr.pitch_rate**2, axis=1)),
+                    rtol=1e-9)

@@ -1,0 +1,110 @@
+"""Half-car at rest and under steady braking.
+
+Sources: static split from moment balance, F_front = m g x_cg / L [standard]; steady braking
+load transfer dF = m a h / L summed over the bodies, Gillespie, "Fundamentals of Vehicle
+Dynamics", SAE 1992, ch. 2 [M]; the sum of the loads equals the total weight [standard].
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numpy.testing import assert_allclose
+from sim_setups import half_car
+
+from tuneopt.sim import RoadInput, simulate_halfcar, static_tyre_loads
+
+G = 9.81
+
+
+def _road(n: int, dt: float, z: np.ndarray | None = None, decel: np.ndarray | None = None,
+          delay: int = 0) -> RoadInput:
+    z = np.zeros(n) if z is None else z
+    zd = np.gradient(z, dt)
+    zr = np.concatenate((np.zeros(delay), z[: n - delay]))
+    zrd = np.concatenate((np.zeros(delay), zd[: n - delay]))
+    dec = np.zeros(n) if decel is None else decel
+    return RoadInput(dt, z, zd, zr, zrd, dec, np.zeros(n), np.full(n, 5.0), 0.8)
+
+
+def _bodies(params):  # type: ignore[no-untyped-def]
+    """(mass [kg], x from the rear axle [m], height [m]) of every body, read from the params."""
+    r = params.rider
+    return [
+        (params.frame_mass, params.frame_com_x, params.frame_com_height),
+        (r.mass, r.com_x, r.com_height),
+        (float(params.front.unsprung_mass[0]), params.wheelbase, params.front.wheel_radius),
+        (float(params.rear.unsprung_mass[0]), 0.0, params.rear.wheel_radius),
+    ]
+
+
+def test_loads_at_rest_sum_to_weight_and_split_by_moment_balance() -> None:
+    params = half_car(2, front=dict(rate=[12e3, 16e3]))
+    bodies = _bodies(params)
+    mass = sum(m for m, _, _ in bodies)
+    x_cg = sum(m * x for m, x, _ in bodies) / mass
+    want_front = mass * G * x_cg / params.wheelbase  # [standard] moment balance about the rear axle
+    front, rear = static_tyre_loads(params)
+    assert_allclose(front + rear, mass * G, rtol=1e-12)
+    assert_allclose(front, want_front, rtol=1e-12)
+    # dynamic check: knocked by a 2 cm bump under both wheels, the bike settles back to it
+    dt, n = 1e-3, 4001
+    t = np.arange(n) * dt
+    bump = np.where((t > 0.1) & (t < 0.2), 0.02 * np.sin(np.pi * (t - 0.1) / 0.1) ** 2, 0.0)
+    res = simulate_halfcar(params, _road(n, dt, bump, delay=200), trace_every=1)
+    tr = res.traces
+    assert tr is not None and not res.failed.any()
+    assert np.ptp(tr.front_tyre_load[:, :100]) < 1e-9  # starts in equilibrium
+    assert np.max(np.abs(tr.front_tyre_load - want_front)) > 50.0  # it was disturbed
+    assert_allclose(tr.front_tyre_load[:, -1], want_front, rtol=1e-4)
+    assert_allclose(tr.front_tyre_load[:, -1] + tr.rear_tyre_load[:, -1], mass * G, rtol=1e-5)
+
+
+def test_steady_braking_transfers_sum_of_m_a_h_over_l() -> None:
+    # [M] Gillespie 1992 ch. 2: dF = a * sum(m_i h_i) / L, front gains what the rear loses,
+    # with no anti-dive: each body's inertial force m_i a acts at its own height h_i.
+    params = half_car(1)
+    bodies = _bodies(params)
+    a = 4.0
+    dt, n = 1e-3, 5001
+    t = np.arange(n) * dt
+    ramp = np.clip((t - 0.2) / 0.3, 0.0, 1.0)
+    decel = a * (ramp - np.sin(2 * np.pi * ramp) / (2 * np.pi))
+    res = simulate_halfcar(params, _road(n, dt, decel=decel), trace_every=1)
+    tr = res.traces
+    assert tr is not None and not res.failed.any()
+    transfer = a * sum(m * h for m, _, h in bodies) / params.wheelbase
+    front0, rear0 = static_tyre_loads(params)
+    assert np.ptp(tr.front_tyre_load[0, -500:]) < 1e-3 * transfer  # settled
+    assert_allclose(tr.front_tyre_load[0, -1] - front0[0], transfer, rtol=1e-4)
+    assert_allclose(rear0[0] - tr.rear_tyre_load[0, -1], transfer, rtol=1e-4)
+    # the nose dives under braking
+    assert res.pitch.peak_dive_travel[0] > 0 and res.pitch.peak_dive_pitch[0] > 0
+
+
+def test_grip_margin_under_steady_braking_runs_the_rear_short() -> None:
+    # [D] steady state: front mu (F0 + dF) vs share m a, rear mu (R0 - dF) vs (1 - share) m a,
+    # dF as above; the metrics are also recomputed from the load traces.
+    params = half_car(1, brake_front_share=0.6)
+    bodies = _bodies(params)
+    mass = sum(m for m, _, _ in bodies)
+    a, mu = 4.0, 0.6
+    dt, n = 1e-3, 3001
+    decel = np.where(np.arange(n) * dt >= 0.5, a, 0.0)
+    road = _road(n, dt, decel=decel)
+    road = RoadInput(road.dt, road.front_z, road.front_zdot, road.rear_z, road.rear_zdot,
+                     road.decel, road.lateral_accel, road.speed, mu)
+    res = simulate_halfcar(params, road, trace_every=1)
+    tr = res.traces
+    assert tr is not None
+    transfer = a * sum(m * h for m, _, h in bodies) / params.wheelbase
+    front0, rear0 = static_tyre_loads(params)
+    assert mu * (front0[0] + transfer) > 0.6 * mass * a  # front keeps a margin
+    assert mu * (rear0[0] - transfer) < 0.4 * mass * a  # rear runs short
+    assert res.braking.first_short[0] == 2  # ShortWheel.REAR
+    assert res.front.grip_short_share_braking[0] == 0.0
+    assert res.rear.grip_short_share_braking[0] > 0.8
+    braking = decel > 0.5
+    assert_allclose(res.braking.time[0], braking.sum() * dt)
+    margin_r = mu * tr.rear_tyre_load[0, braking] - 0.4 * mass * a
+    assert_allclose(res.rear.grip_margin_mean_braking[0], margin_r.mean(), rtol=1e-9)
+    assert_allclose(res.rear.grip_short_share_braking[0], np.mean(margin_r < 0), rtol=1e-12)
