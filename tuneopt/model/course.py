@@ -40,6 +40,8 @@ __all__ = [
     "MAX_SPACING",
     "MIN_SPACING",
     "MAX_SPEED",
+    "MIN_SPEED",
+    "MIN_FRICTION",
     "MAX_SAMPLES",
 ]
 
@@ -57,6 +59,8 @@ SHARE_TOLERANCE = 0.01
 MAX_SPACING = 0.005  # [m] coarser sampling under-predicts tyre-load variation (REFERENCES.md)
 MIN_SPACING = 0.0005  # [m] finer only costs memory
 MAX_SPEED = 30.0  # [m/s] 108 km/h; beyond that a bare number was probably meant in km/h
+MIN_SPEED = 1.0  # [m/s] walking pace; slower only makes the simulation long
+MIN_FRICTION = 0.1  # ice-like; below it no corner can be ridden
 MAX_LENGTH = 50_000.0  # [m]
 MAX_GD = 524288e-6  # [m^3] upper limit of ISO 8608 class H
 MAX_SAMPLES = 20_000_000  # profile samples over the whole course: about 1 GB of arrays
@@ -104,6 +108,11 @@ class MixEntry(BaseModel):
             return None
         if value <= 0:
             raise ValueError(f"speed must be greater than 0, got {value} m/s")
+        if value < MIN_SPEED:
+            raise ValueError(
+                f"speed {value:g} m/s is below walking pace ({MIN_SPEED:g} m/s = "
+                f"{MIN_SPEED * 3.6:g} km/h)"
+            )
         if value > MAX_SPEED:
             raise ValueError(
                 f"speed {value} m/s is above {MAX_SPEED} m/s ({MAX_SPEED * 3.6:.0f} km/h); a bare "
@@ -154,8 +163,10 @@ class MixEntry(BaseModel):
     def _friction_range(cls, value: float | None) -> float | None:
         if value is None:
             return None
-        if not math.isfinite(value) or value <= 0 or value > 1.5:
-            raise ValueError(f"friction must be greater than 0 and at most 1.5, got {value}")
+        if not math.isfinite(value) or value < MIN_FRICTION or value > 1.5:
+            raise ValueError(
+                f"friction must be between {MIN_FRICTION} and 1.5, got {value}"
+            )
         return value
 
     @field_validator("length")
