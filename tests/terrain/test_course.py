@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 from scipy.signal import welch
 
@@ -200,3 +202,27 @@ def test_feature_height_on_a_type_without_features() -> None:
 def test_bad_seed(seed: object) -> None:
     with pytest.raises(InputError, match="seed"):
         build_course(_spec(), seed)  # type: ignore[arg-type]
+
+
+@settings(max_examples=15, deadline=None)
+@given(
+    names=st.lists(st.sampled_from(TERRAIN_NAMES), min_size=1, max_size=3),
+    length=st.floats(185.0, 300.0),  # a third of it holds a jump_line (60 m)
+    surface=st.sampled_from(["dry", "wet"]),
+    seed=st.integers(0, 2**32),
+)
+def test_any_mix_gives_a_rideable_course(names, length, surface, seed) -> None:
+    # invariants of every course; braking follows v^2 = v0^2 - 2 a s [D]
+    mix = [{"terrain": n, "share": 1 / len(names)} for n in names]
+    spec = CourseSpec.model_validate({"mix": mix, "length": length, "surface": surface})
+    course = build_course(spec, seed)
+    for seg in course.segments:
+        assert np.all(seg.speed > 0) and np.all(seg.decel >= 0) and np.all(seg.curvature >= 0)
+        assert np.all(seg.z[seg.x < LEAD_IN] == 0.0) and np.all(np.isfinite(seg.z))
+        v2 = seg.speed**2
+        for a, b in _runs(seg.decel > 0):
+            # braking starts between samples, so the law holds from the first braking sample on
+            assert_allclose(np.diff(v2[a:b]), -2.0 * seg.decel[a] * seg.dx, rtol=1e-6)
+            assert v2[a] <= v2[a - 1]
+        wi = wheel_inputs(seg, 0.37, 0.37, 1.3)
+        assert np.all(wi.front >= seg.z)
