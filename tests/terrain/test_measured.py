@@ -147,7 +147,7 @@ _cell = st.one_of(
 _row = st.lists(_cell, min_size=1, max_size=4).map(",".join)
 
 
-@settings(max_examples=150, deadline=None)
+@settings(max_examples=80, deadline=None)
 @given(rows=st.lists(_row, max_size=12), speed=st.booleans())
 def test_any_text_gives_a_profile_or_a_named_error(rows: list[str], speed: bool) -> None:
     # bad input never escapes as anything but InputError, and every problem has a location
