@@ -12,7 +12,7 @@ from tuneopt.model.errors import InputError
 __all__ = ["main"]
 
 # Each module has ``register(subparsers)`` that adds its parser with ``func=`` set.
-_COMMANDS = ("check", "terrain", "simulate", "bench")
+_COMMANDS = ("check", "terrain", "simulate", "optimise", "bench")
 
 
 def build_parser() -> argparse.ArgumentParser:

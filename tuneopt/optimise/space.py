@@ -46,7 +46,19 @@ class Parameter:
             return f"{convert(value, 'N/m', 'lbf/in'):.0f} lbf/in"
         if self.unit == "N/mm":
             return f"{value / 1e3:.1f} N/mm"
-        return f"{int(value)} {self.unit}"
+        return f"{int(value)}"
+
+    @property
+    def label(self) -> str:
+        """ "fork LSC (clicks from closed)", "shock pressure" and the like."""
+        head, _, field = self.name.partition(".")
+        if not field:
+            return self.name.replace("_", " ")
+        words = {"lsc": "LSC", "hsc": "HSC", "lsr": "LSR", "hsr": "HSR"}
+        text = f"{head} {words.get(field, field)}"
+        if self.unit == "clicks":
+            text += f" (clicks {self.note})" if self.note else " (clicks)"
+        return text
 
     def index_of(self, value: float) -> int:
         """Nearest index; exact for values on the grid."""

@@ -121,9 +121,9 @@ def ride_course(params: HalfCarParams, course: PreparedCourse) -> CourseMetrics:
     agg["pitch_rate_rms"] = _weighted([r.pitch.pitch_rate_rms for r in results], w)
     agg["rider_vibration_rms"] = _weighted([r.rider_vibration.rms for r in results], w)
     dives = np.stack([r.pitch.peak_dive_travel for r in results])
-    agg["peak_dive_travel"] = (
-        np.nanmax(dives, axis=0) if np.any(np.isfinite(dives)) else np.full(params.front.batch, np.nan)
-    )
+    # NaN where a segment has no braking; the maximum over the segments that have
+    agg["peak_dive_travel"] = np.max(np.where(np.isnan(dives), -np.inf, dives), axis=0)
+    agg["peak_dive_travel"][~np.isfinite(agg["peak_dive_travel"])] = np.nan
     failed = np.any(np.stack([r.failed for r in results]), axis=0)
     failure = np.array([""] * params.front.batch, dtype=object)
     for r in reversed(results):

@@ -1,0 +1,74 @@
+"""The study's result as plain data (JSON) and tables (CSV): one source for every report."""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import asdict
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from tuneopt.optimise.ranking import Ranking
+
+__all__ = ["CAUTIONS", "result_data", "write_result"]
+
+CAUTIONS = (
+    "These are simulated results from a model of the bike, the rider and the terrain; they "
+    "are a starting point for a test ride, not a guarantee.",
+    "Stay within the maker's pressure, spring-rate and spacer limits for the fork, the shock "
+    "and the tyres.",
+    "Try new settings first at low speed on a section you know.",
+    "The maker's manual and a qualified suspension technician have the last word.",
+)
+
+
+def _clean(value: Any) -> Any:
+    """JSON has no NaN or infinity: write them as null."""
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: _clean(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_clean(v) for v in value]
+    return value
+
+
+def result_data(ranking: Ranking, info: dict[str, Any]) -> dict[str, Any]:
+    return _clean(
+        {
+            **info,
+            "trials": {
+                "finished": ranking.finished,
+                "infeasible": ranking.infeasible,
+                "failed": ranking.failed,
+            },
+            "baseline": asdict(ranking.baseline) if ranking.baseline else None,
+            "ranked": [asdict(r) for r in ranking.ranked],
+            "pareto_trials": ranking.pareto,
+            "cautions": list(CAUTIONS),
+            "units": "settings in trade units, settings_si in SI (Pa, N/m, counts); metrics SI",
+        }
+    )
+
+
+def write_result(out: Path, ranking: Ranking, info: dict[str, Any]) -> Path:
+    """Write result.json and ranked.csv atomically (a crash never leaves half a file)."""
+    data = result_data(ranking, info)
+    path = out / "result.json"
+    tmp = path.with_suffix(".json.tmp")
+    tmp.write_text(json.dumps(data, indent=2, allow_nan=False))
+    tmp.replace(path)
+    rows = []
+    for r in data["ranked"]:
+        row = {"rank": r["rank"], "score": r["score"], "robustness": r["robustness"]}
+        row.update({f"setting:{k}": v for k, v in r["settings"].items()})
+        row.update({f"metric:{k}": v for k, v in r["metrics"].items()})
+        row["tradeoff"] = r["tradeoff"]
+        rows.append(row)
+    csv = out / "ranked.csv"
+    tmp_csv = csv.with_suffix(".csv.tmp")
+    pd.DataFrame(rows).to_csv(tmp_csv, index=False)
+    tmp_csv.replace(csv)
+    return path

@@ -1,0 +1,87 @@
+"""The ranked setups as a terminal table, drawn from the result data (result.json's shape).
+
+Setups are columns (the current setup first), settings and metrics are rows: a tuner reads
+across a row to see how one setting moves between the candidates.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from rich.console import Console
+from rich.markup import escape
+from rich.table import Table
+
+__all__ = ["print_ranking", "ranking_columns"]
+
+SHOWN_METRICS = (
+    ("front_load_variation", "front tyre load variation", "{:.3f}"),
+    ("rear_load_variation", "rear tyre load variation", "{:.3f}"),
+    ("front_unloaded_share", "front unloaded time", "{:.1%}"),
+    ("rear_unloaded_share", "rear unloaded time", "{:.1%}"),
+    ("front_bottom_outs_per_min", "front bottom-outs /min", "{:.2f}"),
+    ("rear_bottom_outs_per_min", "rear bottom-outs /min", "{:.2f}"),
+    ("front_travel_p95", "front travel p95 [mm]", "{:.0f}"),
+    ("rear_travel_p95", "rear travel p95 [mm]", "{:.0f}"),
+    ("pitch_rate_rms", "pitch rate RMS [rad/s]", "{:.3f}"),
+    ("rider_vibration_rms", "rider vibration Wk RMS [m/s²]", "{:.2f}"),
+)
+
+
+def ranking_columns(data: dict[str, Any]) -> tuple[list[str], list[list[str]]]:
+    """Column headers and rows of display strings (pure, testable)."""
+    entries = ([data["baseline"]] if data.get("baseline") else []) + list(data["ranked"])
+    headers = ["", *("now" if e["rank"] == 0 else f"#{e['rank']}" for e in entries)]
+    rows: list[list[str]] = []
+    names = list(entries[0]["settings"]) if entries else []
+    labels = data.get("labels", {})
+    for name in names:
+        rows.append([labels.get(name, name), *(e["settings"][name] for e in entries)])
+    rows.append(["score (lower is better)", *(f"{e['score']:.3f}" for e in entries)])
+
+    def vs_now(e: dict[str, Any]) -> str:
+        change = e.get("change_vs_baseline", {}).get("score")
+        return "" if e["rank"] == 0 or change is None else f"{change:+.1%}"
+
+    rows.append(["score vs now", *(vs_now(e) for e in entries)])
+    rows.append(
+        [
+            "score rise one step either side",
+            *("" if e.get("robustness") is None else f"+{e['robustness']:.3f}" for e in entries),
+        ]
+    )
+    for key, label, fmt in SHOWN_METRICS:
+        scale = 1e3 if "[mm]" in label else 1.0
+        cells = []
+        for e in entries:
+            value = e["metrics"].get(key)
+            cells.append("" if value is None else fmt.format(value * scale))
+        rows.append([label, *cells])
+    rows.append(
+        [
+            "sag fork / shock [%]",
+            *(f"{e['sag'].get('fork', 0):.0f} / {e['sag'].get('shock', 0):.0f}" for e in entries),
+        ]
+    )
+    return headers, rows
+
+
+def print_ranking(data: dict[str, Any], console: Console | None = None) -> None:
+    console = console or Console(width=max(Console().width, 120))
+    headers, rows = ranking_columns(data)
+    table = Table(title=f"Ranked setups: {data.get('scenario', '')}")
+    for i, h in enumerate(headers):
+        table.add_column(h, justify="left" if i == 0 else "right")
+    for row in rows:
+        table.add_row(*(escape(cell) for cell in row))
+    console.print(table)
+    for e in data["ranked"][1:]:
+        if e.get("tradeoff"):
+            console.print(f"  {e['tradeoff']}")
+    t = data["trials"]
+    console.print(
+        f"{t['finished']} trials finished ({t['infeasible']} outside the sag windows, "
+        f"{t['failed']} failed)."
+    )
+    for c in data["cautions"]:
+        console.print(f"[dim]- {c}[/]")
