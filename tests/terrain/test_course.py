@@ -221,8 +221,8 @@ def test_any_mix_gives_a_rideable_course(names, length, surface, seed) -> None:
         assert np.all(seg.z[seg.x < LEAD_IN] == 0.0) and np.all(np.isfinite(seg.z))
         v2 = seg.speed**2
         for a, b in _runs(seg.decel > 0):
-            # braking starts between samples, so the law holds from the first braking sample on
+            # braking starts between samples (where its curve meets v0 or the speed regained
+            # after the previous corner), so the law holds from the first braking sample on
             assert_allclose(np.diff(v2[a:b]), -2.0 * seg.decel[a] * seg.dx, rtol=1e-6)
-            assert v2[a] <= v2[a - 1]
         wi = wheel_inputs(seg, 0.37, 0.37, 1.3)
         assert np.all(wi.front >= seg.z)
