@@ -76,11 +76,12 @@ def init_wheel_acc(acc: np.ndarray, off: int) -> None:
 
 
 @njit(cache=True, inline="always")
-def table_value(row, x0, dx, x):
-    """Linear interpolation on a uniform grid, extrapolated with the end slopes."""
+def table_value(row, x0, inv_dx, x):
+    """Linear interpolation on a uniform grid (start x0, 1/spacing inv_dx), extrapolated with the
+    end slopes."""
     if x != x:
         return np.nan
-    u = (x - x0) / dx
+    u = (x - x0) * inv_dx
     n = row.shape[0]
     if u < 0.0:
         i = 0

@@ -11,7 +11,7 @@ from tuneopt.sim.params import WheelEnd
 FloatArray = NDArray[np.float64]
 
 # Columns of one wheel end inside a kernel parameter row (added to the end's offset).
-E_M_U = 0
+E_INV_M_U = 0  # 1 / unsprung mass: the loops multiply rather than divide
 E_K_T = 1
 E_C_T = 2
 E_D_RIM = 3
@@ -19,9 +19,9 @@ E_S0 = 4
 E_D0 = 5
 E_TRAVEL = 6
 E_T0 = 7
-E_TD = 8
+E_INV_TD = 8  # 1 / travel grid spacing
 E_V0 = 9
-E_VD = 10
+E_INV_VD = 10  # 1 / velocity grid spacing
 E_F_STATIC = 11
 E_BRAKE_SHARE = 12
 E_LAT_SHARE = 13
@@ -79,7 +79,7 @@ def pack_wheel(
 ) -> None:
     """Fill the end's columns of the parameter rows p (B, n) for a static spring load [N]."""
     tyre_load = spring_load + wheel.unsprung_mass * c.GRAVITY
-    p[:, off + E_M_U] = wheel.unsprung_mass
+    p[:, off + E_INV_M_U] = 1.0 / wheel.unsprung_mass
     p[:, off + E_K_T] = wheel.tyre_stiffness
     p[:, off + E_C_T] = wheel.tyre_damping
     p[:, off + E_D_RIM] = wheel.rim_strike_deflection
@@ -87,9 +87,9 @@ def pack_wheel(
     p[:, off + E_D0] = static_tyre_deflection(wheel, tyre_load)
     p[:, off + E_TRAVEL] = wheel.travel
     p[:, off + E_T0] = wheel.travel_grid[0]
-    p[:, off + E_TD] = _uniform_step(np.asarray(wheel.travel_grid), "travel_grid")
+    p[:, off + E_INV_TD] = 1.0 / _uniform_step(np.asarray(wheel.travel_grid), "travel_grid")
     p[:, off + E_V0] = wheel.velocity_grid[0]
-    p[:, off + E_VD] = _uniform_step(np.asarray(wheel.velocity_grid), "velocity_grid")
+    p[:, off + E_INV_VD] = 1.0 / _uniform_step(np.asarray(wheel.velocity_grid), "velocity_grid")
     p[:, off + E_F_STATIC] = tyre_load
     p[:, off + E_BRAKE_SHARE] = brake_share
     p[:, off + E_LAT_SHARE] = lateral_share

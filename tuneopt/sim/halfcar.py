@@ -57,13 +57,13 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 
-# Parameter row.
-_M_FR = 0
-_I_FR = 1
+# Parameter row (masses and inertias as reciprocals: the loops multiply rather than divide).
+_INV_M_FR = 0
+_INV_I_FR = 1
 _X_C = 2
 _L = 3
-_M_D = 4
-_I_D = 5
+_INV_M_D = 4
+_INV_I_D = 5
 _X_D = 6
 _X_H = 7
 _X_FT = 8
@@ -159,8 +159,8 @@ class HalfCarResult:
 
 @njit(cache=True, inline="always")
 def _suspension(p, o, s, sd, spring, damper):
-    return c.table_value(spring, p[o + w.E_T0], p[o + w.E_TD], s) + c.table_value(
-        damper, p[o + w.E_V0], p[o + w.E_VD], sd
+    return c.table_value(spring, p[o + w.E_T0], p[o + w.E_INV_TD], s) + c.table_value(
+        damper, p[o + w.E_V0], p[o + w.E_INV_VD], sd
     )
 
 
@@ -191,16 +191,16 @@ def _rhs(y, zf, zfd, zr, zrd, a, p, sf, df, sr, dr, dy, out):
     f_h = p[_F_H0] + p[_K_A] * e_h + p[_C_A] * e_hd
     f_ft = p[_F_FT0] + p[_K_L] * e_ft + p[_C_L] * e_ftd
     g = c.GRAVITY
-    a_d = (f_h + f_ft) / p[_M_D] - g
+    a_d = (f_h + f_ft) * p[_INV_M_D] - g
     for i in range(6):
         dy[i] = y[6 + i]
-    dy[6] = (f_f + f_r - f_h - f_ft) / p[_M_FR] - g
+    dy[6] = (f_f + f_r - f_h - f_ft) * p[_INV_M_FR] - g
     dy[7] = (f_f * (lwb - xc) - f_r * xc - f_h * (xh - xc) - f_ft * (xft - xc)
-             + p[_MB_F] * a) / p[_I_FR]
+             + p[_MB_F] * a) * p[_INV_I_FR]
     dy[8] = a_d
-    dy[9] = (f_h * (xh - xd) + f_ft * (xft - xd) + p[_MB_D] * a) / p[_I_D]
-    dy[10] = (t_f - f_f) / p[_F + w.E_M_U] - g
-    dy[11] = (t_r - f_r) / p[_R + w.E_M_U] - g
+    dy[9] = (f_h * (xh - xd) + f_ft * (xft - xd) + p[_MB_D] * a) * p[_INV_I_D]
+    dy[10] = (t_f - f_f) * p[_F + w.E_INV_M_U] - g
+    dy[11] = (t_r - f_r) * p[_R + w.E_INV_M_U] - g
     out[_O_LOAD_F] = t_f
     out[_O_LOAD_R] = t_r
     out[_O_TRAVEL_F] = s_f
@@ -405,12 +405,12 @@ def _pack(params: HalfCarParams) -> FloatArray:
     g = c.GRAVITY
     m_fr, m_d, lwb = params.frame_mass, rider.mass, params.wheelbase
     P = np.zeros((bsz, _NP))
-    P[:, _M_FR] = m_fr
-    P[:, _I_FR] = params.frame_pitch_inertia
+    P[:, _INV_M_FR] = 1.0 / m_fr
+    P[:, _INV_I_FR] = 1.0 / params.frame_pitch_inertia
     P[:, _X_C] = params.frame_com_x
     P[:, _L] = lwb
-    P[:, _M_D] = m_d
-    P[:, _I_D] = rider.pitch_inertia
+    P[:, _INV_M_D] = 1.0 / m_d
+    P[:, _INV_I_D] = 1.0 / rider.pitch_inertia
     P[:, _X_D] = rider.com_x
     P[:, _X_H] = rider.hand_x
     P[:, _X_FT] = rider.foot_x

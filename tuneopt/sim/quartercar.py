@@ -42,8 +42,8 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 
-# Parameter row: sprung mass then the wheel end's columns.
-_M_S = 0
+# Parameter row: 1 / sprung mass then the wheel end's columns.
+_INV_M_S = 0
 _W = 1
 _NP = 1 + w.E_FIELDS
 # Accumulator row: wheel block then vibration block.
@@ -100,16 +100,16 @@ def _rhs(y, zr, zrd, p, spring, damper, dy, out):
     o = _W
     s = p[o + w.E_S0] + y[1] - y[0]
     sd = y[3] - y[2]
-    f_susp = c.table_value(spring, p[o + w.E_T0], p[o + w.E_TD], s) + c.table_value(
-        damper, p[o + w.E_V0], p[o + w.E_VD], sd
+    f_susp = c.table_value(spring, p[o + w.E_T0], p[o + w.E_INV_TD], s) + c.table_value(
+        damper, p[o + w.E_V0], p[o + w.E_INV_VD], sd
     )
     d = p[o + w.E_D0] + zr - y[1]
     f_tyre = c.tyre_force(d, zrd - y[3], p[o + w.E_K_T], p[o + w.E_C_T], p[o + w.E_D_RIM])
-    a_s = f_susp / p[_M_S] - c.GRAVITY
+    a_s = f_susp * p[_INV_M_S] - c.GRAVITY
     dy[0] = y[2]
     dy[1] = y[3]
     dy[2] = a_s
-    dy[3] = (f_tyre - f_susp) / p[o + w.E_M_U] - c.GRAVITY
+    dy[3] = (f_tyre - f_susp) * p[o + w.E_INV_M_U] - c.GRAVITY
     out[_O_LOAD] = f_tyre
     out[_O_TRAVEL] = s
     out[_O_DEFL] = d
@@ -258,7 +258,7 @@ def _prepare(params: QuarterCarParams, road: RoadInput, trace_every: int | None)
     bsz = wheel.batch
     sprung = np.broadcast_to(np.asarray(params.sprung_mass, dtype=np.float64), (bsz,))
     P = np.zeros((bsz, _NP))
-    P[:, _M_S] = sprung
+    P[:, _INV_M_S] = 1.0 / sprung
     w.pack_wheel(P, _W, wheel, sprung * c.GRAVITY, 0.0, np.ones(bsz))
     fail = np.zeros(bsz, dtype=np.int64)
     s0 = P[:, _W + w.E_S0]
