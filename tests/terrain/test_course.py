@@ -132,7 +132,7 @@ def test_braking_ends_where_the_corner_starts(wet_course) -> None:
 
 
 def test_smooth_hardpack_profile_is_in_its_iso_class() -> None:
-    # [S] ISO 8608 class D: Gd(n0) between 512e-6 and 2048e-6 m^3; Welch one-sided [S]
+    # [S] ISO 8608 class B: Gd(n0) between 32e-6 and 128e-6 m^3; Welch one-sided [S]
     spec = CourseSpec.model_validate({"mix": [{"terrain": "smooth_hardpack", "share": 1}],
                                       "length": "1000 m"})
     seg = build_course(spec, seed=2).segments[0]
@@ -140,7 +140,7 @@ def test_smooth_hardpack_profile_is_in_its_iso_class() -> None:
     n, p = welch(z, fs=1.0 / seg.dx, nperseg=16384, scaling="density")
     inside = (n >= 0.05) & (n <= 5.0)
     slope, intercept = np.polyfit(np.log10(n[inside] / 0.1), np.log10(p[inside]), 1)
-    assert 512e-6 <= 10**intercept <= 2048e-6
+    assert 32e-6 <= 10**intercept <= 128e-6
     assert -2.1 <= slope <= -1.9
 
 

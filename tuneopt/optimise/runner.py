@@ -29,6 +29,7 @@ from tuneopt.optimise.space import SearchSpace
 
 __all__ = [
     "INFEASIBLE_PENALTY",
+    "ask_batch",
     "SAMPLERS",
     "Progress",
     "StudyPlan",
@@ -37,6 +38,7 @@ __all__ = [
     "make_sampler",
     "reap_stale_trials",
     "run_shard",
+    "scenario_points",
 ]
 
 log = logging.getLogger(__name__)
@@ -167,20 +169,62 @@ def _tell(study: optuna.Study, trial: optuna.Trial, outcome: Outcome) -> None:
         study.tell(trial, state=TrialState.FAIL)
 
 
+def ask_batch(
+    study: optuna.Study,
+    plan: StudyPlan,
+    distributions: dict[str, BaseDistribution],
+    shard: int,
+    size: int,
+    finished: int,
+    owner: str,
+) -> list[optuna.Trial]:
+    """Ask ``size`` trials with a sampler seeded from (study seed, shard, finished trials)."""
+    study.sampler = make_sampler(
+        plan.sampler, (plan.seed * 1_000_003 + shard * 10_007 + finished) % 2**32, size
+    )
+    batch = []
+    for _ in range(size):
+        trial = study.ask(distributions)
+        trial.set_user_attr("owner", owner)
+        batch.append(trial)
+    return batch
+
+
+def scenario_points(
+    space: SearchSpace, evaluator: Evaluator
+) -> Callable[[list[dict[str, int]]], list[Outcome]]:
+    """Evaluate points of a scenario's search space (indices per setting)."""
+
+    def evaluate(points: list[dict[str, int]]) -> list[Outcome]:
+        return evaluator.evaluate([space.setup(p) for p in points])
+
+    return evaluate
+
+
 def run_shard(
     study: optuna.Study,
     plan: StudyPlan,
-    space: SearchSpace,
-    evaluator: Evaluator,
+    space: SearchSpace | dict[str, BaseDistribution],
+    evaluate: Evaluator | Callable[[list[dict[str, int]]], list[Outcome]],
     shard: int = 0,
     should_stop: Callable[[], bool] = lambda: False,
     on_batch: Callable[[Progress], None] | None = None,
     clock: Callable[[], float] = time.time,
 ) -> int:
     """Ask, evaluate and tell batches until the budget, the deadline or ``should_stop()``.
-    Returns the number of trials this shard finished."""
+
+    ``space`` is a scenario's search space (then ``evaluate`` is its Evaluator), or plain
+    optuna distributions with a function scoring a list of points. Returns the number of trials
+    this shard finished."""
     owner = f"{socket.gethostname()}:{os.getpid()}:{shard}"
-    dists = _distributions(space)
+    if isinstance(space, SearchSpace):
+        dists = _distributions(space)
+        assert isinstance(evaluate, Evaluator)
+        evaluate_points = scenario_points(space, evaluate)
+    else:
+        dists = space
+        assert not isinstance(evaluate, Evaluator)
+        evaluate_points = evaluate
     started, done = clock(), 0
     while True:
         if should_stop():
@@ -196,16 +240,8 @@ def run_shard(
             size = min(size, plan.trials - finished - running)
             if size <= 0:
                 break
-        study.sampler = make_sampler(
-            plan.sampler, (plan.seed * 1_000_003 + shard * 10_007 + finished) % 2**32, size
-        )
-        batch = []
-        for _ in range(size):
-            trial = study.ask(dists)
-            trial.set_user_attr("owner", owner)
-            batch.append(trial)
-        setups = [space.setup(t.params) for t in batch]
-        outcomes = evaluator.evaluate(setups)
+        batch = ask_batch(study, plan, dists, shard, size, finished, owner)
+        outcomes = evaluate_points([{k: int(v) for k, v in t.params.items()} for t in batch])
         for trial, outcome in zip(batch, outcomes, strict=True):
             _tell(study, trial, outcome)
         done += len(batch)
