@@ -28,12 +28,14 @@ DAMPING = np.geomspace(150.0, 3000.0, 301)  # the optimiser's choices [N s/m]
 
 def _sigmas(c: float) -> tuple[float, float]:
     """σ(F_t) and σ(z̈_s) of the linear quarter-car (REFERENCES.md state space)."""
-    a = np.array([
-        [0.0, 1.0, 0.0, -1.0],
-        [-K / M_S, -c / M_S, 0.0, c / M_S],
-        [0.0, 0.0, 0.0, 1.0],
-        [K / M_U, c / M_U, -K_T / M_U, -c / M_U],
-    ])
+    a = np.array(
+        [
+            [0.0, 1.0, 0.0, -1.0],
+            [-K / M_S, -c / M_S, 0.0, c / M_S],
+            [0.0, 0.0, 0.0, 1.0],
+            [K / M_U, c / M_U, -K_T / M_U, -c / M_U],
+        ]
+    )
     b = np.array([[0.0], [0.0], [-1.0], [0.0]])
     p = solve_continuous_lyapunov(a, -Q * (b @ b.T))
     acc = np.array([-K / M_S, -c / M_S, 0.0, c / M_S])
@@ -58,8 +60,14 @@ def _optimise(road: RoadInput, measure: str) -> float:
     def evaluate(points: list[dict[str, int]]) -> list[Outcome]:
         cs = np.array([DAMPING[p["c"]] for p in points])
         params = quarter_car(
-            len(cs), sprung_mass=M_S, rate=K, compression=cs, rebound=cs, unsprung_mass=M_U,
-            tyre_stiffness=K_T, travel=0.4,
+            len(cs),
+            sprung_mass=M_S,
+            rate=K,
+            compression=cs,
+            rebound=cs,
+            unsprung_mass=M_U,
+            tyre_stiffness=K_T,
+            travel=0.4,
         )
         result = simulate_quartercar(params, road, trace_every=1)
         tr = result.traces

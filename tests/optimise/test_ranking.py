@@ -11,8 +11,13 @@ from tuneopt.optimise.ranking import pareto_front, tradeoff_sentence
 
 
 @settings(max_examples=60, deadline=None)
-@given(arrays(np.float64, st.tuples(st.integers(1, 30), st.integers(1, 4)),
-              elements=st.floats(0, 10, allow_nan=False)))
+@given(
+    arrays(
+        np.float64,
+        st.tuples(st.integers(1, 30), st.integers(1, 4)),
+        elements=st.floats(0, 10, allow_nan=False),
+    )
+)
 def test_pareto_front_matches_brute_force(points: np.ndarray) -> None:
     # definition of dominance, checked pair by pair
     def dominated(i: int) -> bool:
@@ -33,5 +38,7 @@ def test_tradeoff_sentence_names_the_gain_and_the_cost() -> None:
 
 
 def test_tradeoff_sentence_when_the_winner_had_none() -> None:
-    text = tradeoff_sentence(3, {"bottom_outs": 0.2, "pitch": 0.8}, {"bottom_outs": 0.0, "pitch": 1.0})
+    text = tradeoff_sentence(
+        3, {"bottom_outs": 0.2, "pitch": 0.8}, {"bottom_outs": 0.0, "pitch": 1.0}
+    )
     assert text == "3rd is 20% calmer on pitch motion but has bottom-outs where the winner has none"

@@ -66,8 +66,9 @@ def test_resumed_run_equals_an_uninterrupted_run(small_scenario: Scenario, tmp_p
 def test_baseline_is_trial_zero(small_scenario: Scenario) -> None:
     space = build_space(small_scenario)
     plan = StudyPlan("b", trials=4, batch_size=4)
-    study = create_study(optuna.storages.InMemoryStorage(), plan, space,
-                         space.indices(small_scenario.setup))
+    study = create_study(
+        optuna.storages.InMemoryStorage(), plan, space, space.indices(small_scenario.setup)
+    )
     run_shard(study, plan, space, Evaluator(small_scenario, realisations=1))
     first = study.trials[0]
     assert first.user_attrs.get("baseline") is True
@@ -77,7 +78,8 @@ def test_baseline_is_trial_zero(small_scenario: Scenario) -> None:
 def test_failed_evaluations_do_not_stop_the_study() -> None:
     def evaluate(points: list[dict[str, int]]) -> list[Outcome]:
         return [
-            Outcome(None, failure="simulation: non-finite") if p["x"] % 3 == 0
+            Outcome(None, failure="simulation: non-finite")
+            if p["x"] % 3 == 0
             else Outcome(float((p["x"] - 20) ** 2))
             for p in points
         ]
@@ -120,8 +122,9 @@ def test_infeasible_setups_are_told_a_penalty_and_kept_apart(small_scenario: Sce
     assert not out.ok and out.failure.startswith(("infeasible", "static"))
 
 
-@pytest.mark.parametrize("bad", [{"trials": 0}, {"batch_size": 0}, {"sampler": "grid"},
-                                 {"trials": None}])
+@pytest.mark.parametrize(
+    "bad", [{"trials": 0}, {"batch_size": 0}, {"sampler": "grid"}, {"trials": None}]
+)
 def test_plan_refuses_nonsense(bad: dict[str, object]) -> None:
     with pytest.raises(ValueError):
         StudyPlan("x", **bad)  # type: ignore[arg-type]

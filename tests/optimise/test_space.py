@@ -52,7 +52,9 @@ def test_pressures_move_in_pump_steps() -> None:
     s = load_scenario(SCENARIO_FILES[-1])
     space = build_space(s)
     values = space["fork.pressure"].values
-    steps = {round(convert(b - a, "Pa", "psi"), 6) for a, b in zip(values, values[1:], strict=False)}
+    steps = {
+        round(convert(b - a, "Pa", "psi"), 6) for a, b in zip(values, values[1:], strict=False)
+    }
     assert steps == {1.0}
 
 
@@ -72,8 +74,16 @@ def test_search_ranges_may_narrow_but_never_widen() -> None:
 def test_nothing_to_search_is_an_error() -> None:
     data = scenario_data("downhill_coil")
     data["search"] = {
-        "fixed": ["fork.rate", "fork.lsc", "fork.hsc", "fork.lsr", "shock.rate", "shock.lsc",
-                  "shock.hsc", "shock.lsr"]
+        "fixed": [
+            "fork.rate",
+            "fork.lsc",
+            "fork.hsc",
+            "fork.lsr",
+            "shock.rate",
+            "shock.lsc",
+            "shock.hsc",
+            "shock.lsr",
+        ]
     }
     with pytest.raises(InputError, match="nothing to search"):
         build_space(scenario_from_data(data))
@@ -88,8 +98,16 @@ def test_baseline_outside_a_narrowed_range_is_an_error() -> None:
 
 def test_zero_weights_are_refused() -> None:
     data = scenario_data("trail_air")
-    data["objective"] = {k: 0 for k in (
-        "front_load_variation", "rear_load_variation", "unloaded_time", "bottom_outs", "pitch",
-        "rider_vibration")}
+    data["objective"] = {
+        k: 0
+        for k in (
+            "front_load_variation",
+            "rear_load_variation",
+            "unloaded_time",
+            "bottom_outs",
+            "pitch",
+            "rider_vibration",
+        )
+    }
     with pytest.raises(InputError, match="at least one weight"):
         scenario_from_data(data)

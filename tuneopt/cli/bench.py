@@ -16,6 +16,8 @@ def register(sub: Any) -> None:
     p.add_argument("--duration", type=float, default=20.0,
                    help="simulated seconds per run (default 20)")
     p.add_argument("--batch", type=int, default=64, help="setups per batched call (default 64)")
+    p.add_argument("--cold", action="store_true",
+                   help="also time compiling the kernels from an empty cache (slow)")
     p.set_defaults(func=run)
 
 
@@ -38,7 +40,10 @@ def format_table(result: BenchResult) -> str:
         ("warm call, batch 1 [s]", "warm_batch1_s", "{:.4f}"),
         (f"warm call, batch {b} [s]", "warm_batch_s", "{:.4f}"),
         ("reference CPU per setup [s]", "reference_s_per_setup", "{:.2f}"),
+        ("new process, cached kernels [s]", "fresh_process_s", "{:.2f}"),
     ]
+    if result.halfcar.cold_compile_s is not None:
+        rows.append(("new process, empty kernel cache [s]", "cold_compile_s", "{:.1f}"))
     lines = [
         f"simulated {result.duration:g} s per run on a synthetic demo road; "
         f"{result.reference_setups} setups through the reference; {result.cpus} CPUs",
@@ -52,7 +57,7 @@ def format_table(result: BenchResult) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
-    result = bench(args.duration, batch=args.batch)
+    result = bench(args.duration, batch=args.batch, cold=args.cold)
     if args.json:
         print(json.dumps(_finite(result.as_dict()), indent=2, allow_nan=False))
     else:

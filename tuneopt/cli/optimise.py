@@ -144,7 +144,7 @@ def run(args: argparse.Namespace) -> int:
         def show(p: Any) -> None:
             bar.update(
                 task,
-                completed=p.finished,
+                completed=min(p.finished, p.budget or p.finished),
                 best="-" if p.best_score is None else f"{p.best_score:.3f}",
                 rate=f"{p.trials_per_minute:.0f}",
             )

@@ -7,6 +7,9 @@ All speeds are ratios or rates measured in the same process; nothing here is ass
 from __future__ import annotations
 
 import os
+import subprocess
+import sys
+import tempfile
 import time
 from collections.abc import Callable
 from dataclasses import asdict, dataclass
@@ -54,7 +57,11 @@ class ModelBench:
     first_call_s: wall time of the first call in this process (cache load or compilation) [s];
     warm_batch1_s, warm_batch_s: wall time of warm calls at batch 1 and at the large batch [s]
     (the fastest of three; the realtime factors use the same calls' CPU time);
-    reference_s_per_setup: CPU time of one reference run [s].
+    reference_s_per_setup: CPU time of one reference run [s];
+    fresh_process_s: wall time for a new interpreter to import the simulator and finish a first
+    short run with the compiled kernels cached on disk [s];
+    cold_compile_s: the same with an empty kernel cache, i.e. compiling everything [s] (None
+    unless asked for).
     """
 
     realtime_factor_per_core: float
@@ -65,6 +72,8 @@ class ModelBench:
     warm_batch1_s: float
     warm_batch_s: float
     reference_s_per_setup: float
+    fresh_process_s: float
+    cold_compile_s: float | None
 
 
 @dataclass(frozen=True)
@@ -250,8 +259,33 @@ def _take(params: Any, idx: slice) -> Any:
                          params.wheelbase, params.brake_front_share)
 
 
+_START_CODE = """
+import time
+t0 = time.perf_counter()
+from tuneopt.sim import benchmark as b, simulate_{model} as sim
+sim(b.demo_{model}_params(1), b.demo_road(0.2))
+print(time.perf_counter() - t0)
+"""
+
+
+def _fresh_process_seconds(model: str, empty_cache: bool) -> float:
+    """Wall time of import plus a first short run in a new interpreter [s]."""
+    import tuneopt
+
+    env = dict(os.environ)
+    root = os.path.dirname(os.path.dirname(os.path.abspath(tuneopt.__file__)))
+    env["PYTHONPATH"] = os.pathsep.join(p for p in (root, env.get("PYTHONPATH", "")) if p)
+    with tempfile.TemporaryDirectory() as cache:
+        if empty_cache:
+            env["NUMBA_CACHE_DIR"] = cache
+        out = subprocess.run([sys.executable, "-c", _START_CODE.format(model=model)], env=env,
+                             capture_output=True, text=True, check=True)
+    return float(out.stdout.strip().splitlines()[-1])
+
+
 def _bench_model(sim: Callable[..., Any], ref: Callable[..., Any], params: Any, road: RoadInput,
-                 batch: int, reference_setups: int, rtol: float) -> ModelBench:
+                 batch: int, reference_setups: int, rtol: float, model: str,
+                 cold: bool) -> ModelBench:
     one = _take(params, slice(0, 1))
     _, first_wall, _ = _timed(lambda: sim(one, road))
     _, warm1_wall, warm1_cpu = _timed(lambda: sim(one, road), repeat=3)
@@ -272,6 +306,8 @@ def _bench_model(sim: Callable[..., Any], ref: Callable[..., Any], params: Any, 
         warm_batch1_s=warm1_wall,
         warm_batch_s=warm_wall,
         reference_s_per_setup=ref_cpu / reference_setups,
+        fresh_process_s=_fresh_process_seconds(model, empty_cache=False),
+        cold_compile_s=_fresh_process_seconds(model, empty_cache=True) if cold else None,
     )
 
 
@@ -282,20 +318,22 @@ def bench(
     reference_setups: int = 2,
     reference_rtol: float = 1e-6,
     seed: int = 0,
+    cold: bool = False,
 ) -> BenchResult:
     """Measure both simulators on the demo road.
 
     duration: simulated time per run [s]; batch: setups per batched call; reference_setups:
     how many of them also run through solve_ivp (RK45, rtol reference_rtol, max_step the time the
-    road's shortest feature takes to pass).
+    road's shortest feature takes to pass). cold: also time a fresh interpreter compiling the
+    kernels into an empty cache (tens of seconds per model).
     """
     road = demo_road(duration, seed=seed + 1)
     qc = _bench_model(simulate_quartercar, simulate_quartercar_reference,
                       demo_quartercar_params(batch, seed), road, batch, reference_setups,
-                      reference_rtol)
+                      reference_rtol, "quartercar", cold)
     hc = _bench_model(simulate_halfcar, simulate_halfcar_reference,
                       demo_halfcar_params(batch, seed), road, batch, reference_setups,
-                      reference_rtol)
+                      reference_rtol, "halfcar", cold)
     cpus = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()
     return BenchResult(quartercar=qc, halfcar=hc, duration=road.duration, batch=batch,
                        reference_setups=reference_setups, reference_rtol=reference_rtol,

@@ -10,6 +10,7 @@ with w = 2 pi f and the parameters below [Hz].
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Literal
 
 import numpy as np
@@ -84,7 +85,13 @@ def weighting_sos(name: WeightingName, fs: float) -> FloatArray:
 
     Use with scipy.signal.sosfilt; the simulators run the same sections inside their loops.
     """
-    b, a = weighting_coefficients(name)
+    return _sos(name, float(fs)).copy()
+
+
+@lru_cache(maxsize=16)
+def _sos(name: str, fs: float) -> FloatArray:
+    # designing the filter costs more than a short simulation: design once per rate
+    b, a = weighting_coefficients(name)  # type: ignore[arg-type]
     z, p, k = signal.tf2zpk(b, a)
     zd, pd, kd = signal.bilinear_zpk(z, p, k, fs)
     return np.asarray(signal.zpk2sos(zd, pd, kd), dtype=np.float64)

@@ -5,9 +5,9 @@ measurement. The background roughness is ISO 8608 class B to D [?]: a measured u
 class C (Barbosa 2011), and with a bicycle's light wheel loads the linear quarter-car already
 predicts a tyre-load variation near 0.9 of the static load on class D at 9 m/s (Lyapunov, see
 REFERENCES.md), a front wheel skipping on every stretch. Smooth stretches are therefore B, and
-the rough types get their roughness mostly from their discrete features. Friction coefficients follow the scenario range 0.3 (wet roots,
-mud) to 0.8 (dry hardpack) in REFERENCES.md [?]. Speeds, feature sizes and corner sizes are
-common practice, no source.
+the rough types get their roughness mostly from their discrete features. Friction coefficients
+follow the scenario range 0.3 (wet roots, mud) to 0.8 (dry hardpack) in REFERENCES.md [?].
+Speeds, feature sizes and corner sizes are common practice, no source.
 """
 
 from __future__ import annotations
