@@ -118,6 +118,7 @@ def test_rear_wheel_force_derivative_matches_the_wheel_rate() -> None:
         # jumps at a knot and a central difference averages the two sides
         z = np.linspace(0.013, 0.127, 7)
         h = 1e-6
+
         def wheel_force(zz: np.ndarray, e: SuspensionEnd = end) -> np.ndarray:
             return e.spring.force(e.stroke(zz)) / e.ratio(zz)
 
