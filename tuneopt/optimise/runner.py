@@ -49,7 +49,7 @@ optuna.logging.set_verbosity(optuna.logging.WARNING)
 # the sampler is pulled back towards it.
 INFEASIBLE_PENALTY = 100.0
 
-SAMPLERS = ("tpe", "cmaes", "nsga2", "random")
+SAMPLERS = ("tpe", "cmaes", "nsga2", "random", "gp")
 
 
 def make_sampler(kind: str, seed: int, batch_size: int) -> optuna.samplers.BaseSampler:
@@ -66,6 +66,12 @@ def make_sampler(kind: str, seed: int, batch_size: int) -> optuna.samplers.BaseS
         return optuna.samplers.NSGAIISampler(seed=seed, population_size=max(20, batch_size))
     if kind == "random":
         return optuna.samplers.RandomSampler(seed=seed)
+    if kind == "gp":
+        try:
+            import torch  # noqa: F401  (the GP sampler needs it; it is not a dependency)
+        except ImportError:
+            raise ValueError("the gp sampler needs torch, which is not installed") from None
+        return optuna.samplers.GPSampler(seed=seed)
     raise ValueError(f"unknown sampler {kind!r}; choose from {', '.join(SAMPLERS)}")
 
 
