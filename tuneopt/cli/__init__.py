@@ -12,7 +12,7 @@ from tuneopt.model.errors import InputError
 __all__ = ["main"]
 
 # Each module has ``register(subparsers)`` that adds its parser with ``func=`` set.
-_COMMANDS = ("check", "terrain", "simulate", "optimise", "bench")
+_COMMANDS = ("check", "terrain", "simulate", "optimise", "compare", "bench")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -41,6 +41,13 @@ def main(argv: Sequence[str] | None = None) -> int:
     except InputError as exc:
         print(exc.describe(), file=sys.stderr)
         return 2
+    except RuntimeError as exc:
+        from tuneopt.optimise.local import RunError
+
+        if not isinstance(exc, RunError):
+            raise
+        print(f"error: {exc}", file=sys.stderr)
+        return 1
     except BrokenPipeError:  # output piped into a pager or head that closed early
         sys.stderr.close()
         return 0

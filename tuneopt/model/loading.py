@@ -159,10 +159,20 @@ def scenario_from_data(
     return scenario
 
 
-def load_scenario(path: str | Path) -> Scenario:
-    """Read a scenario file (.toml or .json). Raises InputError naming the field and reason."""
-    p = Path(path)
-    source = str(path)
+def _merge(base: dict[str, Any], override: dict[str, Any]) -> dict[str, Any]:
+    """Tables merge key by key, recursively; anything else in ``override`` replaces."""
+    out = dict(base)
+    for key, value in override.items():
+        if isinstance(value, dict) and isinstance(out.get(key), dict):
+            out[key] = _merge(out[key], value)
+        else:
+            out[key] = value
+    return out
+
+
+def _read_data(p: Path, source: str, seen: tuple[Path, ...] = ()) -> dict[str, Any]:
+    """A scenario file's data, with ``base = "other.toml"`` resolved: the file then only says
+    what differs from the other one (a wet variant of a dry scenario, say)."""
     try:
         text = p.read_text(encoding="utf-8")
     except FileNotFoundError:
@@ -181,4 +191,22 @@ def load_scenario(path: str | Path) -> Scenario:
             data = tomllib.loads(text)
         except tomllib.TOMLDecodeError as exc:
             raise InputError.single("", f"not valid TOML: {exc}", source) from None
-    return scenario_from_data(data, source, p.parent)
+    if not isinstance(data, dict) or "base" not in data:
+        return data  # type: ignore[no-any-return]
+    base_name = data.pop("base")
+    if not isinstance(base_name, str):
+        raise InputError.single("base", "must be the file name of another scenario", source)
+    base_path = (p.parent / base_name).resolve()
+    if base_path in seen or base_path == p.resolve():
+        raise InputError.single("base", f"{base_name} leads back to this file", source)
+    if not base_path.exists():
+        raise InputError.single("base", f"no such scenario file: {base_name}", source)
+    base = _read_data(base_path, str(base_path), (*seen, p.resolve()))
+    return _merge(base, data)
+
+
+def load_scenario(path: str | Path) -> Scenario:
+    """Read a scenario file (.toml or .json). Raises InputError naming the field and reason."""
+    p = Path(path)
+    source = str(path)
+    return scenario_from_data(_read_data(p, source), source, p.parent)

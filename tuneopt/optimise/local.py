@@ -32,7 +32,11 @@ from tuneopt.optimise.runner import (
 )
 from tuneopt.optimise.space import build_space
 
-__all__ = ["LocalRun", "load_run", "run_local", "start_run"]
+__all__ = ["LocalRun", "RunError", "load_run", "run_local", "start_run"]
+
+class RunError(RuntimeError):
+    """A local run could not go on (a worker process died); finished trials are kept."""
+
 
 JOURNAL = "study.journal"
 SETTINGS = "run.json"
@@ -137,7 +141,9 @@ def run_local(
 def _run_pool(
     run: LocalRun, study: optuna.Study, on_progress: Callable[[Progress], None] | None
 ) -> None:
-    ctx = mp.get_context("fork")
+    # spawn, not fork: a parent that has run the compiled kernels holds an OpenMP runtime that
+    # must not be forked
+    ctx = mp.get_context("spawn")
     stop = ctx.Event()
     procs = [
         ctx.Process(target=_shard_process, args=(run, shard, stop), daemon=True)
@@ -171,4 +177,7 @@ def _run_pool(
         p.join()
     bad = [p.exitcode for p in procs if p.exitcode]
     if bad:
-        raise RuntimeError(f"{len(bad)} of {len(procs)} worker processes failed")
+        raise RunError(
+            f"{len(bad)} of {len(procs)} worker processes failed (exit codes {bad}); finished "
+            f"trials are kept: resume with tuneopt optimise --resume {run.out}"
+        )
