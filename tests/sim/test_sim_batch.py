@@ -53,3 +53,18 @@ def test_quartercar_batch_equals_single_runs() -> None:
         single = _fields(simulate_quartercar(quarter_car(1, rate=rate), road), names)
         for key, value in single.items():
             assert_array_equal(got[key][i], value[0], err_msg=key)
+
+
+def test_setup_without_static_equilibrium_fails_alone() -> None:
+    # [D] a spring that cannot hold its share of the weight inside the travel has no static
+    # state; a table that falls with travel has no single one. Both fail; the others run.
+    road = demo_road(0.5, seed=9)
+    params = quarter_car(3, rate=[15e3, 200.0, 15e3])
+    falling = params.wheel.spring_force.copy()
+    falling[2, 40:45] = falling[2, 40]  # flat spot: not rising
+    wheel = dataclasses.replace(params.wheel, spring_force=falling)
+    res = simulate_quartercar(dataclasses.replace(params, wheel=wheel), road)
+    assert list(res.failed) == [False, True, True]
+    assert res.failure[1] == FailureReason.STATIC and res.failure[2] == FailureReason.STATIC
+    single = simulate_quartercar(quarter_car(1, rate=15e3), road)
+    assert_array_equal(res.wheel.load_variation[0], single.wheel.load_variation[0])

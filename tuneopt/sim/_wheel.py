@@ -40,7 +40,7 @@ def static_travel(wheel: WheelEnd, spring_load: FloatArray) -> FloatArray:
     """Travel [m] at which each setup's spring carries spring_load [N], (B,).
 
     Inverts the linear interpolant of the table, so the kernels start exactly in equilibrium.
-    The table must increase with travel.
+    A setup whose table does not increase with travel gets NaN (no single equilibrium).
     """
     grid = np.asarray(wheel.travel_grid, dtype=np.float64)
     step = _uniform_step(grid, "travel_grid")
@@ -48,7 +48,8 @@ def static_travel(wheel: WheelEnd, spring_load: FloatArray) -> FloatArray:
     for b in range(wheel.batch):
         row = wheel.spring_force[b]
         if not np.all(np.diff(row) > 0):
-            raise ValueError(f"spring force table of setup {b} must increase with travel")
+            out[b] = np.nan
+            continue
         load = float(spring_load[b])
         if load < row[0]:
             out[b] = grid[0] + (load - row[0]) / (row[1] - row[0]) * step

@@ -457,7 +457,7 @@ def _prepare(params: HalfCarParams, road: RoadInput, trace_every: int | None) ->
     fail = np.zeros(bsz, dtype=np.int64)
     for o, wheel in ((_F, params.front), (_R, params.rear)):
         s0 = P[:, o + w.E_S0]
-        fail[(s0 > wheel.travel) | (s0 < wheel.travel_grid[0])] = c.FAIL_STATIC
+        fail[~((s0 <= wheel.travel) & (s0 >= wheel.travel_grid[0]))] = c.FAIL_STATIC
     acc = np.zeros((bsz, _NACC))
     c.init_wheel_acc(acc, _ACC_F)
     c.init_wheel_acc(acc, _ACC_R)

@@ -31,7 +31,7 @@ class FailureReason(StrEnum):
     NONE = ""
     NON_FINITE = "non-finite state"
     RUNAWAY = "runaway motion past the stops or the tyre"
-    STATIC = "no static equilibrium inside the spring table"
+    STATIC = "no static equilibrium inside the travel (spring table too soft, or not rising)"
 
 
 _FAILURE_BY_CODE = {

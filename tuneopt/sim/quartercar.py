@@ -262,7 +262,7 @@ def _prepare(params: QuarterCarParams, road: RoadInput, trace_every: int | None)
     w.pack_wheel(P, _W, wheel, sprung * c.GRAVITY, 0.0, np.ones(bsz))
     fail = np.zeros(bsz, dtype=np.int64)
     s0 = P[:, _W + w.E_S0]
-    fail[(s0 > wheel.travel) | (s0 < wheel.travel_grid[0])] = c.FAIL_STATIC
+    fail[~((s0 <= wheel.travel) & (s0 >= wheel.travel_grid[0]))] = c.FAIL_STATIC
     acc = np.zeros((bsz, _NACC))
     c.init_wheel_acc(acc, _ACC_W)
     every = int(trace_every) if trace_every else 1
