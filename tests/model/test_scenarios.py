@@ -148,3 +148,13 @@ def test_toml_syntax_error_is_an_input_error(tmp_path: Path) -> None:
     p.write_text("[rider\nmass = 3")
     with pytest.raises(InputError, match="not valid TOML"):
         load_scenario(p)
+
+
+def test_base_file_errors_are_named(tmp_path: Path) -> None:
+    (tmp_path / "a.toml").write_text('base = "b.toml"\nname = "a"\n')
+    (tmp_path / "b.toml").write_text('base = "a.toml"\nname = "b"\n')
+    with pytest.raises(InputError, match="leads back"):
+        load_scenario(tmp_path / "a.toml")
+    (tmp_path / "c.toml").write_text('base = "missing.toml"\n')
+    with pytest.raises(InputError, match="no such scenario file"):
+        load_scenario(tmp_path / "c.toml")

@@ -192,7 +192,7 @@ def _read_data(p: Path, source: str, seen: tuple[Path, ...] = ()) -> dict[str, A
         except tomllib.TOMLDecodeError as exc:
             raise InputError.single("", f"not valid TOML: {exc}", source) from None
     if not isinstance(data, dict) or "base" not in data:
-        return data  # type: ignore[no-any-return]
+        return data
     base_name = data.pop("base")
     if not isinstance(base_name, str):
         raise InputError.single("base", "must be the file name of another scenario", source)
