@@ -8,7 +8,7 @@ import numpy as np
 from numpy.testing import assert_allclose
 from sim_setups import half_car
 
-from tuneopt.sim import simulate_halfcar
+from tuneopt.sim import RoadInput, simulate_halfcar
 from tuneopt.sim.benchmark import demo_road
 
 BOTTOM_DEPTH = 2e-3  # counting threshold of the simulator (STACK.md: about 2 mm)
@@ -30,22 +30,40 @@ def _count_events(depth: np.ndarray) -> tuple[int, float]:
 
 def test_streaming_metrics_match_traces() -> None:
     road = demo_road(2.0, seed=3, bump_height=0.17)
-    params = half_car(2, front=dict(rate=[6e3, 8e3], compression=300.0),
-                      rear=dict(rate=[10e3, 14e3], compression=400.0))
+    params = half_car(
+        2,
+        front=dict(rate=[6e3, 8e3], compression=300.0),
+        rear=dict(rate=[10e3, 14e3], compression=400.0),
+    )
     res = simulate_halfcar(params, road, trace_every=1)
     tr = res.traces
     assert tr is not None and not res.failed.any()
     minutes = road.duration / 60.0
     for name, m, load, travel, static_load, static_travel, full in (
-        ("front", res.front, tr.front_tyre_load, tr.front_travel, res.static_load_front,
-         res.static_travel_front, params.front.travel),
-        ("rear", res.rear, tr.rear_tyre_load, tr.rear_travel, res.static_load_rear,
-         res.static_travel_rear, params.rear.travel),
+        (
+            "front",
+            res.front,
+            tr.front_tyre_load,
+            tr.front_travel,
+            res.static_load_front,
+            res.static_travel_front,
+            params.front.travel,
+        ),
+        (
+            "rear",
+            res.rear,
+            tr.rear_tyre_load,
+            tr.rear_travel,
+            res.static_load_rear,
+            res.static_travel_rear,
+            params.rear.travel,
+        ),
     ):
         assert_allclose(m.load_mean, load.mean(axis=1), rtol=1e-9, err_msg=name)
         assert_allclose(m.load_variation, load.std(axis=1) / load.mean(axis=1), rtol=1e-8)
-        assert_allclose(m.unloaded_share,
-                        np.mean(load < 0.1 * static_load[:, None], axis=1), rtol=1e-12)
+        assert_allclose(
+            m.unloaded_share, np.mean(load < 0.1 * static_load[:, None], axis=1), rtol=1e-12
+        )
         bin_width = (0.02 + 1.3 * full) / 2048
         for q, got in ((50, m.travel_median), (95, m.travel_p95)):
             assert np.all(np.abs(got - np.percentile(travel, q, axis=1)) <= bin_width)
@@ -56,5 +74,40 @@ def test_streaming_metrics_match_traces() -> None:
             assert_allclose(m.bottom_outs_per_min[b], count / minutes, rtol=1e-12)
             assert_allclose(m.bottom_out_depth_max[b], deepest, rtol=1e-12)
     assert res.front.bottom_outs_per_min.max() > 0
-    assert_allclose(res.pitch.pitch_rate_rms, np.sqrt(np.mean(tr.pitch_rate**2, axis=1)),
-                    rtol=1e-9)
+    assert_allclose(res.pitch.pitch_rate_rms, np.sqrt(np.mean(tr.pitch_rate**2, axis=1)), rtol=1e-9)
+
+
+def test_landings_and_pitch_after_them_match_traces() -> None:
+    # [D] a 35 cm kicker ridden at 7 m/s (invented demo feature): both wheels leave the ground.
+    dt, v, n = 1e-3, 7.0, 2001
+    t = np.arange(n) * dt
+
+    def height(x: np.ndarray) -> np.ndarray:
+        return np.where((x > 2.0) & (x < 3.2), 0.35 * (x - 2.0) / 1.2, 0.0)
+
+    def slope(x: np.ndarray) -> np.ndarray:
+        return np.where((x > 2.0) & (x < 3.2), 0.35 / 1.2, 0.0)
+
+    xf, xr = v * t, v * t - 1.25
+    zero = np.zeros(n)
+    road = RoadInput(dt, height(xf), slope(xf) * v, height(xr), slope(xr) * v, zero, zero,
+                     np.full(n, v), 0.8)
+    res = simulate_halfcar(half_car(2, front=dict(rebound=[900.0, 3000.0])), road,
+                           trace_every=1)
+    tr = res.traces
+    assert tr is not None and not res.failed.any()
+    window = int(round(0.5 / dt))
+    for b in range(2):
+        airborne = (tr.front_tyre_load[b] <= 0) & (tr.rear_tyre_load[b] <= 0)
+        landings, peak, run = 0, 0.0, 0
+        for k in range(n):
+            if airborne[k]:
+                run += 1
+                continue
+            if run >= 20:
+                landings += 1
+                peak = max(peak, np.max(np.abs(tr.pitch_rate[b, k:k + window])))
+            run = 0
+        assert landings >= 1
+        assert res.pitch.landings[b] == landings
+        assert_allclose(res.pitch.landing_pitch_rate_max[b], peak, rtol=1e-12)

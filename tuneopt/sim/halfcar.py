@@ -76,7 +76,9 @@ _F_FT0 = 14
 _MB_F = 15
 _MB_D = 16
 _M_TOT = 17
-_F = 18
+_N_AIRBORNE = 18  # samples with both tyres off the ground that make a landing [-]
+_N_LANDING_WINDOW = 19  # samples after touch-down watched for pitch [-]
+_F = 20
 _R = _F + w.E_FIELDS
 _NP = _R + w.E_FIELDS
 _NS = 12
@@ -90,7 +92,14 @@ _CAR_N_CORNER = 1
 _CAR_SUM_W2 = 2
 _CAR_DIVE_TRAVEL = 3
 _CAR_DIVE_PITCH = 4
-_NACC = _ACC_CAR + 5
+_CAR_AIR_RUN = 5
+_CAR_WINDOW_LEFT = 6
+_CAR_N_LANDINGS = 7
+_CAR_LANDING_RATE = 8
+_NACC = _ACC_CAR + 9
+# A landing: both tyres unloaded for at least this long [s]; pitch watched this long after [s].
+AIRBORNE_MIN_TIME = 0.02
+LANDING_WINDOW = 0.5
 # Output channels of one sample; traces add the weighted rider acceleration.
 _O_LOAD_F = 0
 _O_LOAD_R = 1
@@ -262,6 +271,19 @@ def _record(k, y, dy, out, zf, zr, a, ay, mu, p, acc, hist_f, hist_r, sos, zi, t
             acc[_ACC_CAR + _CAR_DIVE_PITCH] = nose_down
     if cornering:
         acc[_ACC_CAR + _CAR_N_CORNER] += 1.0
+    # landings: both tyres off the ground long enough, then the first contact
+    if out[_O_LOAD_F] <= 0.0 and out[_O_LOAD_R] <= 0.0:
+        acc[_ACC_CAR + _CAR_AIR_RUN] += 1.0
+    else:
+        if acc[_ACC_CAR + _CAR_AIR_RUN] >= p[_N_AIRBORNE]:
+            acc[_ACC_CAR + _CAR_N_LANDINGS] += 1.0
+            acc[_ACC_CAR + _CAR_WINDOW_LEFT] = p[_N_LANDING_WINDOW]
+        acc[_ACC_CAR + _CAR_AIR_RUN] = 0.0
+    if acc[_ACC_CAR + _CAR_WINDOW_LEFT] > 0.0:
+        acc[_ACC_CAR + _CAR_WINDOW_LEFT] -= 1.0
+        rate = abs(out[_O_PITCH_RATE])
+        if rate > acc[_ACC_CAR + _CAR_LANDING_RATE]:
+            acc[_ACC_CAR + _CAR_LANDING_RATE] = rate
     if trace.shape[1] > 0 and k % every == 0:
         j = k // every
         for ch in range(_NOUT):
@@ -453,6 +475,8 @@ class _Prepared:
 
 def _prepare(params: HalfCarParams, road: RoadInput, trace_every: int | None) -> _Prepared:
     P = _pack(params)
+    P[:, _N_AIRBORNE] = np.ceil(AIRBORNE_MIN_TIME / road.dt - 1e-9)
+    P[:, _N_LANDING_WINDOW] = np.ceil(LANDING_WINDOW / road.dt - 1e-9)
     bsz = P.shape[0]
     fail = np.zeros(bsz, dtype=np.int64)
     for o, wheel in ((_F, params.front), (_R, params.rear)):
@@ -500,10 +524,14 @@ def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> HalfCa
     with np.errstate(invalid="ignore"):
         pitch = PitchMetrics(
             pitch_rate_rms=np.sqrt(acc[:, _ACC_CAR + _CAR_SUM_W2] / n),
+            landings=acc[:, _ACC_CAR + _CAR_N_LANDINGS].copy(),
+            landing_pitch_rate_max=np.where(acc[:, _ACC_CAR + _CAR_N_LANDINGS] > 0,
+                                            acc[:, _ACC_CAR + _CAR_LANDING_RATE], np.nan),
             peak_dive_travel=np.where(n_brake > 0, acc[:, _ACC_CAR + _CAR_DIVE_TRAVEL], np.nan),
             peak_dive_pitch=np.where(n_brake > 0, acc[:, _ACC_CAR + _CAR_DIVE_PITCH], np.nan),
         )
-    for value in (pitch.pitch_rate_rms, pitch.peak_dive_travel, pitch.peak_dive_pitch):
+    for value in (pitch.pitch_rate_rms, pitch.peak_dive_travel, pitch.peak_dive_pitch,
+                  pitch.landings, pitch.landing_pitch_rate_max):
         value[failed] = np.nan
     traces = None
     if trace_every:

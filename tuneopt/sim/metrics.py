@@ -107,13 +107,17 @@ class PitchMetrics:
     """Pitch of the frame, each (B,).
 
     pitch_rate_rms [rad/s]; peak_dive_travel: largest front travel beyond its static value while
-    braking [m]; peak_dive_pitch: largest nose-down pitch while braking [rad] (NaN without a
-    braking phase).
+    braking [m]; peak_dive_pitch: largest nose-down pitch against the ground's own slope while
+    braking [rad] (both NaN without a braking phase); landings: touch-downs after both tyres
+    were off the ground for at least 20 ms [-]; landing_pitch_rate_max: largest |pitch rate|
+    within 0.5 s after a touch-down [rad/s] (NaN without landings).
     """
 
     pitch_rate_rms: FloatArray
     peak_dive_travel: FloatArray
     peak_dive_pitch: FloatArray
+    landings: FloatArray
+    landing_pitch_rate_max: FloatArray
 
 
 @dataclass(frozen=True)
