@@ -38,8 +38,12 @@ def linear_wheel(
     n_travel = int(round(travel / GRID_STEP))
     grid = (np.arange(n_travel + 81) - 30) * GRID_STEP
     s = grid[None, :]
-    force = (pre[:, None] + k[:, None] * s
-             + stop_rate * np.maximum(s - travel, 0.0) + stop_rate * np.minimum(s, 0.0))
+    force = (
+        pre[:, None]
+        + k[:, None] * s
+        + stop_rate * np.maximum(s - travel, 0.0)
+        + stop_rate * np.minimum(s, 0.0)
+    )
     v = np.linspace(-8.0, 8.0, 161)
     damper = np.where(v[None, :] > 0, c_comp[:, None] * v[None, :], c_reb[:, None] * v[None, :])
     return WheelEnd(
@@ -82,8 +86,13 @@ def demo_rider() -> RiderBody:
     )
 
 
-def half_car(batch: int = 1, *, front: dict | None = None, rear: dict | None = None,
-             brake_front_share: float = 0.6) -> HalfCarParams:
+def half_car(
+    batch: int = 1,
+    *,
+    front: dict | None = None,
+    rear: dict | None = None,
+    brake_front_share: float = 0.6,
+) -> HalfCarParams:
     """Demo trail bike: 1.25 m wheelbase, 15 kg sprung frame, linear ends (invented values)."""
     f = dict(rate=14e3, compression=700.0, rebound=900.0, travel=0.15, unsprung_mass=2.5)
     r = dict(rate=22e3, compression=1000.0, rebound=1300.0, travel=0.15, unsprung_mass=4.0)

@@ -43,14 +43,17 @@ def test_in_loop_weighting_matches_sosfilt() -> None:
     z = np.cumsum(rng.normal(0.0, 0.2 * np.sqrt(dt), n))
     zd = np.gradient(z, dt)
     zero = np.zeros(n)
-    res = simulate_quartercar(quarter_car(1), RoadInput(dt, z, zd, z, zd, zero, zero,
-                                                        np.full(n, 5.0), 0.6), trace_every=1)
+    res = simulate_quartercar(
+        quarter_car(1), RoadInput(dt, z, zd, z, zd, zero, zero, np.full(n, 5.0), 0.6), trace_every=1
+    )
     tr = res.traces
     assert tr is not None
     aw = signal.sosfilt(weighting_sos("Wk", 1 / dt), tr.body_accel[0])
     assert_allclose(tr.body_accel_weighted[0], aw, rtol=1e-9, atol=1e-9)
     assert_allclose(res.body_vibration.rms[0], weighted_rms(tr.body_accel[0], 1 / dt), rtol=1e-9)
-    assert_allclose(res.body_vibration.vdv[0], vibration_dose_value(tr.body_accel[0], 1 / dt),
-                    rtol=1e-9)
-    assert_allclose(res.body_vibration.crest_factor[0],
-                    np.max(np.abs(aw)) / np.sqrt(np.mean(aw**2)), rtol=1e-9)
+    assert_allclose(
+        res.body_vibration.vdv[0], vibration_dose_value(tr.body_accel[0], 1 / dt), rtol=1e-9
+    )
+    assert_allclose(
+        res.body_vibration.crest_factor[0], np.max(np.abs(aw)) / np.sqrt(np.mean(aw**2)), rtol=1e-9
+    )

@@ -20,12 +20,14 @@ G = 9.81
 
 def _system(k: float, c: float) -> tuple[np.ndarray, np.ndarray]:
     """A and B of REFERENCES.md: x = [z_s - z_u, v_s, z_u - z_r, v_u], input road velocity."""
-    a = np.array([
-        [0.0, 1.0, 0.0, -1.0],
-        [-k / M_S, -c / M_S, 0.0, c / M_S],
-        [0.0, 0.0, 0.0, 1.0],
-        [k / M_U, c / M_U, -K_T / M_U, -c / M_U],
-    ])
+    a = np.array(
+        [
+            [0.0, 1.0, 0.0, -1.0],
+            [-k / M_S, -c / M_S, 0.0, c / M_S],
+            [0.0, 0.0, 0.0, 1.0],
+            [k / M_U, c / M_U, -K_T / M_U, -c / M_U],
+        ]
+    )
     b = np.array([[0.0], [0.0], [-1.0], [0.0]])
     return a, b
 
@@ -73,9 +75,17 @@ def test_white_road_matches_stationary_covariance() -> None:
     c = 500.0
     road = _white_velocity_road(q, dt, 300.0, seed=11)
     result = simulate_quartercar(
-        quarter_car(2, sprung_mass=M_S, rate=ks, compression=c, unsprung_mass=M_U,
-                    tyre_stiffness=K_T, travel=0.3),
-        road, trace_every=1,
+        quarter_car(
+            2,
+            sprung_mass=M_S,
+            rate=ks,
+            compression=c,
+            unsprung_mass=M_U,
+            tyre_stiffness=K_T,
+            travel=0.3,
+        ),
+        road,
+        trace_every=1,
     )
     tr = result.traces
     assert tr is not None and not result.failed.any()
@@ -88,11 +98,15 @@ def test_white_road_matches_stationary_covariance() -> None:
         assert_allclose(np.std(tr.tyre_load[i]), want["tyre_load"], rtol=0.03)
         assert_allclose(np.std(tr.body_accel[i]), want["body_accel"], rtol=0.03)
         assert_allclose(np.std(tr.travel[i]), want["rattle"], rtol=0.03)
-        assert_allclose(result.wheel.load_variation[i] * result.wheel.load_mean[i],
-                        np.std(tr.tyre_load[i]), rtol=1e-9)
+        assert_allclose(
+            result.wheel.load_variation[i] * result.wheel.load_mean[i],
+            np.std(tr.tyre_load[i]),
+            rtol=1e-9,
+        )
     # rattle does not depend on the spring rate at fixed damping [D]
-    assert_allclose(_lyapunov_sigmas(10e3, c, q)["rattle"], _lyapunov_sigmas(20e3, c, q)["rattle"],
-                    rtol=1e-9)
+    assert_allclose(
+        _lyapunov_sigmas(10e3, c, q)["rattle"], _lyapunov_sigmas(20e3, c, q)["rattle"], rtol=1e-9
+    )
     assert_allclose(np.std(tr.travel[0]), np.std(tr.travel[1]), rtol=0.03)
 
 
@@ -107,9 +121,11 @@ def test_free_decay_matches_linearised_damping_ratio() -> None:
     zero = np.zeros(n)
     road = RoadInput(dt, z, zd, z, zd, zero, zero, np.full(n, 5.0), 0.6)
     res = simulate_quartercar(
-        quarter_car(1, sprung_mass=M_S, rate=k, compression=c, unsprung_mass=M_U,
-                    tyre_stiffness=K_T),
-        road, trace_every=1,
+        quarter_car(
+            1, sprung_mass=M_S, rate=k, compression=c, unsprung_mass=M_U, tyre_stiffness=K_T
+        ),
+        road,
+        trace_every=1,
     )
     assert res.traces is not None
     x = res.traces.travel[0] - res.static_travel[0]
@@ -119,8 +135,14 @@ def test_free_decay_matches_linearised_damping_ratio() -> None:
     # successive extremes of the travel after the wheel-hop transient has died out (t > 0.2 s)
     start = int(0.2 / dt)
     seg = x[start:]
-    idx = np.where((np.abs(seg[1:-1]) >= np.abs(seg[:-2])) & (np.abs(seg[1:-1]) > np.abs(seg[2:]))
-                   & (np.sign(seg[1:-1]) != 0))[0] + 1
+    idx = (
+        np.where(
+            (np.abs(seg[1:-1]) >= np.abs(seg[:-2]))
+            & (np.abs(seg[1:-1]) > np.abs(seg[2:]))
+            & (np.sign(seg[1:-1]) != 0)
+        )[0]
+        + 1
+    )
     peaks = seg[idx]
     assert len(peaks) >= 3 and np.all(np.sign(peaks[1:]) != np.sign(peaks[:-1]))
     delta_half = np.log(np.abs(peaks[0] / peaks[1]))  # half-period log decrement

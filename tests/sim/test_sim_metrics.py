@@ -90,10 +90,10 @@ def test_landings_and_pitch_after_them_match_traces() -> None:
 
     xf, xr = v * t, v * t - 1.25
     zero = np.zeros(n)
-    road = RoadInput(dt, height(xf), slope(xf) * v, height(xr), slope(xr) * v, zero, zero,
-                     np.full(n, v), 0.8)
-    res = simulate_halfcar(half_car(2, front=dict(rebound=[900.0, 3000.0])), road,
-                           trace_every=1)
+    road = RoadInput(
+        dt, height(xf), slope(xf) * v, height(xr), slope(xr) * v, zero, zero, np.full(n, v), 0.8
+    )
+    res = simulate_halfcar(half_car(2, front=dict(rebound=[900.0, 3000.0])), road, trace_every=1)
     tr = res.traces
     assert tr is not None and not res.failed.any()
     window = int(round(0.5 / dt))
@@ -106,7 +106,7 @@ def test_landings_and_pitch_after_them_match_traces() -> None:
                 continue
             if run >= 20:
                 landings += 1
-                peak = max(peak, np.max(np.abs(tr.pitch_rate[b, k:k + window])))
+                peak = max(peak, np.max(np.abs(tr.pitch_rate[b, k : k + window])))
             run = 0
         assert landings >= 1
         assert res.pitch.landings[b] == landings

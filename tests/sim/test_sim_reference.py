@@ -49,8 +49,11 @@ def test_quartercar_matches_solve_ivp() -> None:
 
 def test_halfcar_matches_solve_ivp() -> None:
     road = demo_road(2.6, seed=3, bump_height=0.17)
-    params = half_car(2, front=dict(rate=[6e3, 8e3], compression=300.0),
-                      rear=dict(rate=[10e3, 14e3], compression=400.0))
+    params = half_car(
+        2,
+        front=dict(rate=[6e3, 8e3], compression=300.0),
+        rear=dict(rate=[10e3, 14e3], compression=400.0),
+    )
     ours = simulate_halfcar(params, road)
     ref = simulate_halfcar_reference(params, road, rtol=RTOL, atol=1e-10, max_step=1e-3)
     assert (ours.front.bottom_outs_per_min + ours.rear.bottom_outs_per_min).max() > 0

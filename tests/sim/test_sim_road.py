@@ -43,8 +43,9 @@ def test_time_resampling_with_accelerating_speed() -> None:
     x = np.arange(10001) * dx
     speed = v0 + b * x
     slope = 0.05
-    wheels = _Wheels(x, slope * x, 0.5 * slope * x, speed, np.full_like(x, 2.0),
-                     np.full_like(x, 0.1))
+    wheels = _Wheels(
+        x, slope * x, 0.5 * slope * x, speed, np.full_like(x, 2.0), np.full_like(x, 0.1)
+    )
     road = road_input_from_wheel_inputs(wheels, friction=0.7, dt=1e-3)
     t = np.arange(road.samples) * road.dt
     x_t = v0 * (np.exp(b * t) - 1.0) / b

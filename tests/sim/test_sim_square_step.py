@@ -37,7 +37,7 @@ def rolling_circle(x: np.ndarray, z: np.ndarray, radius: float) -> np.ndarray:
     padded = np.concatenate((np.full(half, z[0]), z, np.full(half, z[-1])))
     centre = np.full(z.shape, -np.inf)
     for j, off in enumerate(offsets):
-        centre = np.maximum(centre, padded[half + off: half + off + z.shape[0]] + lift[j])
+        centre = np.maximum(centre, padded[half + off : half + off + z.shape[0]] + lift[j])
     return centre - radius
 
 
@@ -60,8 +60,13 @@ def test_square_block_unloads_wheel_sag_and_rebound_trends() -> None:
     wheels = _Wheels(x, env, env, np.full(n, speed), np.zeros(n), np.zeros(n))
     road = road_input_from_wheel_inputs(wheels, friction=0.7)
     # little sag (preload), more sag, more sag with four times slower rebound
-    params = quarter_car(3, rate=[15e3, 7.5e3, 7.5e3], preload=[330.0, 0.0, 0.0],
-                         compression=600.0, rebound=[800.0, 800.0, 3200.0])
+    params = quarter_car(
+        3,
+        rate=[15e3, 7.5e3, 7.5e3],
+        preload=[330.0, 0.0, 0.0],
+        compression=600.0,
+        rebound=[800.0, 800.0, 3200.0],
+    )
     res = simulate_quartercar(params, road, trace_every=1)
     tr = res.traces
     assert tr is not None and not res.failed.any()

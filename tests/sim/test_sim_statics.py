@@ -16,8 +16,9 @@ from tuneopt.sim import RoadInput, simulate_halfcar, static_tyre_loads
 G = 9.81
 
 
-def _road(n: int, dt: float, z: np.ndarray | None = None, decel: np.ndarray | None = None,
-          delay: int = 0) -> RoadInput:
+def _road(
+    n: int, dt: float, z: np.ndarray | None = None, decel: np.ndarray | None = None, delay: int = 0
+) -> RoadInput:
     z = np.zeros(n) if z is None else z
     zd = np.gradient(z, dt)
     zr = np.concatenate((np.zeros(delay), z[: n - delay]))
@@ -91,8 +92,17 @@ def test_grip_margin_under_steady_braking_runs_the_rear_short() -> None:
     dt, n = 1e-3, 3001
     decel = np.where(np.arange(n) * dt >= 0.5, a, 0.0)
     road = _road(n, dt, decel=decel)
-    road = RoadInput(road.dt, road.front_z, road.front_zdot, road.rear_z, road.rear_zdot,
-                     road.decel, road.lateral_accel, road.speed, mu)
+    road = RoadInput(
+        road.dt,
+        road.front_z,
+        road.front_zdot,
+        road.rear_z,
+        road.rear_zdot,
+        road.decel,
+        road.lateral_accel,
+        road.speed,
+        mu,
+    )
     res = simulate_halfcar(params, road, trace_every=1)
     tr = res.traces
     assert tr is not None
