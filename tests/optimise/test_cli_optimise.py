@@ -5,58 +5,20 @@ from __future__ import annotations
 import json
 import tomllib
 from pathlib import Path
-from typing import Any
 
 import pytest
 
-from tests.conftest import SCENARIOS
+from tests.conftest import SCENARIOS, write_toml
 from tests.optimise.conftest import small_data
 from tuneopt.cli import main
 from tuneopt.cli.optimise import parse_deadline
 from tuneopt.model import AirSpring, load_scenario
 
 
-def _toml(data: dict[str, Any]) -> str:
-    """Just enough TOML writing for scenario dicts (tables, arrays of tables, scalars)."""
-    lines: list[str] = []
-
-    def value(v: Any) -> str:
-        if isinstance(v, bool):
-            return "true" if v else "false"
-        if isinstance(v, str):
-            return json.dumps(v)
-        if isinstance(v, list):
-            return "[" + ", ".join(value(x) for x in v) + "]"
-        if isinstance(v, dict):
-            return "{ " + ", ".join(f"{k} = {value(x)}" for k, x in v.items()) + " }"
-        return repr(v)
-
-    def table(prefix: str, d: dict[str, Any]) -> None:
-        scalars = {
-            k: v
-            for k, v in d.items()
-            if not isinstance(v, dict)
-            and not (isinstance(v, list) and v and isinstance(v[0], dict))
-        }
-        if prefix:
-            lines.append(f"[{prefix}]")
-        lines.extend(f"{k} = {value(v)}" for k, v in scalars.items())
-        for k, v in d.items():
-            if isinstance(v, dict):
-                table(f"{prefix}.{k}" if prefix else k, v)
-            elif isinstance(v, list) and v and isinstance(v[0], dict):
-                for item in v:
-                    lines.append(f"[[{prefix}.{k}]]" if prefix else f"[[{k}]]")
-                    lines.extend(f"{ik} = {value(iv)}" for ik, iv in item.items())
-
-    table("", data)
-    return "\n".join(lines) + "\n"
-
-
 @pytest.fixture(scope="module")
 def small_file(tmp_path_factory: pytest.TempPathFactory) -> Path:
     path = tmp_path_factory.mktemp("scenario") / "small.toml"
-    path.write_text(_toml(small_data()))
+    path.write_text(write_toml(small_data()))
     assert tomllib.loads(path.read_text())["course"]["length"] == "60 m"
     return path
 
@@ -151,7 +113,7 @@ def test_a_scenario_without_a_course_cannot_be_optimised(
     data = small_data()
     del data["course"]
     path = tmp_path / "nocourse.toml"
-    path.write_text(_toml(data))
+    path.write_text(write_toml(data))
     assert main(["optimise", str(path), "--out", str(tmp_path / "o")]) == 2
     assert "course: missing" in capsys.readouterr().err
 
