@@ -12,10 +12,11 @@ from numpy.testing import assert_allclose
 from scipy.linalg import eig, solve_continuous_lyapunov
 from sim_setups import quarter_car
 
+from tuneopt.physics.statics import GRAVITY
 from tuneopt.sim import RoadInput, simulate_quartercar
 
 M_S, M_U, K_T = 45.0, 3.0, 120e3
-G = 9.81
+G = GRAVITY  # standard gravity, as the simulator uses
 
 
 def _system(k: float, c: float) -> tuple[np.ndarray, np.ndarray]:

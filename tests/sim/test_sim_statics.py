@@ -11,9 +11,10 @@ import numpy as np
 from numpy.testing import assert_allclose
 from sim_setups import half_car
 
+from tuneopt.physics.statics import GRAVITY
 from tuneopt.sim import RoadInput, simulate_halfcar, static_tyre_loads
 
-G = 9.81
+G = GRAVITY  # standard gravity, as the simulator uses
 
 
 def _road(

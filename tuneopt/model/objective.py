@@ -23,6 +23,8 @@ class Objective(Strict):
     rear_load_variation: float = Field(1.0, ge=0)
     unloaded_time: float = Field(1.0, ge=0)
     bottom_outs: float = Field(1.0, ge=0)
+    front_grip: float = Field(1.0, ge=0, description="front tyre short of grip in phases")
+    rear_grip: float = Field(0.5, ge=0, description="rear tyre short of grip in phases")
     pitch: float = Field(0.5, ge=0)
     rider_vibration: float = Field(0.0, ge=0)
 

@@ -21,6 +21,8 @@ _WORDS = {
     "rear_load_variation": ("rear tyre load", "steadier", "more variable"),
     "unloaded_time": ("time with a wheel unloaded", "shorter", "longer"),
     "bottom_outs": ("bottom-outs", "fewer", "more"),
+    "front_grip": ("time the front tyre is short of grip", "less", "more"),
+    "rear_grip": ("time the rear tyre is short of grip", "less", "more"),
     "pitch": ("pitch motion", "calmer", "livelier"),
     "rider_vibration": ("vibration at the rider", "lower", "higher"),
 }

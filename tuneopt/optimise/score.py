@@ -11,6 +11,8 @@ trails in our simulations (common practice, no source):
 | rear_load_variation | the same at the rear | 0.5 |
 | unloaded_time | mean of front and rear unloaded share of time | 0.1 |
 | bottom_outs | bottom-outs per minute, front plus rear | 1 /min |
+| front_grip | share of braking and cornering time the front tyre is short of grip | 0.1 |
+| rear_grip | the same for the rear tyre | 0.1 |
 | pitch | RMS pitch rate of the frame | 0.5 rad/s |
 | rider_vibration | ISO 2631-1 Wk-weighted RMS of the rider's vertical acceleration | 2 m/s² |
 """
@@ -31,6 +33,8 @@ SCALES: dict[str, float] = {
     "rear_load_variation": 0.5,
     "unloaded_time": 0.1,
     "bottom_outs": 1.0,
+    "front_grip": 0.1,
+    "rear_grip": 0.1,
     "pitch": 0.5,
     "rider_vibration": 2.0,
 }
@@ -46,6 +50,8 @@ def score_terms(metrics: Mapping[str, NDArray[np.float64]]) -> dict[str, NDArray
         "rear_load_variation": m["rear_load_variation"],
         "unloaded_time": 0.5 * (m["front_unloaded_share"] + m["rear_unloaded_share"]),
         "bottom_outs": m["front_bottom_outs_per_min"] + m["rear_bottom_outs_per_min"],
+        "front_grip": 0.5 * (m["front_grip_short_braking"] + m["front_grip_short_cornering"]),
+        "rear_grip": 0.5 * (m["rear_grip_short_braking"] + m["rear_grip_short_cornering"]),
         "pitch": m["pitch_rate_rms"],
         "rider_vibration": m["rider_vibration_rms"],
     }

@@ -23,6 +23,10 @@ SHOWN_METRICS = (
     ("rear_bottom_outs_per_min", "rear bottom-outs /min", "{:.2f}"),
     ("front_travel_p95", "front travel p95 [mm]", "{:.0f}"),
     ("rear_travel_p95", "rear travel p95 [mm]", "{:.0f}"),
+    ("front_grip_short_braking", "front short of grip, braking", "{:.1%}"),
+    ("front_grip_short_cornering", "front short of grip, cornering", "{:.1%}"),
+    ("rear_grip_short_braking", "rear short of grip, braking", "{:.1%}"),
+    ("rear_grip_short_cornering", "rear short of grip, cornering", "{:.1%}"),
     ("pitch_rate_rms", "pitch rate RMS [rad/s]", "{:.3f}"),
     ("rider_vibration_rms", "rider vibration Wk RMS [m/s²]", "{:.2f}"),
 )

@@ -11,7 +11,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-GRAVITY = 9.81  # [m/s^2]
+from tuneopt.physics.statics import GRAVITY as GRAVITY  # one value of g everywhere
+
 # Rim strike: beyond rim_strike_deflection the tyre stiffens by this factor times its own rate.
 # Stiff enough to stop the rim within millimetres, soft enough for RK4 at a 1 ms step with
 # 2-5 kg unsprung masses (omega*h < 0.7).

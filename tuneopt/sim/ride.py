@@ -67,7 +67,10 @@ class CourseMetrics:
     Wheel metrics (front_*/rear_*) are mix-weighted means over the segments: load_variation
     (std/mean of the contact-patch load) [-], unloaded_share [-], bottom_outs_per_min [1/min],
     rim_strikes_per_min [1/min], travel_p95 [m], pack_down [m]; travel_max [m] is the maximum
-    over the segments. pitch_rate_rms [rad/s] and rider_vibration_rms (ISO 2631-1 Wk) [m/s²]
+    over the segments. *_grip_short_braking / _cornering: share of the braking or cornering time
+    in which μ × tyre load falls short of the force the phase asks of that tyre [-], averaged
+    with the mix weights over the segments that have such a phase (0 when none has).
+    pitch_rate_rms [rad/s] and rider_vibration_rms (ISO 2631-1 Wk) [m/s²]
     are weighted means; peak_dive_travel [m] is the maximum over braking segments (NaN without
     any). failed (B,) bool with failure reasons; segments: the per-segment results.
     """
@@ -86,6 +89,10 @@ class CourseMetrics:
     rear_pack_down: FloatArray
     front_travel_max: FloatArray
     rear_travel_max: FloatArray
+    front_grip_short_braking: FloatArray
+    rear_grip_short_braking: FloatArray
+    front_grip_short_cornering: FloatArray
+    rear_grip_short_cornering: FloatArray
     pitch_rate_rms: FloatArray
     peak_dive_travel: FloatArray
     rider_vibration_rms: FloatArray
@@ -107,6 +114,16 @@ def _weighted(values: list[FloatArray], weights: FloatArray) -> FloatArray:
     return np.sum(np.stack(values) * weights[:, None], axis=0)
 
 
+def _weighted_phase(values: list[FloatArray], weights: FloatArray) -> FloatArray:
+    """Mix-weighted mean over the segments where the value exists (NaN: no such phase)."""
+    v = np.stack(values)
+    have = ~np.isnan(v)
+    w = weights[:, None] * have
+    total = w.sum(axis=0)
+    summed = (np.where(have, v, 0.0) * weights[:, None]).sum(axis=0)
+    return np.divide(summed, total, out=np.zeros_like(total), where=total > 0)
+
+
 def ride_course(params: HalfCarParams, course: PreparedCourse) -> CourseMetrics:
     """Simulate B setups over every segment and aggregate."""
     results = tuple(simulate_halfcar(params, road) for road in course.roads)
@@ -118,6 +135,11 @@ def ride_course(params: HalfCarParams, course: PreparedCourse) -> CourseMetrics:
         agg[f"{end}_travel_max"] = np.max(
             np.stack([getattr(r, end).travel_max for r in results]), axis=0
         )
+    for end in ("front", "rear"):
+        for phase in ("braking", "cornering"):
+            agg[f"{end}_grip_short_{phase}"] = _weighted_phase(
+                [getattr(getattr(r, end), f"grip_short_share_{phase}") for r in results], w
+            )
     agg["pitch_rate_rms"] = _weighted([r.pitch.pitch_rate_rms for r in results], w)
     agg["rider_vibration_rms"] = _weighted([r.rider_vibration.rms for r in results], w)
     dives = np.stack([r.pitch.peak_dive_travel for r in results])
