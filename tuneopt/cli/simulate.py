@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import math
 from pathlib import Path
 from typing import Any
 
@@ -23,21 +22,13 @@ def register(sub: Any) -> None:
     p.set_defaults(func=run)
 
 
-def _clean(value: Any) -> Any:
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {k: _clean(v) for k, v in value.items()}
-    return value
-
-
 def run(args: argparse.Namespace) -> int:
     import numpy as np
     import pandas as pd
 
     from tuneopt.cli.optimise import _baseline
     from tuneopt.model import InputError, load_scenario
-    from tuneopt.optimise.result import CAUTIONS
+    from tuneopt.optimise.result import CAUTIONS, json_safe
     from tuneopt.sim import simulate_halfcar
     from tuneopt.sim.build import halfcar_params
     from tuneopt.sim.ride import prepare_course
@@ -93,7 +84,7 @@ def run(args: argparse.Namespace) -> int:
         "scenario": scenario.name,
         "seed": seed,
         "setup": setup.model_dump(mode="json"),
-        "segments": [_clean(r) for r in rows],
+        "segments": [json_safe(r) for r in rows],
         "cautions": list(CAUTIONS),
         "units": "SI: N, m, s, rad; load variation is std/mean; shares are fractions of time",
     }

@@ -12,7 +12,7 @@ import pandas as pd
 
 from tuneopt.optimise.ranking import Ranking
 
-__all__ = ["CAUTIONS", "result_data", "write_result"]
+__all__ = ["CAUTIONS", "json_safe", "result_data", "write_result"]
 
 CAUTIONS = (
     "These are simulated results from a model of the bike, the rider and the terrain; they "
@@ -24,19 +24,19 @@ CAUTIONS = (
 )
 
 
-def _clean(value: Any) -> Any:
+def json_safe(value: Any) -> Any:
     """JSON has no NaN or infinity: write them as null."""
     if isinstance(value, float) and not math.isfinite(value):
         return None
     if isinstance(value, dict):
-        return {k: _clean(v) for k, v in value.items()}
+        return {k: json_safe(v) for k, v in value.items()}
     if isinstance(value, list | tuple):
-        return [_clean(v) for v in value]
+        return [json_safe(v) for v in value]
     return value
 
 
 def result_data(ranking: Ranking, info: dict[str, Any]) -> dict[str, Any]:
-    return _clean(
+    return json_safe(
         {
             **info,
             "trials": {
