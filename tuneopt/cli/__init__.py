@@ -12,7 +12,16 @@ from tuneopt.model.errors import InputError
 __all__ = ["main"]
 
 # Each module has ``register(subparsers)`` that adds its parser with ``func=`` set.
-_COMMANDS = ("check", "terrain", "simulate", "optimise", "compare", "bench")
+_COMMANDS = (
+    "check",
+    "terrain",
+    "simulate",
+    "optimise",
+    "compare",
+    "bench",
+    "serve",
+    "worker",
+)
 
 
 def build_parser() -> argparse.ArgumentParser:

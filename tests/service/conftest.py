@@ -1,0 +1,157 @@
+"""Service tests run against a private redis-server that this session starts and stops.
+
+The server listens on 127.0.0.1 on a free port, in a temporary folder, with append-only
+persistence and a password, like the compose file's. A machine without redis-server fails these
+tests loudly (CI installs it).
+"""
+
+from __future__ import annotations
+
+import os
+import secrets
+import shutil
+import signal
+import socket
+import subprocess
+import time
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+
+import pytest
+from redis import Redis
+
+from tests.conftest import scenario_data
+from tuneopt.service.settings import Settings
+
+
+def _free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return int(s.getsockname()[1])
+
+
+class RedisServer:
+    """One redis-server process of our own; ``restart`` keeps its folder (and so its AOF)."""
+
+    def __init__(self, folder: Path):
+        exe = shutil.which("redis-server")
+        if exe is None:
+            pytest.fail(
+                "redis-server is not installed: the service tests need it (apt-get install "
+                "redis-server; .ci/run does this)"
+            )
+        self.exe = exe
+        self.folder = folder
+        self.port = _free_port()
+        self.password = secrets.token_hex(12)
+        self.url = f"redis://:{self.password}@127.0.0.1:{self.port}/0"
+
+    @property
+    def pidfile(self) -> Path:
+        return self.folder / "redis.pid"
+
+    def start(self) -> None:
+        subprocess.run(
+            [
+                self.exe,
+                "--port", str(self.port),
+                "--bind", "127.0.0.1",
+                "--dir", str(self.folder),
+                "--appendonly", "yes",
+                "--appendfsync", "everysec",
+                "--save", "",
+                "--maxmemory-policy", "noeviction",
+                "--requirepass", self.password,
+                "--daemonize", "yes",
+                "--pidfile", str(self.pidfile),
+                "--logfile", str(self.folder / "redis.log"),
+            ],
+            check=True,
+        )  # fmt: skip
+        client = Redis.from_url(self.url)
+        for _ in range(100):
+            try:
+                client.ping()
+                return
+            except Exception:  # noqa: BLE001 (still starting)
+                time.sleep(0.05)
+        pytest.fail(f"redis-server did not answer on 127.0.0.1:{self.port}")
+
+    def pid(self) -> int:
+        for _ in range(100):
+            if self.pidfile.exists() and self.pidfile.read_text().strip():
+                return int(self.pidfile.read_text())
+            time.sleep(0.05)
+        raise RuntimeError("redis-server wrote no pid file")
+
+    def stop(self, sig: int = signal.SIGTERM) -> None:
+        pid = self.pid()
+        os.kill(pid, sig)
+        for _ in range(200):
+            try:
+                os.kill(pid, 0)
+            except ProcessLookupError:
+                break
+            time.sleep(0.05)
+        if sig == signal.SIGKILL:
+            self.pidfile.unlink(missing_ok=True)
+
+
+@pytest.fixture(scope="session")
+def redis_server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[RedisServer]:
+    server = RedisServer(tmp_path_factory.mktemp("redis"))
+    server.start()
+    try:
+        yield server
+    finally:
+        server.stop()
+
+
+@pytest.fixture
+def redis_client(redis_server: RedisServer) -> Iterator[Redis]:
+    client = Redis.from_url(redis_server.url, decode_responses=True)
+    client.flushall()
+    yield client
+    client.flushall()
+    client.close()
+
+
+def make_settings(url: str, results: Path, **overrides: Any) -> Settings:
+    values: dict[str, Any] = {
+        "redis_url": url,
+        "results_dir": results,
+        "api_key": "test-key-" + "k" * 24,
+        "max_trials": 2000,
+        "max_course_length": 500.0,
+        "max_run_seconds": 600.0,
+        "max_body_bytes": 64_000,
+        "batch_size": 4,
+        "realisations": 1,
+        "heartbeat_seconds": 1.0,
+        "heartbeat_ttl": 4,
+        "maintenance_seconds": 1,
+        "keep_studies": True,
+    }
+    values.update(overrides)
+    return Settings(**values)
+
+
+@pytest.fixture
+def settings(redis_client: Redis, redis_server: RedisServer, tmp_path: Path) -> Settings:
+    return make_settings(redis_server.url, tmp_path / "results")
+
+
+def small_scenario() -> dict[str, Any]:
+    """The demo trail bike on a 40 m course: a batch of setups simulates in a blink."""
+    data = scenario_data("trail_air")
+    data["course"] = {
+        "surface": "dry",
+        "length": "40 m",
+        "seed": 5,
+        "mix": [
+            {"terrain": "smooth_hardpack", "share": 0.5},
+            {"terrain": "root_field", "share": 0.5},
+        ],
+    }
+    return data

@@ -1,0 +1,152 @@
+"""The HTTP API's answers to bad, unauthorised and odd requests: always a problem body, never a
+500, with each field path named."""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Iterator
+from typing import Any
+
+import pytest
+from fastapi.testclient import TestClient
+from redis import Redis
+
+from tests.conftest import write_toml
+from tests.service.conftest import small_scenario
+from tuneopt.service.api import create_app
+from tuneopt.service.settings import Settings
+
+PROBLEM = "application/problem+json"
+
+
+@pytest.fixture
+def client(settings: Settings) -> Iterator[TestClient]:
+    with TestClient(create_app(settings), raise_server_exceptions=False) as c:
+        assert settings.api_key is not None
+        c.headers["X-API-Key"] = settings.api_key.get_secret_value()
+        yield c
+
+
+def _problem(response: Any, status: int) -> dict[str, Any]:
+    assert response.status_code == status, response.text
+    assert response.headers["content-type"].startswith(PROBLEM)
+    body = response.json()
+    assert body["status"] == status and body["title"] and body["detail"]
+    return body
+
+
+def _fields(body: dict[str, Any]) -> dict[str, str]:
+    return {e["field"]: e["message"] for e in body.get("errors", [])}
+
+
+def test_broken_scenario_names_each_field(client: TestClient) -> None:
+    data = small_scenario()
+    data["fork"]["travel"] = "a lot"
+    data["rider"]["mass"] = "-5 kg"
+    data["colour"] = "red"
+    body = _problem(client.post("/jobs", json={"scenario": data, "trials": 8}), 422)
+    fields = _fields(body)
+    assert "scenario.fork.travel" in fields
+    assert "scenario.rider.mass" in fields
+    assert fields["scenario.colour"].startswith("unknown field")
+
+
+def test_request_fields_types_and_limits(client: TestClient, redis_client: Redis) -> None:
+    scenario = small_scenario()
+    cases = [
+        ({"scenario": scenario, "trials": "8"}, "trials"),  # a string is not a number here
+        ({"scenario": scenario, "trials": 0}, "trials"),
+        ({"scenario": scenario, "trials": 5000}, "trials"),  # above the operator's limit
+        ({"scenario": scenario, "run_seconds": 10_000}, "run_seconds"),
+        ({"scenario": scenario, "shards": 99}, "shards"),
+        ({"scenario": scenario, "sampler": "guess"}, "sampler"),
+        ({"scenario": scenario, "budget": 5}, "budget"),
+        ({"trials": 5}, "scenario"),
+        ({"scenario": "not a table"}, "scenario"),
+    ]
+    for body, field in cases:
+        fields = _fields(_problem(client.post("/jobs", json=body), 422))
+        assert field in fields, (body.keys(), fields)
+    long = small_scenario()
+    long["course"]["length"] = "900 m"
+    fields = _fields(_problem(client.post("/jobs", json={"scenario": long}), 422))
+    assert "above this service's limit" in fields["scenario.course.length"]
+    assert redis_client.zcard("tuneopt:jobs") == 0  # nothing refused was queued
+
+
+def test_malformed_bodies(client: TestClient) -> None:
+    headers = {"content-type": "application/json"}
+    body = _problem(client.post("/jobs", content=b'{"scenario": ', headers=headers), 400)
+    assert "not valid JSON" in body["detail"]
+    _problem(client.post("/jobs", content=b"[1, 2]", headers=headers), 422)
+    _problem(client.post("/jobs", content=b"\xff\xfe", headers=headers), 400)
+    _problem(client.post("/jobs", content=b"x=1", headers={"content-type": "text/plain"}), 415)
+    huge = json.dumps({"scenario": small_scenario(), "pad": "x" * 100_000}).encode()
+    body = _problem(client.post("/jobs", content=huge, headers=headers), 413)
+    assert "larger" in body["detail"]
+
+
+def test_toml_upload_errors(client: TestClient) -> None:
+    files = {"scenario": ("bike.toml", b"[rider\nmass = ", "application/toml")}
+    fields = _fields(_problem(client.post("/jobs", files=files), 422))
+    assert fields["scenario"].startswith("not valid TOML")
+    good = write_toml(small_scenario()).encode()
+    files = {"scenario": ("bike.toml", good, "application/toml")}
+    fields = _fields(_problem(client.post("/jobs", files=files, data={"colour": "red"}), 422))
+    assert "colour" in fields
+    fields = _fields(_problem(client.post("/jobs", files=files, data={"trials": "many"}), 422))
+    assert "trials" in fields
+
+
+def test_unknown_and_hostile_job_ids(client: TestClient) -> None:
+    for job_id in ("0" * 32, "..", "..%2F..%2Fetc%2Fpasswd", "%2e%2e", "abc", "A" * 32):
+        for suffix in ("", "/result", "/report"):
+            response = client.get(f"/jobs/{job_id}{suffix}")
+            assert response.status_code == 404, (job_id, suffix, response.status_code)
+            if response.headers["content-type"].startswith(PROBLEM):
+                _problem(response, 404)
+        _problem(client.delete(f"/jobs/{'f' * 32}"), 404)
+
+
+def test_api_key_missing_or_wrong_is_refused(client: TestClient) -> None:
+    routes = [
+        ("GET", "/jobs"),
+        ("POST", "/jobs"),
+        ("GET", f"/jobs/{'a' * 32}"),
+        ("GET", f"/jobs/{'a' * 32}/result"),
+        ("GET", f"/jobs/{'a' * 32}/report"),
+        ("DELETE", f"/jobs/{'a' * 32}"),
+    ]
+    for key in (None, "wrong", ""):
+        headers = {"X-API-Key": key} if key is not None else {}
+        for method, path in routes:
+            client.headers.pop("X-API-Key", None)
+            response = client.request(method, path, headers=headers, json={"scenario": {}})
+            body = _problem(response, 401)
+            assert response.headers["www-authenticate"] == "X-API-Key"
+            assert "key" in body["detail"]
+    assert client.get("/health").status_code == 200  # the health check needs no key
+
+
+def test_without_a_configured_key_anyone_may_ask(settings: Settings) -> None:
+    open_settings = settings.model_copy(update={"api_key": None})
+    with TestClient(create_app(open_settings)) as c:
+        assert c.get("/jobs").json() == {"jobs": []}
+
+
+def test_health_reports_redis_and_workers(client: TestClient) -> None:
+    body = client.get("/health").json()
+    assert body == {"redis": "ok", "workers": 0, "queued": 0}
+
+
+def test_openapi_documents_the_routes(client: TestClient) -> None:
+    spec = client.get("/openapi.json").json()
+    assert set(spec["paths"]) >= {
+        "/jobs",
+        "/jobs/{job_id}",
+        "/jobs/{job_id}/result",
+        "/jobs/{job_id}/report",
+        "/health",
+    }
+    content = spec["paths"]["/jobs"]["post"]["requestBody"]["content"]
+    assert set(content) == {"application/json", "multipart/form-data"}

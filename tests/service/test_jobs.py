@@ -1,0 +1,182 @@
+"""Jobs end to end on a real Redis: submit over HTTP, shards and finaliser in a worker, result
+and report served; cancel; deadline; a retried shard reaps what its predecessor left running."""
+
+from __future__ import annotations
+
+import json
+import time
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+
+import optuna
+import pytest
+from fastapi.testclient import TestClient
+from optuna.trial import TrialState
+from redis import Redis
+
+from tests.conftest import write_toml
+from tests.service.conftest import small_scenario
+from tuneopt.model import scenario_from_data
+from tuneopt.optimise import StudyPlan, build_space, run_local, start_run
+from tuneopt.optimise.redis_storage import redis_storage
+from tuneopt.optimise.runner import ask_batch
+from tuneopt.service import tasks
+from tuneopt.service.api import create_app
+from tuneopt.service.records import JobStore
+from tuneopt.service.settings import Settings
+from tuneopt.service.worker import make_worker
+
+
+@pytest.fixture
+def client(settings: Settings) -> Iterator[TestClient]:
+    with TestClient(create_app(settings)) as c:
+        assert settings.api_key is not None
+        c.headers["X-API-Key"] = settings.api_key.get_secret_value()
+        yield c
+
+
+def _work(settings: Settings, max_jobs: int | None = None) -> None:
+    make_worker(settings, name=f"test-{time.monotonic_ns()}").work(burst=True, max_jobs=max_jobs)
+
+
+def _submit(client: TestClient, **fields: Any) -> str:
+    response = client.post("/jobs", json={"scenario": small_scenario(), **fields})
+    assert response.status_code == 202, response.text
+    job_id = response.json()["id"]
+    assert response.headers["location"] == f"/jobs/{job_id}"
+    assert response.json()["state"] == "queued"
+    return str(job_id)
+
+
+def test_submitted_job_runs_to_a_ranked_result_equal_to_a_local_run(
+    client: TestClient, settings: Settings, tmp_path: Path
+) -> None:
+    job_id = _submit(client, trials=12, seed=4, shards=2, batch_size=4, realisations=1)
+    _work(settings)
+    status = client.get(f"/jobs/{job_id}").json()
+    assert status["state"] == "done", status
+    assert status["progress"]["finished"] == 12
+    assert status["progress"]["best_score"] is not None
+    result = client.get(f"/jobs/{job_id}/result").json()
+    assert result["stopped"] == "budget"
+    assert result["trials"]["finished"] == 12
+    assert result["ranked"] and result["cautions"]
+    folder = settings.results_dir / job_id
+    assert json.loads((folder / "result.json").read_text()) == result
+    assert (folder / "ranked.csv").is_file()
+
+    # the same seed and budget on this machine's runner gives the same ranked setups
+    scenario = scenario_from_data(small_scenario())
+    plan = StudyPlan("study", trials=12, batch_size=4, seed=4)
+    local = run_local(start_run(scenario, tmp_path / "local", plan, realisations=1))
+    assert [r.settings for r in local.ranked] == [r["settings"] for r in result["ranked"]]
+    assert [r.score for r in local.ranked] == pytest.approx(
+        [r["score"] for r in result["ranked"]], rel=1e-9
+    )
+
+    # the report is another developer's file: served when it is there, a clear 404 before
+    missing = client.get(f"/jobs/{job_id}/report")
+    assert missing.status_code == 404 and "report" in missing.json()["detail"]
+    (folder / "report.html").write_text("<html><body>report</body></html>")
+    served = client.get(f"/jobs/{job_id}/report")
+    assert served.status_code == 200 and served.headers["content-type"].startswith("text/html")
+    assert "report" in served.text
+
+    listed = client.get("/jobs").json()["jobs"]
+    assert [j["id"] for j in listed] == [job_id]
+
+    # an ended job is purged: record, study journal and files
+    assert client.delete(f"/jobs/{job_id}").status_code == 204
+    assert client.get(f"/jobs/{job_id}").status_code == 404
+    assert not folder.exists()
+    redis = Redis.from_url(settings.redis_url.get_secret_value())
+    assert not list(redis.scan_iter(match=f"tuneopt:study:{job_id}*"))
+    assert not list(redis.scan_iter(match=f"tuneopt:job:{job_id}*"))
+
+
+def test_toml_upload_is_the_same_job(client: TestClient, settings: Settings) -> None:
+    files = {"scenario": ("trail.toml", write_toml(small_scenario()).encode(), "text/plain")}
+    response = client.post("/jobs", files=files, data={"trials": "4", "shards": "1"})
+    assert response.status_code == 202, response.text
+    job_id = response.json()["id"]
+    _work(settings)
+    assert client.get(f"/jobs/{job_id}").json()["state"] == "done"
+    assert client.get(f"/jobs/{job_id}/result").json()["trials"]["finished"] == 4
+
+
+def test_result_before_the_end_is_a_conflict(client: TestClient) -> None:
+    job_id = _submit(client, trials=4)
+    response = client.get(f"/jobs/{job_id}/result")
+    assert response.status_code == 409
+    assert "queued" in response.json()["detail"]
+
+
+def test_cancel_stops_shards_and_keeps_what_finished(
+    client: TestClient, settings: Settings
+) -> None:
+    job_id = _submit(client, trials=400, shards=2, batch_size=4, realisations=1)
+    _work(settings, max_jobs=1)  # the start part: study made, shards queued
+    store = JobStore(Redis.from_url(settings.redis_url.get_secret_value(), decode_responses=True))
+    # cancel from inside the run, after the first batch, as a client would while it runs
+    real = store.record_progress
+
+    def progress_then_cancel(job: str, shard: int, *args: Any) -> None:
+        real(job, shard, *args)
+        assert client.delete(f"/jobs/{job}").status_code == 202
+
+    original = JobStore.record_progress
+    JobStore.record_progress = lambda self, *a: progress_then_cancel(*a)  # type: ignore[method-assign]
+    try:
+        _work(settings)
+    finally:
+        JobStore.record_progress = original  # type: ignore[method-assign]
+    status = client.get(f"/jobs/{job_id}").json()
+    assert status["state"] == "cancelled" and status["cancel_requested"]
+    result = client.get(f"/jobs/{job_id}/result").json()
+    assert result["stopped"] == "cancelled"
+    assert 4 <= result["trials"]["finished"] < 400
+    assert client.delete(f"/jobs/{job_id}").status_code == 204
+
+
+def test_deadline_finalises_with_the_best_so_far(client: TestClient, settings: Settings) -> None:
+    job_id = _submit(client, trials=2000, run_seconds=3, shards=1, batch_size=4, realisations=1)
+    started = time.monotonic()
+    _work(settings)
+    assert time.monotonic() - started < 120  # bounded: the deadline stopped it, not the budget
+    status = client.get(f"/jobs/{job_id}").json()
+    result = client.get(f"/jobs/{job_id}/result").json()
+    assert status["state"] == "done", status
+    assert result["stopped"] == "deadline"
+    assert 0 < result["trials"]["finished"] < 2000
+    assert result["ranked"][0]["score"] == min(r["score"] for r in result["ranked"])
+
+
+def test_retried_shard_reaps_its_dead_predecessors_trials(
+    client: TestClient, settings: Settings
+) -> None:
+    job_id = _submit(client, trials=12, shards=1, batch_size=4, realisations=1)
+    _work(settings, max_jobs=1)  # start only
+    url = settings.redis_url.get_secret_value()
+    store = JobStore(Redis.from_url(url, decode_responses=True))
+    study = optuna.load_study(
+        study_name=job_id, storage=redis_storage(url, store.study_prefix(job_id))
+    )
+    # a process that took shard 0, asked a batch and died before telling it
+    dead = "elsewhere:99999:0"
+    store.swap_owner(job_id, 0, dead)
+    space = build_space(scenario_from_data(small_scenario()))
+    dists = {
+        p.name: optuna.distributions.IntDistribution(0, len(p.values) - 1) for p in space.parameters
+    }
+    plan = StudyPlan(job_id, trials=12, batch_size=4)
+    ask_batch(study, plan, dists, 0, 4, 0, dead)
+    assert len(study.get_trials(states=(TrialState.RUNNING,))) == 4
+    _work(settings)
+    assert client.get(f"/jobs/{job_id}").json()["state"] == "done"
+    trials = study.get_trials()
+    reaped = [t for t in trials if t.user_attrs.get("reaped")]
+    assert len(reaped) == 4 and all(t.state == TrialState.FAIL for t in reaped)
+    assert not [t for t in trials if t.state == TrialState.RUNNING]
+    assert sum(t.state == TrialState.COMPLETE for t in trials) == 12
+    assert tasks.rq_id(job_id, "shard-0").endswith("shard-0")

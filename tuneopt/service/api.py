@@ -1,0 +1,292 @@
+"""The HTTP job API: submit a scenario, follow its progress, fetch its result and report.
+
+Every error is a problem-details body; validation errors name each field path. The API writes
+only JSON records to Redis and queues JSON-serialised rq jobs: nothing it sends is pickled.
+"""
+
+from __future__ import annotations
+
+import json
+import secrets
+import shutil
+import time
+from datetime import UTC, datetime
+from typing import Annotated, Any
+
+from fastapi import Depends, FastAPI, Request, Response
+from fastapi.responses import FileResponse
+from fastapi.security import APIKeyHeader
+from pydantic import BaseModel
+from redis import Redis
+from rq import Queue, Worker
+from rq.serializers import JSONSerializer
+
+from tuneopt.model.errors import InputError
+from tuneopt.service import tasks
+from tuneopt.service.limits import BodyLimit
+from tuneopt.service.problems import Problem, ProblemError, install_handlers
+from tuneopt.service.records import JobRecord, JobState, JobStore, is_job_id, new_job_id
+from tuneopt.service.requests import JobRequest, parse_scenario_file, validate_job
+from tuneopt.service.settings import Settings
+
+__all__ = ["JobList", "JobStatus", "create_app"]
+
+_KEY_HEADER = "X-API-Key"
+_key_header = APIKeyHeader(name=_KEY_HEADER, auto_error=False)
+_FORM_FIELDS = set(JobRequest.model_fields) - {"scenario"}
+_ERRORS = {
+    status: {"model": Problem, "content": {"application/problem+json": {}}}
+    for status in (400, 401, 404, 409, 413, 415, 422, 503)
+}
+
+
+class ProgressView(BaseModel):
+    finished: int
+    budget: int | None
+    best_score: float | None
+    trials_per_minute: float
+    eta_seconds: float | None
+
+
+class JobStatus(BaseModel):
+    id: str
+    state: JobState
+    scenario: str
+    created: datetime
+    started: datetime | None
+    ended: datetime | None
+    deadline: datetime | None
+    cancel_requested: bool
+    progress: ProgressView
+    errors: list[str]
+    links: dict[str, str]
+
+
+class JobList(BaseModel):
+    jobs: list[JobStatus]
+
+
+class Health(BaseModel):
+    redis: str
+    workers: int
+    queued: int
+
+
+def _time(value: float | None) -> datetime | None:
+    return None if value is None else datetime.fromtimestamp(value, tz=UTC)
+
+
+def _status(record: JobRecord) -> JobStatus:
+    base = f"/jobs/{record.id}"
+    return JobStatus(
+        id=record.id,
+        state=record.state,
+        scenario=record.scenario_name,
+        created=datetime.fromtimestamp(record.created, tz=UTC),
+        started=_time(record.started),
+        ended=_time(record.ended),
+        deadline=_time(record.deadline),
+        cancel_requested=record.cancel_requested,
+        progress=ProgressView(
+            finished=record.finished,
+            budget=record.budget,
+            best_score=record.best_score,
+            trials_per_minute=round(record.trials_per_minute, 3),
+            eta_seconds=record.eta_seconds(time.time()),
+        ),
+        errors=record.errors,
+        links={"self": base, "result": f"{base}/result", "report": f"{base}/report"},
+    )
+
+
+def create_app(settings: Settings) -> FastAPI:
+    """The API on the settings' Redis and results folder."""
+    tasks.configure(settings)
+    url = settings.redis_url.get_secret_value()
+    redis = Redis.from_url(url, decode_responses=True)
+    raw = Redis.from_url(url)
+    store = JobStore(redis, settings.key_prefix)
+    queue = Queue(settings.queue, connection=raw, serializer=JSONSerializer)
+    expected = settings.api_key.get_secret_value().encode() if settings.api_key else None
+
+    def require_key(given: Annotated[str | None, Depends(_key_header)]) -> None:
+        if expected is None:
+            return
+        challenge = {"WWW-Authenticate": _KEY_HEADER}
+        if not given:
+            raise ProblemError(
+                401, f"this service needs an API key in the {_KEY_HEADER} header", headers=challenge
+            )
+        if not secrets.compare_digest(given.encode(), expected):
+            raise ProblemError(401, "the API key is not valid", headers=challenge)
+
+    def load(job_id: str) -> JobRecord:
+        record = store.get(job_id) if is_job_id(job_id) else None
+        if record is None:
+            raise ProblemError(404, "no such job")
+        return record
+
+    app = FastAPI(
+        title="tuneopt job service",
+        version="1",
+        description="Queue damper-tuning studies and fetch their ranked setups. Results are "
+        "simulated: stay within the maker's limits and have a qualified technician check any "
+        "setting.",
+        responses=_ERRORS,  # type: ignore[arg-type]
+    )
+    install_handlers(app)
+    app.add_middleware(BodyLimit, max_bytes=settings.max_body_bytes)
+    guarded = [Depends(require_key)]
+
+    @app.post(
+        "/jobs",
+        status_code=202,
+        response_model=JobStatus,
+        dependencies=guarded,
+        openapi_extra={
+            "requestBody": {
+                "required": True,
+                "content": {
+                    "application/json": {"schema": JobRequest.model_json_schema()},
+                    "multipart/form-data": {
+                        "schema": {
+                            "type": "object",
+                            "required": ["scenario"],
+                            "properties": {
+                                "scenario": {"type": "string", "format": "binary"},
+                                **{f: {"type": "string"} for f in sorted(_FORM_FIELDS)},
+                            },
+                        }
+                    },
+                },
+            }
+        },
+        summary="Submit a job: a scenario (JSON body, or a TOML/JSON file upload) and its budget",
+    )
+    async def submit(request: Request, response: Response) -> JobStatus:
+        data, strict = await _read_body(request)
+        job = validate_job(data, settings, strict=strict)
+        job_id = new_job_id()
+        store.create(
+            job_id,
+            job.scenario.model_dump(mode="json"),
+            job.options(),
+            job.scenario.name,
+        )
+        tasks.enqueue_start(queue, job_id, settings.shard_retries)
+        response.headers["Location"] = f"/jobs/{job_id}"
+        response.headers["Retry-After"] = "5"
+        return _status(load(job_id))
+
+    @app.get("/jobs", response_model=JobList, dependencies=guarded, summary="Recent jobs")
+    def list_jobs() -> JobList:
+        return JobList(jobs=[_status(r) for r in store.list(settings.max_jobs_listed)])
+
+    @app.get(
+        "/jobs/{job_id}",
+        response_model=JobStatus,
+        dependencies=guarded,
+        summary="A job's state and progress",
+    )
+    def get_job(job_id: str) -> JobStatus:
+        return _status(load(job_id))
+
+    @app.get(
+        "/jobs/{job_id}/result",
+        dependencies=guarded,
+        summary="The ranked setups (with their cautions) once the job has ended",
+    )
+    def get_result(job_id: str) -> dict[str, Any]:
+        record = load(job_id)
+        result = store.get_result(job_id)
+        if result is None:
+            raise ProblemError(
+                409,
+                f"the job is {record.state.value}; it has no result yet"
+                if not record.state.is_final
+                else f"the job ended {record.state.value} without a result",
+            )
+        return result
+
+    @app.get(
+        "/jobs/{job_id}/report",
+        dependencies=guarded,
+        response_class=FileResponse,
+        summary="The job's HTML report, when one has been written",
+    )
+    def get_report(job_id: str) -> FileResponse:
+        load(job_id)
+        path = tasks.result_folder(settings.results_dir, job_id) / "report.html"
+        if not path.is_file():
+            raise ProblemError(404, "this job has no HTML report (yet)")
+        return FileResponse(path, media_type="text/html")
+
+    @app.delete(
+        "/jobs/{job_id}",
+        dependencies=guarded,
+        status_code=202,
+        response_model=JobStatus,
+        responses={204: {"description": "an ended job was purged"}},
+        summary="Cancel a job that has not ended; purge one that has",
+    )
+    def delete_job(job_id: str) -> Any:
+        record = load(job_id)
+        if store.request_cancel(job_id):
+            return _status(load(job_id))
+        shards = int(record.request.get("shards", 0))
+        store.purge(job_id, shards)
+        from tuneopt.optimise.redis_storage import delete_study_keys
+
+        delete_study_keys(redis, store.study_prefix(job_id))
+        shutil.rmtree(tasks.result_folder(settings.results_dir, job_id), ignore_errors=True)
+        return Response(status_code=204)
+
+    @app.get("/health", response_model=Health, summary="Redis and worker presence")
+    def health() -> Health:
+        redis.ping()
+        return Health(
+            redis="ok",
+            workers=len(Worker.all(queue=queue)),
+            queued=queue.count,
+        )
+
+    return app
+
+
+async def _read_body(request: Request) -> tuple[dict[str, Any], bool]:
+    """The job's fields, and whether their types must match exactly (JSON) or may be read
+    from text (form fields)."""
+    kind = request.headers.get("content-type", "").split(";")[0].strip().lower()
+    if kind == "application/json":
+        body = await request.body()
+        try:
+            data = json.loads(body)
+        except (json.JSONDecodeError, UnicodeDecodeError) as exc:
+            where = (
+                f" (line {exc.lineno}, column {exc.colno})"
+                if isinstance(exc, json.JSONDecodeError)
+                else ""
+            )
+            raise ProblemError(400, f"the body is not valid JSON{where}") from None
+        if not isinstance(data, dict):
+            raise InputError.single("", "the body must be a JSON object")
+        return data, True
+    if kind == "multipart/form-data":
+        fields: dict[str, Any] = {}
+        async with request.form(max_files=1, max_fields=len(_FORM_FIELDS) + 1) as form:
+            upload = form.get("scenario")
+            if upload is None or isinstance(upload, str):
+                raise InputError.single(
+                    "scenario", "missing: upload the scenario file as 'scenario'"
+                )
+            fields["scenario"] = parse_scenario_file(await upload.read(), upload.filename or "")
+            for name, value in form.multi_items():
+                if name == "scenario":
+                    continue
+                if name not in _FORM_FIELDS:
+                    raise InputError.single(name, "unknown field (check the spelling)")
+                fields[name] = value
+        return fields, False
+    raise ProblemError(
+        415, "send the job as application/json or as multipart/form-data with the scenario file"
+    )

@@ -1,0 +1,263 @@
+"""Job records in Redis: state, request, progress, errors and the result, as plain JSON/strings.
+
+Nothing here is pickled: the API reads and writes only these hashes and strings.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import secrets
+import time
+from dataclasses import dataclass, field
+from enum import StrEnum
+from typing import Any
+
+from redis import Redis, WatchError
+
+__all__ = ["JobRecord", "JobState", "JobStore", "is_job_id", "new_job_id"]
+
+_ID = re.compile(r"^[0-9a-f]{32}$")
+# a shard's rate counts towards the job's pace only while it has reported lately [s]
+_RATE_FRESH = 120.0
+
+
+class JobState(StrEnum):
+    QUEUED = "queued"
+    RUNNING = "running"
+    FINISHING = "finishing"
+    DONE = "done"
+    FAILED = "failed"
+    CANCELLED = "cancelled"
+
+    @property
+    def is_final(self) -> bool:
+        return self in (JobState.DONE, JobState.FAILED, JobState.CANCELLED)
+
+
+def new_job_id() -> str:
+    """128 random bits: one client cannot guess another's job."""
+    return secrets.token_hex(16)
+
+
+def is_job_id(text: str) -> bool:
+    return bool(_ID.fullmatch(text))
+
+
+@dataclass(frozen=True)
+class JobRecord:
+    id: str
+    state: JobState
+    created: float
+    request: dict[str, Any]
+    scenario_name: str
+    started: float | None = None
+    ended: float | None = None
+    deadline: float | None = None
+    finished: int = 0
+    best_score: float | None = None
+    trials_per_minute: float = 0.0
+    cancel_requested: bool = False
+    errors: list[str] = field(default_factory=list)
+
+    @property
+    def budget(self) -> int | None:
+        value = self.request.get("trials")
+        return int(value) if value is not None else None
+
+    def eta_seconds(self, now: float) -> float | None:
+        if self.state.is_final:
+            return None
+        eta = None
+        if self.budget is not None and self.trials_per_minute > 0:
+            eta = max(self.budget - self.finished, 0) / self.trials_per_minute * 60
+        if self.deadline is not None:
+            left = max(self.deadline - now, 0.0)
+            eta = left if eta is None else min(eta, left)
+        return eta
+
+
+def _float(value: str | None) -> float | None:
+    return float(value) if value not in (None, "") else None
+
+
+class JobStore:
+    """Job records under ``prefix`` on one Redis connection (``decode_responses=True``)."""
+
+    def __init__(self, redis: Redis, prefix: str = "tuneopt"):
+        self.redis = redis
+        self.prefix = prefix
+
+    # keys
+    def key(self, job_id: str) -> str:
+        return f"{self.prefix}:job:{job_id}"
+
+    def study_prefix(self, job_id: str) -> str:
+        return f"{self.prefix}:study:{job_id}"
+
+    @property
+    def index_key(self) -> str:
+        return f"{self.prefix}:jobs"
+
+    def _result_key(self, job_id: str) -> str:
+        return f"{self.key(job_id)}:result"
+
+    def _errors_key(self, job_id: str) -> str:
+        return f"{self.key(job_id)}:errors"
+
+    def _owner_key(self, job_id: str, shard: int) -> str:
+        return f"{self.key(job_id)}:owner:{shard}"
+
+    # records
+    def create(
+        self, job_id: str, scenario: dict[str, Any], request: dict[str, Any], name: str
+    ) -> None:
+        now = time.time()
+        with self.redis.pipeline() as pipe:
+            pipe.hset(
+                self.key(job_id),
+                mapping={
+                    "id": job_id,
+                    "state": JobState.QUEUED.value,
+                    "created": repr(now),
+                    "scenario": json.dumps(scenario),
+                    "request": json.dumps(request),
+                    "scenario_name": name,
+                    "finished": "0",
+                },
+            )
+            pipe.zadd(self.index_key, {job_id: now})
+            pipe.execute()
+
+    def exists(self, job_id: str) -> bool:
+        return bool(self.redis.exists(self.key(job_id)))
+
+    def get(self, job_id: str) -> JobRecord | None:
+        raw: dict[str, str] = self.redis.hgetall(self.key(job_id))  # type: ignore[assignment]
+        if not raw:
+            return None
+        now = time.time()
+        rate = 0.0
+        for name, value in raw.items():
+            if name.startswith("rate:"):
+                per_minute, updated = (float(v) for v in value.split("|"))
+                if now - updated < _RATE_FRESH:
+                    rate += per_minute
+        errors: list[str] = self.redis.lrange(self._errors_key(job_id), 0, -1)  # type: ignore[assignment]
+        return JobRecord(
+            id=raw["id"],
+            state=JobState(raw["state"]),
+            created=float(raw["created"]),
+            request=json.loads(raw["request"]),
+            scenario_name=raw.get("scenario_name", ""),
+            started=_float(raw.get("started")),
+            ended=_float(raw.get("ended")),
+            deadline=_float(raw.get("deadline")),
+            finished=int(raw.get("finished", "0")),
+            best_score=_float(raw.get("best_score")),
+            trials_per_minute=rate,
+            cancel_requested=raw.get("cancel") == "1",
+            errors=errors,
+        )
+
+    def scenario(self, job_id: str) -> dict[str, Any]:
+        text = self.redis.hget(self.key(job_id), "scenario")
+        if text is None:
+            raise KeyError(job_id)
+        return json.loads(str(text))
+
+    def list(self, limit: int) -> list[JobRecord]:
+        ids: list[str] = self.redis.zrevrange(self.index_key, 0, limit - 1)  # type: ignore[assignment]
+        records = [self.get(i) for i in ids]
+        return [r for r in records if r is not None]
+
+    def set_fields(self, job_id: str, **fields: Any) -> None:
+        self.redis.hset(self.key(job_id), mapping={k: str(v) for k, v in fields.items()})
+
+    def move(self, job_id: str, to: JobState, **fields: Any) -> bool:
+        """Set the state unless the job already ended (a final state never changes)."""
+        key = self.key(job_id)
+        with self.redis.pipeline() as pipe:
+            while True:
+                try:
+                    pipe.watch(key)
+                    current = pipe.hget(key, "state")
+                    if current is None or JobState(str(current)).is_final:
+                        pipe.unwatch()
+                        return False
+                    pipe.multi()
+                    mapping: dict[Any, Any] = {
+                        "state": to.value,
+                        **{k: str(v) for k, v in fields.items()},
+                    }
+                    if to.is_final:
+                        mapping["ended"] = repr(time.time())
+                    pipe.hset(key, mapping=mapping)
+                    pipe.execute()
+                    return True
+                except WatchError:
+                    continue
+
+    # cancel
+    def request_cancel(self, job_id: str) -> bool:
+        """Ask running shards to stop between batches; False when the job already ended."""
+        record = self.get(job_id)
+        if record is None or record.state.is_final:
+            return False
+        self.redis.hset(self.key(job_id), "cancel", "1")
+        return True
+
+    def is_cancel_requested(self, job_id: str) -> bool:
+        return self.redis.hget(self.key(job_id), "cancel") == "1"
+
+    # progress and errors
+    def record_progress(
+        self, job_id: str, shard: int, finished: int, best: float | None, per_minute: float
+    ) -> None:
+        fields: dict[Any, Any] = {
+            f"rate:{shard}": f"{per_minute!r}|{time.time()!r}",
+        }
+        if best is not None:
+            fields["best_score"] = repr(best)
+        with self.redis.pipeline() as pipe:
+            pipe.hset(self.key(job_id), mapping=fields)
+            # shards report in any order: keep the largest count seen
+            pipe.eval(
+                "local c = tonumber(redis.call('HGET', KEYS[1], 'finished') or '0') "
+                "if tonumber(ARGV[1]) > c then "
+                "redis.call('HSET', KEYS[1], 'finished', ARGV[1]) end",
+                1,
+                self.key(job_id),
+                str(finished),
+            )
+            pipe.execute()
+
+    def clear_rate(self, job_id: str, shard: int) -> None:
+        self.redis.hdel(self.key(job_id), f"rate:{shard}")
+
+    def add_error(self, job_id: str, message: str) -> None:
+        with self.redis.pipeline() as pipe:
+            pipe.rpush(self._errors_key(job_id), message[:2000])
+            pipe.ltrim(self._errors_key(job_id), -20, -1)
+            pipe.execute()
+
+    # shard owners: who ran a shard last, so that its retry can reap what it left running
+    def swap_owner(self, job_id: str, shard: int, owner: str) -> str | None:
+        previous = self.redis.getset(self._owner_key(job_id, shard), owner)
+        return None if previous is None else str(previous)
+
+    # result
+    def set_result(self, job_id: str, data: dict[str, Any]) -> None:
+        self.redis.set(self._result_key(job_id), json.dumps(data, allow_nan=False))
+
+    def get_result(self, job_id: str) -> dict[str, Any] | None:
+        text = self.redis.get(self._result_key(job_id))
+        return None if text is None else json.loads(str(text))
+
+    def purge(self, job_id: str, shards: int) -> None:
+        keys = [self.key(job_id), self._result_key(job_id), self._errors_key(job_id)]
+        keys += [self._owner_key(job_id, k) for k in range(shards)]
+        with self.redis.pipeline() as pipe:
+            pipe.delete(*keys)
+            pipe.zrem(self.index_key, job_id)
+            pipe.execute()

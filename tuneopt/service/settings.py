@@ -1,0 +1,54 @@
+"""Service settings, read once from the environment (prefix ``TUNEOPT_``) at the edges.
+
+The API, the workers and the tasks take a :class:`Settings` object; nothing below reads the
+environment itself.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from pydantic import Field, SecretStr
+from pydantic_settings import BaseSettings, SettingsConfigDict
+
+__all__ = ["Settings"]
+
+
+class Settings(BaseSettings):
+    """Operator settings. Secrets (the Redis URL may hold a password, the API key) are
+    ``SecretStr`` so that they never show in logs or reprs."""
+
+    model_config = SettingsConfigDict(env_prefix="TUNEOPT_", extra="forbid", frozen=True)
+
+    redis_url: SecretStr = Field(
+        default=SecretStr("redis://127.0.0.1:6379/0"), description="Redis holding queue and studies"
+    )
+    results_dir: Path = Field(default=Path("results"), description="one folder per job")
+    api_key: SecretStr | None = Field(default=None, description="required when set")
+    queue: str = Field(default="tuneopt", pattern=r"^[a-z][a-z0-9_-]{0,40}$")
+    key_prefix: str = Field(default="tuneopt", pattern=r"^[a-z][a-z0-9_-]{0,40}$")
+
+    # per-job limits the operator sets
+    max_trials: int = Field(default=2000, ge=1)
+    max_course_length: float = Field(default=3000.0, gt=0, description="[m]")
+    max_run_seconds: float = Field(default=8 * 3600.0, gt=0, description="wall-clock per job [s]")
+    max_shards: int = Field(default=8, ge=1)
+    default_shards: int = Field(default=2, ge=1)
+    max_body_bytes: int = Field(default=1_000_000, ge=1024)
+    max_jobs_listed: int = Field(default=100, ge=1)
+
+    # workers
+    batch_size: int = Field(default=16, ge=1)
+    realisations: int = Field(default=2, ge=1, le=8)
+    shard_retries: int = Field(default=3, ge=0)
+    heartbeat_seconds: float = Field(
+        default=10.0, gt=0, description="how often a busy worker says it is alive [s]"
+    )
+    heartbeat_ttl: int = Field(
+        default=45, ge=3, description="a shard unheard of for this long is retried elsewhere [s]"
+    )
+    maintenance_seconds: int = Field(default=15, ge=1, description="idle workers' sweep [s]")
+    keep_studies: bool = Field(
+        default=False, description="keep a finished job's study journal until the job is purged"
+    )
+    top: int = Field(default=5, ge=1, le=50, description="ranked setups in a result")

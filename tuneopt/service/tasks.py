@@ -1,0 +1,306 @@
+"""The queued work of one job: start (create the study), shards (run batches), finalise.
+
+These are the functions rq workers import and run; their arguments are JSON-safe (a job id and
+a shard number). Each shard runs the same study runner as a local run, on a journal in Redis.
+"""
+
+from __future__ import annotations
+
+import os
+import socket
+import time
+from pathlib import Path
+from typing import Any
+
+import optuna
+from redis import Redis
+from rq import Queue, Retry
+from rq.job import Callback, Dependency, Job
+from rq.serializers import JSONSerializer
+
+from tuneopt.model import InputError, Scenario, scenario_from_data
+from tuneopt.optimise import (
+    Evaluator,
+    Progress,
+    StudyPlan,
+    build_space,
+    create_study,
+    rank_study,
+    reap_stale_trials,
+    result_data,
+    run_shard,
+    write_result,
+)
+from tuneopt.optimise.redis_storage import delete_study_keys, redis_storage
+from tuneopt.service.records import JobState, JobStore, is_job_id
+from tuneopt.service.settings import Settings
+
+__all__ = [
+    "configure",
+    "enqueue_start",
+    "finalise_job",
+    "job_failed",
+    "rq_id",
+    "run_shard_job",
+    "start_job",
+]
+
+_settings: Settings | None = None
+
+
+def configure(settings: Settings) -> None:
+    """Set the settings this process's tasks use (the worker does this once at start)."""
+    global _settings
+    _settings = settings
+
+
+def _current() -> Settings:
+    global _settings
+    if _settings is None:
+        _settings = Settings()  # read once, from TUNEOPT_* in the environment
+    return _settings
+
+
+def _connection() -> Redis:
+    return Redis.from_url(_current().redis_url.get_secret_value(), decode_responses=True)
+
+
+def _store(redis: Redis | None = None) -> JobStore:
+    return JobStore(redis or _connection(), _current().key_prefix)
+
+
+def rq_id(job_id: str, part: str) -> str:
+    """The rq job id of one part of a job (``start``, ``shard-N``, ``final``)."""
+    return f"{job_id}-{part}"
+
+
+def _queue() -> Queue:
+    # rq keeps binary payloads: it needs a connection that does not decode responses
+    raw = Redis.from_url(_current().redis_url.get_secret_value())
+    return Queue(_current().queue, connection=raw, serializer=JSONSerializer)
+
+
+def enqueue_start(queue: Queue, job_id: str, retries: int) -> Job:
+    """Queue the start of a job: called by the API right after the record is written."""
+    return queue.enqueue(
+        "tuneopt.service.tasks.start_job",
+        args=(job_id,),
+        job_id=rq_id(job_id, "start"),
+        retry=Retry(max=retries) if retries else None,
+        on_failure=Callback("tuneopt.service.tasks.job_failed"),
+        job_timeout=600,
+        result_ttl=86400,
+        failure_ttl=7 * 86400,
+    )
+
+
+def _plan(job_id: str, request: dict[str, Any], deadline: float) -> StudyPlan:
+    return StudyPlan(
+        name=job_id,
+        trials=request["trials"],
+        deadline=deadline,
+        batch_size=request.get("batch_size") or _current().batch_size,
+        seed=request["seed"],
+        sampler=request["sampler"],
+    )
+
+
+def _load(store: JobStore, job_id: str) -> Scenario:
+    return scenario_from_data(store.scenario(job_id), "scenario")
+
+
+def _study(store: JobStore, job_id: str) -> optuna.Study:
+    storage = redis_storage(_current().redis_url.get_secret_value(), store.study_prefix(job_id))
+    return optuna.load_study(study_name=job_id, storage=storage)
+
+
+def start_job(job_id: str) -> str:
+    """Create the job's study (baseline enqueued once, here), then queue shards and finaliser."""
+    if not is_job_id(job_id):
+        raise ValueError("not a job id")
+    settings = _current()
+    redis = _connection()
+    store = _store(redis)
+    record = store.get(job_id)
+    if record is None or record.state.is_final:
+        return "gone"
+    if store.is_cancel_requested(job_id):
+        store.move(job_id, JobState.CANCELLED)
+        return "cancelled"
+    try:
+        scenario = _load(store, job_id)
+        space = build_space(scenario)
+    except InputError as exc:
+        store.add_error(job_id, exc.describe())
+        store.move(job_id, JobState.FAILED)
+        return "failed"
+    now = time.time()
+    deadline = record.deadline or now + float(record.request["run_seconds"])
+    plan = _plan(job_id, record.request, deadline)
+    storage = redis_storage(settings.redis_url.get_secret_value(), store.study_prefix(job_id))
+    create_study(storage, plan, space, space.indices(scenario.setup))
+    if record.started is None:
+        store.set_fields(job_id, started=repr(now), deadline=repr(deadline))
+    store.move(job_id, JobState.RUNNING)
+
+    queue = _queue()
+    run_seconds = float(record.request["run_seconds"])
+    shards = []
+    for shard in range(int(record.request["shards"])):
+        part = rq_id(job_id, f"shard-{shard}")
+        if Job.exists(part, connection=queue.connection):
+            shards.append(Job.fetch(part, connection=queue.connection, serializer=JSONSerializer))
+            continue
+        shards.append(
+            queue.enqueue(
+                "tuneopt.service.tasks.run_shard_job",
+                args=(job_id, shard),
+                job_id=part,
+                retry=Retry(max=settings.shard_retries) if settings.shard_retries else None,
+                job_timeout=int(run_seconds) + 900,
+                result_ttl=86400,
+                failure_ttl=7 * 86400,
+            )
+        )
+    final = rq_id(job_id, "final")
+    if not Job.exists(final, connection=queue.connection):
+        queue.enqueue(
+            "tuneopt.service.tasks.finalise_job",
+            args=(job_id,),
+            job_id=final,
+            depends_on=Dependency(jobs=shards, allow_failure=True),
+            retry=Retry(max=2),
+            on_failure=Callback("tuneopt.service.tasks.job_failed"),
+            job_timeout=3600,
+            result_ttl=86400,
+            failure_ttl=7 * 86400,
+        )
+    return "started"
+
+
+def run_shard_job(job_id: str, shard: int) -> int:
+    """Run batches of the job's study until budget, deadline or cancel; returns trials done.
+
+    A retried shard first fails the trials its dead predecessor left running and enqueues
+    their points again (journal storage has no heartbeat of its own)."""
+    if not is_job_id(job_id):
+        raise ValueError("not a job id")
+    store = _store()
+    record = store.get(job_id)
+    if record is None or record.state.is_final or store.is_cancel_requested(job_id):
+        return 0
+    scenario = _load(store, job_id)
+    space = build_space(scenario)
+    assert record.deadline is not None  # set by start_job before any shard is queued
+    plan = _plan(job_id, record.request, record.deadline)
+    study = _study(store, job_id)
+    owner = f"{socket.gethostname()}:{os.getpid()}:{shard}"
+    previous = store.swap_owner(job_id, shard, owner)
+    if previous is not None:
+        reap_stale_trials(study, previous)
+    evaluator = Evaluator(scenario, plan.seed, int(record.request["realisations"]))
+
+    def report(p: Progress) -> None:
+        store.record_progress(job_id, shard, p.finished, p.best_score, p.trials_per_minute)
+
+    try:
+        return run_shard(
+            study,
+            plan,
+            space,
+            evaluator,
+            shard,
+            should_stop=lambda: store.is_cancel_requested(job_id),
+            on_batch=report,
+        )
+    except Exception as exc:
+        store.add_error(job_id, f"shard {shard}: {type(exc).__name__}: {exc}")
+        try:  # this attempt is over: its in-flight trials go back to the queue of points
+            reap_stale_trials(study, owner)
+        except Exception:  # noqa: BLE001 (the retry reaps them when Redis is back)
+            pass
+        raise
+    finally:
+        store.clear_rate(job_id, shard)
+
+
+def finalise_job(job_id: str) -> str:
+    """Rank the study once every shard has ended; write the result to Redis and to files."""
+    if not is_job_id(job_id):
+        raise ValueError("not a job id")
+    settings = _current()
+    redis = _connection()
+    store = _store(redis)
+    record = store.get(job_id)
+    if record is None or record.state.is_final:
+        return "gone"
+    store.move(job_id, JobState.FINISHING)
+    scenario = _load(store, job_id)
+    space = build_space(scenario)
+    study = _study(store, job_id)
+    reap_stale_trials(study)  # every shard has ended: nothing left RUNNING has an owner
+    request = record.request
+    evaluator = Evaluator(scenario, int(request["seed"]), int(request["realisations"]))
+    ranking = rank_study(study, space, evaluator, top=settings.top)
+    cancelled = store.is_cancel_requested(job_id)
+    deadline = record.deadline or 0.0
+    budget = record.budget
+    if cancelled:
+        stopped = "cancelled"
+    elif budget is not None and ranking.finished >= budget:
+        stopped = "budget"
+    elif time.time() >= deadline:
+        stopped = "deadline"
+    else:
+        stopped = "shards failed"
+    owners = sorted({str(t.user_attrs.get("owner", "")) for t in study.get_trials(deepcopy=False)})
+    info = {
+        "job": job_id,
+        "scenario": scenario.name,
+        "study": job_id,
+        "seed": record.request["seed"],
+        "sampler": record.request["sampler"],
+        "realisations": record.request["realisations"],
+        "budget": budget,
+        "stopped": stopped,
+        "shards": record.request["shards"],
+        "workers": [o for o in owners if o],
+        "simulated_seconds_per_setup": evaluator.simulated_seconds,
+        "parameters": [p.name for p in space.parameters],
+        "labels": {p.name: p.label for p in space.parameters},
+    }
+    data = result_data(ranking, info)
+    out = result_folder(settings.results_dir, job_id)
+    out.mkdir(parents=True, exist_ok=True)
+    write_result(out, ranking, info)
+    store.set_result(job_id, data)
+    if cancelled:
+        state = JobState.CANCELLED
+    elif ranking.ranked:
+        state = JobState.DONE
+    else:
+        state = JobState.FAILED
+        store.add_error(job_id, f"no feasible setup finished (stopped: {stopped})")
+    store.move(job_id, state, finished=ranking.finished)
+    if not settings.keep_studies:  # the result holds what the study was for
+        delete_study_keys(redis, store.study_prefix(job_id))
+    return state.value
+
+
+def result_folder(results_dir: Path, job_id: str) -> Path:
+    """The job's folder under the results folder; the id is checked, so no path escapes it."""
+    if not is_job_id(job_id):
+        raise ValueError("not a job id")
+    return results_dir / job_id
+
+
+def job_failed(job: Job, connection: Any, exc_type: Any, value: Any, tb: Any) -> None:
+    """rq failure callback of the start and final parts: the job fails once no retry is left."""
+    job_id = str(job.args[0]) if job.args else ""
+    if not is_job_id(job_id):
+        return
+    redis = Redis.from_url(_current().redis_url.get_secret_value(), decode_responses=True)
+    store = _store(redis)
+    store.add_error(job_id, f"{job.id}: {getattr(exc_type, '__name__', exc_type)}: {value}")
+    if not job.retries_left:
+        store.move(job_id, JobState.FAILED)

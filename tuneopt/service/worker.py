@@ -1,0 +1,79 @@
+"""The worker process: an rq worker that runs shards in its own process and says it is alive.
+
+Shards run in the worker process itself (no fork per job): a worker killed outright takes its
+shard with it, and nothing keeps running unseen. While a shard runs, a thread renews the job's
+entry in rq's started registry every ``heartbeat_seconds`` for ``heartbeat_ttl`` seconds; when a
+worker dies, the entry lapses, the next idle worker's sweep fails the shard as abandoned and
+rq's retry puts it back on the queue, where another worker picks it up and reaps what the dead
+one left running.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import socket
+import threading
+from typing import Any
+
+from redis import Redis
+from rq import Queue, SimpleWorker
+from rq.job import Job
+from rq.serializers import JSONSerializer
+from rq.worker import WorkerStatus
+
+from tuneopt.service import tasks
+from tuneopt.service.settings import Settings
+
+__all__ = ["ShardWorker", "make_worker"]
+
+log = logging.getLogger(__name__)
+
+
+class ShardWorker(SimpleWorker):
+    """rq's in-process worker with a heartbeat thread during each job."""
+
+    def __init__(self, *args: Any, **kwargs: Any) -> None:
+        settings = tasks._current()
+        self.beat_seconds = float(kwargs.pop("heartbeat_seconds", settings.heartbeat_seconds))
+        self.beat_ttl = int(kwargs.pop("heartbeat_ttl", settings.heartbeat_ttl))
+        kwargs.setdefault("serializer", JSONSerializer)
+        super().__init__(*args, **kwargs)
+
+    def get_heartbeat_ttl(self, job: Job) -> int:
+        return self.beat_ttl
+
+    def execute_job(self, job: Job, queue: Queue) -> None:
+        self.prepare_execution(job)
+        stop = threading.Event()
+        beat = threading.Thread(target=self._beat, args=(job, stop), daemon=True)
+        beat.start()
+        try:
+            self.perform_job(job, queue)
+        finally:
+            stop.set()
+            beat.join()
+        self.set_state(WorkerStatus.IDLE)
+
+    def _beat(self, job: Job, stop: threading.Event) -> None:
+        while not stop.wait(self.beat_seconds):
+            try:
+                self.maintain_heartbeats(job)
+            except Exception as exc:  # noqa: BLE001 (Redis away for a moment: try again)
+                log.warning("heartbeat of %s failed: %s", job.id, exc)
+
+
+def make_worker(settings: Settings, name: str | None = None) -> ShardWorker:
+    """A worker on the settings' queue; the tasks in this process use the same settings."""
+    tasks.configure(settings)
+    redis = Redis.from_url(settings.redis_url.get_secret_value())
+    queue = Queue(settings.queue, connection=redis, serializer=JSONSerializer)
+    return ShardWorker(
+        [queue],
+        connection=redis,
+        name=name or f"{socket.gethostname()}-{os.getpid()}",
+        worker_ttl=max(settings.heartbeat_ttl, 20),
+        maintenance_interval=settings.maintenance_seconds,
+        heartbeat_seconds=settings.heartbeat_seconds,
+        heartbeat_ttl=settings.heartbeat_ttl,
+    )
