@@ -19,6 +19,7 @@ _COMMANDS = (
     "optimise",
     "compare",
     "bench",
+    "report",
     "serve",
     "worker",
 )

@@ -107,6 +107,7 @@ def run(args: argparse.Namespace) -> int:
     from tuneopt.optimise import StudyPlan, load_run, run_local, start_run
     from tuneopt.optimise.runner import SAMPLERS
     from tuneopt.report.ranked_table import print_ranking
+    from tuneopt.report.run_report import write_run_report
 
     _arguments(args)
     if args.sampler not in SAMPLERS:
@@ -162,4 +163,5 @@ def run(args: argparse.Namespace) -> int:
     data = json.loads((local.out / "result.json").read_text())
     print_ranking(data)
     print(f"result: {local.out / 'result.json'} and {local.out / 'ranked.csv'}")
+    print(f"report: {write_run_report(local.out)}")
     return 0
