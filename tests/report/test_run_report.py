@@ -18,7 +18,7 @@ from tuneopt.optimise import build_space
 from tuneopt.optimise.local import load_run
 from tuneopt.optimise.result import CAUTIONS
 from tuneopt.report.rides import ride_setups
-from tuneopt.report.run_report import flatten_inputs
+from tuneopt.report.run_report import flatten_inputs, render_run_report, report_of
 from tuneopt.sim.ride import prepare_course
 from tuneopt.terrain import build_course
 
@@ -191,3 +191,20 @@ def test_inputs_are_echoed_with_pressures_in_trade_units(dry_run: Path) -> None:
     assert pairs["scenario.rider.mass"] == "78"
     assert pairs["scenario.course.mix[1].terrain"] == "braking_bumps"
     assert pairs["scenario.setup.fork.pressure"].endswith("Pa (85.0 psi, 5.86 bar)")
+
+
+def test_a_run_without_a_ridable_setup_still_has_a_page(
+    dry_run: Path, dry_result: dict[str, Any]
+) -> None:
+    """From the study's pieces (as a caller without a run folder passes them): nothing ranked,
+    no current setup that rode; the page says so and still carries the cautions and checks."""
+    run = load_run(dry_run)
+    empty = {**dry_result, "ranked": [], "baseline": None}
+    report = report_of(run.scenario, empty, seed=run.plan.seed, realisations=1, trials=[])
+    page = read_page(render_run_report(report))
+    assert "rides" not in page.sections
+    assert {"summary", "cautions", "static-check", "inputs"} <= set(page.sections)
+    assert page.figures == []
+    assert page.list_items["cautions"] == list(CAUTIONS)
+    assert table_by_first_cell(page.tables["static-table"][1:])["sag [% of stroke]"]
+    assert report.recommendation == [] and report.headline == ""

@@ -37,6 +37,10 @@ __all__ = [
     "build_run_report",
     "flatten_inputs",
     "headline_metrics",
+    "journal_trial_metrics",
+    "report_of",
+    "trial_metrics",
+    "write_page",
     "recommendation_rows",
     "render_run_report",
     "static_rows",
@@ -227,18 +231,10 @@ class RunReport:
     exports: list[str] = field(default_factory=list)
 
 
-def trial_metrics(run_dir: Path, study_name: str) -> list[dict[str, float | None]]:
-    """Metrics of every ridable trial in the run's journal (empty without a journal)."""
-    journal = run_dir / "study.journal"
-    if not journal.exists():
-        return []
-    import optuna
-    from optuna.storages import JournalStorage
-    from optuna.storages.journal import JournalFileBackend
+def trial_metrics(study: Any) -> list[dict[str, float | None]]:
+    """Metrics of every ridable trial of an optuna study."""
     from optuna.trial import TrialState
 
-    storage = JournalStorage(JournalFileBackend(str(journal)))
-    study = optuna.load_study(study_name=study_name, storage=storage)
     return [
         dict(t.user_attrs["metrics"])
         for t in study.get_trials(deepcopy=False, states=(TrialState.COMPLETE,))
@@ -246,13 +242,26 @@ def trial_metrics(run_dir: Path, study_name: str) -> list[dict[str, float | None
     ]
 
 
+def journal_trial_metrics(run_dir: Path, study_name: str) -> list[dict[str, float | None]]:
+    """``trial_metrics`` of the study in a run folder's journal (empty without a journal)."""
+    journal = run_dir / "study.journal"
+    if not journal.exists():
+        return []
+    import optuna
+    from optuna.storages import JournalStorage
+    from optuna.storages.journal import JournalFileBackend
+
+    storage = JournalStorage(JournalFileBackend(str(journal)))
+    return trial_metrics(optuna.load_study(study_name=study_name, storage=storage))
+
+
 def _svg(fig: Any, title: str) -> Markup:
     return Markup(figure_svg(fig, title))  # noqa: S704 - our own SVG, attributes escaped
 
 
 def build_run_report(run_dir: Path, ranks: Sequence[int] = (1,), exports: bool = True) -> RunReport:
-    """Collect the page for ``run_dir`` (re-rides the current and the selected setups)."""
-    from tuneopt.optimise import build_space
+    """Collect the page of the run folder ``run_dir`` (re-rides the current and the selected
+    setups); exports go to ``run_dir/exports``."""
     from tuneopt.optimise.local import load_run
 
     run = load_run(run_dir)
@@ -262,7 +271,37 @@ def build_run_report(run_dir: Path, ranks: Sequence[int] = (1,), exports: bool =
         raise InputError.single(
             str(run_dir), "holds no result.json: finish or resume the run first"
         ) from None
-    scenario: Scenario = run.scenario
+    settings = json.loads((run_dir / "run.json").read_text())
+    inputs = flatten_inputs(settings["scenario"], "scenario")
+    inputs += flatten_inputs(settings["plan"], "plan")
+    inputs.append(("realisations", str(settings["realisations"])))
+    return report_of(
+        run.scenario,
+        result,
+        seed=run.plan.seed,
+        realisations=run.realisations,
+        trials=journal_trial_metrics(run_dir, run.plan.name),
+        inputs=inputs,
+        ranks=ranks,
+        export_dir=run_dir / EXPORTS_DIR if exports else None,
+    )
+
+
+def report_of(
+    scenario: Scenario,
+    result: dict[str, Any],
+    seed: int,
+    realisations: int,
+    trials: Sequence[dict[str, float | None]],
+    inputs: list[tuple[str, str]] | None = None,
+    ranks: Sequence[int] = (1,),
+    export_dir: Path | None = None,
+) -> RunReport:
+    """Collect the page from a study's pieces: the validated scenario, result.json's data, the
+    study seed and realisations, the ridable trials' metrics and the inputs to echo (default:
+    the scenario). Exports are written to ``export_dir`` when given."""
+    from tuneopt.optimise import build_space
+
     space = build_space(scenario)
     ranked = {e["rank"]: e for e in result["ranked"]}
     unknown = [k for k in ranks if k not in ranked]
@@ -279,13 +318,12 @@ def build_run_report(run_dir: Path, ranks: Sequence[int] = (1,), exports: bool =
     figures: dict[str, Markup | None] = dict.fromkeys(
         ("tradeoff", "tyre_loads", "travel", "braking", "load_split")
     )
-    trials = trial_metrics(run_dir, run.plan.name)
     tdata = tradeoff_data(trials, result)
     if tdata.points.shape[0] or tdata.marks:
         figures["tradeoff"] = _svg(draw_tradeoff(tdata), "Trade-offs among the trials")
     rides: tuple[SetupRide, ...] = ()
     if chosen and scenario.course is not None:
-        rides = ride_setups(scenario, setups, labels, run.plan.seed)
+        rides = ride_setups(scenario, setups, labels, seed)
         figures["tyre_loads"] = _svg(
             rp.draw_tyre_loads(rp.tyre_load_plot_data(rides)), "Tyre load traces"
         )
@@ -310,15 +348,13 @@ def build_run_report(run_dir: Path, ranks: Sequence[int] = (1,), exports: bool =
         f"{label}: {f.location}: {f.message} ({f.basis})" for label, c in checks for f in c.findings
     ]
 
-    settings = json.loads((run_dir / "run.json").read_text())
-    inputs = flatten_inputs(settings["scenario"], "scenario")
-    inputs += flatten_inputs(settings["plan"], "plan")
-    inputs.append(("realisations", str(settings["realisations"])))
+    if inputs is None:
+        inputs = flatten_inputs(scenario.model_dump(mode="json"), "scenario")
 
     export_names: list[str] = []
-    if exports:
-        paths = write_exports(run_dir / EXPORTS_DIR, result, rides)
-        export_names = [str(p.relative_to(run_dir)) for p in paths]
+    if export_dir is not None:
+        paths = write_exports(export_dir, result, rides)
+        export_names = [f"{export_dir.name}/{p.name}" for p in paths]
     export_names += ["result.json", "ranked.csv"]
 
     t = result["trials"]
@@ -350,7 +386,7 @@ def build_run_report(run_dir: Path, ranks: Sequence[int] = (1,), exports: bool =
         headline += "."
     h_headers, h_rows = ranking_columns(result)
     ride_note = (
-        f"Ridden again over terrain realisation 1 of {run.realisations} (seed {run.plan.seed}), "
+        f"Ridden again over terrain realisation 1 of {realisations} (seed {seed}), "
         f"traces at {TRACE_RATE:.0f} samples per second."
     )
     if any(r.failure for r in rides):
@@ -386,11 +422,15 @@ def render_run_report(report: RunReport) -> str:
     return render("run", title=report.title, r=report, cautions=report.cautions)
 
 
-def write_run_report(run_dir: Path, ranks: Sequence[int] = (1,), exports: bool = True) -> Path:
-    """Write ``report.html`` (and the exports) into ``run_dir``; return the page's path."""
-    page = render_run_report(build_run_report(run_dir, ranks, exports))
-    path = run_dir / REPORT_FILE
+def write_page(folder: Path, report: RunReport) -> Path:
+    """Write ``report`` as ``folder/report.html`` (atomically); return its path."""
+    path = folder / REPORT_FILE
     tmp = path.with_suffix(".html.tmp")
-    tmp.write_text(page, encoding="utf-8")
+    tmp.write_text(render_run_report(report), encoding="utf-8")
     tmp.replace(path)
     return path
+
+
+def write_run_report(run_dir: Path, ranks: Sequence[int] = (1,), exports: bool = True) -> Path:
+    """Write ``report.html`` (and the exports) into ``run_dir``; return the page's path."""
+    return write_page(run_dir, build_run_report(run_dir, ranks, exports))

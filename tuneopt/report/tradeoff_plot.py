@@ -140,12 +140,14 @@ def draw_tradeoff(data: TradeoffData) -> Any:
                 edgecolor="k" if now else "tab:red",
                 lw=1.4,
             )
+            # the winner and the current setup carry readable labels; the other ranked setups
+            # often sit close to the winner, so theirs stay small
             ax.annotate(
                 label,
                 (pos[i], pos[j]),
                 xytext=(5, 4),
                 textcoords="offset points",
-                fontsize="small",
+                fontsize="small" if label in ("now", "#1") else "xx-small",
                 color="k" if now else "tab:red",
             )
         ax.set_xlabel(data.labels[i], fontsize="small")
