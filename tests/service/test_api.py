@@ -85,6 +85,13 @@ def test_malformed_bodies(client: TestClient) -> None:
     body = _problem(client.post("/jobs", content=huge, headers=headers), 413)
     assert "larger" in body["detail"]
 
+    def chunks() -> Iterator[bytes]:  # no Content-Length: counted as it arrives
+        for start in range(0, len(huge), 8192):
+            yield huge[start : start + 8192]
+
+    body = _problem(client.post("/jobs", content=chunks(), headers=headers), 413)
+    assert "larger" in body["detail"]
+
 
 def test_toml_upload_errors(client: TestClient) -> None:
     files = {"scenario": ("bike.toml", b"[rider\nmass = ", "application/toml")}

@@ -113,24 +113,21 @@ def test_result_before_the_end_is_a_conflict(client: TestClient) -> None:
 
 
 def test_cancel_stops_shards_and_keeps_what_finished(
-    client: TestClient, settings: Settings
+    client: TestClient, settings: Settings, monkeypatch: pytest.MonkeyPatch
 ) -> None:
     job_id = _submit(client, trials=400, shards=2, batch_size=4, realisations=1)
     _work(settings, max_jobs=1)  # the start part: study made, shards queued
-    store = JobStore(Redis.from_url(settings.redis_url.get_secret_value(), decode_responses=True))
-    # cancel from inside the run, after the first batch, as a client would while it runs
-    real = store.record_progress
+    # cancel from inside the run, right after the first batch is told, as a client would
+    report = JobStore.record_progress
+    cancels = []
 
-    def progress_then_cancel(job: str, shard: int, *args: Any) -> None:
-        real(job, shard, *args)
-        assert client.delete(f"/jobs/{job}").status_code == 202
+    def report_then_cancel(self: JobStore, job: str, *args: Any) -> None:
+        report(self, job, *args)
+        cancels.append(client.delete(f"/jobs/{job}").status_code)
 
-    original = JobStore.record_progress
-    JobStore.record_progress = lambda self, *a: progress_then_cancel(*a)  # type: ignore[method-assign]
-    try:
-        _work(settings)
-    finally:
-        JobStore.record_progress = original  # type: ignore[method-assign]
+    monkeypatch.setattr(JobStore, "record_progress", report_then_cancel)
+    _work(settings)
+    assert cancels and set(cancels) == {202}
     status = client.get(f"/jobs/{job_id}").json()
     assert status["state"] == "cancelled" and status["cancel_requested"]
     result = client.get(f"/jobs/{job_id}/result").json()
