@@ -4,6 +4,7 @@ and report served; cancel; deadline; a retried shard reaps what its predecessor 
 from __future__ import annotations
 
 import json
+import threading
 import time
 from collections.abc import Iterator
 from pathlib import Path
@@ -177,3 +178,29 @@ def test_retried_shard_reaps_its_dead_predecessors_trials(
     assert not [t for t in trials if t.state == TrialState.RUNNING]
     assert sum(t.state == TrialState.COMPLETE for t in trials) == 12
     assert tasks.rq_id(job_id, "shard-0").endswith("shard-0")
+
+
+def test_stopping_worker_hands_its_shard_back_to_the_queue(
+    client: TestClient, settings: Settings, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    monkeypatch.setattr(tasks, "_stopping", threading.Event())  # this test's own flag
+    job_id = _submit(client, trials=24, shards=1, batch_size=4, realisations=1)
+    _work(settings, max_jobs=1)  # start only
+    report = JobStore.record_progress
+    batches = []
+
+    def report_then_stop(self: JobStore, *args: Any) -> None:
+        report(self, *args)
+        batches.append(args)
+        if len(batches) == 1:
+            tasks.stop_shards()  # what a worker's warm shutdown does
+
+    monkeypatch.setattr(JobStore, "record_progress", report_then_stop)
+    _work(settings, max_jobs=1)  # the shard: one batch, then handed back
+    tasks._stopping.clear()
+    status = client.get(f"/jobs/{job_id}").json()
+    assert status["state"] == "running" and status["progress"]["finished"] == 4
+    assert any("ShardInterrupted" in e for e in status["errors"])
+    _work(settings)  # another worker takes the shard up and finishes the job
+    status = client.get(f"/jobs/{job_id}").json()
+    assert status["state"] == "done" and status["progress"]["finished"] == 24

@@ -6,12 +6,17 @@ environment itself.
 
 from __future__ import annotations
 
+import os
+from collections.abc import Mapping
 from pathlib import Path
 
-from pydantic import Field, SecretStr
+from pydantic import Field, SecretStr, ValidationError
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
-__all__ = ["Settings"]
+from tuneopt.model.errors import FieldProblem, InputError
+from tuneopt.model.loading import problems_from_validation
+
+__all__ = ["Settings", "load_settings"]
 
 
 class Settings(BaseSettings):
@@ -52,3 +57,30 @@ class Settings(BaseSettings):
         default=False, description="keep a finished job's study journal until the job is purged"
     )
     top: int = Field(default=5, ge=1, le=50, description="ranked setups in a result")
+
+
+def load_settings(environ: Mapping[str, str] | None = None) -> Settings:
+    """Read the settings from the environment once; a misspelt or invalid ``TUNEOPT_`` variable
+    is an error naming the variable, not a silent default."""
+    env = os.environ if environ is None else environ
+    known = {f"TUNEOPT_{name.upper()}" for name in Settings.model_fields}
+    problems = [
+        FieldProblem(name, "unknown setting (check the spelling)")
+        for name in sorted(env)
+        if name.upper().startswith("TUNEOPT_") and name.upper() not in known
+    ]
+    if problems:
+        raise InputError(problems, "environment")
+    try:
+        if environ is None:
+            return Settings()
+        values = {k[len("TUNEOPT_") :].lower(): v for k, v in env.items() if k.upper() in known}
+        return Settings.model_validate(values)
+    except ValidationError as exc:
+        raise InputError(
+            [
+                FieldProblem(f"TUNEOPT_{p.location.upper()}", p.message)
+                for p in problems_from_validation(exc)
+            ],
+            "environment",
+        ) from None

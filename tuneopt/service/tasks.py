@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import os
 import socket
+import threading
 import time
 from pathlib import Path
 from typing import Any
@@ -32,10 +33,12 @@ from tuneopt.optimise import (
     write_result,
 )
 from tuneopt.optimise.redis_storage import delete_study_keys, redis_storage
+from tuneopt.optimise.runner import count_finished
 from tuneopt.service.records import JobState, JobStore, is_job_id
 from tuneopt.service.settings import Settings
 
 __all__ = [
+    "ShardInterrupted",
     "configure",
     "enqueue_start",
     "finalise_job",
@@ -43,9 +46,22 @@ __all__ = [
     "rq_id",
     "run_shard_job",
     "start_job",
+    "stop_shards",
 ]
 
 _settings: Settings | None = None
+# set when this process's worker was asked to stop: shards stop between batches and go back to
+# the queue instead of holding the worker until their budget is spent
+_stopping = threading.Event()
+
+
+class ShardInterrupted(RuntimeError):
+    """A shard stopped early because its worker is shutting down; rq's retry queues it again."""
+
+
+def stop_shards() -> None:
+    """Ask the shard running in this process to stop after its current batch."""
+    _stopping.set()
 
 
 def configure(settings: Settings) -> None:
@@ -204,15 +220,25 @@ def run_shard_job(job_id: str, shard: int) -> int:
         store.record_progress(job_id, shard, p.finished, p.best_score, p.trials_per_minute)
 
     try:
-        return run_shard(
+        done = run_shard(
             study,
             plan,
             space,
             evaluator,
             shard,
-            should_stop=lambda: store.is_cancel_requested(job_id),
+            should_stop=lambda: _stopping.is_set() or store.is_cancel_requested(job_id),
             on_batch=report,
         )
+        if (
+            _stopping.is_set()
+            and not store.is_cancel_requested(job_id)
+            and (plan.deadline is None or time.time() < plan.deadline)
+            and count_finished(study) < (plan.trials or 0)
+        ):
+            raise ShardInterrupted(
+                f"worker stopping after {done} trials; the shard is queued again"
+            )
+        return done
     except Exception as exc:
         store.add_error(job_id, f"shard {shard}: {type(exc).__name__}: {exc}")
         try:  # this attempt is over: its in-flight trials go back to the queue of points

@@ -40,6 +40,11 @@ class ShardWorker(SimpleWorker):
         kwargs.setdefault("serializer", JSONSerializer)
         super().__init__(*args, **kwargs)
 
+    def handle_warm_shutdown_request(self) -> None:
+        # a shard may run for hours: stop it between batches and let another worker go on
+        tasks.stop_shards()
+        super().handle_warm_shutdown_request()
+
     def get_heartbeat_ttl(self, job: Job) -> int:
         return self.beat_ttl
 
