@@ -20,18 +20,13 @@ def register(sub: Any) -> None:
 
 def run(args: argparse.Namespace) -> int:
     import uvicorn
-    from pydantic import ValidationError
 
     from tuneopt.model.errors import InputError
-    from tuneopt.model.loading import problems_from_validation
     from tuneopt.service.api import create_app
-    from tuneopt.service.settings import Settings
+    from tuneopt.service.settings import load_settings
 
     if not 0 < args.port < 65536:
         raise InputError.single("--port", "must be between 1 and 65535")
-    try:
-        settings = Settings()
-    except ValidationError as exc:
-        raise InputError(problems_from_validation(exc, "TUNEOPT"), "environment") from None
+    settings = load_settings()
     uvicorn.run(create_app(settings), host=args.host, port=args.port, log_level="info")
     return 0

@@ -22,17 +22,10 @@ def register(sub: Any) -> None:
 def run(args: argparse.Namespace) -> int:
     import logging
 
-    from pydantic import ValidationError
-
-    from tuneopt.model.errors import InputError
-    from tuneopt.model.loading import problems_from_validation
-    from tuneopt.service.settings import Settings
+    from tuneopt.service.settings import load_settings
     from tuneopt.service.worker import make_worker
 
-    try:
-        settings = Settings()
-    except ValidationError as exc:
-        raise InputError(problems_from_validation(exc, "TUNEOPT"), "environment") from None
+    settings = load_settings()
     logging.basicConfig(level=logging.INFO, format="%(asctime)s %(name)s %(message)s")
     worker = make_worker(settings, name=args.name)
     worker.work(burst=args.burst, with_scheduler=False)
