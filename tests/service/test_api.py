@@ -79,6 +79,9 @@ def test_malformed_bodies(client: TestClient) -> None:
     body = _problem(client.post("/jobs", content=b'{"scenario": ', headers=headers), 400)
     assert "not valid JSON" in body["detail"]
     _problem(client.post("/jobs", content=b"[1, 2]", headers=headers), 422)
+    body = _problem(client.post("/jobs", content=b'{"trials": NaN}', headers=headers), 400)
+    assert "NaN" in body["detail"]
+    _problem(client.post("/jobs", content=b"[" * 20_000 + b"]" * 20_000, headers=headers), 400)
     _problem(client.post("/jobs", content=b"\xff\xfe", headers=headers), 400)
     _problem(client.post("/jobs", content=b"x=1", headers={"content-type": "text/plain"}), 415)
     huge = json.dumps({"scenario": small_scenario(), "pad": "x" * 100_000}).encode()

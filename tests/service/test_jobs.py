@@ -137,6 +137,17 @@ def test_cancel_stops_shards_and_keeps_what_finished(
     assert client.delete(f"/jobs/{job_id}").status_code == 204
 
 
+def test_cancel_before_the_start_ends_the_job_at_once(
+    client: TestClient, settings: Settings
+) -> None:
+    job_id = _submit(client, trials=8)
+    assert client.delete(f"/jobs/{job_id}").json()["cancel_requested"] is True
+    _work(settings)
+    assert client.get(f"/jobs/{job_id}").json()["state"] == "cancelled"
+    response = client.get(f"/jobs/{job_id}/result")
+    assert response.status_code == 409 and "cancelled" in response.json()["detail"]
+
+
 def test_deadline_finalises_with_the_best_so_far(client: TestClient, settings: Settings) -> None:
     job_id = _submit(client, trials=2000, run_seconds=3, shards=1, batch_size=4, realisations=1)
     started = time.monotonic()

@@ -253,6 +253,10 @@ def create_app(settings: Settings) -> FastAPI:
     return app
 
 
+def _refuse_constant(name: str) -> Any:
+    raise ValueError(f"{name} is not a JSON number")
+
+
 async def _read_body(request: Request) -> tuple[dict[str, Any], bool]:
     """The job's fields, and whether their types must match exactly (JSON) or may be read
     from text (form fields)."""
@@ -260,14 +264,18 @@ async def _read_body(request: Request) -> tuple[dict[str, Any], bool]:
     if kind == "application/json":
         body = await request.body()
         try:
-            data = json.loads(body)
-        except (json.JSONDecodeError, UnicodeDecodeError) as exc:
-            where = (
-                f" (line {exc.lineno}, column {exc.colno})"
-                if isinstance(exc, json.JSONDecodeError)
-                else ""
-            )
-            raise ProblemError(400, f"the body is not valid JSON{where}") from None
+            data = json.loads(body, parse_constant=_refuse_constant)
+        except json.JSONDecodeError as exc:
+            raise ProblemError(
+                400,
+                f"the body is not valid JSON: {exc.msg} (line {exc.lineno}, column {exc.colno})",
+            ) from None
+        except UnicodeDecodeError:
+            raise ProblemError(400, "the body is not valid JSON: it is not UTF-8 text") from None
+        except ValueError as exc:  # NaN or Infinity
+            raise ProblemError(400, f"the body is not valid JSON: {exc}") from None
+        except RecursionError:
+            raise ProblemError(400, "the body is not valid JSON: nested too deeply") from None
         if not isinstance(data, dict):
             raise InputError.single("", "the body must be a JSON object")
         return data, True
