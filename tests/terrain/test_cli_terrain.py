@@ -40,8 +40,12 @@ class _Scenario:
 
 
 COURSE = CourseSpec.model_validate(
-    {"surface": "wet", "length": "60 m", "seed": 3,
-     "mix": [{"terrain": "root_field", "share": 0.5}, {"terrain": "rock_garden", "share": 0.5}]}
+    {
+        "surface": "wet",
+        "length": "60 m",
+        "seed": 3,
+        "mix": [{"terrain": "root_field", "share": 0.5}, {"terrain": "rock_garden", "share": 0.5}],
+    }
 )
 
 
@@ -102,7 +106,6 @@ def test_unwritable_out_dir(tmp_path: Path) -> None:
     assert info.value.problems[0].location == "--out"
 
 
-
 def test_write_failure_names_the_out_dir(tmp_path: Path) -> None:
     (tmp_path / "segment_01_root_field.csv").mkdir()  # a folder where the file should go
     with pytest.raises(InputError) as info:
@@ -110,11 +113,11 @@ def test_write_failure_names_the_out_dir(tmp_path: Path) -> None:
     assert info.value.problems[0].location == "--out"
     assert "cannot write" in info.value.problems[0].message
 
+
 def test_command_line_reports_a_missing_scenario(tmp_path: Path, capsys) -> None:
     code = main(["terrain", str(tmp_path / "nope.toml"), "--out", str(tmp_path / "out")])
     assert code == 2
     assert "nope.toml" in capsys.readouterr().err
-
 
 
 SCENARIOS = sorted((Path(__file__).resolve().parents[2] / "scenarios").glob("*.toml"))
@@ -126,8 +129,12 @@ def test_each_demo_scenario_builds_its_course(path: Path) -> None:
     assert scenario.course is not None
     course = build_course(scenario.course, scenario.course.seed)
     for seg in course.segments:
-        wi = wheel_inputs(seg, scenario.front_tyre.outer_radius, scenario.rear_tyre.outer_radius,
-                          scenario.bike.wheelbase)
+        wi = wheel_inputs(
+            seg,
+            scenario.front_tyre.outer_radius,
+            scenario.rear_tyre.outer_radius,
+            scenario.bike.wheelbase,
+        )
         assert wi.front.shape == wi.rear.shape == seg.x.shape
 
 
@@ -147,11 +154,9 @@ def _demo_as_json(tmp_path: Path, course: dict) -> Path:
 
 
 def test_command_line_through_the_scenario_loader(tmp_path: Path, capsys) -> None:
-    course = {"surface": "wet", "length": "60 m",
-              "mix": [{"terrain": "root_field", "share": 1}]}
+    course = {"surface": "wet", "length": "60 m", "mix": [{"terrain": "root_field", "share": 1}]}
     out = tmp_path / "out"
-    code = main(["terrain", str(_demo_as_json(tmp_path, course)), "--out", str(out),
-                 "--seed", "2"])
+    code = main(["terrain", str(_demo_as_json(tmp_path, course)), "--out", str(out), "--seed", "2"])
     printed = capsys.readouterr().out
     assert code == 0, printed
     assert "seed 2" in printed and "surface wet" in printed

@@ -133,8 +133,9 @@ def test_braking_ends_where_the_corner_starts(wet_course) -> None:
 
 def test_smooth_hardpack_profile_is_in_its_iso_class() -> None:
     # [S] ISO 8608 class B: Gd(n0) between 32e-6 and 128e-6 m^3; Welch one-sided [S]
-    spec = CourseSpec.model_validate({"mix": [{"terrain": "smooth_hardpack", "share": 1}],
-                                      "length": "1000 m"})
+    spec = CourseSpec.model_validate(
+        {"mix": [{"terrain": "smooth_hardpack", "share": 1}], "length": "1000 m"}
+    )
     seg = build_course(spec, seed=2).segments[0]
     z = seg.z[seg.x > 10.0]
     n, p = welch(z, fs=1.0 / seg.dx, nperseg=16384, scaling="density")
@@ -149,8 +150,18 @@ def test_overrides_change_the_segment() -> None:
     plain = build_course(CourseSpec.model_validate({"mix": [base], "length": 100}), 3)
     tuned = build_course(
         CourseSpec.model_validate(
-            {"mix": [base | {"speed": "9 km/h", "feature_height": "30 cm", "friction": 0.5,
-                             "roughness": "B"}], "length": 100}
+            {
+                "mix": [
+                    base
+                    | {
+                        "speed": "9 km/h",
+                        "feature_height": "30 cm",
+                        "friction": 0.5,
+                        "roughness": "B",
+                    }
+                ],
+                "length": 100,
+            }
         ),
         3,
     )
@@ -169,8 +180,13 @@ def test_segments_feed_the_wheel_model(wet_course) -> None:
 
 def test_too_short_for_its_features_names_the_share() -> None:
     spec = CourseSpec.model_validate(
-        {"mix": [{"terrain": "jump_line", "share": 0.1}, {"terrain": "root_field", "share": 0.9}],
-         "length": "300 m"}
+        {
+            "mix": [
+                {"terrain": "jump_line", "share": 0.1},
+                {"terrain": "root_field", "share": 0.9},
+            ],
+            "length": "300 m",
+        }
     )
     with pytest.raises(InputError) as info:
         build_course(spec, 0)

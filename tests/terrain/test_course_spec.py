@@ -69,8 +69,9 @@ def test_shares_within_tolerance_are_rescaled_to_one() -> None:
 
 
 def test_shares_that_do_not_add_up() -> None:
-    found = _problems({"mix": [{"terrain": "root_field", "share": 0.4},
-                               {"terrain": "rock_garden", "share": 0.3}]})
+    found = _problems(
+        {"mix": [{"terrain": "root_field", "share": 0.4}, {"terrain": "rock_garden", "share": 0.3}]}
+    )
     assert "shares add up to 0.7 (0.4 + 0.3), not 1" in found["course.mix"]
 
 
@@ -91,7 +92,7 @@ def test_unknown_terrain_lists_the_known_ones() -> None:
         ({"speed": "0 km/h"}, "speed", "speed must be greater than 0"),
         ({"speed": "-3 m/s"}, "speed", "speed must be greater than 0"),
         ({"speed": "2 km/h"}, "speed", "below walking pace"),
-        ({"speed": 40}, "speed", "write e.g. \"25 km/h\""),
+        ({"speed": 40}, "speed", 'write e.g. "25 km/h"'),
         ({"speed": "20 mm"}, "speed", "expected a quantity in m/s"),
         ({"feature_height": "-5 cm"}, "feature_height", "greater than 0"),
         ({"feature_height": 0}, "feature_height", "greater than 0"),
@@ -131,8 +132,9 @@ def test_bad_course_fields(top: dict, where: str, text: str) -> None:
 
 
 def test_course_too_big_for_memory() -> None:
-    found = _problems({"mix": [{"terrain": "root_field", "share": 1}], "length": "20 km",
-                       "spacing": "0.5 mm"})
+    found = _problems(
+        {"mix": [{"terrain": "root_field", "share": 1}], "length": "20 km", "spacing": "0.5 mm"}
+    )
     assert "40 million samples, above the 20 million limit" in found["course"]
 
 

@@ -155,8 +155,9 @@ def test_any_text_gives_a_profile_or_a_named_error(rows: list[str], speed: bool)
     try:
         prof = parse_profile_csv(_csv(rows, header=header), dx=0.01)
     except InputError as exc:
-        assert exc.problems and all(p.location.startswith("line ") or p.location == ""
-                                    for p in exc.problems)
+        assert exc.problems and all(
+            p.location.startswith("line ") or p.location == "" for p in exc.problems
+        )
     else:
         assert isinstance(prof, MeasuredProfile)
         assert np.all(np.isfinite(prof.z)) and np.all(np.diff(prof.x) > 0)

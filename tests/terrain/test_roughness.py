@@ -19,8 +19,16 @@ from tuneopt.terrain import (
 N0 = 0.1  # [cycle/m] ISO 8608 reference spatial frequency [S]
 
 # ISO 8608:2016 class geometric means Gd(n0) [1e-6 m^3] [S]
-CLASS_MEANS = {"A": 16, "B": 64, "C": 256, "D": 1024, "E": 4096, "F": 16384, "G": 65536,
-               "H": 262144}
+CLASS_MEANS = {
+    "A": 16,
+    "B": 64,
+    "C": 256,
+    "D": 1024,
+    "E": 4096,
+    "F": 16384,
+    "G": 65536,
+    "H": 262144,
+}
 
 
 def _welch_fit(z: np.ndarray, dx: float, nperseg: int, fit_band: tuple[float, float]):
@@ -50,8 +58,9 @@ def test_welch_psd_matches_class(letter: str) -> None:
     # one-sided in m^3; [CP] tolerances: slope -2 +- 0.1, Gd(n0) +-20 % with >= 16 segments.
     dx, band = 0.05, (0.02, 5.0)
     mean = CLASS_MEANS[letter] * 1e-6
-    z = synthesise_profile(2**15, dx, Roughness.iso_class(letter), np.random.default_rng(11),
-                           band=band)
+    z = synthesise_profile(
+        2**15, dx, Roughness.iso_class(letter), np.random.default_rng(11), band=band
+    )
     slope, gd_n0, segments = _welch_fit(z, dx, nperseg=2048, fit_band=(0.05, 2.5))
     assert segments >= 16
     assert -2.1 <= slope <= -1.9
@@ -74,8 +83,7 @@ def test_welch_psd_at_course_spacing_and_default_band() -> None:
 def test_no_power_outside_the_band() -> None:
     # [D] the synthesis is band-limited: above n_max the Welch PSD falls by orders of magnitude
     dx, band = 0.05, (0.02, 2.0)
-    z = synthesise_profile(2**15, dx, Roughness.iso_class("D"), np.random.default_rng(2),
-                           band=band)
+    z = synthesise_profile(2**15, dx, Roughness.iso_class("D"), np.random.default_rng(2), band=band)
     n, p = welch(z, fs=1.0 / dx, nperseg=2048, scaling="density")
     above = n > 4.0
     assert np.all(p[above] < 1e-3 * psd(n[above], Roughness.iso_class("D")))
@@ -121,8 +129,12 @@ def test_same_generator_state_same_profile_bit_for_bit() -> None:
     ],
 )
 def test_bad_synthesis_arguments(kwargs: dict, message: str) -> None:
-    args = {"n_samples": 100, "dx": 0.005, "roughness": Roughness.iso_class("C"),
-            "rng": np.random.default_rng(0)} | kwargs
+    args = {
+        "n_samples": 100,
+        "dx": 0.005,
+        "roughness": Roughness.iso_class("C"),
+        "rng": np.random.default_rng(0),
+    } | kwargs
     with pytest.raises(ValueError, match=message):
         synthesise_profile(**args)
 

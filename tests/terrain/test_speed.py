@@ -26,8 +26,9 @@ def test_single_corner_matches_the_kinematics() -> None:
     dx, v0, vc, a = 0.005, 10.0, 5.0, 4.0
     x = np.arange(0, 200.0, dx)
     brake = (v0**2 - vc**2) / (2 * a)
-    ev = CornerEvent(brake_start=50.0, entry=50.0 + brake, exit=70.0 + brake, radius=8.0,
-                     speed=vc, decel=a)
+    ev = CornerEvent(
+        brake_start=50.0, entry=50.0 + brake, exit=70.0 + brake, radius=8.0, speed=vc, decel=a
+    )
     prof = speed_profile(x, v0, (ev,))
     zone = (x >= ev.brake_start) & (x < ev.entry)
     assert_allclose(prof.speed[zone] ** 2, v0**2 - 2 * a * (x[zone] - ev.brake_start), rtol=1e-9)
@@ -38,8 +39,9 @@ def test_single_corner_matches_the_kinematics() -> None:
     assert_allclose(prof.speed[corner], vc)
     assert np.all(prof.curvature[corner] == 1 / 8.0) and np.all(prof.curvature[~corner] == 0)
     after = (x >= ev.exit) & (x < ev.exit + 10.0)
-    assert_allclose(prof.speed[after] ** 2, vc**2 + 2 * ACCELERATION * (x[after] - ev.exit),
-                    rtol=1e-9)
+    assert_allclose(
+        prof.speed[after] ** 2, vc**2 + 2 * ACCELERATION * (x[after] - ev.exit), rtol=1e-9
+    )
     assert_allclose(prof.speed[x < ev.brake_start - dx], v0)
 
 
@@ -47,22 +49,23 @@ def test_corner_speed_and_braking_follow_the_grip() -> None:
     # [D] lateral v^2 / r <= GRIP_USE mu g (GRIP_USE: common practice, no source); braking
     # deceleration capped at the same limit; distance from the braking point to the corner is
     # (v0^2 - v_c^2) / (2 a)
-    corners = Corners(gap=Spread(10, 30), radius=Spread(3, 12), arc=Spread(5, 10),
-                      decel=Spread(3.0, 8.0))
+    corners = Corners(
+        gap=Spread(10, 30), radius=Spread(3, 12), arc=Spread(5, 10), decel=Spread(3.0, 8.0)
+    )
     for mu in (0.3, 0.8):
         events = place_corners(corners, 9.0, mu, 5.0, 2000.0, np.random.default_rng(1))
         assert len(events) > 20
         for ev in events:
             assert ev.speed == pytest.approx(min(9.0, math.sqrt(GRIP_USE * mu * G * ev.radius)))
             assert ev.decel <= GRIP_USE * mu * G + 1e-12
-            assert ev.entry - ev.brake_start == pytest.approx(
-                (81.0 - ev.speed**2) / (2 * ev.decel))
+            assert ev.entry - ev.brake_start == pytest.approx((81.0 - ev.speed**2) / (2 * ev.decel))
             assert 5.0 <= ev.brake_start and ev.exit <= 2000.0
 
 
 def test_wet_corners_are_slower() -> None:
-    corners = Corners(gap=Spread(20, 20), radius=Spread(6, 6), arc=Spread(5, 5),
-                      decel=Spread(3.0, 3.0))
+    corners = Corners(
+        gap=Spread(20, 20), radius=Spread(6, 6), arc=Spread(5, 5), decel=Spread(3.0, 3.0)
+    )
     dry = place_corners(corners, 9.0, 0.8, 0.0, 500.0, np.random.default_rng(0))
     wet = place_corners(corners, 9.0, 0.3, 0.0, 500.0, np.random.default_rng(0))
     assert wet[0].speed < dry[0].speed
@@ -71,7 +74,8 @@ def test_wet_corners_are_slower() -> None:
 
 @pytest.mark.parametrize(("v0", "mu", "message"), [(0.0, 0.5, "speed"), (5.0, 0.0, "friction")])
 def test_bad_corner_arguments(v0: float, mu: float, message: str) -> None:
-    corners = Corners(gap=Spread(20, 20), radius=Spread(6, 6), arc=Spread(5, 5),
-                      decel=Spread(3.0, 3.0))
+    corners = Corners(
+        gap=Spread(20, 20), radius=Spread(6, 6), arc=Spread(5, 5), decel=Spread(3.0, 3.0)
+    )
     with pytest.raises(ValueError, match=message):
         place_corners(corners, v0, mu, 0.0, 100.0, np.random.default_rng(0))

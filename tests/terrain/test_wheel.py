@@ -162,8 +162,9 @@ def test_envelope_bad_input(args: tuple, message: str) -> None:
         rolling_envelope(*args)
 
 
-def _flat_then_step(dx: float = 0.005, length: float = 10.0, edge: float = 6.0,
-                    h: float = 0.1) -> Segment:
+def _flat_then_step(
+    dx: float = 0.005, length: float = 10.0, edge: float = 6.0, h: float = 0.1
+) -> Segment:
     n = int(round(length / dx)) + 1
     x = np.arange(n) * dx
     z = np.where(x >= edge - 1e-9, h, 0.0)
