@@ -6,6 +6,7 @@ from __future__ import annotations
 import json
 import threading
 import time
+import zlib
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
@@ -215,3 +216,48 @@ def test_stopping_worker_hands_its_shard_back_to_the_queue(
     _work(settings)  # another worker takes the shard up and finishes the job
     status = client.get(f"/jobs/{job_id}").json()
     assert status["state"] == "done" and status["progress"]["finished"] == 24
+
+
+def test_shards_that_fail_for_good_still_end_the_job_with_their_errors(
+    client: TestClient, settings: Settings, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    once = settings.model_copy(update={"shard_retries": 1})
+    job_id = _submit(client, trials=8, shards=2)
+    _work(once, max_jobs=1)  # start: shards queued with one retry each
+
+    def broken(*args: Any, **kwargs: Any) -> int:
+        raise RuntimeError("simulator out of memory")
+
+    monkeypatch.setattr(tasks, "run_shard", broken)
+    _work(once)
+    status = client.get(f"/jobs/{job_id}").json()
+    assert status["state"] == "failed", status
+    shard_errors = [e for e in status["errors"] if "simulator out of memory" in e]
+    assert len(shard_errors) == 4  # two shards, each tried twice
+    assert any("no feasible setup finished" in e for e in status["errors"])
+    result = client.get(f"/jobs/{job_id}/result").json()
+    assert result["stopped"] == "shards failed" and result["ranked"] == []
+
+
+def test_the_api_writes_no_pickle_to_redis(client: TestClient, settings: Settings) -> None:
+    _submit(client, trials=8)
+    redis = Redis.from_url(settings.redis_url.get_secret_value())
+    values: list[bytes] = []
+    for key in redis.scan_iter():
+        kind = redis.type(key)
+        if kind == b"string":
+            values.append(redis.get(key))  # type: ignore[arg-type]
+        elif kind == b"hash":
+            values += list(redis.hgetall(key).values())  # type: ignore[union-attr]
+        elif kind == b"list":
+            values += redis.lrange(key, 0, -1)  # type: ignore[operator]
+        elif kind == b"zset":
+            values += [m for m, _ in redis.zrange(key, 0, -1, withscores=True)]  # type: ignore[union-attr]
+        elif kind == b"set":
+            values += list(redis.smembers(key))  # type: ignore[arg-type]
+    assert values
+    assert not [v for v in values if v.startswith(b"\x80")]  # pickle's protocol marker
+    jobs = [k for k in redis.scan_iter(match="rq:job:*") if redis.type(k) == b"hash"]
+    assert jobs
+    for key in jobs:
+        json.loads(zlib.decompress(redis.hget(key, "data")))  # type: ignore[arg-type]
