@@ -135,3 +135,33 @@ def test_scores_of_the_same_setup_repeat_exactly(small_scenario: Scenario) -> No
     evaluator = Evaluator(small_scenario, seed=4, realisations=1)
     a, b = evaluator.evaluate([small_scenario.setup, small_scenario.setup])
     assert a.score == b.score and np.isfinite(a.score)  # type: ignore[arg-type]
+
+
+def test_a_live_run_cannot_be_resumed_twice(small_scenario: Scenario, tmp_path: Path) -> None:
+    from tuneopt.model import InputError
+    from tuneopt.optimise.local import _exclusive, load_run, run_local, start_run
+
+    start_run(small_scenario, tmp_path, StudyPlan("study", trials=4, batch_size=4), 1)
+    with _exclusive(tmp_path):  # as held by a running process
+        with pytest.raises(InputError, match="in use by process"):
+            run_local(load_run(tmp_path))
+
+
+def test_a_trial_reaped_while_running_is_dropped_not_fatal() -> None:
+    study = optuna.create_study(direction="minimize")
+    plan = StudyPlan("r", trials=4, batch_size=4, seed=2)
+    dists = {"x": IntDistribution(0, 9)}
+
+    calls = []
+
+    def evaluate(points: list[dict[str, int]]) -> list[Outcome]:
+        if not calls:
+            reap_stale_trials(study)  # another process takes the first batch for dead
+        calls.append(len(points))
+        return [Outcome(float(p["x"])) for p in points]
+
+    run_shard(study, plan, dists, evaluate)
+    states = [t.state for t in study.trials]
+    assert calls == [4, 4]  # the re-enqueued points ran in a second batch
+    assert states.count(TrialState.COMPLETE) == 4
+    assert all(t.user_attrs.get("reaped") for t in study.trials if t.state == TrialState.FAIL)

@@ -101,6 +101,16 @@ def _arguments(args: argparse.Namespace) -> None:
         raise InputError([FieldProblem(loc, msg) for loc, msg in problems])
 
 
+def _stop_on_sigterm() -> None:
+    """SIGTERM (a service manager, kill) stops like Ctrl-C: between batches, nothing lost."""
+    import signal
+
+    def handler(signum: int, frame: Any) -> None:
+        raise KeyboardInterrupt
+
+    signal.signal(signal.SIGTERM, handler)
+
+
 def run(args: argparse.Namespace) -> int:
     from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 
@@ -110,6 +120,7 @@ def run(args: argparse.Namespace) -> int:
     from tuneopt.report.run_report import write_run_report
 
     _arguments(args)
+    _stop_on_sigterm()
     if args.sampler not in SAMPLERS:
         raise InputError.single("--sampler", f"choose from {', '.join(SAMPLERS)}")
     deadline = parse_deadline(args.until) if args.until else None

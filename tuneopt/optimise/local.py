@@ -6,10 +6,13 @@ the journal), so an interrupted run continues where it stopped with ``resume``.
 
 from __future__ import annotations
 
+import fcntl
 import json
 import multiprocessing as mp
+import os
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any
@@ -98,6 +101,28 @@ def load_run(out: Path, trials: int | None = None, deadline: float | None = None
     )
 
 
+@contextmanager
+def _exclusive(out: Path) -> Iterator[None]:
+    """Hold the run folder's lock: a second process resuming a live run would reap its trials."""
+    with open(out / "run.lock", "a+") as handle:
+        try:
+            fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            handle.seek(0)
+            holder = handle.read().strip() or "another process"
+            raise InputError.single(
+                "--resume", f"{out} is in use by process {holder}; wait for it or stop it first"
+            ) from None
+        handle.seek(0)
+        handle.truncate()
+        handle.write(str(os.getpid()))
+        handle.flush()
+        try:
+            yield
+        finally:
+            fcntl.flock(handle, fcntl.LOCK_UN)
+
+
 def _shard_process(run: LocalRun, shard: int, stop: Any) -> int:
     space = build_space(run.scenario)
     evaluator = Evaluator(run.scenario, run.plan.seed, run.realisations)
@@ -114,6 +139,13 @@ def run_local(
 
     KeyboardInterrupt stops the shards between batches (a second one at once); what finished
     is kept and ``resume`` continues."""
+    with _exclusive(run.out):
+        return _run_locked(run, on_progress, top)
+
+
+def _run_locked(
+    run: LocalRun, on_progress: Callable[[Progress], None] | None, top: int
+) -> Ranking:
     space = build_space(run.scenario)
     storage = run.storage()
     study = create_study(storage, run.plan, space, space.indices(run.scenario.setup))

@@ -159,6 +159,14 @@ def reap_stale_trials(study: optuna.Study, owner_prefix: str = "") -> int:
 
 
 def _tell(study: optuna.Study, trial: optuna.Trial, outcome: Outcome) -> None:
+    try:
+        _tell_outcome(study, trial, outcome)
+    except optuna.exceptions.UpdateFinishedTrialError:
+        # another process took this trial for dead and reaped it; its point was enqueued again
+        log.warning("trial %d was reaped while it ran; its result is dropped", trial.number)
+
+
+def _tell_outcome(study: optuna.Study, trial: optuna.Trial, outcome: Outcome) -> None:
     trial.set_user_attr("sag", outcome.sag)
     if outcome.ok:
         trial.set_user_attr("terms", outcome.terms)
