@@ -31,21 +31,14 @@ def run(args: argparse.Namespace) -> int:
     from tuneopt.optimise.result import CAUTIONS, json_safe
     from tuneopt.sim import simulate_halfcar
     from tuneopt.sim.build import halfcar_params
-    from tuneopt.sim.ride import prepare_course
-    from tuneopt.terrain import build_course
+    from tuneopt.sim.ride import prepare_scenario_course
 
     scenario = load_scenario(args.scenario)
     if scenario.course is None:
         raise InputError.single("course", "missing: nothing to ride")
     setup = _baseline(args.setup, scenario) if args.setup else scenario.setup
     seed = args.seed if args.seed is not None else scenario.course.seed
-    course = build_course(scenario.course, seed)
-    prepared = prepare_course(
-        course,
-        scenario.front_tyre.outer_radius,
-        scenario.rear_tyre.outer_radius,
-        scenario.bike.wheelbase,
-    )
+    prepared = prepare_scenario_course(scenario, seed)
     params = halfcar_params(scenario, [setup])
     args.out.mkdir(parents=True, exist_ok=True)
     rows = []

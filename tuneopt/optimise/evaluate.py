@@ -15,8 +15,7 @@ from tuneopt.model import InputError, Scenario, Setup
 from tuneopt.optimise.score import score_terms, total_score
 from tuneopt.physics import static_check
 from tuneopt.sim.build import halfcar_params
-from tuneopt.sim.ride import PreparedCourse, prepare_course, ride_course
-from tuneopt.terrain import build_course
+from tuneopt.sim.ride import PreparedCourse, prepare_scenario_course, ride_course
 
 __all__ = ["Evaluator", "Outcome"]
 
@@ -51,14 +50,7 @@ class Evaluator:
         self.scenario = scenario
         self.seed = scenario.course.seed if seed is None else seed
         self.courses: tuple[PreparedCourse, ...] = tuple(
-            prepare_course(
-                build_course(scenario.course, self.seed + k),
-                scenario.front_tyre.outer_radius,
-                scenario.rear_tyre.outer_radius,
-                scenario.bike.wheelbase,
-                dt,
-            )
-            for k in range(realisations)
+            prepare_scenario_course(scenario, self.seed + k, dt) for k in range(realisations)
         )
 
     @property

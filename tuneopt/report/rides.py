@@ -16,8 +16,7 @@ from numpy.typing import NDArray
 from tuneopt.model import Scenario, Setup
 from tuneopt.sim import simulate_halfcar
 from tuneopt.sim.build import halfcar_params
-from tuneopt.sim.ride import prepare_course
-from tuneopt.terrain import build_course
+from tuneopt.sim.ride import prepare_scenario_course
 
 __all__ = ["SegmentTrace", "SetupRide", "ride_setups"]
 
@@ -77,16 +76,7 @@ def ride_setups(
 ) -> tuple[SetupRide, ...]:
     """Ride ``setups`` (one batch) over the course built from ``seed``; traces at about
     ``trace_rate`` [Hz]."""
-    if scenario.course is None:
-        raise ValueError("the scenario has no course to ride")
-    course = build_course(scenario.course, seed)
-    prepared = prepare_course(
-        course,
-        scenario.front_tyre.outer_radius,
-        scenario.rear_tyre.outer_radius,
-        scenario.bike.wheelbase,
-        dt,
-    )
+    prepared = prepare_scenario_course(scenario, seed, dt)
     params = halfcar_params(scenario, list(setups))
     per_setup: list[list[SegmentTrace]] = [[] for _ in setups]
     results = []

@@ -12,12 +12,19 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
+from tuneopt.model import Scenario
 from tuneopt.sim.halfcar import HalfCarResult, simulate_halfcar
 from tuneopt.sim.params import HalfCarParams
 from tuneopt.sim.road import RoadInput, road_input_from_wheel_inputs
-from tuneopt.terrain import Course, wheel_inputs
+from tuneopt.terrain import Course, build_course, wheel_inputs
 
-__all__ = ["CourseMetrics", "PreparedCourse", "prepare_course", "ride_course"]
+__all__ = [
+    "CourseMetrics",
+    "PreparedCourse",
+    "prepare_course",
+    "prepare_scenario_course",
+    "ride_course",
+]
 
 FloatArray = NDArray[np.float64]
 
@@ -47,6 +54,19 @@ def prepare_course(
     )
     weights = np.array([seg.weight for seg in course.segments], dtype=float)
     return PreparedCourse(roads, weights / weights.sum(), tuple(s.terrain for s in course.segments))
+
+
+def prepare_scenario_course(scenario: Scenario, seed: int, dt: float = 1e-3) -> PreparedCourse:
+    """The scenario's course built from ``seed``, as its bike's wheels see it."""
+    if scenario.course is None:
+        raise ValueError("the scenario has no course to ride")
+    return prepare_course(
+        build_course(scenario.course, seed),
+        scenario.front_tyre.outer_radius,
+        scenario.rear_tyre.outer_radius,
+        scenario.bike.wheelbase,
+        dt,
+    )
 
 
 # Metrics aggregated as the mix-weighted mean of the segments' values. Each is (B,).
