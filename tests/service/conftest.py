@@ -142,12 +142,12 @@ def settings(redis_client: Redis, redis_server: RedisServer, tmp_path: Path) -> 
     return make_settings(redis_server.url, tmp_path / "results")
 
 
-def small_scenario() -> dict[str, Any]:
-    """The demo trail bike on a 40 m course: a batch of setups simulates in a blink."""
+def small_scenario(length: str = "40 m") -> dict[str, Any]:
+    """The demo trail bike on a short course (40 m: a batch of setups simulates in a blink)."""
     data = scenario_data("trail_air")
     data["course"] = {
         "surface": "dry",
-        "length": "40 m",
+        "length": length,
         "seed": 5,
         "mix": [
             {"terrain": "smooth_hardpack", "share": 0.5},

@@ -18,7 +18,9 @@ import optuna
 import pytest
 from fastapi.testclient import TestClient
 from optuna.trial import TrialState
+from redis import Redis
 from redis.exceptions import RedisError
+from rq import Worker
 
 from tests.service.conftest import RedisServer, small_scenario
 from tuneopt.optimise.redis_storage import redis_storage
@@ -64,6 +66,15 @@ class Workers:
         self.history.append(proc)
         return proc
 
+    def wait_registered(self, redis_url: str, count: int) -> None:
+        """Wait until ``count`` workers are listening, so that every one gets a shard."""
+        redis = Redis.from_url(redis_url)
+        started = time.monotonic()
+        while len(Worker.all(connection=redis)) < count:
+            if time.monotonic() - started > LIMIT:
+                pytest.fail(f"{count} workers did not start within {LIMIT:.0f} s")
+            time.sleep(0.1)
+
     def stop_all(self) -> None:
         for proc in self.history:
             if proc.poll() is None:
@@ -85,11 +96,12 @@ def workers(settings: Settings, tmp_path: Path) -> Iterator[Workers]:
         group.stop_all()
 
 
-def _submit(settings: Settings, **fields: object) -> str:
+def _submit(settings: Settings, length: str = "40 m", **fields: object) -> str:
     with TestClient(create_app(settings)) as client:
         assert settings.api_key is not None
         client.headers["X-API-Key"] = settings.api_key.get_secret_value()
-        response = client.post("/jobs", json={"scenario": small_scenario(), **fields})
+        body = {"scenario": small_scenario(length), **fields}
+        response = client.post("/jobs", json=body)
         assert response.status_code == 202, response.text
         return str(response.json()["id"])
 
@@ -111,15 +123,24 @@ def _complete(study: optuna.Study) -> int:
 def test_worker_killed_mid_job_loses_no_trial_and_the_job_finishes(
     settings: Settings, redis_client: object, workers: Workers
 ) -> None:
+    """SIGKILL a worker while its trials run. The kill is timed by polling, so now and then it
+    lands between two of the worker's batches and leaves nothing running: then the checks of
+    what was reaped have nothing to check (the in-process test of a retried shard covers them
+    every time) and the rest still must hold."""
     store = JobStore(redis_client)  # type: ignore[arg-type]
-    budget = 40
-    job_id = _submit(settings, trials=budget, shards=2, batch_size=4, realisations=1)
+    budget = 48
     victim = workers.start("victim")
     workers.start("survivor")
+    workers.wait_registered(settings.redis_url.get_secret_value(), 2)
+    # a longer course makes a batch's simulation, not its bookkeeping, most of a shard's time,
+    # so that the kill lands while trials are running
+    job_id = _submit(settings, "400 m", trials=budget, shards=2, batch_size=4, realisations=1)
     started = time.monotonic()
     study = None
     counts: list[int] = []
-    killed_owner = None
+    killed: list[str] = []  # owners (host:pid:shard) killed
+    left: set[int] = set()  # their trials still RUNNING just after the kill
+    pids: set[int] = set()
     while time.monotonic() - started < LIMIT:
         record = store.get(job_id)
         assert record is not None
@@ -131,14 +152,22 @@ def test_worker_killed_mid_job_loses_no_trial_and_the_job_finishes(
             running = study.get_trials(deepcopy=False, states=(TrialState.RUNNING,))
             owners = {str(t.user_attrs.get("owner", "")) for t in running}
             mine = [o for o in owners if f":{victim.pid}:" in o]
-            if killed_owner is None and counts[-1] >= 8 and mine:
-                victim.send_signal(signal.SIGKILL)  # mid-batch: its trials are RUNNING
+            if not killed and counts[-1] >= 8 and mine:
+                victim.send_signal(signal.SIGKILL)
                 victim.wait(timeout=10)
-                killed_owner = mine[0]
+                pids.add(victim.pid)
+                killed.append(mine[0])
+                study = _study(settings, store, job_id)  # what the dead worker left behind
+                assert study is not None
+                left = {
+                    t.number
+                    for t in study.get_trials(deepcopy=False, states=(TrialState.RUNNING,))
+                    if t.user_attrs.get("owner") == mine[0]
+                }
         time.sleep(0.2)
     else:
         pytest.fail(f"the job did not end within {LIMIT:.0f} s")
-    assert killed_owner is not None, "the worker was never caught mid-batch"
+    assert killed, "the worker was never caught with trials running"
     record = store.get(job_id)
     assert record is not None and record.state.value == "done", record
     assert study is not None
@@ -150,14 +179,22 @@ def test_worker_killed_mid_job_loses_no_trial_and_the_job_finishes(
     # by at most one batch each
     assert budget <= count_finished(study) <= budget + 4
     reaped = [t for t in trials if t.user_attrs.get("reaped")]
-    assert reaped and all(t.user_attrs["owner"] == killed_owner for t in reaped)
-    # every reaped point was asked again and finished
+    print(f"left running by the killed worker: {sorted(left)}; reaped: {len(reaped)}")
+    assert left <= {t.number for t in reaped}
+    assert all(t.state == TrialState.FAIL for t in reaped)
+    # besides its tagged trials, a dead worker may have left one it had asked for but not yet
+    # tagged with its name; the finaliser reaps that one and finishes the budget itself
+    assert all(t.user_attrs.get("owner") in (*killed, None) for t in reaped)
+    # every reaped point was asked again and finished (a trial killed while its settings were
+    # still being drawn has only some of them: it is asked again with those and new draws)
     done_points = {
         tuple(sorted(t.params.items())) for t in trials if t.state == TrialState.COMPLETE
     }
-    assert all(tuple(sorted(t.params.items())) in done_points for t in reaped)
-    owners = {str(t.user_attrs.get("owner", "")).split(":")[1] for t in trials}
-    assert str(victim.pid) in owners and len(owners) >= 2  # both workers did trials
+    whole = [t for t in reaped if len(t.params) == len(study.user_attrs["parameters"])]
+    assert whole or not left
+    assert all(tuple(sorted(t.params.items())) in done_points for t in whole)
+    owners = {str(t.user_attrs["owner"]).split(":")[1] for t in trials if "owner" in t.user_attrs}
+    assert pids & {int(o) for o in owners} and len(owners) >= 2  # killed and living did trials
 
 
 def test_redis_restart_mid_job_keeps_every_completed_trial(
@@ -167,10 +204,11 @@ def test_redis_restart_mid_job_keeps_every_completed_trial(
     lose their connection for good exit; the test restarts them, as a supervisor would."""
     store = JobStore(redis_client)  # type: ignore[arg-type]
     budget = 40
-    job_id = _submit(settings, trials=budget, shards=2, batch_size=4, realisations=1)
     names = ["one", "two"]
     for name in names:
         workers.start(name)
+    workers.wait_registered(settings.redis_url.get_secret_value(), 2)
+    job_id = _submit(settings, trials=budget, shards=2, batch_size=4, realisations=1)
     restarts = 0
     started = time.monotonic()
     study = None

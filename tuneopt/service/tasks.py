@@ -187,7 +187,7 @@ def start_job(job_id: str) -> str:
             depends_on=Dependency(jobs=shards, allow_failure=True),
             retry=Retry(max=2),
             on_failure=Callback("tuneopt.service.tasks.job_failed"),
-            job_timeout=3600,
+            job_timeout=int(run_seconds) + 3600,
             result_ttl=86400,
             failure_ttl=7 * 86400,
         )
@@ -267,10 +267,32 @@ def finalise_job(job_id: str) -> str:
     reap_stale_trials(study)  # every shard has ended: nothing left RUNNING has an owner
     request = record.request
     evaluator = Evaluator(scenario, int(request["seed"]), int(request["realisations"]))
-    ranking = rank_study(study, space, evaluator, top=settings.top)
-    cancelled = store.is_cancel_requested(job_id)
     deadline = record.deadline or 0.0
     budget = record.budget
+    topped_up = 0
+    if (
+        budget is not None
+        and not store.is_cancel_requested(job_id)
+        and time.time() < deadline
+        and count_finished(study) < budget
+    ):
+        # shards ended short of the budget (one failed for good, or counted a trial that its
+        # dead owner never tagged as running): finish the budget here, as one more shard
+        plan = _plan(job_id, request, deadline)
+        try:
+            topped_up = run_shard(
+                study,
+                plan,
+                space,
+                evaluator,
+                int(request["shards"]),
+                should_stop=lambda: store.is_cancel_requested(job_id),
+            )
+        except Exception as exc:  # rank what finished rather than lose it
+            store.add_error(job_id, f"finaliser: {type(exc).__name__}: {exc}")
+            reap_stale_trials(study)
+    ranking = rank_study(study, space, evaluator, top=settings.top)
+    cancelled = store.is_cancel_requested(job_id)
     if cancelled:
         stopped = "cancelled"
     elif budget is not None and ranking.finished >= budget:
@@ -290,6 +312,7 @@ def finalise_job(job_id: str) -> str:
         "budget": budget,
         "stopped": stopped,
         "shards": record.request["shards"],
+        "finished_by_finaliser": topped_up,
         "workers": [o for o in owners if o],
         "simulated_seconds_per_setup": evaluator.simulated_seconds,
         "parameters": [p.name for p in space.parameters],
