@@ -5,7 +5,7 @@ BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 DEMO ?= scenarios/trail_air.toml
 
-.PHONY: demo test lint typecheck unit bench clean
+.PHONY: demo test lint typecheck unit bench clean reliability
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -28,6 +28,12 @@ unit: $(STAMP)
 	$(BIN)/python -m pytest -q
 
 test: lint typecheck unit
+
+# The reliability suite at full size (bad input fuzzing, limits property); make test runs it small.
+FUZZ_EXAMPLES ?= 2000
+reliability: $(STAMP)
+	TUNEOPT_FUZZ_EXAMPLES=$(FUZZ_EXAMPLES) $(BIN)/python -m pytest tests/reliability -q \
+		--hypothesis-show-statistics
 
 bench: $(STAMP)
 	$(BIN)/tuneopt bench

@@ -8,7 +8,7 @@ import json
 import sys
 from typing import Any
 
-from tuneopt.model import load_scenario
+from tuneopt.model import InputError, load_scenario
 from tuneopt.model._quantity import convert
 from tuneopt.physics.static_check import StaticCheck, static_check
 
@@ -37,7 +37,10 @@ def as_dict(check: StaticCheck) -> dict[str, Any]:
 
 def run(args: argparse.Namespace) -> int:
     scenario = load_scenario(args.scenario)
-    check = static_check(scenario)
+    try:
+        check = static_check(scenario)
+    except InputError as exc:  # an impossible setup: name the file, as load_scenario does
+        raise InputError(exc.problems, args.scenario) from None
     if args.json:
         json.dump(as_dict(check), sys.stdout, indent=2)
         print()

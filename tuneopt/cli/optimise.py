@@ -91,6 +91,13 @@ def _arguments(args: argparse.Namespace) -> None:
         problems.append(("--batch", "must be at least 1"))
     if args.realisations < 1:
         problems.append(("--realisations", "must be at least 1"))
+    if args.top < 1:
+        problems.append(("--top", "must be at least 1"))
+    if args.seed is not None and args.seed < 0:
+        # checked here, not when the course is built: by then the output folder is written
+        problems.append(("--seed", f"must be a whole number >= 0, got {args.seed}"))
+    if args.out is not None and args.out.exists() and not args.out.is_dir():
+        problems.append(("--out", f"{args.out} is a file, not a folder"))
     if args.resume is None and (args.scenario is None or args.out is None):
         problems.append(("scenario", "give SCENARIO and --out DIR, or --resume DIR"))
     if args.resume is not None and args.scenario is not None:
@@ -141,7 +148,10 @@ def run(args: argparse.Namespace) -> int:
             seed=seed,
             sampler=args.sampler,
         )
-        local = start_run(scenario, args.out, plan, args.realisations, args.workers, baseline)
+        try:
+            local = start_run(scenario, args.out, plan, args.realisations, args.workers, baseline)
+        except OSError as exc:  # a parent that is a file, no permission, disk full
+            raise InputError.single("--out", f"cannot write {args.out}: {exc.strerror}") from None
     with Progress(
         TextColumn("[bold]optimising"),
         BarColumn(),

@@ -50,7 +50,10 @@ def parse_quantity(value: Any, si_unit: str, *, bare_unit: str | None = None) ->
     if isinstance(value, bool):
         raise ValueError("expected a number or a quantity with a unit, got a boolean")
     if isinstance(value, int | float):
-        number = float(value)
+        try:
+            number = float(value)
+        except OverflowError:  # an integer beyond any float
+            raise ValueError("must be a finite number (this one is too large)") from None
         if bare_unit is not None and bare_unit != si_unit:
             number = float(_registry().Quantity(number, bare_unit).to(si_unit).magnitude)
     elif isinstance(value, str):

@@ -136,8 +136,8 @@ class MixEntry(BaseModel):
                 )
             return letter
         if isinstance(value, int | float):
-            number = float(value)
-            if not math.isfinite(number) or number <= 0:
+            number = float(value) if value < MAX_GD else math.inf  # a huge int is not a float
+            if math.isnan(number) or number <= 0:
                 raise ValueError(f"roughness Gd(n0) must be greater than 0, got {value}")
             if number > MAX_GD:
                 raise ValueError(

@@ -9,6 +9,7 @@ from __future__ import annotations
 import csv
 import io
 import json
+import math
 import tomllib
 from pathlib import Path
 from typing import Any
@@ -27,8 +28,20 @@ _MESSAGES = {
 }
 
 
+# A scenario is a few kilobytes and a dyno table a few thousand lines; anything far larger is
+# the wrong file, and reading it whole would only cost memory and time.
+MAX_SCENARIO_BYTES = 1_000_000
+MAX_TABLE_BYTES = 5_000_000
+# Scenarios nest four or five tables deep; parsers and validators recurse, so cap it well before
+# Python's recursion limit.
+MAX_DEPTH = 32
+
+
 # Branch names that pydantic puts in the path of a discriminated union (``spring.kind``).
 _UNION_TAGS = {"air", "coil"}
+_ADJUSTERS = ("lsc", "hsc", "lsr", "hsr")
+_NESTED = "arrays or tables nested too deeply"
+_MAX_REPORTED = 20
 
 
 def _location(loc: tuple[Any, ...]) -> str:
@@ -60,17 +73,34 @@ def problems_from_validation(exc: ValidationError, prefix: str = "") -> list[Fie
         if msg.startswith("Value error, "):
             msg = msg[len("Value error, ") :]
         if err["type"] in ("float_type", "float_parsing") and "input" in err:
-            msg = f"expected a number or a quantity with a unit, got {err['input']!r}"
+            msg = f"expected a number or a quantity with a unit, got {_shown(err['input'])}"
         # a union reports one error per branch; keep the first, most specific one per field
         seen.setdefault(loc, msg)
     return [FieldProblem(loc, msg) for loc, msg in seen.items()]
 
 
+def _shown(value: Any, limit: int = 60) -> str:
+    """A short repr of a user's value for a message (junk can be megabytes long)."""
+    try:
+        text = repr(value)
+    except ValueError:  # an int too long to print
+        text = f"a {type(value).__name__} too long to show"
+    return text if len(text) <= limit else text[: limit - 3] + "..."
+
+
 def parse_damper_csv(text: str, source: str) -> dict[str, Any]:
     """Read a dyno table: header ``adjuster,click,velocity,force``; the velocity and force
-    headers may carry a unit in brackets (``velocity [m/s]``, ``force [lbf]``), else SI."""
+    headers may carry a unit in brackets (``velocity [m/s]``, ``force [lbf]``), else SI.
+    Each row is checked here, so that a bad reading is reported with its line number."""
+    text = text.removeprefix("\ufeff")  # spreadsheets save "CSV UTF-8" with a byte-order mark
     reader = csv.reader(io.StringIO(text))
-    rows = [(n, r) for n, r in enumerate(reader, start=1) if r and any(c.strip() for c in r)]
+    rows = []
+    try:
+        for row in reader:
+            if row and any(c.strip() for c in row):
+                rows.append((reader.line_num, row))
+    except csv.Error as exc:  # NUL bytes, a field beyond the csv module's size limit
+        raise InputError.single(f"{source}:{reader.line_num}", f"cannot read: {exc}") from None
     if not rows:
         raise InputError.single(source, "the damper table is empty")
     header = [c.strip() for c in rows[0][1]]
@@ -88,31 +118,64 @@ def parse_damper_csv(text: str, source: str) -> dict[str, Any]:
             raise InputError.single(f"{source}:1", str(exc)) from None
     points = []
     problems = []
+    last: dict[tuple[str, int], float] = {}
     for line, row in rows[1:]:
         if len(row) != 4:
             problems.append(FieldProblem(f"{source}:{line}", f"expected 4 columns, got {len(row)}"))
             continue
+        where = f"{source}:{line}"
+        adjuster = row[0].strip().lower()
         try:
             click = int(row[1])
             velocity = float(row[2]) * units[0]
             force = float(row[3]) * units[1]
         except ValueError:
-            problems.append(FieldProblem(f"{source}:{line}", f"cannot read numbers in {row}"))
+            problems.append(FieldProblem(where, f"cannot read numbers in {_shown(row)}"))
             continue
-        if velocity != velocity or force != force:
-            problems.append(FieldProblem(f"{source}:{line}", "NaN in the row"))
-            continue
-        points.append(
-            {
-                "adjuster": row[0].strip().lower(),
-                "click": click,
-                "velocity": velocity,
-                "force": force,
-            }
-        )
+        if adjuster not in _ADJUSTERS:
+            problems.append(
+                FieldProblem(where, f"adjuster {_shown(adjuster)} is not one of lsc, hsc, lsr, hsr")
+            )
+        elif not (math.isfinite(velocity) and math.isfinite(force)):
+            problems.append(FieldProblem(where, "velocity and force must be finite numbers"))
+        elif click < 0 or velocity <= 0 or force < 0:
+            problems.append(
+                FieldProblem(
+                    where,
+                    "click must be 0 or more, velocity greater than 0 and force 0 or more "
+                    "(magnitudes in the adjuster's direction)",
+                )
+            )
+        elif velocity <= last.get((adjuster, click), -math.inf):
+            problems.append(
+                FieldProblem(where, f"{adjuster} click {click}: velocities must increase")
+            )
+        else:
+            last[(adjuster, click)] = velocity
+            points.append(
+                {"adjuster": adjuster, "click": click, "velocity": velocity, "force": force}
+            )
     if problems:
-        raise InputError(problems)
+        raise InputError(problems[:_MAX_REPORTED] + _more(len(problems)))
     return {"points": points, "source": source}
+
+
+def _more(count: int) -> list[FieldProblem]:
+    if count <= _MAX_REPORTED:
+        return []
+    return [FieldProblem("", f"... and {count - _MAX_REPORTED} more problems")]
+
+
+def _read_text(path: Path, limit: int) -> str:
+    """The file's text; OSError or ValueError (not UTF-8, too large) with a plain reason."""
+    with path.open("rb") as handle:
+        data = handle.read(limit + 1)
+    if len(data) > limit:
+        raise ValueError(f"larger than the {limit // 1_000_000} MB limit (is it the right file?)")
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError:
+        raise ValueError("not a UTF-8 text file") from None
 
 
 def _attach_tables(data: dict[str, Any], base_dir: Path | None) -> list[FieldProblem]:
@@ -126,11 +189,14 @@ def _attach_tables(data: dict[str, Any], base_dir: Path | None) -> list[FieldPro
         if not isinstance(name, str) or base_dir is None:
             problems.append(FieldProblem(where, "must be a CSV file name next to the scenario"))
             continue
-        path = (base_dir / name).resolve()
+        label = name if name.isprintable() and len(name) <= 80 else _shown(name)
         try:
-            text = path.read_text(encoding="utf-8")
+            text = _read_text((base_dir / name).resolve(), MAX_TABLE_BYTES)
         except OSError as exc:
-            problems.append(FieldProblem(where, f"cannot read {name}: {exc.strerror}"))
+            problems.append(FieldProblem(where, f"cannot read {label}: {exc.strerror}"))
+            continue
+        except ValueError as exc:  # a NUL in the name, not UTF-8, too large
+            problems.append(FieldProblem(where, f"cannot read {label}: {exc}"))
             continue
         try:
             damper["measured"] = parse_damper_csv(text, name)
@@ -145,6 +211,9 @@ def scenario_from_data(
     """Validate a parsed scenario (dict from TOML or JSON). Raises InputError."""
     if not isinstance(data, dict):
         raise InputError.single("", "a scenario must be a table/object at the top level", source)
+    deep = _too_deep(data)
+    if deep is not None:
+        raise InputError.single(deep, f"nested more than {MAX_DEPTH} levels deep", source)
     data = json.loads(json.dumps(data, default=str))  # a private, plain copy we may edit
     problems = _attach_tables(data, base_dir)
     if problems:
@@ -157,6 +226,20 @@ def scenario_from_data(
     if problems:
         raise InputError(problems, source)
     return scenario
+
+
+def _too_deep(data: Any) -> str | None:
+    """The path of the first value nested deeper than MAX_DEPTH, or None (no recursion here)."""
+    stack: list[tuple[Any, str, int]] = [(data, "", 0)]
+    while stack:
+        value, path, depth = stack.pop()
+        if depth > MAX_DEPTH:
+            return path
+        if isinstance(value, dict):
+            stack += [(v, f"{path}.{k}" if path else str(k), depth + 1) for k, v in value.items()]
+        elif isinstance(value, list | tuple):
+            stack += [(v, f"{path}[{i}]", depth + 1) for i, v in enumerate(value)]
+    return None
 
 
 def _merge(base: dict[str, Any], override: dict[str, Any]) -> dict[str, Any]:
@@ -174,10 +257,10 @@ def _read_data(p: Path, source: str, seen: tuple[Path, ...] = ()) -> dict[str, A
     """A scenario file's data, with ``base = "other.toml"`` resolved: the file then only says
     what differs from the other one (a wet variant of a dry scenario, say)."""
     try:
-        text = p.read_text(encoding="utf-8")
+        text = _read_text(p, MAX_SCENARIO_BYTES)
     except FileNotFoundError:
         raise InputError.single("", "no such file", source) from None
-    except (OSError, UnicodeDecodeError) as exc:
+    except (OSError, ValueError) as exc:
         raise InputError.single("", f"cannot read the file: {exc}", source) from None
     if p.suffix.lower() == ".json":
         try:
@@ -186,11 +269,17 @@ def _read_data(p: Path, source: str, seen: tuple[Path, ...] = ()) -> dict[str, A
             raise InputError.single(
                 f"line {exc.lineno}", f"not valid JSON: {exc.msg}", source
             ) from None
+        except ValueError as exc:  # an integer of thousands of digits
+            raise InputError.single("", f"not valid JSON: {exc}", source) from None
+        except RecursionError:
+            raise InputError.single("", f"not valid JSON: {_NESTED}", source) from None
     else:
         try:
             data = tomllib.loads(text)
-        except tomllib.TOMLDecodeError as exc:
+        except ValueError as exc:  # TOMLDecodeError, or an integer of thousands of digits
             raise InputError.single("", f"not valid TOML: {exc}", source) from None
+        except RecursionError:
+            raise InputError.single("", f"not valid TOML: {_NESTED}", source) from None
     if not isinstance(data, dict) or "base" not in data:
         return data
     base_name = data.pop("base")

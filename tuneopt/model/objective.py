@@ -104,5 +104,11 @@ class Search(Strict):
     tyre_pressures: bool = Field(False, description="search tyre pressures too")
     fork_sag: SagWindow | None = SagWindow(low=12, high=35)
     shock_sag: SagWindow | None = SagWindow(low=20, high=40)
-    pressure_step: Pressure = Field(6894.757, gt=0, description="pump resolution, default 1 psi")
-    tyre_pressure_step: Pressure = Field(5000.0, gt=0, description="default 0.05 bar")
+    # lower bounds keep the number of dialable values finite (0.1 psi; 0.01 bar)
+    # 1 psi to the last bit as the unit library converts it, so that k steps equal "k psi"
+    # exactly: a step a hair short put the grid's first value one psi above a whole-psi
+    # pressure_min, so the hardware's lowest pressure was never searched
+    pressure_step: Pressure = Field(
+        6894.7572931683635, ge=689.4757, description="pump resolution, default 1 psi"
+    )
+    tyre_pressure_step: Pressure = Field(5000.0, ge=1000.0, description="default 0.05 bar")

@@ -35,6 +35,14 @@ class Scenario(Strict):
     search: Search = Search()
 
 
+def _within(value: float, low: float, high: float) -> bool:
+    """``low <= value <= high`` up to float rounding: the optimiser's pressure grid (k pump
+    steps of "5 psi") can land one bit beside the same pressure parsed from "65 psi", and its
+    setups must pass this check when given back as a baseline."""
+    slack = 1e-12 * max(abs(low), abs(high))
+    return low - slack <= value <= high + slack
+
+
 def _psi(pascal: float) -> float:
     return convert(pascal, "Pa", "psi")
 
@@ -52,7 +60,7 @@ def _end_problems(
             bad("rate", "this end has an air spring: give pressure and spacers, not a rate")
         if s.pressure is None:
             bad("pressure", "missing: the air spring needs a pressure")
-        elif not spring.pressure_min <= s.pressure <= spring.pressure_max:
+        elif not _within(s.pressure, spring.pressure_min, spring.pressure_max):
             bad(
                 "pressure",
                 f"{_psi(s.pressure):.1f} psi ({convert(s.pressure, 'Pa', 'bar'):.2f} bar) is "
@@ -104,7 +112,7 @@ def setup_problems(scenario: Scenario, setup: Setup, where: str = "setup") -> li
     for end in ("front", "rear"):
         tyre: Tyre = getattr(scenario, f"{end}_tyre")
         p = getattr(setup, f"{end}_tyre_pressure")
-        if not tyre.pressure_min <= p <= tyre.pressure_max:
+        if not _within(p, tyre.pressure_min, tyre.pressure_max):
             out.append(
                 FieldProblem(
                     f"{where}.{end}_tyre_pressure",

@@ -11,6 +11,10 @@ from tuneopt.model._quantity import Length, Pressure, Stiffness, Volume
 
 __all__ = ["AirSpring", "CoilSpring", "NegativeChamber", "Spring"]
 
+MAX_SPACERS = 20  # far more than any air chamber holds; bounds the arithmetic on counts
+MAX_PRESSURE = 7e6  # [Pa] about 1000 psi, beyond any bicycle air spring
+MAX_RATES = 1000  # a coil rate range finer than this is a step in the wrong unit
+
 
 class NegativeChamber(Strict):
     """Negative air chamber, pushing the piston towards compression.
@@ -29,10 +33,10 @@ class AirSpring(Strict):
     piston_diameter: Length = Field(gt=0, lt=0.1)
     volume: Volume = Field(gt=0, description="positive chamber at full extension, no spacers")
     pressure_min: Pressure = Field(ge=0)
-    pressure_max: Pressure = Field(gt=0)
+    pressure_max: Pressure = Field(gt=0, le=MAX_PRESSURE)
     spacer_volume: Volume = Field(0.0, ge=0)
-    spacers_min: int = Field(0, ge=0)
-    spacers_max: int = Field(0, ge=0)
+    spacers_min: int = Field(0, ge=0, le=MAX_SPACERS)
+    spacers_max: int = Field(0, ge=0, le=MAX_SPACERS)
     negative: NegativeChamber | None = None
     polytropic_index: float = Field(
         1.3, ge=1.0, le=1.4, description="during riding (close to adiabatic)"
@@ -55,7 +59,7 @@ class CoilSpring(Strict):
     """Coil spring. Available rates as an explicit list, or as a range with a step."""
 
     kind: Literal["coil"] = "coil"
-    rates: list[Stiffness] | None = Field(None, min_length=1)
+    rates: list[Stiffness] | None = Field(None, min_length=1, max_length=MAX_RATES)
     rate_min: Stiffness | None = Field(None, gt=0)
     rate_max: Stiffness | None = Field(None, gt=0)
     rate_step: Stiffness | None = Field(None, gt=0)
@@ -73,6 +77,11 @@ class CoilSpring(Strict):
             raise ValueError("give rates, or all of rate_min, rate_max and rate_step")
         elif self.rate_min >= self.rate_max:  # type: ignore[operator]
             raise ValueError("rate range inverted: rate_min must be below rate_max")
+        elif (self.rate_max - self.rate_min) / self.rate_step > MAX_RATES:  # type: ignore[operator]
+            raise ValueError(
+                f"rate_step gives more than {MAX_RATES} rates between rate_min and rate_max; "
+                "is the step in the right unit?"
+            )
         return self
 
     def available_rates(self) -> list[float]:

@@ -12,6 +12,8 @@ from tuneopt.model._quantity import Damping, Length, Pressure, Stiffness
 
 __all__ = ["StiffnessPoint", "Tyre", "parse_tyre_size"]
 
+MAX_TYRE_PRESSURE = 1e6  # [Pa] 10 bar, above any bicycle tyre's limit
+
 # Bead seat diameters of the nominal sizes [m] (ISO 5775 / ETRTO; from memory).
 _BEAD_SEAT = {"26": 0.559, "27.5": 0.584, "650b": 0.584, "29": 0.622}
 
@@ -46,7 +48,7 @@ class Tyre(Strict):
 
     size: str
     pressure_min: Pressure = Field(gt=0)
-    pressure_max: Pressure = Field(gt=0)
+    pressure_max: Pressure = Field(gt=0, le=MAX_TYRE_PRESSURE)
     stiffness: Literal["estimate"] | list[StiffnessPoint] = "estimate"
     damping: Damping = Field(100.0, ge=0, description="radial damping [N s/m]; small")
     rim_strike_deflection: Length | None = Field(

@@ -16,12 +16,16 @@ from pathlib import Path
 import numpy as np
 from numpy.typing import NDArray
 
+from tuneopt.model.course import MAX_SAMPLES
 from tuneopt.model.errors import FieldProblem, InputError
 from tuneopt.terrain.course import LEAD_IN, Segment, read_only
 
 __all__ = ["MeasuredProfile", "parse_profile_csv", "read_profile_csv", "segment_from_profile"]
 
 _MAX_REPORTED = 20
+# About a million samples (5 km at 5 mm): a larger file is most likely the wrong one,
+# and reading it whole would only cost memory and time.
+MAX_PROFILE_BYTES = 20_000_000
 
 
 @dataclass(frozen=True)
@@ -55,6 +59,7 @@ def parse_profile_csv(
     for name, value in (("dx", dx), ("max_gap", max_gap), ("max_spike", max_spike)):
         if not (value > 0 and math.isfinite(value)):
             raise InputError.single(name, f"must be a positive number of metres, got {value!r}")
+    text = text.removeprefix("\ufeff")  # spreadsheets save "CSV UTF-8" with a byte-order mark
     problems: list[FieldProblem] = []
     columns: list[str] | None = None
     header_line = 0
@@ -140,6 +145,17 @@ def parse_profile_csv(
     if total < dx:
         raise InputError([_problem(lines[-1], f"profile is {total:g} m long, shorter than dx")],
                          source)
+    if total / dx > MAX_SAMPLES:
+        raise InputError(
+            [
+                _problem(
+                    lines[-1],
+                    f"profile is {total:g} m long: at dx = {dx:g} m that is more than the "
+                    f"{MAX_SAMPLES / 1e6:.0f} million samples a course may have",
+                )
+            ],
+            source,
+        )
     n = int(math.floor(total / dx + 1e-9)) + 1
     xs = np.arange(n, dtype=np.float64) * dx
     zs = np.interp(xs, x - x[0], z)
@@ -164,6 +180,10 @@ def read_profile_csv(
     """Read a CSV file into a profile; see parse_profile_csv. Errors name the file and line."""
     path = Path(path)
     try:
+        if path.stat().st_size > MAX_PROFILE_BYTES:
+            raise InputError.single(
+                "path", f"{path} is larger than the {MAX_PROFILE_BYTES // 1_000_000} MB limit"
+            )
         text = path.read_text(encoding="utf-8")
     except OSError as exc:
         raise InputError.single("path", f"cannot read {path}: {exc.strerror or exc}") from None
