@@ -22,6 +22,7 @@ _COMMANDS = (
     "report",
     "serve",
     "worker",
+    "submit",
 )
 
 

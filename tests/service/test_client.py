@@ -1,0 +1,101 @@
+"""tuneopt submit / status / result against the real API over loopback HTTP, and the compose
+file's commands against the project's real entry points."""
+
+from __future__ import annotations
+
+import json
+import socket
+import threading
+import time
+from collections.abc import Iterator
+from pathlib import Path
+
+import pytest
+import uvicorn
+import yaml
+
+from tests.conftest import write_toml
+from tests.service.conftest import small_scenario
+from tuneopt.cli import build_parser, main
+from tuneopt.service.api import create_app
+from tuneopt.service.settings import Settings
+from tuneopt.service.worker import make_worker
+
+ROOT = Path(__file__).resolve().parents[2]
+
+
+@pytest.fixture
+def api(settings: Settings, monkeypatch: pytest.MonkeyPatch) -> Iterator[str]:
+    """The API served by uvicorn on a free loopback port, for the length of one test."""
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        port = s.getsockname()[1]
+    server = uvicorn.Server(
+        uvicorn.Config(create_app(settings), host="127.0.0.1", port=port, log_level="warning")
+    )
+    thread = threading.Thread(target=server.run, daemon=True)
+    thread.start()
+    deadline = time.monotonic() + 20
+    while not server.started:
+        assert time.monotonic() < deadline, "the API did not start"
+        time.sleep(0.05)
+    assert settings.api_key is not None
+    monkeypatch.setenv("TUNEOPT_API_KEY", settings.api_key.get_secret_value())
+    try:
+        yield f"http://127.0.0.1:{port}"
+    finally:
+        server.should_exit = True
+        thread.join(timeout=10)
+
+
+def test_submit_status_and_result_over_http(
+    api: str, settings: Settings, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    scenario = tmp_path / "small.toml"
+    scenario.write_text(write_toml(small_scenario()))
+    assert main(["submit", str(scenario), "--api", api, "--trials", "8", "--seed", "3"]) == 0
+    job = capsys.readouterr().out.split()[-1]
+    make_worker(settings, name="client-test").work(burst=True)
+    assert main(["status", job, "--api", api]) == 0
+    assert "done" in capsys.readouterr().out
+    assert main(["result", job, "--api", api, "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["ranked"] and len(data["cautions"]) == 4
+    assert main(["result", job, "--api", api]) == 0
+    assert "score (lower is better)" in capsys.readouterr().out
+
+
+def test_client_errors_are_clear(
+    api: str, tmp_path: Path, capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch
+) -> None:
+    assert main(["status", "0" * 32, "--api", api]) == 1
+    assert "404" in capsys.readouterr().err
+    monkeypatch.setenv("TUNEOPT_API_KEY", "wrong")
+    assert main(["status", "0" * 32, "--api", api]) == 1
+    assert "401" in capsys.readouterr().err
+    scenario = tmp_path / "small.toml"
+    scenario.write_text(write_toml(small_scenario()))
+    monkeypatch.delenv("TUNEOPT_API_KEY")
+    assert main(["submit", str(scenario), "--api", "http://127.0.0.1:9"]) == 1
+    assert "cannot reach the job service" in capsys.readouterr().err
+
+
+def test_compose_file_runs_the_real_entry_points() -> None:
+    compose = yaml.safe_load((ROOT / "docker-compose.yml").read_text())
+    services = compose["services"]
+    redis = " ".join(services["redis"]["command"])
+    for setting in (
+        "--appendonly yes",
+        "--appendfsync everysec",
+        "--maxmemory-policy noeviction",
+        "--requirepass",
+    ):
+        assert setting in redis
+    assert "ports" not in services["redis"]  # only the api and the workers reach it
+    parser = build_parser()
+    for name, expected in (("api", "serve"), ("worker", "worker")):
+        command = services[name]["command"][-1]
+        tail = command.split("exec tuneopt ", 1)[1].split()
+        assert tail[0] == expected
+        args = parser.parse_args(tail)  # the command exists with these options
+        assert args.command == expected
