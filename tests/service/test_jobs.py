@@ -77,13 +77,15 @@ def test_submitted_job_runs_to_a_ranked_result_equal_to_a_local_run(
         [r["score"] for r in result["ranked"]], rel=1e-9
     )
 
-    # the report is another developer's file: served when it is there, a clear 404 before
-    missing = client.get(f"/jobs/{job_id}/report")
-    assert missing.status_code == 404 and "report" in missing.json()["detail"]
-    (folder / "report.html").write_text("<html><body>report</body></html>")
+    # the finaliser wrote the HTML report beside the result; the API serves that file, and a
+    # clear 404 once it is gone
     served = client.get(f"/jobs/{job_id}/report")
     assert served.status_code == 200 and served.headers["content-type"].startswith("text/html")
-    assert "report" in served.text
+    assert served.text == (folder / "report.html").read_text(encoding="utf-8")
+    assert scenario_from_data(small_scenario()).name in served.text
+    (folder / "report.html").unlink()
+    missing = client.get(f"/jobs/{job_id}/report")
+    assert missing.status_code == 404 and "report" in missing.json()["detail"]
 
     listed = client.get("/jobs").json()["jobs"]
     assert [j["id"] for j in listed] == [job_id]

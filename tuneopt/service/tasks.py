@@ -323,6 +323,7 @@ def finalise_job(job_id: str) -> str:
     out.mkdir(parents=True, exist_ok=True)
     write_result(out, ranking, info)
     store.set_result(job_id, data)
+    _write_report(store, job_id, out, scenario, data, study)
     if cancelled:
         state = JobState.CANCELLED
     elif ranking.ranked:
@@ -334,6 +335,29 @@ def finalise_job(job_id: str) -> str:
     if not settings.keep_studies:  # the result holds what the study was for
         delete_study_keys(redis, store.study_prefix(job_id))
     return state.value
+
+
+def _write_report(
+    store: JobStore, job_id: str, out: Path, scenario: Scenario, data: dict[str, Any], study: Any
+) -> None:
+    """The HTML report beside the result; a report that fails is an error on the job, not a
+    lost result."""
+    if not data.get("ranked"):
+        return
+    from tuneopt.report.run_report import report_of, trial_metrics, write_page
+
+    try:
+        report = report_of(
+            scenario,
+            data,
+            int(data["seed"]),
+            int(data["realisations"]),
+            trial_metrics(study),
+            export_dir=out / "exports",
+        )
+        write_page(out, report)
+    except Exception as exc:  # noqa: BLE001  the result is written already
+        store.add_error(job_id, f"report: {type(exc).__name__}: {exc}")
 
 
 def result_folder(results_dir: Path, job_id: str) -> Path:
