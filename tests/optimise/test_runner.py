@@ -165,3 +165,13 @@ def test_a_trial_reaped_while_running_is_dropped_not_fatal() -> None:
     assert calls == [4, 4]  # the re-enqueued points ran in a second batch
     assert states.count(TrialState.COMPLETE) == 4
     assert all(t.user_attrs.get("reaped") for t in study.trials if t.state == TrialState.FAIL)
+
+
+def test_untagged_running_trials_are_reaped_once_old() -> None:
+    # a process killed between asking a trial and tagging it with its owner
+    study = optuna.create_study(direction="minimize")
+    dists = {"x": IntDistribution(0, 9)}
+    study.ask(dists)
+    assert reap_stale_trials(study, owner_prefix="host:1:") == 0  # young: maybe still tagging
+    assert reap_stale_trials(study, owner_prefix="host:1:", untagged_after=0.0) == 1
+    assert [t.state for t in study.trials] == [TrialState.FAIL, TrialState.WAITING]

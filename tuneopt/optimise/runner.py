@@ -12,6 +12,7 @@ trials left RUNNING by a killed process are failed and their points enqueued aga
 
 from __future__ import annotations
 
+import datetime
 import logging
 import os
 import socket
@@ -29,6 +30,7 @@ from tuneopt.optimise.space import SearchSpace
 
 __all__ = [
     "INFEASIBLE_PENALTY",
+    "UNTAGGED_AFTER",
     "ask_batch",
     "SAMPLERS",
     "Progress",
@@ -141,14 +143,30 @@ def create_study(
     return study
 
 
-def reap_stale_trials(study: optuna.Study, owner_prefix: str = "") -> int:
+# A trial is tagged with its owner just after it is asked; one still untagged after this long
+# was asked by a process that died in between [s].
+UNTAGGED_AFTER = 60.0
+
+
+def reap_stale_trials(
+    study: optuna.Study, owner_prefix: str = "", untagged_after: float = UNTAGGED_AFTER
+) -> int:
     """Fail trials left RUNNING (their process died) and enqueue their points again.
 
     Call it only where no live shard can own a RUNNING trial (before a local run starts, or
-    for the trials of one dead owner, named by ``owner_prefix``)."""
+    for the trials of one dead owner, named by ``owner_prefix``). Trials that never got an
+    owner are reaped too once they are ``untagged_after`` seconds old."""
     reaped = 0
+    now = datetime.datetime.now()
     for t in study.get_trials(deepcopy=False, states=(TrialState.RUNNING,)):
-        if not str(t.user_attrs.get("owner", "")).startswith(owner_prefix):
+        owner = t.user_attrs.get("owner")
+        if owner is None:
+            started = t.datetime_start
+            if owner_prefix and (
+                started is None or (now - started).total_seconds() < untagged_after
+            ):
+                continue
+        elif not str(owner).startswith(owner_prefix):
             continue
         study._storage.set_trial_user_attr(t._trial_id, "reaped", True)
         study.tell(t.number, state=TrialState.FAIL, skip_if_finished=True)
