@@ -131,4 +131,8 @@ def broken_scenarios(draw: st.DrawFn, max_changes: int = 3) -> tuple[str, dict[s
         else:
             value = draw(junk)
         apply(data, path, action, value)
+    if draw(st.integers(0, 7)) == 0:  # a base file to start from (read only from files)
+        names = st.sampled_from(["scenario.json", "scenario.toml", "nope.toml", "", ".",
+                                 "/dev/null", "enduro_shock_dyno.csv", "a\x00b"])  # fmt: skip
+        data["base"] = draw(st.one_of(names, junk))
     return name, data

@@ -216,3 +216,23 @@ def test_no_range_holds_millions_of_dialable_values(
     with pytest.raises(InputError) as info:
         scenario_from_data(data)
     assert location in {p.location for p in info.value.problems}, info.value
+
+
+@pytest.mark.parametrize(
+    ("base", "fragment"),
+    [
+        ("a\u0000b.toml", "must be the file name of another scenario"),
+        ("", "must be the file name of another scenario"),
+        (7, "must be the file name of another scenario"),
+        ("missing.toml", "no such scenario file"),
+        ("big.toml", "larger than the 1 MB limit"),
+        ("sub", "Is a directory"),
+    ],
+)
+def test_a_bad_base_file_is_named(tmp_path: Path, base: object, fragment: str) -> None:
+    (tmp_path / "sub").mkdir()
+    with (tmp_path / "big.toml").open("wb") as f:
+        f.truncate(MAX_SCENARIO_BYTES + 1)
+    path = tmp_path / "wet.json"
+    path.write_text(json.dumps({"base": base, "name": "wet"}))
+    assert fragment in _outcome(path)

@@ -30,13 +30,15 @@ ROOT = Path(__file__).resolve().parents[2]
 PROBLEM_LINE = re.compile(r"^  - (.+?): (.+)$")
 
 
-def _head(location: str) -> str:
-    return re.split(r"[.\[ ]", location, maxsplit=1)[0]
-
-
 def _names_a_field(location: str, data: dict[str, Any]) -> bool:
-    """The location starts at a field of the scenario (or at a key the input has)."""
-    return bool(location) and (_head(location) in Scenario.model_fields or _head(location) in data)
+    """The location starts at a field of the scenario, or at a key the input has (shown
+    escaped, and cut short, when it holds control characters)."""
+    if not location:
+        return False
+    fields = [*Scenario.model_fields, *(str(k) for k in data)]
+    if any(location == f or location.startswith((f + ".", f + "[", f + " (")) for f in fields):
+        return True
+    return any(location.startswith(repr(str(k))[:50]) for k in data)
 
 
 def _check_in_process(path: Path) -> tuple[int, str]:
@@ -97,7 +99,7 @@ def test_check_command_exits_cleanly(case: tuple[str, dict[str, Any]], as_toml: 
     assert code in (0, 1, 2), (code, err)
     assert "Traceback" not in err
     if code == 2:
-        lines = err.splitlines()
+        lines = err.rstrip("\n").split("\n")  # not splitlines: keys may hold \x1e or \x85
         assert lines[0].startswith(f"{path}: ") and "problem" in lines[0], err
         problems = [PROBLEM_LINE.match(line) for line in lines[1:]]
         assert problems and all(problems), err
@@ -154,3 +156,30 @@ def test_nan_reaches_no_number_field() -> None:
         with pytest.raises(InputError) as info:
             scenario_from_data(broken)
         assert [p.location for p in info.value.problems] == [f"{table}.{key}"]
+
+
+def test_a_key_with_control_characters_is_shown_escaped() -> None:
+    # "\x1e" and "\u2028" end a line for str.splitlines(); raw, they would break the message
+    data = scenario_data("trail_air")
+    data["rider"]["\x1e"] = 1
+    data["a\u2028b"] = 1
+    with pytest.raises(InputError) as info:
+        scenario_from_data(data)
+    assert {p.location for p in info.value.problems} == {"rider.'\\x1e'", "'a\\u2028b'"}
+    assert len(str(info.value).splitlines()) == 3
+
+
+@pytest.mark.parametrize(
+    ("name", "column"),
+    [("enduro_coil", "shock_stroke"), ("trail_air", "ratio")],
+)
+def test_a_leverage_table_far_out_of_scale_is_named(tmp_path: Path, name: str, column: str) -> None:
+    # found by the fuzzing: wheel travel 1e9 times too long divided by zero in the leverage
+    # curve, and the check then blamed the spring
+    data = scenario_data(name)
+    data["shock"]["leverage"]["wheel_travel"][-1] *= 1e9
+    path = _write(tmp_path, data, as_toml=True)
+    assert path is not None
+    code, err = _check_in_process(path)
+    assert code == 2 and "Traceback" not in err
+    assert "  - shock.leverage: " in err, err

@@ -58,6 +58,8 @@ def _location(loc: tuple[Any, ...]) -> str:
             or (text[:1].isupper() and isinstance(item, str))
         ):
             continue
+        if not text.isprintable():  # a key with control characters: show it escaped
+            text = _shown(text)
         parts.append(f"[{text}]" if isinstance(item, int) else text)
     return ".".join(parts).replace(".[", "[")
 
@@ -283,14 +285,25 @@ def _read_data(p: Path, source: str, seen: tuple[Path, ...] = ()) -> dict[str, A
     if not isinstance(data, dict) or "base" not in data:
         return data
     base_name = data.pop("base")
-    if not isinstance(base_name, str):
+    if not isinstance(base_name, str) or not base_name.strip() or "\x00" in base_name:
         raise InputError.single("base", "must be the file name of another scenario", source)
     base_path = (p.parent / base_name).resolve()
     if base_path in seen or base_path == p.resolve():
         raise InputError.single("base", f"{base_name} leads back to this file", source)
     if not base_path.exists():
         raise InputError.single("base", f"no such scenario file: {base_name}", source)
-    base = _read_data(base_path, str(base_path), (*seen, p.resolve()))
+    try:
+        base = _read_data(base_path, str(base_path), (*seen, p.resolve()))
+    except InputError as exc:  # name the field of this file that led there
+        raise InputError(
+            [
+                FieldProblem(
+                    f"base ({base_name}{': ' + q.location if q.location else ''})", q.message
+                )
+                for q in exc.problems
+            ],
+            source,
+        ) from None
     return _merge(base, data)
 
 

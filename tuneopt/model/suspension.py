@@ -13,6 +13,8 @@ from tuneopt.model.spring import Spring
 
 __all__ = ["Fork", "LeverageTable", "Shock"]
 
+MAX_WHEEL_TRAVEL = 0.3  # [m] as for the fork: above any bicycle's
+
 
 class Fork(Strict):
     """Telescopic fork: ``travel`` is the stroke along the fork axis."""
@@ -50,6 +52,17 @@ class LeverageTable(Strict):
             s = self.shock_stroke
             if s[0] != 0 or any(b <= a for a, b in zip(s, s[1:], strict=False)):
                 raise ValueError("shock_stroke must start at 0 and increase strictly")
+            steps = zip(w, w[1:], s, s[1:], strict=False)
+            if any(not 0.5 < (w1 - w0) / (s1 - s0) < 6 for w0, w1, s0, s1 in steps):
+                raise ValueError(
+                    "wheel_travel over shock_stroke gives leverage ratios outside 0.5 to 6; "
+                    "are both columns in the table's unit?"
+                )
+        travel = self.in_si(w)[-1]
+        if travel >= MAX_WHEEL_TRAVEL:
+            raise ValueError(
+                f"wheel travel of {travel * 1000:.0f} mm is not a bicycle's; is the unit right?"
+            )
         return self
 
     def in_si(self, column: list[float]) -> list[float]:
