@@ -119,8 +119,10 @@ class SearchSpace:
 
 
 def _stepped(low: float, high: float, step: float) -> tuple[float, ...]:
+    """Multiples of ``step`` inside [low, high]; clamped, so that a multiple that rounds a hair
+    past an end of the range (13 x 5 psi against "65 psi") stays inside it."""
     k0, k1 = math.ceil(low / step - 1e-9), math.floor(high / step + 1e-9)
-    return tuple(k * step for k in range(k0, k1 + 1))
+    return tuple(min(max(k * step, low), high) for k in range(k0, k1 + 1))
 
 
 def _narrow(
