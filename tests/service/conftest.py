@@ -13,15 +13,18 @@ import shutil
 import signal
 import socket
 import subprocess
+import threading
 import time
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
 import pytest
+import uvicorn
 from redis import Redis
 
 from tests.conftest import scenario_data
+from tuneopt.service.api import create_app
 from tuneopt.service.settings import Settings
 
 
@@ -155,3 +158,27 @@ def small_scenario(length: str = "40 m") -> dict[str, Any]:
         ],
     }
     return data
+
+
+@pytest.fixture
+def api(settings: Settings, monkeypatch: pytest.MonkeyPatch) -> Iterator[str]:
+    """The API served by uvicorn on a free loopback port, for the length of one test."""
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        port = s.getsockname()[1]
+    server = uvicorn.Server(
+        uvicorn.Config(create_app(settings), host="127.0.0.1", port=port, log_level="warning")
+    )
+    thread = threading.Thread(target=server.run, daemon=True)
+    thread.start()
+    deadline = time.monotonic() + 20
+    while not server.started:
+        assert time.monotonic() < deadline, "the API did not start"
+        time.sleep(0.05)
+    assert settings.api_key is not None
+    monkeypatch.setenv("TUNEOPT_API_KEY", settings.api_key.get_secret_value())
+    try:
+        yield f"http://127.0.0.1:{port}"
+    finally:
+        server.should_exit = True
+        thread.join(timeout=10)

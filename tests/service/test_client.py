@@ -4,48 +4,18 @@ file's commands against the project's real entry points."""
 from __future__ import annotations
 
 import json
-import socket
-import threading
-import time
-from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
-import uvicorn
 import yaml
 
 from tests.conftest import write_toml
 from tests.service.conftest import small_scenario
 from tuneopt.cli import build_parser, main
-from tuneopt.service.api import create_app
 from tuneopt.service.settings import Settings
 from tuneopt.service.worker import make_worker
 
 ROOT = Path(__file__).resolve().parents[2]
-
-
-@pytest.fixture
-def api(settings: Settings, monkeypatch: pytest.MonkeyPatch) -> Iterator[str]:
-    """The API served by uvicorn on a free loopback port, for the length of one test."""
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        port = s.getsockname()[1]
-    server = uvicorn.Server(
-        uvicorn.Config(create_app(settings), host="127.0.0.1", port=port, log_level="warning")
-    )
-    thread = threading.Thread(target=server.run, daemon=True)
-    thread.start()
-    deadline = time.monotonic() + 20
-    while not server.started:
-        assert time.monotonic() < deadline, "the API did not start"
-        time.sleep(0.05)
-    assert settings.api_key is not None
-    monkeypatch.setenv("TUNEOPT_API_KEY", settings.api_key.get_secret_value())
-    try:
-        yield f"http://127.0.0.1:{port}"
-    finally:
-        server.should_exit = True
-        thread.join(timeout=10)
 
 
 def test_submit_status_and_result_over_http(

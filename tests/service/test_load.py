@@ -1,0 +1,78 @@
+"""Load on the real API over loopback HTTP: many clients submitting and polling at once.
+
+Bounded and self-stopping: a fixed number of submissions and status reads from a thread pool to
+127.0.0.1 only. The reduced size runs in ``make test``; ``TUNEOPT_LOAD_JOBS=200
+TUNEOPT_LOAD_READS=3000`` runs the full size. Latency percentiles are printed, not asserted.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import time
+import urllib.error
+import urllib.request
+from concurrent.futures import ThreadPoolExecutor
+from typing import Any
+
+import numpy as np
+
+from tests.service.conftest import small_scenario
+from tuneopt.service.settings import Settings
+from tuneopt.service.worker import make_worker
+
+JOBS = int(os.environ.get("TUNEOPT_LOAD_JOBS", "12"))
+READS = int(os.environ.get("TUNEOPT_LOAD_READS", "300"))
+CLIENTS = 16
+
+
+def _call(api: str, key: str, method: str, path: str, body: Any = None) -> tuple[int, Any, float]:
+    data = None if body is None else json.dumps(body).encode()
+    req = urllib.request.Request(api + path, data=data, method=method)
+    req.add_header("X-API-Key", key)
+    if data is not None:
+        req.add_header("Content-Type", "application/json")
+    started = time.perf_counter()
+    try:
+        with urllib.request.urlopen(req, timeout=30) as r:
+            return r.status, json.loads(r.read()), time.perf_counter() - started
+    except urllib.error.HTTPError as exc:
+        return exc.code, json.loads(exc.read() or b"null"), time.perf_counter() - started
+
+
+def _percentiles(seconds: list[float]) -> str:
+    ms = np.array(seconds) * 1e3
+    p50, p95, p99 = np.percentile(ms, [50, 95, 99])
+    return f"p50 {p50:.1f} ms, p95 {p95:.1f} ms, p99 {p99:.1f} ms, max {ms.max():.1f} ms"
+
+
+def test_many_clients_submit_and_poll_and_every_job_finishes_once(
+    api: str, settings: Settings
+) -> None:
+    assert settings.api_key is not None
+    key = settings.api_key.get_secret_value()
+    scenario = small_scenario()
+    body = {"scenario": scenario, "trials": 4, "batch_size": 4, "realisations": 1, "shards": 1}
+    with ThreadPoolExecutor(CLIENTS) as pool:
+        submitted = list(pool.map(lambda _: _call(api, key, "POST", "/jobs", body), range(JOBS)))
+        assert [code for code, _, _ in submitted] == [202] * JOBS
+        ids = [answer["id"] for _, answer, _ in submitted]
+        assert len(set(ids)) == JOBS
+        reads = list(
+            pool.map(lambda i: _call(api, key, "GET", f"/jobs/{ids[i % JOBS]}"), range(READS))
+        )
+    assert {code for code, _, _ in reads} == {200}
+    print(f"\n{JOBS} submissions: {_percentiles([t for _, _, t in submitted])}")
+    print(f"{READS} status reads: {_percentiles([t for _, _, t in reads])}")
+
+    make_worker(settings, name="load-test").work(burst=True)
+    listed = _call(api, key, "GET", "/jobs")[1]["jobs"]
+    if JOBS <= settings.max_jobs_listed:  # each accepted job listed exactly once
+        assert sorted(j["id"] for j in listed) == sorted(ids)
+    for job in ids:
+        code, status, _ = _call(api, key, "GET", f"/jobs/{job}")
+        assert code == 200 and status["state"] == "done", status
+        assert status["progress"]["finished"] == 4
+        code, result, _ = _call(api, key, "GET", f"/jobs/{job}/result")
+        assert code == 200 and result["trials"]["finished"] == 4
+        assert (settings.results_dir / job / "result.json").is_file()
