@@ -16,7 +16,7 @@ from optuna.distributions import IntDistribution
 from scipy.linalg import solve_continuous_lyapunov
 from scipy.optimize import minimize_scalar
 
-from tests.sim.sim_setups import quarter_car
+from tests.sim.sim_setups import linear_quartercar_system, quarter_car
 from tuneopt.optimise.evaluate import Outcome
 from tuneopt.optimise.runner import StudyPlan, run_shard
 from tuneopt.sim import RoadInput, simulate_quartercar
@@ -28,15 +28,7 @@ DAMPING = np.geomspace(150.0, 3000.0, 301)  # the optimiser's choices [N s/m]
 
 def _sigmas(c: float) -> tuple[float, float]:
     """σ(F_t) and σ(z̈_s) of the linear quarter-car (REFERENCES.md state space)."""
-    a = np.array(
-        [
-            [0.0, 1.0, 0.0, -1.0],
-            [-K / M_S, -c / M_S, 0.0, c / M_S],
-            [0.0, 0.0, 0.0, 1.0],
-            [K / M_U, c / M_U, -K_T / M_U, -c / M_U],
-        ]
-    )
-    b = np.array([[0.0], [0.0], [-1.0], [0.0]])
+    a, b = linear_quartercar_system(M_S, M_U, K, c, K_T)
     p = solve_continuous_lyapunov(a, -Q * (b @ b.T))
     acc = np.array([-K / M_S, -c / M_S, 0.0, c / M_S])
     return float(K_T * np.sqrt(p[2, 2])), float(np.sqrt(acc @ p @ acc))

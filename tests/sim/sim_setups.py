@@ -70,6 +70,21 @@ def quarter_car(
     )
 
 
+def linear_quartercar_system(
+    m_s: float, m_u: float, k: float, c: float, k_t: float
+) -> tuple[np.ndarray, np.ndarray]:
+    """A and B of REFERENCES.md's linear quarter-car: x = [z_s - z_u, v_s, z_u - z_r, v_u],
+    input the road velocity."""
+    a = np.array([
+        [0.0, 1.0, 0.0, -1.0],
+        [-k / m_s, -c / m_s, 0.0, c / m_s],
+        [0.0, 0.0, 0.0, 1.0],
+        [k / m_u, c / m_u, -k_t / m_u, -c / m_u],
+    ])
+    b = np.array([[0.0], [0.0], [-1.0], [0.0]])
+    return a, b
+
+
 def demo_rider() -> RiderBody:
     """A standing 80 kg rider (invented demo values; couplings near 5 Hz body resonance)."""
     return RiderBody(

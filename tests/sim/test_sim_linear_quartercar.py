@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 from numpy.testing import assert_allclose
 from scipy.linalg import eig, solve_continuous_lyapunov
-from sim_setups import quarter_car
+from sim_setups import linear_quartercar_system, quarter_car
 
 from tuneopt.physics.statics import GRAVITY
 from tuneopt.sim import RoadInput, simulate_quartercar
@@ -20,17 +20,7 @@ G = GRAVITY  # standard gravity, as the simulator uses
 
 
 def _system(k: float, c: float) -> tuple[np.ndarray, np.ndarray]:
-    """A and B of REFERENCES.md: x = [z_s - z_u, v_s, z_u - z_r, v_u], input road velocity."""
-    a = np.array(
-        [
-            [0.0, 1.0, 0.0, -1.0],
-            [-k / M_S, -c / M_S, 0.0, c / M_S],
-            [0.0, 0.0, 0.0, 1.0],
-            [k / M_U, c / M_U, -K_T / M_U, -c / M_U],
-        ]
-    )
-    b = np.array([[0.0], [0.0], [-1.0], [0.0]])
-    return a, b
+    return linear_quartercar_system(M_S, M_U, k, c, K_T)
 
 
 def _lyapunov_sigmas(k: float, c: float, q: float) -> dict[str, float]:

@@ -13,7 +13,7 @@ import numpy as np
 
 from tuneopt.model import InputError, Scenario, Setup
 from tuneopt.optimise.score import score_terms, total_score
-from tuneopt.physics import static_check
+from tuneopt.physics import StaticCheck, static_check
 from tuneopt.sim.build import halfcar_params
 from tuneopt.sim.ride import PreparedCourse, prepare_scenario_course, ride_course
 
@@ -58,30 +58,39 @@ class Evaluator:
         """Riding time simulated per setup [s]."""
         return sum(c.duration for c in self.courses)
 
-    def _static(self, setup: Setup) -> tuple[dict[str, float], str]:
+    def _static(self, setup: Setup) -> tuple[StaticCheck | None, dict[str, float], str]:
         try:
             check = static_check(self.scenario, setup)
         except InputError as exc:
-            return {}, "static: " + "; ".join(p.message for p in exc.problems)
+            return None, {}, "static: " + "; ".join(p.message for p in exc.problems)
         sag = {"fork": check.front.sag_percent, "shock": check.rear.sag_percent}
         if check.errors:
-            return sag, "static: " + "; ".join(f.message for f in check.errors)
+            return check, sag, "static: " + "; ".join(f.message for f in check.errors)
         search = self.scenario.search
         for end, window in (("fork", search.fork_sag), ("shock", search.shock_sag)):
             if window is not None and not window.low <= sag[end] <= window.high:
-                return sag, (
-                    f"infeasible: {end} sag {sag[end]:.1f} % outside the allowed "
-                    f"{window.low:.0f}-{window.high:.0f} %"
+                return (
+                    check,
+                    sag,
+                    (
+                        f"infeasible: {end} sag {sag[end]:.1f} % outside the allowed "
+                        f"{window.low:.0f}-{window.high:.0f} %"
+                    ),
                 )
-        return sag, ""
+        return check, sag, ""
 
     def evaluate(self, setups: Sequence[Setup]) -> list[Outcome]:
         statics = [self._static(s) for s in setups]
-        feasible = [i for i, (_, why) in enumerate(statics) if not why]
-        outcomes: list[Outcome] = [Outcome(None, sag=sag, failure=why) for sag, why in statics]
+        feasible = [i for i, (_, _, why) in enumerate(statics) if not why]
+        outcomes: list[Outcome] = [Outcome(None, sag=sag, failure=why) for _, sag, why in statics]
         if not feasible:
             return outcomes
-        params = halfcar_params(self.scenario, [setups[i] for i in feasible])
+        checks = [statics[i][0] for i in feasible]  # feasible ones all have a check
+        params = halfcar_params(
+            self.scenario,
+            [setups[i] for i in feasible],
+            checks=[c for c in checks if c is not None],
+        )
         runs = [ride_course(params, course) for course in self.courses]
         names = [n for n in runs[0].row(0)]
         metrics = {n: np.mean(np.stack([getattr(r, n) for r in runs]), axis=0) for n in names}
@@ -93,13 +102,13 @@ class Evaluator:
             if failed[j] or not np.isfinite(scores[j]):
                 reason = next((str(r.failure[j]) for r in runs if r.failed[j]), "non-finite score")
                 outcomes[i] = Outcome(
-                    None, metrics=row, sag=statics[i][0], failure=f"simulation: {reason}"
+                    None, metrics=row, sag=statics[i][1], failure=f"simulation: {reason}"
                 )
                 continue
             outcomes[i] = Outcome(
                 float(scores[j]),
                 terms={k: float(v[j]) for k, v in terms.items()},
                 metrics=row,
-                sag=statics[i][0],
+                sag=statics[i][1],
             )
         return outcomes

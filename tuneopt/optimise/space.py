@@ -101,21 +101,19 @@ class SearchSpace:
 
     def indices(self, setup: Setup) -> dict[str, int]:
         """The point of the space nearest to a setup."""
-        out = {}
-        for p in self.parameters:
-            if "." in p.name:
-                end, field = p.name.split(".")
-                value = getattr(getattr(setup, end), field)
-            else:
-                value = getattr(setup, p.name)
-            out[p.name] = p.index_of(float(value))
-        return out
+        return {p.name: p.index_of(_setting(setup, p.name)) for p in self.parameters}
 
     def describe(self, indices: Mapping[str, int]) -> dict[str, str]:
         return {p.name: p.shown(p.values[int(indices[p.name])]) for p in self.parameters}
 
     def values(self, indices: Mapping[str, int]) -> dict[str, float]:
         return {p.name: p.values[int(indices[p.name])] for p in self.parameters}
+
+
+def _setting(setup: Setup, name: str) -> float:
+    """A setup's value of a parameter ("fork.pressure", "front_tyre_pressure")."""
+    end, _, field = name.partition(".")
+    return float(getattr(getattr(setup, end), field) if field else getattr(setup, name))
 
 
 def _stepped(low: float, high: float, step: float) -> tuple[float, ...]:
@@ -208,13 +206,10 @@ def build_space(scenario: Scenario, base: Setup | None = None) -> SearchSpace:
         raise InputError(problems)
     space = SearchSpace(tuple(params), base)
     # the baseline must be a point of the space (it is trial 0)
+    baseline = space.indices(base)
     for p in space.parameters:
-        idx = space.indices(base)[p.name]
-        if "." in p.name:
-            end, field = p.name.split(".")
-            value = float(getattr(getattr(base, end), field))
-        else:
-            value = float(getattr(base, p.name))
+        idx = baseline[p.name]
+        value = _setting(base, p.name)
         tolerance = 0.51 * (p.values[1] - p.values[0]) if len(p.values) > 1 else 1e-6
         if abs(p.values[idx] - value) > tolerance:
             problems.append(

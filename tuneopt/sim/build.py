@@ -119,11 +119,15 @@ def _rider(scenario: Scenario, lay: Layout) -> RiderBody:
 
 
 def halfcar_params(
-    scenario: Scenario, setups: Sequence[Setup], grid: TableGrid | None = None
+    scenario: Scenario,
+    setups: Sequence[Setup],
+    grid: TableGrid | None = None,
+    checks: Sequence[StaticCheck] | None = None,
 ) -> HalfCarParams:
-    """Half-car parameters for a batch of setups of one scenario."""
+    """Half-car parameters for a batch of setups of one scenario; ``checks`` are their static
+    checks when the caller has them already."""
     lay = layout(scenario)
-    checks = [static_check(scenario, s) for s in setups]
+    checks = checks or [static_check(scenario, s) for s in setups]
     return HalfCarParams(
         front=wheel_end(scenario, setups, "front", grid, checks),
         rear=wheel_end(scenario, setups, "rear", grid, checks),
