@@ -13,6 +13,7 @@ from redis import Redis
 
 from tests.conftest import write_toml
 from tests.service.conftest import small_scenario
+from tuneopt.model import Scenario
 from tuneopt.service.api import create_app
 from tuneopt.service.settings import Settings
 
@@ -119,14 +120,14 @@ def test_unknown_and_hostile_job_ids(client: TestClient) -> None:
 
 
 def test_api_key_missing_or_wrong_is_refused(client: TestClient) -> None:
+    spec = client.get("/openapi.json").json()
     routes = [
-        ("GET", "/jobs"),
-        ("POST", "/jobs"),
-        ("GET", f"/jobs/{'a' * 32}"),
-        ("GET", f"/jobs/{'a' * 32}/result"),
-        ("GET", f"/jobs/{'a' * 32}/report"),
-        ("DELETE", f"/jobs/{'a' * 32}"),
+        (method.upper(), path.replace("{job_id}", "a" * 32))
+        for path, methods in spec["paths"].items()
+        for method in methods
+        if path != "/health"
     ]
+    assert len(routes) >= 7  # every documented route but the health check
     for key in (None, "wrong", ""):
         headers = {"X-API-Key": key} if key is not None else {}
         for method, path in routes:
@@ -156,7 +157,32 @@ def test_openapi_documents_the_routes(client: TestClient) -> None:
         "/jobs/{job_id}",
         "/jobs/{job_id}/result",
         "/jobs/{job_id}/report",
+        "/jobs/{job_id}/cancel",
         "/health",
     }
     content = spec["paths"]["/jobs"]["post"]["requestBody"]["content"]
     assert set(content) == {"application/json", "multipart/form-data"}
+
+
+def test_a_wrong_method_names_every_method_the_path_serves(client: TestClient) -> None:
+    """RFC 9110 §15.5.6: a 405 answer lists the target's methods in Allow (a path may have a
+    route per method; all of them count)."""
+    response = client.request("OPTIONS", "/jobs")
+    _problem(response, 405)
+    assert {m.strip() for m in response.headers["allow"].split(",")} >= {"GET", "POST"}
+    response = client.put(f"/jobs/{'a' * 32}")
+    _problem(response, 405)
+    assert {m.strip() for m in response.headers["allow"].split(",")} >= {"GET", "DELETE"}
+
+
+def test_openapi_spells_out_the_scenario(client: TestClient) -> None:
+    """The JSON body's scenario is the scenario schema itself, so that a client (or a
+    schema-driven fuzzer) knows every field a scenario file may hold."""
+    spec = client.get("/openapi.json").json()
+    body = spec["paths"]["/jobs"]["post"]["requestBody"]["content"]["application/json"]["schema"]
+    assert body["properties"]["scenario"]["$ref"] == "#/components/schemas/Scenario"
+    scenario = spec["components"]["schemas"]["Scenario"]
+    assert set(scenario["required"]) == set(Scenario.model_json_schema()["required"])
+    form = spec["paths"]["/jobs"]["post"]["requestBody"]["content"]["multipart/form-data"]
+    assert form["schema"]["additionalProperties"] is False
+    assert form["schema"]["properties"]["trials"]["type"] == "integer"

@@ -77,15 +77,15 @@ def test_submitted_job_runs_to_a_ranked_result_equal_to_a_local_run(
         [r["score"] for r in result["ranked"]], rel=1e-9
     )
 
-    # the finaliser wrote the HTML report beside the result; the API serves that file, and a
-    # clear 404 once it is gone
+    # the finaliser wrote the HTML report beside the result; the API serves that file, and
+    # says clearly when it is gone
     served = client.get(f"/jobs/{job_id}/report")
     assert served.status_code == 200 and served.headers["content-type"].startswith("text/html")
     assert served.text == (folder / "report.html").read_text(encoding="utf-8")
     assert scenario_from_data(small_scenario()).name in served.text
     (folder / "report.html").unlink()
     missing = client.get(f"/jobs/{job_id}/report")
-    assert missing.status_code == 404 and "report" in missing.json()["detail"]
+    assert missing.status_code == 409 and "without a report" in missing.json()["detail"]
 
     listed = client.get("/jobs").json()["jobs"]
     assert [j["id"] for j in listed] == [job_id]
@@ -127,7 +127,7 @@ def test_cancel_stops_shards_and_keeps_what_finished(
 
     def report_then_cancel(self: JobStore, job: str, *args: Any) -> None:
         report(self, job, *args)
-        cancels.append(client.delete(f"/jobs/{job}").status_code)
+        cancels.append(client.post(f"/jobs/{job}/cancel").status_code)
 
     monkeypatch.setattr(JobStore, "record_progress", report_then_cancel)
     _work(settings)
@@ -137,6 +137,8 @@ def test_cancel_stops_shards_and_keeps_what_finished(
     result = client.get(f"/jobs/{job_id}/result").json()
     assert result["stopped"] == "cancelled"
     assert 4 <= result["trials"]["finished"] < 400
+    ended = client.post(f"/jobs/{job_id}/cancel")
+    assert ended.status_code == 409 and "ended" in ended.json()["detail"]
     assert client.delete(f"/jobs/{job_id}").status_code == 204
 
 
@@ -144,11 +146,35 @@ def test_cancel_before_the_start_ends_the_job_at_once(
     client: TestClient, settings: Settings
 ) -> None:
     job_id = _submit(client, trials=8)
-    assert client.delete(f"/jobs/{job_id}").json()["cancel_requested"] is True
+    assert client.post(f"/jobs/{job_id}/cancel").json()["cancel_requested"] is True
     _work(settings)
     assert client.get(f"/jobs/{job_id}").json()["state"] == "cancelled"
     response = client.get(f"/jobs/{job_id}/result")
     assert response.status_code == 409 and "cancelled" in response.json()["detail"]
+
+
+@pytest.mark.parametrize("parts_run_before_delete", [0, 1])
+def test_deleting_a_live_job_hides_it_at_once_and_purges_it_when_its_parts_stop(
+    client: TestClient, settings: Settings, parts_run_before_delete: int
+) -> None:
+    """0: deleted while queued (the start part purges it); 1: deleted once its shards are
+    queued (the finaliser purges it)."""
+    job_id = _submit(client, trials=400, shards=2, batch_size=4, realisations=1)
+    kept = _submit(client, trials=4, shards=1, batch_size=4, realisations=1)
+    if parts_run_before_delete:
+        _work(settings, max_jobs=parts_run_before_delete)
+    assert client.delete(f"/jobs/{job_id}").status_code == 202
+    for path in ("", "/result", "/report"):
+        assert client.get(f"/jobs/{job_id}{path}").status_code == 404
+    assert client.post(f"/jobs/{job_id}/cancel").status_code == 404
+    assert client.delete(f"/jobs/{job_id}").status_code == 404
+    assert [j["id"] for j in client.get("/jobs").json()["jobs"]] == [kept]
+    _work(settings)
+    redis = Redis.from_url(settings.redis_url.get_secret_value())
+    assert not list(redis.scan_iter(match=f"tuneopt:job:{job_id}*"))
+    assert not list(redis.scan_iter(match=f"tuneopt:study:{job_id}*"))
+    assert not (settings.results_dir / job_id).exists()
+    assert client.get(f"/jobs/{kept}").json()["state"] == "done"  # the other job is untouched
 
 
 def test_deadline_finalises_with_the_best_so_far(client: TestClient, settings: Settings) -> None:

@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import json
 import secrets
-import shutil
 import time
 from datetime import UTC, datetime
 from typing import Annotated, Any
@@ -21,6 +20,7 @@ from redis import Redis
 from rq import Queue, Worker
 from rq.serializers import JSONSerializer
 
+from tuneopt.model import Scenario
 from tuneopt.model.errors import InputError
 from tuneopt.service import tasks
 from tuneopt.service.limits import BodyLimit
@@ -34,6 +34,7 @@ __all__ = ["JobList", "JobStatus", "create_app"]
 _KEY_HEADER = "X-API-Key"
 _key_header = APIKeyHeader(name=_KEY_HEADER, auto_error=False)
 _FORM_FIELDS = set(JobRequest.model_fields) - {"scenario"}
+_COMPONENT = "#/components/schemas/{model}"
 _ERRORS = {
     status: {"model": Problem, "content": {"application/problem+json": {}}}
     for status in (400, 401, 404, 409, 413, 415, 422, 503)
@@ -99,6 +100,40 @@ def _status(record: JobRecord) -> JobStatus:
     )
 
 
+def _body_schemas() -> tuple[dict[str, Any], dict[str, Any], dict[str, Any]]:
+    """The JSON body's schema with the scenario spelled out, the multipart form's schema, and
+    the component schemas they refer to (the scenario's parts)."""
+    scenario = Scenario.model_json_schema(ref_template=_COMPONENT)
+    components: dict[str, Any] = scenario.pop("$defs", {})
+    components["Scenario"] = scenario
+    body = JobRequest.model_json_schema(ref_template=_COMPONENT)
+    body["properties"]["scenario"] = {
+        "$ref": _COMPONENT.format(model="Scenario"),
+        "description": "the scenario, as in a scenario file",
+    }
+    form_fields = {}
+    for name in sorted(_FORM_FIELDS):
+        field = dict(body["properties"][name])
+        # a form field is always sent; leaving it out, not null, asks for the default
+        choices = [c for c in field.pop("anyOf", []) if c.get("type") != "null"]
+        field.pop("default", None)
+        form_fields[name] = {**field, **(choices[0] if choices else {})}
+    form = {
+        "type": "object",
+        "additionalProperties": False,
+        "required": ["scenario"],
+        "properties": {
+            "scenario": {
+                "type": "string",
+                "format": "binary",
+                "description": "the scenario file: TOML, or JSON when its name ends in .json",
+            },
+            **form_fields,
+        },
+    }
+    return body, form, components
+
+
 def create_app(settings: Settings) -> FastAPI:
     """The API on the settings' Redis and results folder."""
     tasks.configure(settings)
@@ -122,7 +157,7 @@ def create_app(settings: Settings) -> FastAPI:
 
     def load(job_id: str) -> JobRecord:
         record = store.get(job_id) if is_job_id(job_id) else None
-        if record is None:
+        if record is None or record.deleted:
             raise ProblemError(404, "no such job")
         return record
 
@@ -135,6 +170,19 @@ def create_app(settings: Settings) -> FastAPI:
         responses=_ERRORS,  # type: ignore[arg-type]
     )
     install_handlers(app)
+    body_schema, form_schema, components = _body_schemas()
+    plain_openapi = app.openapi
+
+    def openapi() -> dict[str, Any]:
+        if app.openapi_schema is None:
+            schema = plain_openapi()
+            known = schema.setdefault("components", {}).setdefault("schemas", {})
+            clash = set(known) & set(components)
+            assert not clash, f"scenario schemas clash with the API's own: {sorted(clash)}"
+            known.update(components)
+        return app.openapi_schema  # type: ignore[return-value]
+
+    app.openapi = openapi  # type: ignore[method-assign]
     app.add_middleware(BodyLimit, max_bytes=settings.max_body_bytes)
     guarded = [Depends(require_key)]
 
@@ -147,17 +195,8 @@ def create_app(settings: Settings) -> FastAPI:
             "requestBody": {
                 "required": True,
                 "content": {
-                    "application/json": {"schema": JobRequest.model_json_schema()},
-                    "multipart/form-data": {
-                        "schema": {
-                            "type": "object",
-                            "required": ["scenario"],
-                            "properties": {
-                                "scenario": {"type": "string", "format": "binary"},
-                                **{f: {"type": "string"} for f in sorted(_FORM_FIELDS)},
-                            },
-                        }
-                    },
+                    "application/json": {"schema": body_schema},
+                    "multipart/form-data": {"schema": form_schema},
                 },
             }
         },
@@ -212,33 +251,51 @@ def create_app(settings: Settings) -> FastAPI:
         "/jobs/{job_id}/report",
         dependencies=guarded,
         response_class=FileResponse,
-        summary="The job's HTML report, when one has been written",
+        summary="The job's HTML report once the job has ended with ranked setups",
     )
     def get_report(job_id: str) -> FileResponse:
-        load(job_id)
+        record = load(job_id)
         path = tasks.result_folder(settings.results_dir, job_id) / "report.html"
         if not path.is_file():
-            raise ProblemError(404, "this job has no HTML report (yet)")
+            raise ProblemError(
+                409,
+                f"the job is {record.state.value}; it has no report yet"
+                if not record.state.is_final
+                else f"the job ended {record.state.value} without a report",
+            )
         return FileResponse(path, media_type="text/html")
+
+    @app.post(
+        "/jobs/{job_id}/cancel",
+        dependencies=guarded,
+        status_code=202,
+        response_model=JobStatus,
+        summary="Cancel a job that has not ended: shards stop between batches and what "
+        "finished is ranked",
+    )
+    def cancel_job(job_id: str) -> JobStatus:
+        record = load(job_id)
+        if not store.request_cancel(job_id):
+            raise ProblemError(409, f"the job has ended ({record.state.value}); nothing to cancel")
+        return _status(load(job_id))
 
     @app.delete(
         "/jobs/{job_id}",
         dependencies=guarded,
-        status_code=202,
-        response_model=JobStatus,
-        responses={204: {"description": "an ended job was purged"}},
-        summary="Cancel a job that has not ended; purge one that has",
+        status_code=204,
+        response_class=Response,
+        responses={
+            202: {"description": "a live job was cancelled and is purged once its parts stop"},
+            204: {"description": "an ended job was purged"},
+        },
+        summary="Delete a job: its record, result, study and files (a live job is cancelled "
+        "first)",
     )
-    def delete_job(job_id: str) -> Any:
-        record = load(job_id)
-        if store.request_cancel(job_id):
-            return _status(load(job_id))
-        shards = int(record.request.get("shards", 0))
-        store.purge(job_id, shards)
-        from tuneopt.optimise.redis_storage import delete_study_keys
-
-        delete_study_keys(redis, store.study_prefix(job_id))
-        shutil.rmtree(tasks.result_folder(settings.results_dir, job_id), ignore_errors=True)
+    def delete_job(job_id: str) -> Response:
+        load(job_id)
+        if store.request_delete(job_id):
+            return Response(status_code=202)
+        tasks.purge_job(store, settings.results_dir, job_id)
         return Response(status_code=204)
 
     @app.get("/health", response_model=Health, summary="Redis and worker presence")

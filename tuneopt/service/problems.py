@@ -15,6 +15,7 @@ from fastapi.responses import JSONResponse
 from pydantic import BaseModel
 from redis.exceptions import RedisError
 from starlette.exceptions import HTTPException as StarletteHTTPException
+from starlette.routing import Match
 
 from tuneopt.model.errors import FieldProblem, InputError
 from tuneopt.model.loading import _location
@@ -84,6 +85,17 @@ def _validation_problems(exc: RequestValidationError) -> list[FieldProblem]:
     return out
 
 
+def _allowed_methods(request: Request) -> list[str]:
+    """Every method some route serves at the request's path (one path may have several routes,
+    one per method)."""
+    allowed: set[str] = set()
+    for route in request.app.router.routes:
+        match, _ = route.matches(request.scope)
+        if match != Match.NONE:
+            allowed |= set(getattr(route, "methods", None) or ())
+    return sorted(allowed)
+
+
 def install_handlers(app: FastAPI) -> None:
     async def on_problem(request: Request, exc: Exception) -> JSONResponse:
         assert isinstance(exc, ProblemError)
@@ -92,8 +104,10 @@ def install_handlers(app: FastAPI) -> None:
     async def on_http(request: Request, exc: Exception) -> JSONResponse:
         assert isinstance(exc, StarletteHTTPException)
         detail = exc.detail if isinstance(exc.detail, str) else HTTPStatus(exc.status_code).phrase
-        headers = dict(exc.headers) if exc.headers else None
-        return problem_response(exc.status_code, detail, headers=headers)
+        headers = dict(exc.headers) if exc.headers else {}
+        if exc.status_code == 405:
+            headers["Allow"] = ", ".join(_allowed_methods(request))
+        return problem_response(exc.status_code, detail, headers=headers or None)
 
     async def on_validation(request: Request, exc: Exception) -> JSONResponse:
         assert isinstance(exc, RequestValidationError)

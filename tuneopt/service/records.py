@@ -58,6 +58,7 @@ class JobRecord:
     best_score: float | None = None
     trials_per_minute: float = 0.0
     cancel_requested: bool = False
+    deleted: bool = False
     errors: list[str] = field(default_factory=list)
 
     @property
@@ -157,6 +158,7 @@ class JobStore:
             best_score=_float(raw.get("best_score")),
             trials_per_minute=rate,
             cancel_requested=raw.get("cancel") == "1",
+            deleted=raw.get("deleted") == "1",
             errors=errors,
         )
 
@@ -169,7 +171,7 @@ class JobStore:
     def list(self, limit: int) -> list[JobRecord]:
         ids: list[str] = self.redis.zrevrange(self.index_key, 0, limit - 1)  # type: ignore[assignment]
         records = [self.get(i) for i in ids]
-        return [r for r in records if r is not None]
+        return [r for r in records if r is not None and not r.deleted]
 
     def set_fields(self, job_id: str, **fields: Any) -> None:
         self.redis.hset(self.key(job_id), mapping={k: str(v) for k, v in fields.items()})
@@ -198,17 +200,40 @@ class JobStore:
                 except WatchError:
                     continue
 
-    # cancel
+    # cancel and delete
     def request_cancel(self, job_id: str) -> bool:
         """Ask running shards to stop between batches; False when the job already ended."""
-        record = self.get(job_id)
-        if record is None or record.state.is_final:
-            return False
-        self.redis.hset(self.key(job_id), "cancel", "1")
-        return True
+        return self._flag_live(job_id, cancel="1")
+
+    def request_delete(self, job_id: str) -> bool:
+        """Cancel a job that has not ended and mark it for purging once its parts stop (the
+        part that ends it purges it); False when the job already ended (purge it now)."""
+        return self._flag_live(job_id, cancel="1", deleted="1")
+
+    def _flag_live(self, job_id: str, **flags: str) -> bool:
+        """Set flags on a job that exists and has not ended, in one transaction with the check
+        (so a job cannot end between the two and keep a flag nobody acts on)."""
+        key = self.key(job_id)
+        with self.redis.pipeline() as pipe:
+            while True:
+                try:
+                    pipe.watch(key)
+                    current = pipe.hget(key, "state")
+                    if current is None or JobState(str(current)).is_final:
+                        pipe.unwatch()
+                        return False
+                    pipe.multi()
+                    pipe.hset(key, mapping=dict[Any, Any](flags))
+                    pipe.execute()
+                    return True
+                except WatchError:
+                    continue
 
     def is_cancel_requested(self, job_id: str) -> bool:
         return self.redis.hget(self.key(job_id), "cancel") == "1"
+
+    def is_deleted(self, job_id: str) -> bool:
+        return self.redis.hget(self.key(job_id), "deleted") == "1"
 
     # progress and errors
     def record_progress(

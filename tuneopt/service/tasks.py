@@ -7,6 +7,7 @@ a shard number). Each shard runs the same study runner as a local run, on a jour
 from __future__ import annotations
 
 import os
+import shutil
 import socket
 import threading
 import time
@@ -43,6 +44,7 @@ __all__ = [
     "enqueue_start",
     "finalise_job",
     "job_failed",
+    "purge_job",
     "rq_id",
     "run_shard_job",
     "start_job",
@@ -141,15 +143,13 @@ def start_job(job_id: str) -> str:
     if record is None or record.state.is_final:
         return "gone"
     if store.is_cancel_requested(job_id):
-        store.move(job_id, JobState.CANCELLED)
-        return "cancelled"
+        return _end(store, job_id, JobState.CANCELLED)
     try:
         scenario = _load(store, job_id)
         space = build_space(scenario)
     except InputError as exc:
         store.add_error(job_id, exc.describe())
-        store.move(job_id, JobState.FAILED)
-        return "failed"
+        return _end(store, job_id, JobState.FAILED)
     now = time.time()
     deadline = record.deadline or now + float(record.request["run_seconds"])
     plan = _plan(job_id, record.request, deadline)
@@ -260,6 +260,8 @@ def finalise_job(job_id: str) -> str:
     record = store.get(job_id)
     if record is None or record.state.is_final:
         return "gone"
+    if record.deleted:  # nothing to rank for anyone
+        return _end(store, job_id, JobState.CANCELLED)
     store.move(job_id, JobState.FINISHING)
     scenario = _load(store, job_id)
     space = build_space(scenario)
@@ -331,10 +333,10 @@ def finalise_job(job_id: str) -> str:
     else:
         state = JobState.FAILED
         store.add_error(job_id, f"no feasible setup finished (stopped: {stopped})")
-    store.move(job_id, state, finished=ranking.finished)
+    outcome = _end(store, job_id, state, finished=ranking.finished)
     if not settings.keep_studies:  # the result holds what the study was for
         delete_study_keys(redis, store.study_prefix(job_id))
-    return state.value
+    return outcome
 
 
 def _write_report(
@@ -360,6 +362,25 @@ def _write_report(
         store.add_error(job_id, f"report: {type(exc).__name__}: {exc}")
 
 
+def _end(store: JobStore, job_id: str, state: JobState, **fields: Any) -> str:
+    """Move the job to its final state; a job deleted while it was live is purged here, by the
+    part that ended it."""
+    store.move(job_id, state, **fields)
+    if store.is_deleted(job_id):
+        purge_job(store, _current().results_dir, job_id)
+        return "deleted"
+    return state.value
+
+
+def purge_job(store: JobStore, results_dir: Path, job_id: str) -> None:
+    """Everything a job left: its record, result, errors, study journal and files."""
+    record = store.get(job_id)
+    shards = int(record.request.get("shards", 0)) if record is not None else 0
+    store.purge(job_id, shards)
+    delete_study_keys(store.redis, store.study_prefix(job_id))
+    shutil.rmtree(result_folder(results_dir, job_id), ignore_errors=True)
+
+
 def result_folder(results_dir: Path, job_id: str) -> Path:
     """The job's folder under the results folder; the id is checked, so no path escapes it."""
     if not is_job_id(job_id):
@@ -376,4 +397,4 @@ def job_failed(job: Job, connection: Any, exc_type: Any, value: Any, tb: Any) ->
     store = _store(redis)
     store.add_error(job_id, f"{job.id}: {getattr(exc_type, '__name__', exc_type)}: {value}")
     if not job.retries_left:
-        store.move(job_id, JobState.FAILED)
+        _end(store, job_id, JobState.FAILED)
