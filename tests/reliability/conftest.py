@@ -29,5 +29,9 @@ def fuzz(reduced: int, share: float = 1.0) -> Callable[[Any], Any]:
         deadline=None,
         derandomize=derandomize,
         database=None,
-        suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large],
+        suppress_health_check=[
+            HealthCheck.too_slow,
+            HealthCheck.data_too_large,
+            HealthCheck.function_scoped_fixture,  # a fixture holds state across examples on purpose
+        ],
     )

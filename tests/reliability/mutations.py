@@ -8,6 +8,7 @@ from typing import Any
 from hypothesis import strategies as st
 
 from tests.conftest import scenario_data
+from tuneopt.model import Scenario
 
 # The shipped scenarios that stand alone (the wet trail scenario only says what differs).
 BASES = ("trail_air", "enduro_coil", "downhill_coil")
@@ -136,3 +137,14 @@ def broken_scenarios(draw: st.DrawFn, max_changes: int = 3) -> tuple[str, dict[s
                                  "/dev/null", "enduro_shock_dyno.csv", "a\x00b"])  # fmt: skip
         data["base"] = draw(st.one_of(names, junk))
     return name, data
+
+
+def names_a_field(location: str, data: dict[str, Any]) -> bool:
+    """The location starts at a field of the scenario, or at a key the input has (shown
+    escaped, and cut short, when it holds control characters)."""
+    if not location:
+        return False
+    fields = [*Scenario.model_fields, *(str(k) for k in data)]
+    if any(location == f or location.startswith((f + ".", f + "[", f + " (")) for f in fields):
+        return True
+    return any(location.startswith(repr(str(k))[:50]) for k in data)

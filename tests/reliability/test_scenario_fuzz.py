@@ -22,23 +22,12 @@ from hypothesis import strategies as st
 
 from tests.conftest import SCENARIOS, scenario_data, write_toml
 from tests.reliability.conftest import fuzz
-from tests.reliability.mutations import broken_scenarios
+from tests.reliability.mutations import broken_scenarios, names_a_field
 from tuneopt.cli import main
 from tuneopt.model import InputError, Scenario, scenario_from_data
 
 ROOT = Path(__file__).resolve().parents[2]
 PROBLEM_LINE = re.compile(r"^  - (.+?): (.+)$")
-
-
-def _names_a_field(location: str, data: dict[str, Any]) -> bool:
-    """The location starts at a field of the scenario, or at a key the input has (shown
-    escaped, and cut short, when it holds control characters)."""
-    if not location:
-        return False
-    fields = [*Scenario.model_fields, *(str(k) for k in data)]
-    if any(location == f or location.startswith((f + ".", f + "[", f + " (")) for f in fields):
-        return True
-    return any(location.startswith(repr(str(k))[:50]) for k in data)
 
 
 def _check_in_process(path: Path) -> tuple[int, str]:
@@ -80,7 +69,7 @@ def test_library_gives_a_scenario_or_named_problems(case: tuple[str, dict[str, A
         event("refused")
         for p in exc.problems:
             assert p.message.strip(), p
-            assert _names_a_field(p.location, data), p
+            assert names_a_field(p.location, data), p
     else:
         event("accepted")
         assert isinstance(scenario, Scenario)
@@ -104,7 +93,7 @@ def test_check_command_exits_cleanly(case: tuple[str, dict[str, Any]], as_toml: 
         problems = [PROBLEM_LINE.match(line) for line in lines[1:]]
         assert problems and all(problems), err
         for m in problems:
-            assert m is not None and _names_a_field(m.group(1), data), err
+            assert m is not None and names_a_field(m.group(1), data), err
 
 
 def test_a_valid_scenario_passes_the_same_checks(tmp_path: Path) -> None:

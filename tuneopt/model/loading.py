@@ -180,6 +180,9 @@ def _read_text(path: Path, limit: int) -> str:
         raise ValueError("not a UTF-8 text file") from None
 
 
+_NO_FOLDER = "names a file, but this scenario was not read from a folder; "
+
+
 def _attach_tables(data: dict[str, Any], base_dir: Path | None) -> list[FieldProblem]:
     problems = []
     for end in ("fork", "shock"):
@@ -188,7 +191,10 @@ def _attach_tables(data: dict[str, Any], base_dir: Path | None) -> list[FieldPro
             continue
         name = damper.pop("measured_table")
         where = f"{end}.damper.measured_table"
-        if not isinstance(name, str) or base_dir is None:
+        if base_dir is None:
+            problems.append(FieldProblem(where, _NO_FOLDER + "give the table's points as measured"))
+            continue
+        if not isinstance(name, str):
             problems.append(FieldProblem(where, "must be a CSV file name next to the scenario"))
             continue
         label = name if name.isprintable() and len(name) <= 80 else _shown(name)
@@ -218,6 +224,14 @@ def scenario_from_data(
         raise InputError.single(deep, f"nested more than {MAX_DEPTH} levels deep", source)
     data = json.loads(json.dumps(data, default=str))  # a private, plain copy we may edit
     problems = _attach_tables(data, base_dir)
+    if "base" in data:  # files resolve it before this point (load_scenario)
+        problems.append(
+            FieldProblem(
+                "base",
+                "a base file is read only when the scenario is loaded from its file; "
+                "send the whole scenario",
+            )
+        )
     if problems:
         raise InputError(problems, source)
     try:
