@@ -29,11 +29,25 @@ unit: $(STAMP)
 
 test: lint typecheck unit
 
-# The reliability suite at full size (bad input fuzzing, limits property); make test runs it small.
+# The reliability and security suites at full size (bad input through files, the command line and
+# the API; schema-driven API fuzzing; load; faults), each test recording what it measured;
+# the figures end up as a Markdown table in $(FIGURES)/reliability.md (the README's Reliability
+# section). make test runs the same suites at a reduced size.
 FUZZ_EXAMPLES ?= 2000
+API_FUZZ_EXAMPLES ?= 200
+LOAD_JOBS ?= 200
+LOAD_READS ?= 3000
+FAULT_ROUNDS ?= 3
+FIGURES ?= out/figures
 reliability: $(STAMP)
-	TUNEOPT_FUZZ_EXAMPLES=$(FUZZ_EXAMPLES) $(BIN)/python -m pytest tests/reliability -q \
-		--hypothesis-show-statistics
+	rm -rf $(FIGURES) && mkdir -p $(FIGURES)
+	TUNEOPT_FIGURES=$(FIGURES)/figures.jsonl TUNEOPT_FUZZ_EXAMPLES=$(FUZZ_EXAMPLES) \
+	TUNEOPT_API_FUZZ_EXAMPLES=$(API_FUZZ_EXAMPLES) TUNEOPT_LOAD_JOBS=$(LOAD_JOBS) \
+	TUNEOPT_LOAD_READS=$(LOAD_READS) TUNEOPT_FAULT_ROUNDS=$(FAULT_ROUNDS) \
+		$(BIN)/python -m pytest -q --timeout 3600 tests/reliability tests/service \
+		"tests/optimise/test_runner.py::test_resumed_run_equals_an_uninterrupted_run"
+	$(BIN)/python -m tests.figures $(FIGURES)/figures.jsonl > $(FIGURES)/reliability.md
+	cat $(FIGURES)/reliability.md
 
 bench: $(STAMP)
 	$(BIN)/tuneopt bench

@@ -11,8 +11,13 @@ from __future__ import annotations
 import json
 import os
 import sys
+from collections import Counter
+from collections.abc import Callable, Iterator
 from datetime import UTC, datetime
 from pathlib import Path
+from typing import Any
+
+import pytest
 
 ENV = "TUNEOPT_FIGURES"
 
@@ -31,6 +36,32 @@ def record(what: str, figure: str, reproduce: str) -> None:
     }
     with open(target, "a", encoding="utf-8") as out:
         out.write(json.dumps(line) + "\n")
+
+
+class Tally:
+    """Counts of what a test module tried, kept as one figure when the module ends.
+
+    A test calls ``add`` only after its checks of an input have passed, so the counts are of
+    inputs seen to be handled; ``describe`` turns the counts into the figure's text. A module
+    holding a tally exposes ``tally.recorder()`` as a module attribute (an autouse fixture)."""
+
+    def __init__(self, what: str, reproduce: str, describe: Callable[[Counter[str]], str]):
+        self.what = what
+        self.reproduce = reproduce
+        self.describe = describe
+        self.counts: Counter[str] = Counter()
+
+    def add(self, key: str, count: int = 1) -> None:
+        self.counts[key] += count
+
+    def recorder(self) -> Any:
+        @pytest.fixture(scope="module", autouse=True, name="_record_tally")
+        def _record() -> Iterator[None]:
+            yield
+            if self.counts:
+                record(self.what, self.describe(self.counts), self.reproduce)
+
+        return _record
 
 
 def table(lines: list[dict[str, str]]) -> str:

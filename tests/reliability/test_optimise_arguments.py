@@ -11,6 +11,7 @@ from pathlib import Path
 import pytest
 
 from tests.conftest import write_toml
+from tests.figures import Tally
 from tests.optimise.conftest import small_data
 from tuneopt.cli import main
 
@@ -69,6 +70,17 @@ CASES = [
 ]
 
 
+TALLY = Tally(
+    "nothing half-written: bad arguments and bad scenarios to `tuneopt optimise`",
+    "pytest tests/reliability/test_optimise_arguments.py",
+    lambda c: (
+        f"{c['argument']} bad arguments and {c['scenario']} bad scenarios: exit 2 naming the "
+        "argument or field, no output folder written"
+    ),
+)
+_record_tally = TALLY.recorder()
+
+
 @pytest.mark.parametrize(("extra", "named"), CASES, ids=[c[1] + ":" + c[0][-1] for c in CASES])
 def test_a_bad_argument_writes_nothing(files: Path, extra: list[str], named: str) -> None:
     out = files / "run"
@@ -77,6 +89,7 @@ def test_a_bad_argument_writes_nothing(files: Path, extra: list[str], named: str
     assert code == 2, err
     assert named in err and "Traceback" not in err
     assert not out.exists()
+    TALLY.add("argument")
 
 
 @pytest.mark.parametrize(
@@ -93,6 +106,7 @@ def test_a_bad_scenario_writes_nothing(files: Path, scenario: str, named: str) -
     code, err = _run(["optimise", str(files / scenario), "--out", str(out), "--trials", "2"])
     assert code == 2 and named in err, err
     assert not out.exists()
+    TALLY.add("scenario")
 
 
 @pytest.mark.parametrize("out", ["a_file", "a_file/run"])

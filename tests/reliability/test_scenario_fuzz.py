@@ -13,6 +13,7 @@ import subprocess
 import sys
 import tempfile
 import tomllib
+from collections import Counter
 from pathlib import Path
 from typing import Any
 
@@ -21,12 +22,32 @@ from hypothesis import assume, event, given
 from hypothesis import strategies as st
 
 from tests.conftest import SCENARIOS, scenario_data, write_toml
+from tests.figures import Tally
 from tests.reliability.conftest import fuzz
 from tests.reliability.mutations import broken_scenarios, names_a_field
 from tuneopt.cli import main
 from tuneopt.model import InputError, Scenario, scenario_from_data
 
 ROOT = Path(__file__).resolve().parents[2]
+
+
+def _describe(c: Counter[str]) -> str:
+    library = c["library accepted"] + c["library refused"]
+    exits = ", ".join(f"exit {k[-1]}: {n:,}" for k, n in sorted(c.items()) if k.startswith("check"))
+    return (
+        f"{library:,} mutated scenarios through the library ({c['library refused']:,} refused "
+        f"with field-named errors, {c['library accepted']:,} accepted) and "
+        f"{sum(n for k, n in c.items() if k.startswith('check')):,} through `tuneopt check` "
+        f"({exits}); no traceback"
+    )
+
+
+TALLY = Tally(
+    "broken scenario files through the library and `tuneopt check` (hypothesis)",
+    "TUNEOPT_FUZZ_EXAMPLES=2000 pytest tests/reliability/test_scenario_fuzz.py",
+    _describe,
+)
+_record_tally = TALLY.recorder()
 PROBLEM_LINE = re.compile(r"^  - (.+?): (.+)$")
 
 
@@ -70,9 +91,11 @@ def test_library_gives_a_scenario_or_named_problems(case: tuple[str, dict[str, A
         for p in exc.problems:
             assert p.message.strip(), p
             assert names_a_field(p.location, data), p
+        TALLY.add("library refused")
     else:
         event("accepted")
         assert isinstance(scenario, Scenario)
+        TALLY.add("library accepted")
 
 
 @fuzz(40, share=0.25)
@@ -94,6 +117,7 @@ def test_check_command_exits_cleanly(case: tuple[str, dict[str, Any]], as_toml: 
         assert problems and all(problems), err
         for m in problems:
             assert m is not None and names_a_field(m.group(1), data), err
+    TALLY.add(f"check exit {code}")
 
 
 def test_a_valid_scenario_passes_the_same_checks(tmp_path: Path) -> None:

@@ -10,6 +10,7 @@ import optuna
 from hypothesis import event, given
 from hypothesis import strategies as st
 
+from tests.figures import Tally
 from tests.optimise.conftest import small_data
 from tests.reliability.conftest import fuzz
 from tuneopt.model import (
@@ -164,6 +165,18 @@ def _assert_setup_inside(scenario: Scenario, setup: Setup) -> None:
             assert getattr(setup, end) == getattr(scenario.setup, end)
 
 
+TALLY = Tally(
+    "settings inside the hardware's limits (hypothesis: random ranges and short studies)",
+    "TUNEOPT_FUZZ_EXAMPLES=2000 pytest tests/reliability/test_setups_within_limits.py",
+    lambda c: (
+        f"{c['spaces']:,} random sets of hardware ranges: every grid end and corner of the "
+        f"search space inside them; {c['studies']:,} short studies: all {c['trials']:,} "
+        f"proposed trials and {c['ranked']:,} ranked setups inside the ranges"
+    ),
+)
+_record_tally = TALLY.recorder()
+
+
 @fuzz(60, share=0.25)
 @given(variants())
 def test_every_point_of_the_search_space_is_inside_the_limits(scenario: Scenario) -> None:
@@ -180,6 +193,7 @@ def test_every_point_of_the_search_space_is_inside_the_limits(scenario: Scenario
         idx = {p.name: (len(p.values) - 1 if i == -1 else 0) for p, i in
                zip(space.parameters, corner.values(), strict=True)}  # fmt: skip
         _assert_setup_inside(scenario, space.setup(idx))
+    TALLY.add("spaces")
 
 
 @fuzz(6, share=0.01)
@@ -204,3 +218,6 @@ def test_every_ranked_setup_is_inside_the_limits(
     # every trial the sampler proposed, ranked or not, was a point inside the limits
     for t in study.trials:
         _assert_setup_inside(scenario, space.setup({k: int(v) for k, v in t.params.items()}))
+    TALLY.add("studies")
+    TALLY.add("trials", len(study.trials))
+    TALLY.add("ranked", len(ranking.ranked))

@@ -10,6 +10,7 @@ from hypothesis import event, given
 from hypothesis import strategies as st
 
 from tests.conftest import SCENARIOS, scenario_data
+from tests.figures import Tally
 from tests.reliability.conftest import fuzz
 from tuneopt.model import InputError, scenario_from_data
 from tuneopt.model.loading import parse_damper_csv
@@ -19,6 +20,17 @@ from tuneopt.terrain.measured import MAX_PROFILE_BYTES
 DYNO = (SCENARIOS / "enduro_shock_dyno.csv").read_text()
 HEADER = "adjuster,click,velocity [m/s],force [N]"
 WHERE = "shock.damper.measured_table"
+TALLY = Tally(
+    "malformed measured damper tables and terrain profile CSVs (hypothesis)",
+    "TUNEOPT_FUZZ_EXAMPLES=2000 pytest tests/reliability/test_tables.py",
+    lambda c: (
+        f"{c['table read'] + c['table refused']:,} damper tables ({c['table refused']:,} "
+        f"refused, each problem named by file and line) and "
+        f"{c['profile read'] + c['profile refused']:,} profile CSVs ({c['profile refused']:,} "
+        "refused by line); no traceback"
+    ),
+)
+_record_tally = TALLY.recorder()
 
 
 def _table_problems(tmp_path: Path, content: str | bytes) -> dict[str, str]:
@@ -137,9 +149,11 @@ def test_any_table_loads_or_is_refused_by_line(text: str) -> None:
             assert m or (p.location == "" and p.message.startswith("... and")), p
             if m and m.group(1):
                 assert 1 <= int(m.group(1)) <= n, (p, n)
+        TALLY.add("table refused")
     else:
         event("read")
         assert all(p["velocity"] > 0 and p["force"] >= 0 for p in out["points"])
+        TALLY.add("table read")
 
 
 def _profile(rows: list[str], header: str = "distance,elevation") -> str:
@@ -231,6 +245,8 @@ def test_any_profile_reads_or_is_refused_by_line(text: str) -> None:
             assert m or (p.location == "" and p.message.startswith("... and")), p
             if m:
                 assert 1 <= int(m.group(1)) <= max(n, 1), (p, n)
+        TALLY.add("profile refused")
     else:
         event("read")
         assert prof.x.size == prof.z.size >= 2
+        TALLY.add("profile read")

@@ -12,11 +12,23 @@ from fastapi.testclient import TestClient
 from redis import Redis
 
 from tests.conftest import write_toml
+from tests.figures import Tally
 from tests.service.conftest import small_scenario
 from tuneopt.model import Scenario
 from tuneopt.service.api import create_app
 from tuneopt.service.settings import Settings
 
+TALLY = Tally(
+    "security: API key on every route, hostile job ids and path traversal",
+    "pytest tests/service/test_api.py",
+    lambda c: (
+        f"{c['refused']} requests without a key, with a wrong or an empty one, to each of the "
+        f"{c['routes']} guarded routes: all 401; {c['hostile']} requests with hostile or "
+        "traversing job ids: all 404 (or 405), no file read or written; job ids are 128 "
+        "random bits"
+    ),
+)
+_record_tally = TALLY.recorder()
 PROBLEM = "application/problem+json"
 
 
@@ -109,14 +121,25 @@ def test_toml_upload_errors(client: TestClient) -> None:
     assert "trials" in fields
 
 
-def test_unknown_and_hostile_job_ids(client: TestClient) -> None:
-    for job_id in ("0" * 32, "..", "..%2F..%2Fetc%2Fpasswd", "%2e%2e", "abc", "A" * 32):
-        for suffix in ("", "/result", "/report"):
-            response = client.get(f"/jobs/{job_id}{suffix}")
-            assert response.status_code == 404, (job_id, suffix, response.status_code)
+HOSTILE_IDS = (
+    "0" * 32, "..", "..%2F..%2Fetc%2Fpasswd", "%2e%2e", "abc", "A" * 32, "%00", "~",
+    "..%5C..%5Cwindows", "%252e%252e%252f", "f" * 31 + "/", "f" * 33, "0" * 32 + "%00.html",
+)  # fmt: skip
+
+
+def test_unknown_and_hostile_job_ids(client: TestClient, settings: Settings) -> None:
+    """No job id reaches a file outside the results folder, or any file at all, unless it is
+    one of ours (32 hex digits); every route answers 404 for the rest."""
+    calls = [("GET", ""), ("GET", "/result"), ("GET", "/report"), ("POST", "/cancel"),
+             ("DELETE", "")]  # fmt: skip
+    for job_id in HOSTILE_IDS:
+        for method, suffix in calls:
+            response = client.request(method, f"/jobs/{job_id}{suffix}")
+            assert response.status_code in (404, 405), (job_id, suffix, response.status_code)
             if response.headers["content-type"].startswith(PROBLEM):
-                _problem(response, 404)
-        _problem(client.delete(f"/jobs/{'f' * 32}"), 404)
+                _problem(response, response.status_code)
+            TALLY.add("hostile")
+    assert not settings.results_dir.exists()  # nothing was written either
 
 
 def test_api_key_missing_or_wrong_is_refused(client: TestClient) -> None:
@@ -136,6 +159,8 @@ def test_api_key_missing_or_wrong_is_refused(client: TestClient) -> None:
             body = _problem(response, 401)
             assert response.headers["www-authenticate"] == "X-API-Key"
             assert "key" in body["detail"]
+            TALLY.add("refused")
+    TALLY.add("routes", len(routes))
     assert client.get("/health").status_code == 200  # the health check needs no key
 
 

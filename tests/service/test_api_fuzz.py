@@ -21,7 +21,7 @@ from hypothesis.control import currently_in_test_context
 from redis import Redis
 
 from tests.conftest import SCENARIOS, write_toml
-from tests.figures import record
+from tests.figures import Tally
 from tests.reliability.conftest import FULL_SIZE, fuzz
 from tests.reliability.mutations import broken_scenarios, names_a_field
 from tests.service.conftest import small_scenario
@@ -29,7 +29,6 @@ from tuneopt.service.api import create_app
 from tuneopt.service.settings import Settings
 
 PROBLEM = "application/problem+json"
-SEEN: Counter[str] = Counter()  # answers per property, for the figures
 
 
 @pytest.fixture
@@ -40,24 +39,24 @@ def client(settings: Settings) -> Iterator[TestClient]:
         yield c
 
 
-@pytest.fixture(scope="module", autouse=True)
-def _figures() -> Iterator[None]:
-    """After the module: the answers its tests saw, as a reliability figure."""
-    yield
-    if not SEEN:
-        return
-    total = sum(SEEN.values())
+def _describe(seen: Counter[str]) -> str:
     by_code = Counter[str]()
-    for key, count in SEEN.items():
+    for key, count in seen.items():
         by_code[key.rsplit(" ", 1)[1]] += count
     codes = ", ".join(f"{n:,} × {c}" for c, n in sorted(by_code.items()))
-    record(
-        "bad input through the HTTP API (broken scenarios as JSON bodies and TOML uploads, "
-        "files cut at every byte, oversized and many-part uploads, file names in scenarios)",
-        f"{total:,} requests: {codes}; no 500, every 422 names its fields, nothing refused "
-        "left a job, a queue entry or a file",
-        "TUNEOPT_FUZZ_EXAMPLES=2000 pytest tests/service/test_api_fuzz.py",
+    return (
+        f"{sum(seen.values()):,} requests: {codes}; no 500, every 422 names its fields, "
+        "nothing refused left a job, a queue entry or a file"
     )
+
+
+TALLY = Tally(
+    "bad input through the HTTP API (broken scenarios as JSON bodies and TOML uploads, files "
+    "cut at every byte, oversized and many-part uploads, file names in scenarios)",
+    "TUNEOPT_FUZZ_EXAMPLES=2000 pytest tests/service/test_api_fuzz.py",
+    _describe,
+)
+_record_tally = TALLY.recorder()
 
 
 class Ledger:
@@ -93,7 +92,7 @@ def _answer(response: Any, data: Any, ledger: Ledger, tally: str) -> None:
     ledger.check(accepted=code == 202)
     if code == 202:
         assert len(response.json()["id"]) == 32
-        SEEN[f"{tally} {code}"] += 1
+        TALLY.add(f"{tally} {code}")
         return
     assert response.headers["content-type"].startswith(PROBLEM), response.headers
     body = response.json()
@@ -106,7 +105,7 @@ def _answer(response: Any, data: Any, ledger: Ledger, tally: str) -> None:
             assert field == "scenario" or field.startswith(("scenario.", "scenario[")), error
             inner = field.removeprefix("scenario").removeprefix(".")
             assert not inner or names_a_field(inner, data), error
-    SEEN[f"{tally} {code}"] += 1  # counted once checked
+    TALLY.add(f"{tally} {code}")  # counted once checked
 
 
 @fuzz(60, share=0.5)
@@ -162,7 +161,7 @@ def test_an_upload_cut_anywhere_is_refused_or_still_whole(
         files = {"scenario": (f"scenario{suffix}", text[:cut], "text/plain")}
         response = client.post("/jobs", files=files, data={"trials": "4"})
         _answer(response, data, ledger, f"{suffix} upload cut")
-    seen = {k: v for k, v in SEEN.items() if k.startswith(f"{suffix} upload cut")}
+    seen = {k: v for k, v in TALLY.counts.items() if k.startswith(f"{suffix} upload cut")}
     # a cut file is refused unless only the trailing course entries went missing
     assert seen.get(f"{suffix} upload cut 422", 0) >= 0.8 * sum(seen.values())
 

@@ -18,6 +18,7 @@ from optuna.trial import TrialState
 from redis import Redis
 
 from tests.conftest import write_toml
+from tests.figures import record
 from tests.service.conftest import small_scenario
 from tuneopt.model import scenario_from_data
 from tuneopt.optimise import StudyPlan, build_space, run_local, start_run
@@ -290,3 +291,9 @@ def test_the_api_writes_no_pickle_to_redis(client: TestClient, settings: Setting
     assert jobs
     for key in jobs:
         json.loads(zlib.decompress(redis.hget(key, "data")))  # type: ignore[arg-type]
+    record(
+        "no pickle crosses Redis from the API",
+        f"{len(values)} values the API wrote to Redis for a job: none pickled; its "
+        f"{len(jobs)} queued rq job(s) JSON-serialised",
+        "pytest tests/service/test_jobs.py -k pickle",
+    )

@@ -17,6 +17,7 @@ from typing import Any
 
 import numpy as np
 
+from tests.figures import record
 from tests.service.conftest import small_scenario
 from tuneopt.service.settings import Settings
 from tuneopt.service.worker import make_worker
@@ -43,7 +44,7 @@ def _call(api: str, key: str, method: str, path: str, body: Any = None) -> tuple
 def _percentiles(seconds: list[float]) -> str:
     ms = np.array(seconds) * 1e3
     p50, p95, p99 = np.percentile(ms, [50, 95, 99])
-    return f"p50 {p50:.1f} ms, p95 {p95:.1f} ms, p99 {p99:.1f} ms, max {ms.max():.1f} ms"
+    return f"p50 {p50:.0f} ms, p95 {p95:.0f} ms, p99 {p99:.0f} ms, max {ms.max():.0f} ms"
 
 
 def test_many_clients_submit_and_poll_and_every_job_finishes_once(
@@ -51,6 +52,7 @@ def test_many_clients_submit_and_poll_and_every_job_finishes_once(
 ) -> None:
     assert settings.api_key is not None
     key = settings.api_key.get_secret_value()
+    started = time.monotonic()
     scenario = small_scenario()
     body = {"scenario": scenario, "trials": 4, "batch_size": 4, "realisations": 1, "shards": 1}
     with ThreadPoolExecutor(CLIENTS) as pool:
@@ -62,8 +64,10 @@ def test_many_clients_submit_and_poll_and_every_job_finishes_once(
             pool.map(lambda i: _call(api, key, "GET", f"/jobs/{ids[i % JOBS]}"), range(READS))
         )
     assert {code for code, _, _ in reads} == {200}
-    print(f"\n{JOBS} submissions: {_percentiles([t for _, _, t in submitted])}")
-    print(f"{READS} status reads: {_percentiles([t for _, _, t in reads])}")
+    submissions = _percentiles([t for _, _, t in submitted])
+    status_reads = _percentiles([t for _, _, t in reads])
+    print(f"\n{JOBS} submissions: {submissions}")
+    print(f"{READS} status reads: {status_reads}")
 
     make_worker(settings, name="load-test").work(burst=True)
     listed = _call(api, key, "GET", "/jobs")[1]["jobs"]
@@ -76,3 +80,10 @@ def test_many_clients_submit_and_poll_and_every_job_finishes_once(
         code, result, _ = _call(api, key, "GET", f"/jobs/{job}/result")
         assert code == 200 and result["trials"]["finished"] == 4
         assert (settings.results_dir / job / "result.json").is_file()
+    record(
+        f"load over loopback HTTP: {CLIENTS} clients, {JOBS} submissions (4 trials each) and "
+        f"{READS:,} status reads, then one worker",
+        f"no error; submissions {submissions}; status reads {status_reads}; all {JOBS} jobs "
+        f"done exactly once ({time.monotonic() - started:.0f} s in all)",
+        f"TUNEOPT_LOAD_JOBS={JOBS} TUNEOPT_LOAD_READS={READS} pytest tests/service/test_load.py",
+    )
