@@ -21,6 +21,7 @@ from typing import Any
 
 import pytest
 import uvicorn
+from fastapi.testclient import TestClient
 from redis import Redis
 
 from tests.conftest import scenario_data
@@ -143,6 +144,14 @@ def make_settings(url: str, results: Path, **overrides: Any) -> Settings:
 @pytest.fixture
 def settings(redis_client: Redis, redis_server: RedisServer, tmp_path: Path) -> Settings:
     return make_settings(redis_server.url, tmp_path / "results")
+
+
+@pytest.fixture
+def client(settings: Settings) -> Iterator[TestClient]:
+    with TestClient(create_app(settings), raise_server_exceptions=False) as c:
+        assert settings.api_key is not None
+        c.headers["X-API-Key"] = settings.api_key.get_secret_value()
+        yield c
 
 
 def small_scenario(length: str = "40 m") -> dict[str, Any]:

@@ -7,7 +7,6 @@ import json
 from collections.abc import Iterator
 from typing import Any
 
-import pytest
 from fastapi.testclient import TestClient
 from redis import Redis
 
@@ -30,14 +29,6 @@ TALLY = Tally(
 )
 _record_tally = TALLY.recorder()
 PROBLEM = "application/problem+json"
-
-
-@pytest.fixture
-def client(settings: Settings) -> Iterator[TestClient]:
-    with TestClient(create_app(settings), raise_server_exceptions=False) as c:
-        assert settings.api_key is not None
-        c.headers["X-API-Key"] = settings.api_key.get_secret_value()
-        yield c
 
 
 def _problem(response: Any, status: int) -> dict[str, Any]:

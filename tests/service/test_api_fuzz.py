@@ -25,18 +25,9 @@ from tests.figures import Tally
 from tests.reliability.conftest import FULL_SIZE, fuzz
 from tests.reliability.mutations import broken_scenarios, names_a_field
 from tests.service.conftest import small_scenario
-from tuneopt.service.api import create_app
 from tuneopt.service.settings import Settings
 
 PROBLEM = "application/problem+json"
-
-
-@pytest.fixture
-def client(settings: Settings) -> Iterator[TestClient]:
-    with TestClient(create_app(settings), raise_server_exceptions=False) as c:
-        assert settings.api_key is not None
-        c.headers["X-API-Key"] = settings.api_key.get_secret_value()
-        yield c
 
 
 def _describe(seen: Counter[str]) -> str:

@@ -7,7 +7,6 @@ import json
 import threading
 import time
 import zlib
-from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
@@ -25,18 +24,9 @@ from tuneopt.optimise import StudyPlan, build_space, run_local, start_run
 from tuneopt.optimise.redis_storage import redis_storage
 from tuneopt.optimise.runner import ask_batch
 from tuneopt.service import tasks
-from tuneopt.service.api import create_app
 from tuneopt.service.records import JobStore
 from tuneopt.service.settings import Settings
 from tuneopt.service.worker import make_worker
-
-
-@pytest.fixture
-def client(settings: Settings) -> Iterator[TestClient]:
-    with TestClient(create_app(settings)) as c:
-        assert settings.api_key is not None
-        c.headers["X-API-Key"] = settings.api_key.get_secret_value()
-        yield c
 
 
 def _work(settings: Settings, max_jobs: int | None = None) -> None:

@@ -14,6 +14,7 @@ from enum import StrEnum
 from typing import Any
 
 from redis import Redis, WatchError
+from redis.client import Pipeline
 
 __all__ = ["JobRecord", "JobState", "JobStore", "is_job_id", "new_job_id"]
 
@@ -111,24 +112,32 @@ class JobStore:
 
     # records
     def create(
-        self, job_id: str, scenario: dict[str, Any], request: dict[str, Any], name: str
+        self,
+        job_id: str,
+        scenario: dict[str, Any],
+        request: dict[str, Any],
+        name: str,
+        pipe: Pipeline | None = None,
     ) -> None:
+        """Write a new job's record and index entry in one transaction; with ``pipe`` (a
+        transaction the caller executes), as part of that one."""
         now = time.time()
-        with self.redis.pipeline() as pipe:
-            pipe.hset(
-                self.key(job_id),
-                mapping={
-                    "id": job_id,
-                    "state": JobState.QUEUED.value,
-                    "created": repr(now),
-                    "scenario": json.dumps(scenario),
-                    "request": json.dumps(request),
-                    "scenario_name": name,
-                    "finished": "0",
-                },
-            )
-            pipe.zadd(self.index_key, {job_id: now})
-            pipe.execute()
+        target = self.redis.pipeline() if pipe is None else pipe
+        target.hset(
+            self.key(job_id),
+            mapping={
+                "id": job_id,
+                "state": JobState.QUEUED.value,
+                "created": repr(now),
+                "scenario": json.dumps(scenario),
+                "request": json.dumps(request),
+                "scenario_name": name,
+                "finished": "0",
+            },
+        )
+        target.zadd(self.index_key, {job_id: now})
+        if pipe is None:
+            target.execute()
 
     def exists(self, job_id: str) -> bool:
         return bool(self.redis.exists(self.key(job_id)))
@@ -178,6 +187,14 @@ class JobStore:
 
     def move(self, job_id: str, to: JobState, **fields: Any) -> bool:
         """Set the state unless the job already ended (a final state never changes)."""
+        mapping: dict[str, str] = {"state": to.value, **{k: str(v) for k, v in fields.items()}}
+        if to.is_final:
+            mapping["ended"] = repr(time.time())
+        return self._set_if_live(job_id, mapping)
+
+    def _set_if_live(self, job_id: str, mapping: dict[str, str]) -> bool:
+        """Set fields on a job that exists and has not ended, in one transaction with that
+        check (so that a job cannot end between the two); False when it has ended or is gone."""
         key = self.key(job_id)
         with self.redis.pipeline() as pipe:
             while True:
@@ -188,13 +205,7 @@ class JobStore:
                         pipe.unwatch()
                         return False
                     pipe.multi()
-                    mapping: dict[Any, Any] = {
-                        "state": to.value,
-                        **{k: str(v) for k, v in fields.items()},
-                    }
-                    if to.is_final:
-                        mapping["ended"] = repr(time.time())
-                    pipe.hset(key, mapping=mapping)
+                    pipe.hset(key, mapping=dict[Any, Any](mapping))
                     pipe.execute()
                     return True
                 except WatchError:
@@ -203,31 +214,12 @@ class JobStore:
     # cancel and delete
     def request_cancel(self, job_id: str) -> bool:
         """Ask running shards to stop between batches; False when the job already ended."""
-        return self._flag_live(job_id, cancel="1")
+        return self._set_if_live(job_id, {"cancel": "1"})
 
     def request_delete(self, job_id: str) -> bool:
         """Cancel a job that has not ended and mark it for purging once its parts stop (the
         part that ends it purges it); False when the job already ended (purge it now)."""
-        return self._flag_live(job_id, cancel="1", deleted="1")
-
-    def _flag_live(self, job_id: str, **flags: str) -> bool:
-        """Set flags on a job that exists and has not ended, in one transaction with the check
-        (so a job cannot end between the two and keep a flag nobody acts on)."""
-        key = self.key(job_id)
-        with self.redis.pipeline() as pipe:
-            while True:
-                try:
-                    pipe.watch(key)
-                    current = pipe.hget(key, "state")
-                    if current is None or JobState(str(current)).is_final:
-                        pipe.unwatch()
-                        return False
-                    pipe.multi()
-                    pipe.hset(key, mapping=dict[Any, Any](flags))
-                    pipe.execute()
-                    return True
-                except WatchError:
-                    continue
+        return self._set_if_live(job_id, {"cancel": "1", "deleted": "1"})
 
     def is_cancel_requested(self, job_id: str) -> bool:
         return self.redis.hget(self.key(job_id), "cancel") == "1"
