@@ -33,6 +33,23 @@ def test_submit_status_and_result_over_http(
     assert data["ranked"] and len(data["cautions"]) == 4
     assert main(["result", job, "--api", api]) == 0
     assert "score (lower is better)" in capsys.readouterr().out
+    assert main(["cancel", job, "--api", api]) == 1  # it has ended
+    assert "409" in capsys.readouterr().err
+
+
+def test_cancel_over_http_keeps_what_finished(
+    api: str, settings: Settings, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    scenario = tmp_path / "small.toml"
+    scenario.write_text(write_toml(small_scenario()))
+    assert main(["submit", str(scenario), "--api", api, "--trials", "400"]) == 0
+    job = capsys.readouterr().out.split()[-1]
+    assert main(["cancel", job, "--api", api]) == 0
+    out = capsys.readouterr().out
+    assert "queued" in out and "cancelling" in out
+    make_worker(settings, name="client-cancel").work(burst=True)
+    assert main(["status", job, "--api", api]) == 0
+    assert "cancelled" in capsys.readouterr().out
 
 
 def test_client_errors_are_clear(

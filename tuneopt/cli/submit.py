@@ -1,4 +1,5 @@
-"""``tuneopt submit``, ``status`` and ``result``: the job service from the command line.
+"""``tuneopt submit``, ``status``, ``result`` and ``cancel``: the job service from the command
+line.
 
 They talk to the HTTP API only (standard library client); the API key comes from
 TUNEOPT_API_KEY, as for the service.
@@ -32,6 +33,7 @@ def register(sub: Any) -> None:
         ("submit", "send a scenario to the job service"),
         ("status", "show a service job's state and progress"),
         ("result", "show a finished service job's ranked setups"),
+        ("cancel", "stop a service job; the setups it finished are still ranked"),
     ):
         p = sub.add_parser(name, help=helptext)
         if name == "submit":
@@ -152,6 +154,10 @@ def run(args: argparse.Namespace) -> int:
             return 0 if status["state"] == "done" else 1
         if args.action == "status":
             _show_status(_request(args.api, "GET", f"/jobs/{args.job}"))
+            return 0
+        if args.action == "cancel":
+            _show_status(_request(args.api, "POST", f"/jobs/{args.job}/cancel"))
+            print("  cancelling: shards stop after their current batch; then see `tuneopt result`")
             return 0
         _show_result(args.api, args.job, args.json)
         return 0
