@@ -1,53 +1,119 @@
-"""Faults during a running job, with real worker processes on this machine's loopback Redis.
+"""Faults during running jobs, with real worker and API processes on this machine's loopback
+Redis: a worker, the API and Redis killed with SIGKILL (each alone, and all three in one run),
+then started again as a process supervisor would.
 
 Bounded and self-stopping: every wait has a time limit, and every process started here is
-stopped by its pid when the test ends.
+stopped by its pid when the test ends. ``TUNEOPT_FAULT_ROUNDS=N`` repeats each fault scenario N
+times (default 1). With ``TUNEOPT_FIGURES`` set, each test records what it measured
+(``tests/figures.py``).
 """
 
 from __future__ import annotations
 
+import json
 import os
 import signal
 import subprocess
 import sys
 import time
-from collections.abc import Iterator
+import urllib.error
+import urllib.request
+from collections.abc import Callable, Iterator, Sequence
 from pathlib import Path
+from typing import Any
 
 import optuna
 import pytest
 from fastapi.testclient import TestClient
 from optuna.trial import TrialState
+from pydantic import SecretStr
 from redis import Redis
+from redis.exceptions import ConnectionError as RedisConnectionError
 from redis.exceptions import RedisError
 from rq import Worker
 
-from tests.service.conftest import RedisServer, small_scenario
+from tests.figures import record
+from tests.service.conftest import RedisServer, _free_port, small_scenario
 from tuneopt.optimise.redis_storage import redis_storage
 from tuneopt.optimise.runner import count_finished
+from tuneopt.service import tasks
 from tuneopt.service.api import create_app
-from tuneopt.service.records import JobStore
+from tuneopt.service.records import JobRecord, JobState, JobStore
 from tuneopt.service.settings import Settings
 
 ROOT = Path(__file__).resolve().parents[2]
 LIMIT = 240.0  # [s] no fault test waits longer than this for anything
+ROUNDS = int(os.environ.get("TUNEOPT_FAULT_ROUNDS", "1"))  # each fault scenario, N times
+POLL = 0.2  # [s] between two reads of the jobs
+
+# One job that a single shard runs from a fixed seed: nothing but its worker decides its
+# trials, so two runs of it that nothing disturbs rank the same setups with the same scores.
+SEEDED: dict[str, Any] = {"trials": 32, "shards": 1, "batch_size": 4, "realisations": 1, "seed": 11}
+SEEDED_COURSE = "300 m"  # long enough that the job is still running when a fault lands
+# small jobs queued behind the one that a fault hits
+QUEUED: dict[str, Any] = {"trials": 8, "shards": 1, "batch_size": 4, "realisations": 1}
+
+
+@pytest.fixture(autouse=True)
+def _timed(request: pytest.FixtureRequest) -> Iterator[None]:
+    started = time.monotonic()
+    yield
+    print(f"\n{request.node.name}: {time.monotonic() - started:.1f} s")
+
+
+# processes ---------------------------------------------------------------------------------
+
+
+def service_env(settings: Settings) -> dict[str, str]:
+    """The environment of a service process run with ``settings``: this process's environment
+    without its own ``TUNEOPT_`` variables (a test's knobs, such as ``TUNEOPT_FIGURES``, are
+    unknown settings to the service, which refuses to start with them), and every setting."""
+    env = {k: v for k, v in os.environ.items() if not k.upper().startswith("TUNEOPT_")}
+    for name in Settings.model_fields:
+        value = getattr(settings, name)
+        if value is None:
+            continue
+        if isinstance(value, SecretStr):
+            value = value.get_secret_value()
+        elif isinstance(value, bool):
+            value = "true" if value else "false"
+        env[f"TUNEOPT_{name.upper()}"] = str(value)
+    return env
+
+
+def _stop(procs: Sequence[subprocess.Popen[bytes]]) -> None:
+    """SIGTERM each process still running, then SIGKILL whichever has not ended in 10 s."""
+    for proc in procs:
+        if proc.poll() is None:
+            proc.send_signal(signal.SIGTERM)
+    for proc in procs:
+        try:
+            proc.wait(timeout=10)
+        except subprocess.TimeoutExpired:
+            proc.kill()
+            proc.wait()
+
+
+def _kill(proc: subprocess.Popen[bytes]) -> None:
+    proc.send_signal(signal.SIGKILL)
+    proc.wait(timeout=10)
+
+
+def _log_tail(path: Path, lines: int = 30) -> str:
+    if not path.is_file():
+        return "(no log)"
+    return "\n".join(path.read_text(errors="replace").splitlines()[-lines:])
 
 
 class Workers:
     """Worker processes started by a test; each is stopped by its own pid."""
 
     def __init__(self, settings: Settings, logs: Path):
-        self.env = {
-            **os.environ,
-            "TUNEOPT_REDIS_URL": settings.redis_url.get_secret_value(),
-            "TUNEOPT_RESULTS_DIR": str(settings.results_dir),
-            "TUNEOPT_HEARTBEAT_SECONDS": str(settings.heartbeat_seconds),
-            "TUNEOPT_HEARTBEAT_TTL": str(settings.heartbeat_ttl),
-            "TUNEOPT_MAINTENANCE_SECONDS": str(settings.maintenance_seconds),
-            "TUNEOPT_KEEP_STUDIES": "true",
-        }
+        self.env = service_env(settings)
+        self.url = settings.redis_url.get_secret_value()
         self.logs = logs
         self.procs: dict[str, subprocess.Popen[bytes]] = {}
+        self.names: dict[str, str] = {}  # rq name of each role's latest process
         self.history: list[subprocess.Popen[bytes]] = []
 
     def start(self, name: str) -> subprocess.Popen[bytes]:
@@ -63,28 +129,125 @@ class Workers:
         )
         log.close()
         self.procs[name] = proc
+        self.names[name] = run
         self.history.append(proc)
         return proc
 
-    def wait_registered(self, redis_url: str, count: int) -> None:
-        """Wait until ``count`` workers are listening, so that every one gets a shard."""
-        redis = Redis.from_url(redis_url)
+    def wait_listening(self, *names: str) -> None:
+        """Wait until the latest worker of each role is listening, so that every one gets a
+        shard (workers of earlier rounds may still be listed: the names are new each start)."""
+        want = {self.names[n] for n in names}
+        redis = Redis.from_url(self.url)
         started = time.monotonic()
-        while len(Worker.all(connection=redis)) < count:
-            if time.monotonic() - started > LIMIT:
-                pytest.fail(f"{count} workers did not start within {LIMIT:.0f} s")
-            time.sleep(0.1)
+        try:
+            while not want <= {w.name for w in Worker.all(connection=redis)}:
+                for n in names:
+                    if self.procs[n].poll() is not None:
+                        pytest.fail(f"worker {n} exited:\n{_log_tail(self.logs / f'{n}.log')}")
+                if time.monotonic() - started > LIMIT:
+                    pytest.fail(f"workers {sorted(want)} did not start within {LIMIT:.0f} s")
+                time.sleep(0.1)
+        finally:
+            redis.close()
 
     def stop_all(self) -> None:
-        for proc in self.history:
-            if proc.poll() is None:
-                proc.send_signal(signal.SIGTERM)
-        for proc in self.history:
+        _stop(self.history)
+
+
+class ApiProcess:
+    """The API in a process of its own (``tuneopt serve``) on a fixed loopback port, so that a
+    test can kill it and start it again where its clients expect it."""
+
+    def __init__(self, settings: Settings, logs: Path):
+        assert settings.api_key is not None
+        self.env = service_env(settings)
+        self.key = settings.api_key.get_secret_value()
+        self.port = _free_port()
+        self.url = f"http://127.0.0.1:{self.port}"
+        self.log = logs / "api.log"
+        self.proc: subprocess.Popen[bytes] | None = None
+        self.history: list[subprocess.Popen[bytes]] = []
+
+    def start(self) -> float:
+        """Start the API and wait until it answers; returns the seconds that took."""
+        started = time.monotonic()
+        log = open(self.log, "ab")  # noqa: SIM115 (closed with the process)
+        self.proc = subprocess.Popen(
+            [
+                sys.executable, "-m", "tuneopt.cli", "serve",
+                "--host", "127.0.0.1", "--port", str(self.port),
+            ],
+            cwd=ROOT,
+            env=self.env,
+            stdout=log,
+            stderr=subprocess.STDOUT,
+        )  # fmt: skip
+        log.close()
+        self.history.append(self.proc)
+        while True:
+            if self.proc.poll() is not None:
+                pytest.fail(f"the API exited at start:\n{_log_tail(self.log)}")
+            if time.monotonic() - started > LIMIT:
+                pytest.fail(f"the API did not answer within {LIMIT:.0f} s")
             try:
-                proc.wait(timeout=10)
-            except subprocess.TimeoutExpired:
-                proc.kill()
-                proc.wait()
+                self.call("GET", "/health", timeout=2)  # any answer, 503 too, means it is up
+                return time.monotonic() - started
+            except OSError:  # not listening yet
+                time.sleep(0.1)
+
+    @property
+    def alive(self) -> bool:
+        return self.proc is not None and self.proc.poll() is None
+
+    def kill(self) -> None:
+        assert self.proc is not None
+        _kill(self.proc)
+
+    def call(
+        self, method: str, path: str, body: Any = None, timeout: float = 30
+    ) -> tuple[int, Any]:
+        data = None if body is None else json.dumps(body).encode()
+        request = urllib.request.Request(self.url + path, data=data, method=method)
+        request.add_header("X-API-Key", self.key)
+        if data is not None:
+            request.add_header("Content-Type", "application/json")
+        try:
+            with urllib.request.urlopen(request, timeout=timeout) as r:
+                return r.status, json.loads(r.read())
+        except urllib.error.HTTPError as exc:
+            return exc.code, json.loads(exc.read() or b"null")
+
+    def submit(self, body: dict[str, Any]) -> str:
+        code, answer = self.call("POST", "/jobs", body)
+        assert code == 202, answer
+        return str(answer["id"])
+
+    def result(self, job_id: str) -> dict[str, Any]:
+        code, answer = self.call("GET", f"/jobs/{job_id}/result")
+        assert code == 200, answer
+        return dict(answer)
+
+
+class Supervisor:
+    """Starts again whatever died, as a process supervisor would, a bounded number of times."""
+
+    def __init__(self, workers: Workers, roles: Sequence[str], api: ApiProcess | None = None):
+        self.workers = workers
+        self.roles = list(roles)
+        self.api = api
+        self.worker_restarts = 0
+        self.api_restarts = 0
+
+    def revive(self) -> None:
+        for role in self.roles:
+            if self.workers.procs[role].poll() is not None:
+                assert self.worker_restarts < 8, "workers keep dying"
+                self.worker_restarts += 1
+                self.workers.start(role)
+        if self.api is not None and not self.api.alive:
+            assert self.api_restarts < 4, "the API keeps dying"
+            self.api_restarts += 1
+            self.api.start()
 
 
 @pytest.fixture
@@ -96,7 +259,20 @@ def workers(settings: Settings, tmp_path: Path) -> Iterator[Workers]:
         group.stop_all()
 
 
+@pytest.fixture
+def api_process(settings: Settings, tmp_path: Path) -> Iterator[ApiProcess]:
+    api = ApiProcess(settings, tmp_path)
+    try:
+        yield api
+    finally:
+        _stop(api.history)
+
+
+# reading the jobs --------------------------------------------------------------------------
+
+
 def _submit(settings: Settings, length: str = "40 m", **fields: object) -> str:
+    """Submit a job through the API in this process (for tests that do not kill the API)."""
     with TestClient(create_app(settings)) as client:
         assert settings.api_key is not None
         client.headers["X-API-Key"] = settings.api_key.get_secret_value()
@@ -104,6 +280,10 @@ def _submit(settings: Settings, length: str = "40 m", **fields: object) -> str:
         response = client.post("/jobs", json=body)
         assert response.status_code == 202, response.text
         return str(response.json()["id"])
+
+
+def _body(length: str, fields: dict[str, Any], **more: Any) -> dict[str, Any]:
+    return {"scenario": small_scenario(length), **fields, **more}
 
 
 def _study(settings: Settings, store: JobStore, job_id: str) -> optuna.Study | None:
@@ -120,134 +300,579 @@ def _complete(study: optuna.Study) -> int:
     return sum(t.state == TrialState.COMPLETE for t in study.get_trials(deepcopy=False))
 
 
+def _running(study: optuna.Study) -> list[optuna.trial.FrozenTrial]:
+    return study.get_trials(deepcopy=False, states=(TrialState.RUNNING,))
+
+
+class Watch:
+    """What a test sees of its jobs, read straight from Redis at every poll: each job's record
+    and its study's count of completed trials, kept in order (to check it never goes down)."""
+
+    def __init__(self, settings: Settings, store: JobStore, *jobs: str):
+        self.settings = settings
+        self.store = store
+        self.counts: dict[str, list[int]] = {}
+        self.records: dict[str, JobRecord] = {}
+        self._studies: dict[str, optuna.Study] = {}
+        for job_id in jobs:
+            self.add(job_id)
+
+    def add(self, job_id: str) -> str:
+        self.counts.setdefault(job_id, [])
+        return job_id
+
+    def study(self, job_id: str) -> optuna.Study | None:
+        if job_id not in self._studies:
+            study = _study(self.settings, self.store, job_id)
+            if study is None:
+                return None
+            self._studies[job_id] = study
+        return self._studies[job_id]
+
+    def forget(self) -> None:
+        """Drop the studies read so far: a fresh reader replays each journal from Redis (after
+        a restart of Redis, what it kept is what counts)."""
+        self._studies.clear()
+
+    def latest(self, job_id: str) -> int:
+        counts = self.counts[job_id]
+        return counts[-1] if counts else 0
+
+    def state(self, job_id: str) -> JobState | None:
+        record = self.records.get(job_id)
+        return None if record is None else record.state
+
+    def ended(self, *jobs: str) -> bool:
+        return all((s := self.state(j)) is not None and s.is_final for j in (jobs or self.counts))
+
+    def poll(self) -> bool:
+        """Read every job once; False when Redis was away (the read is tried again later)."""
+        try:
+            for job_id in self.counts:
+                record = self.store.get(job_id)
+                assert record is not None, f"job {job_id} is gone"
+                self.records[job_id] = record
+                study = self.study(job_id)
+                if study is not None:
+                    self.counts[job_id].append(_complete(study))
+        except RedisError:
+            self.forget()
+            return False
+        return True
+
+    def until(
+        self,
+        done: Callable[[], bool],
+        step: Callable[[], None] | None = None,
+        what: str = "the jobs to end",
+    ) -> float:
+        """Poll until ``done()``, calling ``step()`` after every read (faults, restarts);
+        returns the seconds waited."""
+        started = time.monotonic()
+        while True:
+            if self.poll() and done():
+                return time.monotonic() - started
+            if time.monotonic() - started > LIMIT:
+                pytest.fail(f"waited {LIMIT:.0f} s for {what}")
+            if step is not None:
+                step()
+            time.sleep(POLL)
+
+    def until_ended(self, step: Callable[[], None] | None = None) -> float:
+        return self.until(self.ended, step)
+
+    @property
+    def reads(self) -> int:
+        return sum(len(c) for c in self.counts.values())
+
+
+def never_down(counts: Sequence[int]) -> bool:
+    return all(b >= a for a, b in zip(counts, counts[1:], strict=False))
+
+
+def check_done(watch: Watch, job_id: str, budget: int, slack: int = 0) -> optuna.Study:
+    """The job ended done; its completed trials never went down while it was watched; nothing
+    is left RUNNING; its finished trials meet the budget (shards asking at the same moment may
+    overshoot it by ``slack``). Returns a fresh read of its study."""
+    record = watch.store.get(job_id)
+    assert record is not None and record.state == JobState.DONE, record
+    study = _study(watch.settings, watch.store, job_id)
+    assert study is not None
+    counts = [*watch.counts[job_id], _complete(study)]
+    assert never_down(counts), counts
+    assert not _running(study), [t.number for t in _running(study)]
+    assert budget <= count_finished(study) <= budget + slack, count_finished(study)
+    return study
+
+
+def restart_redis(server: RedisServer, watch: Watch, job_id: str) -> tuple[int, int]:
+    """SIGKILL Redis and start it again on its AOF; returns the job's completed trials read
+    just before the kill and just after the restart, each by a fresh reader of its study."""
+    before = _study(watch.settings, watch.store, job_id)
+    assert before is not None
+    count = _complete(before)
+    server.stop(signal.SIGKILL)
+    server.start()
+    watch.forget()
+    after = _study(watch.settings, watch.store, job_id)
+    assert after is not None, "the study is gone after the restart"
+    return count, _complete(after)
+
+
+def left_running(watch: Watch, *jobs: str) -> int:
+    total = 0
+    for job_id in jobs:
+        study = _study(watch.settings, watch.store, job_id)
+        assert study is not None
+        total += len(_running(study))
+    return total
+
+
+def ranked_part(result: dict[str, Any]) -> dict[str, Any]:
+    """What a job found, without who ran it or when: ranked setups with their scores, terms,
+    metrics and robustness, the baseline, the non-dominated trials and the trial counts."""
+    keys = ("ranked", "baseline", "pareto_trials", "trials", "stopped", "finished_by_finaliser")
+    return {k: result[k] for k in keys}
+
+
+def assert_same_result(got: dict[str, Any], want: dict[str, Any]) -> int:
+    """Equal ranked parts; on a difference, name the first field that differs. Returns the
+    number of ranked setups compared."""
+    a, b = ranked_part(got), ranked_part(want)
+    if a != b:
+        for key in a:
+            if a[key] != b[key]:
+                if key == "ranked":
+                    for x, y in zip(a[key], b[key], strict=False):
+                        diff = {k: (x[k], y[k]) for k in x if x[k] != y.get(k)}
+                        assert not diff, f"rank {x['rank']} differs: {diff}"
+                pytest.fail(f"{key} differs: {a[key]!r} != {b[key]!r}")
+    assert a["ranked"], "nothing ranked"
+    return len(a["ranked"])
+
+
+# rounds and figures ------------------------------------------------------------------------
+
+
+def _reproduce(test: str, rounds: bool = True) -> str:
+    """The command that measures a test's figure again (``make reliability`` runs them all)."""
+    command = f"pytest tests/service/test_faults.py -k {test}"
+    return f"TUNEOPT_FAULT_ROUNDS={ROUNDS} {command}" if rounds else command
+
+
+def _span(values: Sequence[float], unit: str = "") -> str:
+    lo, hi = min(values), max(values)
+    fmt = (lambda v: f"{v:.1f}") if any(isinstance(v, float) for v in values) else str
+    text = fmt(lo) if lo == hi else f"{fmt(lo)} to {fmt(hi)}"
+    return f"{text}{unit}"
+
+
+def _rounds(
+    what: str,
+    test: str,
+    one: Callable[[int], dict[str, Any]],
+    describe: Callable[[list[dict[str, Any]]], str],
+) -> list[dict[str, Any]]:
+    """Run a fault scenario ROUNDS times and record what the rounds measured (a failing round
+    is recorded too, then fails the test)."""
+    seen: list[dict[str, Any]] = []
+    for n in range(ROUNDS):
+        started = time.monotonic()
+        try:
+            seen.append(one(n))
+        except (Exception, pytest.fail.Exception) as exc:
+            reason = str(exc).splitlines()[0][:200] if str(exc) else type(exc).__name__
+            record(what, f"{n} of {ROUNDS} rounds survived; round {n + 1} failed: {reason}",
+                   _reproduce(test))  # fmt: skip
+            raise
+        print(f"round {n + 1} of {ROUNDS}: {time.monotonic() - started:.1f} s, {seen[-1]}")
+    figure = f"{len(seen)} of {ROUNDS} round{'s' if ROUNDS > 1 else ''} survived; {describe(seen)}"
+    print(figure)
+    record(what, figure, _reproduce(test))
+    return seen
+
+
+# the faults --------------------------------------------------------------------------------
+
+
+def test_a_submission_cut_off_between_record_and_queue_leaves_no_stranded_job(
+    settings: Settings, redis_client: Redis, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """The API writes a job's record and queues the job's start. An API killed between the two
+    writes, or whose Redis connection drops there, must not leave a record that says queued
+    while nothing will ever start it: both are written, or neither. The cut is made here by
+    failing the queueing, which stops the submission at the same point as a SIGKILL would."""
+
+    def cut(*args: Any, **kwargs: Any) -> None:
+        raise RedisConnectionError("the connection dropped between the two writes")
+
+    monkeypatch.setattr(tasks, "enqueue_start", cut)
+    queue_key = f"rq:queue:{settings.queue}"
+    with TestClient(create_app(settings)) as client:
+        assert settings.api_key is not None
+        client.headers["X-API-Key"] = settings.api_key.get_secret_value()
+        response = client.post("/jobs", json=_body("40 m", QUEUED))
+        assert response.status_code == 503, response.text
+        listed = client.get("/jobs").json()["jobs"]
+        records = list(redis_client.scan_iter(match=f"{settings.key_prefix}:job*"))
+        entries = redis_client.llen(queue_key)
+        assert (listed, records, entries) == ([], [], 0)
+
+        # uncut, the same submission writes both
+        monkeypatch.undo()
+        job_id = _submit(settings, **QUEUED)
+        assert redis_client.exists(JobStore(redis_client).key(job_id))
+        assert redis_client.lrange(queue_key, 0, -1) == [tasks.rq_id(job_id, "start")]
+    record(
+        "a submission cut off between writing the job and queueing it",
+        f"answered {response.status_code}; {len(listed)} jobs listed, {len(records)} job records "
+        f"and {entries} queue entries left behind (an uncut submission writes both)",
+        _reproduce("cut_off", rounds=False),
+    )
+
+
 def test_worker_killed_mid_job_loses_no_trial_and_the_job_finishes(
-    settings: Settings, redis_client: object, workers: Workers
+    settings: Settings, redis_client: Redis, workers: Workers
 ) -> None:
     """SIGKILL a worker while its trials run. The kill is timed by polling, so now and then it
     lands between two of the worker's batches and leaves nothing running: then the checks of
     what was reaped have nothing to check (the in-process test of a retried shard covers them
     every time) and the rest still must hold."""
-    store = JobStore(redis_client)  # type: ignore[arg-type]
+    store = JobStore(redis_client)
     budget = 48
-    victim = workers.start("victim")
-    workers.start("survivor")
-    workers.wait_registered(settings.redis_url.get_secret_value(), 2)
-    # a longer course makes a batch's simulation, not its bookkeeping, most of a shard's time,
-    # so that the kill lands while trials are running
-    job_id = _submit(settings, "400 m", trials=budget, shards=2, batch_size=4, realisations=1)
-    started = time.monotonic()
-    study = None
-    counts: list[int] = []
-    killed: list[str] = []  # owners (host:pid:shard) killed
-    left: set[int] = set()  # their trials still RUNNING just after the kill
-    pids: set[int] = set()
-    while time.monotonic() - started < LIMIT:
-        record = store.get(job_id)
-        assert record is not None
-        if record.state.is_final:
-            break
-        study = study or _study(settings, store, job_id)
-        if study is not None:
-            counts.append(_complete(study))
-            running = study.get_trials(deepcopy=False, states=(TrialState.RUNNING,))
-            owners = {str(t.user_attrs.get("owner", "")) for t in running}
+
+    def one(n: int) -> dict[str, Any]:
+        victim = workers.start("victim")
+        if "survivor" not in workers.procs or workers.procs["survivor"].poll() is not None:
+            workers.start("survivor")
+        workers.wait_listening("victim", "survivor")
+        # a longer course makes a batch's simulation, not its bookkeeping, most of a shard's
+        # time, so that the kill lands while trials are running
+        job_id = _submit(settings, "400 m", trials=budget, shards=2, batch_size=4, realisations=1)
+        watch = Watch(settings, store, job_id)
+        killed: list[str] = []  # owners (host:pid:shard) killed
+        left: set[int] = set()  # their trials still RUNNING just after the kill
+        at_kill = 0
+
+        def step() -> None:
+            nonlocal left, at_kill
+            study = watch.study(job_id)
+            if killed or study is None or watch.latest(job_id) < 8:
+                return
+            owners = {str(t.user_attrs.get("owner", "")) for t in _running(study)}
             mine = [o for o in owners if f":{victim.pid}:" in o]
-            if not killed and counts[-1] >= 8 and mine:
-                victim.send_signal(signal.SIGKILL)
-                victim.wait(timeout=10)
-                pids.add(victim.pid)
+            if mine:
+                _kill(victim)
                 killed.append(mine[0])
-                study = _study(settings, store, job_id)  # what the dead worker left behind
-                assert study is not None
-                left = {
-                    t.number
-                    for t in study.get_trials(deepcopy=False, states=(TrialState.RUNNING,))
-                    if t.user_attrs.get("owner") == mine[0]
-                }
-        time.sleep(0.2)
-    else:
-        pytest.fail(f"the job did not end within {LIMIT:.0f} s")
-    assert killed, "the worker was never caught with trials running"
-    record = store.get(job_id)
-    assert record is not None and record.state.value == "done", record
-    assert study is not None
-    counts.append(_complete(study))
-    assert all(b >= a for a, b in zip(counts, counts[1:], strict=False)), counts
-    trials = study.get_trials(deepcopy=False)
-    assert not [t for t in trials if t.state == TrialState.RUNNING]
-    # complete or failed in the simulator; shards asking at the same moment may overshoot
-    # by at most one batch each
-    assert budget <= count_finished(study) <= budget + 4
-    reaped = [t for t in trials if t.user_attrs.get("reaped")]
-    print(f"left running by the killed worker: {sorted(left)}; reaped: {len(reaped)}")
-    assert left <= {t.number for t in reaped}
-    assert all(t.state == TrialState.FAIL for t in reaped)
-    # besides its tagged trials, a dead worker may have left one it had asked for but not yet
-    # tagged with its name; the finaliser reaps that one and finishes the budget itself
-    assert all(t.user_attrs.get("owner") in (*killed, None) for t in reaped)
-    # every reaped point was asked again and finished (a trial killed while its settings were
-    # still being drawn has only some of them: it is asked again with those and new draws)
-    done_points = {
-        tuple(sorted(t.params.items())) for t in trials if t.state == TrialState.COMPLETE
-    }
-    whole = [t for t in reaped if len(t.params) == len(study.user_attrs["parameters"])]
-    assert whole or not left
-    assert all(tuple(sorted(t.params.items())) in done_points for t in whole)
-    owners = {str(t.user_attrs["owner"]).split(":")[1] for t in trials if "owner" in t.user_attrs}
-    assert pids & {int(o) for o in owners} and len(owners) >= 2  # killed and living did trials
+                at_kill = watch.latest(job_id)
+                fresh = _study(settings, store, job_id)  # what the dead worker left behind
+                assert fresh is not None
+                left = {t.number for t in _running(fresh) if t.user_attrs.get("owner") == mine[0]}
+
+        watch.until_ended(step)
+        assert killed, "the worker was never caught with trials running"
+        study = check_done(watch, job_id, budget, slack=4)
+        trials = study.get_trials(deepcopy=False)
+        reaped = [t for t in trials if t.user_attrs.get("reaped")]
+        print(f"left running by the killed worker: {sorted(left)}; reaped: {len(reaped)}")
+        assert left <= {t.number for t in reaped}
+        assert all(t.state == TrialState.FAIL for t in reaped)
+        # besides its tagged trials, a dead worker may have left one it had asked for but not
+        # yet tagged with its name; the finaliser reaps that one and finishes the budget itself
+        assert all(t.user_attrs.get("owner") in (*killed, None) for t in reaped)
+        # every reaped point was asked again and finished (a trial killed while its settings
+        # were still being drawn has only some of them: it is asked again with those and new
+        # draws)
+        done_points = {
+            tuple(sorted(t.params.items())) for t in trials if t.state == TrialState.COMPLETE
+        }
+        whole = [t for t in reaped if len(t.params) == len(study.user_attrs["parameters"])]
+        assert whole or not left
+        assert all(tuple(sorted(t.params.items())) in done_points for t in whole)
+        owners = {
+            str(t.user_attrs["owner"]).split(":")[1] for t in trials if "owner" in t.user_attrs
+        }
+        # the killed and the living worker both did trials
+        assert victim.pid in {int(o) for o in owners} and len(owners) >= 2
+        return {
+            "at_kill": at_kill,
+            "left": len(left),
+            "reaped": len(reaped),
+            "finished": count_finished(study),
+            "reads": watch.reads,
+            "running_after": left_running(watch, job_id),
+        }
+
+    def describe(rounds: list[dict[str, Any]]) -> str:
+        return (
+            f"worker killed at {_span([r['at_kill'] for r in rounds])} completed trials with "
+            f"{_span([r['left'] for r in rounds])} of its trials RUNNING; "
+            f"{sum(r['reaped'] for r in rounds)} reaped and asked again; job done with "
+            f"{_span([r['finished'] for r in rounds])} of {budget} trials finished; completed "
+            f"trials never went down ({sum(r['reads'] for r in rounds)} reads); "
+            f"{sum(r['running_after'] for r in rounds)} trials left RUNNING"
+        )
+
+    _rounds("worker process killed with SIGKILL mid-job", "worker_killed", one, describe)
 
 
 def test_redis_restart_mid_job_keeps_every_completed_trial(
-    settings: Settings, redis_client: object, redis_server: RedisServer, workers: Workers
+    settings: Settings, redis_client: Redis, redis_server: RedisServer, workers: Workers
 ) -> None:
     """Redis killed outright and started again on its append-only file, mid-job. Workers that
     lose their connection for good exit; the test restarts them, as a supervisor would."""
-    store = JobStore(redis_client)  # type: ignore[arg-type]
+    store = JobStore(redis_client)
     budget = 40
-    names = ["one", "two"]
-    for name in names:
-        workers.start(name)
-    workers.wait_registered(settings.redis_url.get_secret_value(), 2)
-    job_id = _submit(settings, trials=budget, shards=2, batch_size=4, realisations=1)
-    restarts = 0
-    started = time.monotonic()
-    study = None
-    counts: list[int] = []
-    restarted = False
-    before = 0
-    while time.monotonic() - started < LIMIT:
-        try:
-            record = store.get(job_id)
-            assert record is not None
-            if record.state.is_final:
-                break
-            study = study or _study(settings, store, job_id)
-            if study is not None:
-                counts.append(_complete(study))
-        except RedisError:
-            time.sleep(0.2)
-            continue
-        if not restarted and counts and counts[-1] >= 8:
-            before = counts[-1]
-            redis_server.stop(signal.SIGKILL)
-            redis_server.start()
-            restarted = True
-            study = None  # a fresh reader replays the journal from the restarted server
-        for name in names:
-            proc = workers.procs[name]
-            if proc.poll() is not None and restarts < 4:
-                restarts += 1
-                workers.start(name)
-        time.sleep(0.2)
-    else:
-        pytest.fail(f"the job did not end within {LIMIT:.0f} s")
-    assert restarted, "the job ended before Redis could be restarted"
-    record = store.get(job_id)
-    assert record is not None and record.state.value == "done", record
-    study = _study(settings, store, job_id)
-    assert study is not None
-    after = _complete(study)
-    assert after >= before
-    assert all(b >= a for a, b in zip(counts, counts[1:], strict=False)), counts
-    assert not study.get_trials(deepcopy=False, states=(TrialState.RUNNING,))
-    assert budget <= count_finished(study) <= budget + 4
+    roles = ["one", "two"]
+
+    def one(n: int) -> dict[str, Any]:
+        for role in roles:
+            if role not in workers.procs or workers.procs[role].poll() is not None:
+                workers.start(role)
+        workers.wait_listening(*roles)
+        supervisor = Supervisor(workers, roles)
+        job_id = _submit(settings, trials=budget, shards=2, batch_size=4, realisations=1)
+        watch = Watch(settings, store, job_id)
+        seen: list[tuple[int, int]] = []  # completed trials just before and after
+
+        def step() -> None:
+            if not seen and watch.latest(job_id) >= 8:
+                seen.append(restart_redis(redis_server, watch, job_id))
+            supervisor.revive()
+
+        watch.until_ended(step)
+        assert seen, "the job ended before Redis could be restarted"
+        before, after = seen[0]
+        assert after >= before, (before, after)
+        study = check_done(watch, job_id, budget, slack=4)
+        return {
+            "before": before,
+            "after": after,
+            "restarts": supervisor.worker_restarts,
+            "finished": count_finished(study),
+            "reads": watch.reads,
+            "running_after": left_running(watch, job_id),
+        }
+
+    def describe(rounds: list[dict[str, Any]]) -> str:
+        return (
+            f"Redis killed at {_span([r['before'] for r in rounds])} completed trials and "
+            f"restarted on its AOF with {_span([r['after'] for r in rounds])} completed; "
+            f"{sum(r['restarts'] for r in rounds)} worker restarts; job done with "
+            f"{_span([r['finished'] for r in rounds])} trials finished (budget {budget}); "
+            f"completed trials never went down ({sum(r['reads'] for r in rounds)} reads); "
+            f"{sum(r['running_after'] for r in rounds)} trials left RUNNING"
+        )
+
+    _rounds(
+        "Redis killed with SIGKILL mid-job and restarted on its AOF", "redis_restart", one, describe
+    )
+
+
+def test_single_shard_job_with_a_fixed_seed_gives_the_same_result_twice(
+    settings: Settings, redis_client: Redis, workers: Workers
+) -> None:
+    """The ground for comparing a disturbed job with an undisturbed one: two undisturbed runs
+    of one single-shard job with a fixed seed, at the same time on two workers, rank the same
+    setups with the same scores (bit for bit: both run the same code on the same machine)."""
+    store = JobStore(redis_client)
+    for role in ("one", "two"):
+        workers.start(role)
+    workers.wait_listening("one", "two")
+    first = _submit(settings, SEEDED_COURSE, **SEEDED)
+    second = _submit(settings, SEEDED_COURSE, **SEEDED)
+    watch = Watch(settings, store, first, second)
+    watch.until_ended()
+    for job_id in (first, second):
+        check_done(watch, job_id, SEEDED["trials"])
+    a, b = store.get_result(first), store.get_result(second)
+    assert a is not None and b is not None
+    compared = assert_same_result(a, b)
+    ran = {o.split(":")[1] for r in (a, b) for o in r["workers"]}
+    print(f"{compared} ranked setups equal; worker pids {sorted(ran)}")
+    record(
+        "two undisturbed single-shard jobs with the same seed",
+        f"{compared} ranked setups with their scores, terms and robustness equal between the "
+        f"two runs (run at once, by {len(ran)} worker process(es))",
+        _reproduce("same_result", rounds=False),
+    )
+
+
+def test_api_killed_mid_job_and_restarted_loses_no_job(
+    settings: Settings, redis_client: Redis, workers: Workers, api_process: ApiProcess
+) -> None:
+    """SIGKILL the API process while a job runs and others wait in the queue, then start it
+    again on the same port. The API holds no job state of its own: the running job goes on and
+    ends as an undisturbed run of the same job (same seed) does; the queued jobs stay queued
+    and run. One worker, so that the queued jobs cannot start while the first one runs."""
+    store = JobStore(redis_client)
+    api = api_process
+    api.start()
+    workers.start("solo")
+    workers.wait_listening("solo")
+    budget = SEEDED["trials"]
+
+    def one(n: int) -> dict[str, Any]:
+        # the undisturbed run of the job
+        reference = api.submit(_body(SEEDED_COURSE, SEEDED))
+        Watch(settings, store, reference).until_ended()
+        want = api.result(reference)
+
+        job_id = api.submit(_body(SEEDED_COURSE, SEEDED))
+        watch = Watch(settings, store, job_id)
+        watch.until(lambda: watch.ended(job_id) or watch.latest(job_id) >= 4, what="the job to run")
+        assert not watch.ended(job_id), "the job ended before the API could be killed"
+        queued = [watch.add(api.submit(_body("40 m", QUEUED, seed=n + k))) for k in range(3)]
+        api.kill()
+        down = time.monotonic()
+        assert watch.poll()
+        at_kill = watch.latest(job_id)
+        assert watch.state(job_id) == JobState.RUNNING and at_kill < budget, (
+            "the job was not running when the API was killed"
+        )
+        waiting = [q for q in queued if watch.state(q) == JobState.QUEUED]
+        assert waiting == queued, "the queued jobs started before the API was killed"
+        # the job goes on without the API
+        watch.until(
+            lambda: watch.ended(job_id) or watch.latest(job_id) > at_kill,
+            what="the job to go on while the API was down",
+        )
+        went_on = watch.latest(job_id) - at_kill
+        api.start()
+        downtime = time.monotonic() - down
+
+        # the restarted API knows every job
+        code, listed = api.call("GET", "/jobs")
+        assert code == 200
+        assert {reference, job_id, *queued} <= {j["id"] for j in listed["jobs"]}
+        for q in queued:
+            code, status = api.call("GET", f"/jobs/{q}")
+            assert code == 200, status
+        watch.until_ended()
+        for q in queued:
+            check_done(watch, q, QUEUED["trials"])
+            code, status = api.call("GET", f"/jobs/{q}")
+            assert code == 200 and status["state"] == "done", status
+        check_done(watch, job_id, budget)
+        code, status = api.call("GET", f"/jobs/{job_id}")
+        assert code == 200 and status["state"] == "done", status
+        assert status["progress"]["finished"] == budget, status
+        compared = assert_same_result(api.result(job_id), want)
+        return {
+            "at_kill": at_kill,
+            "went_on": went_on,
+            "downtime": downtime,
+            "queued": len(queued),
+            "queued_done": sum(watch.state(q) == JobState.DONE for q in queued),
+            "compared": compared,
+            "reads": watch.reads,
+            "running_after": left_running(watch, job_id, *queued),
+        }
+
+    def describe(rounds: list[dict[str, Any]]) -> str:
+        queued = sum(r["queued"] for r in rounds)
+        return (
+            f"API killed at {_span([r['at_kill'] for r in rounds])} of {budget} completed "
+            f"trials and restarted on the same port after {_span([r['downtime'] for r in rounds])}"
+            f" s, during which the job completed {_span([r['went_on'] for r in rounds])} more; "
+            f"job done; {sum(r['queued_done'] for r in rounds)} of {queued} queued jobs kept and "
+            f"done; completed trials never went down ({sum(r['reads'] for r in rounds)} reads); "
+            f"{sum(r['running_after'] for r in rounds)} trials left RUNNING; ranked setups and "
+            f"scores ({_span([r['compared'] for r in rounds])} setups) equal to an undisturbed "
+            f"run with the same seed"
+        )
+
+    _rounds("API process killed with SIGKILL mid-job and restarted", "api_killed", one, describe)
+
+
+def test_worker_api_and_redis_killed_in_one_job_lose_nothing(
+    settings: Settings,
+    redis_client: Redis,
+    redis_server: RedisServer,
+    workers: Workers,
+    api_process: ApiProcess,
+) -> None:
+    """During one running job, with others queued: SIGKILL a worker that has trials running,
+    then the API, then Redis (started again on its AOF at once); a supervisor starts the API
+    and the workers again. Every job ends done and nothing is lost or left RUNNING."""
+    store = JobStore(redis_client)
+    api = api_process
+    api.start()
+    roles = ["one", "two"]
+    budget = 40
+
+    def one(n: int) -> dict[str, Any]:
+        for role in roles:
+            if workers.procs.get(role) is None or workers.procs[role].poll() is not None:
+                workers.start(role)
+        workers.wait_listening(*roles)
+        supervisor = Supervisor(workers, roles, api)
+        victim = workers.procs["one"]
+        job_id = api.submit(
+            _body("400 m", {"trials": budget, "shards": 2, "batch_size": 4, "realisations": 1})
+        )
+        watch = Watch(settings, store, job_id)
+        # both workers busy with the job's shards: jobs submitted now wait in the queue
+        watch.until(lambda: watch.ended(job_id) or watch.latest(job_id) >= 4, what="the job to run")
+        queued = [watch.add(api.submit(_body("40 m", QUEUED, seed=n + k))) for k in range(2)]
+        faults: dict[str, Any] = {}
+
+        def step() -> None:
+            study = watch.study(job_id)
+            if not faults and study is not None and watch.latest(job_id) >= 8:
+                mine = [
+                    t.number
+                    for t in _running(study)
+                    if f":{victim.pid}:" in str(t.user_attrs.get("owner", ""))
+                ]
+                if not mine:
+                    return  # between two of its batches: try at the next read
+                _kill(victim)
+                faults["at_kill"] = watch.latest(job_id)
+                fresh = _study(settings, store, job_id)  # what the dead worker left behind
+                assert fresh is not None
+                faults["victim_running"] = sum(
+                    f":{victim.pid}:" in str(t.user_attrs.get("owner", "")) for t in _running(fresh)
+                )
+                faults["queued_waiting"] = sum(watch.state(q) == JobState.QUEUED for q in queued)
+                api.kill()
+                faults["before"], faults["after"] = restart_redis(redis_server, watch, job_id)
+            supervisor.revive()
+
+        watch.until_ended(step)
+        assert faults, "the job ended before the faults could land"
+        assert faults["queued_waiting"] == len(queued), "the queued jobs started too early"
+        assert api.alive
+        code, listed = api.call("GET", "/jobs")
+        assert code == 200 and {job_id, *queued} <= {j["id"] for j in listed["jobs"]}
+        study = check_done(watch, job_id, budget, slack=4)
+        for q in queued:
+            check_done(watch, q, QUEUED["trials"])
+        assert faults["after"] >= faults["before"], faults
+        return {
+            **faults,
+            "queued": len(queued),
+            "queued_done": sum(watch.state(q) == JobState.DONE for q in queued),
+            "finished": count_finished(study),
+            "worker_restarts": supervisor.worker_restarts,
+            "api_restarts": supervisor.api_restarts,
+            "reads": watch.reads,
+            "running_after": left_running(watch, job_id, *queued),
+        }
+
+    def describe(rounds: list[dict[str, Any]]) -> str:
+        queued = sum(r["queued"] for r in rounds)
+        return (
+            f"at {_span([r['at_kill'] for r in rounds])} completed trials a worker with "
+            f"{_span([r['victim_running'] for r in rounds])} trials RUNNING, the API and Redis "
+            f"were killed; {sum(r['worker_restarts'] for r in rounds)} worker and "
+            f"{sum(r['api_restarts'] for r in rounds)} API restarts; Redis back with "
+            f"{_span([r['after'] for r in rounds])} completed (read "
+            f"{_span([r['before'] for r in rounds])} just before); job done with "
+            f"{_span([r['finished'] for r in rounds])} trials finished (budget {budget}); "
+            f"{sum(r['queued_done'] for r in rounds)} of {queued} queued jobs kept and done; "
+            f"completed trials never went down ({sum(r['reads'] for r in rounds)} reads); "
+            f"{sum(r['running_after'] for r in rounds)} trials left RUNNING"
+        )
+
+    _rounds("worker, API and Redis killed with SIGKILL in one job", "in_one_job", one, describe)

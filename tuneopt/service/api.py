@@ -206,13 +206,19 @@ def create_app(settings: Settings) -> FastAPI:
         data, strict = await _read_body(request)
         job = validate_job(data, settings, strict=strict)
         job_id = new_job_id()
-        store.create(
-            job_id,
-            job.scenario.model_dump(mode="json"),
-            job.options(),
-            job.scenario.name,
-        )
-        tasks.enqueue_start(queue, job_id, settings.shard_retries)
+        # one transaction: the job is recorded and queued, or neither (an API stopped between
+        # the two would leave a record saying queued that no worker would ever start)
+        with raw.pipeline() as pipe:
+            pipe.multi()
+            store.create(
+                job_id,
+                job.scenario.model_dump(mode="json"),
+                job.options(),
+                job.scenario.name,
+                pipe=pipe,
+            )
+            tasks.enqueue_start(queue, job_id, settings.shard_retries, pipeline=pipe)
+            pipe.execute()
         response.headers["Location"] = f"/jobs/{job_id}"
         response.headers["Retry-After"] = "5"
         return _status(load(job_id))

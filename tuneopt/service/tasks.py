@@ -16,6 +16,7 @@ from typing import Any
 
 import optuna
 from redis import Redis
+from redis.client import Pipeline
 from rq import Queue, Retry
 from rq.job import Callback, Dependency, Job
 from rq.serializers import JSONSerializer
@@ -98,8 +99,9 @@ def _queue() -> Queue:
     return Queue(_current().queue, connection=raw, serializer=JSONSerializer)
 
 
-def enqueue_start(queue: Queue, job_id: str, retries: int) -> Job:
-    """Queue the start of a job: called by the API right after the record is written."""
+def enqueue_start(queue: Queue, job_id: str, retries: int, pipeline: Pipeline | None = None) -> Job:
+    """Queue the start of a job: called by the API in the transaction (``pipeline``, which the
+    caller executes) that writes the job's record."""
     return queue.enqueue(
         "tuneopt.service.tasks.start_job",
         args=(job_id,),
@@ -109,6 +111,7 @@ def enqueue_start(queue: Queue, job_id: str, retries: int) -> Job:
         job_timeout=600,
         result_ttl=86400,
         failure_ttl=7 * 86400,
+        pipeline=pipeline,
     )
 
 
