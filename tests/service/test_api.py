@@ -21,8 +21,8 @@ TALLY = Tally(
     "security: API key on every route, hostile job ids and path traversal",
     "pytest tests/service/test_api.py",
     lambda c: (
-        f"{c['refused']} requests without a key, with a wrong or an empty one, to each of the "
-        f"{c['routes']} guarded routes: all 401; {c['hostile']} requests with hostile or "
+        f"{c['refused']} requests to the {c['routes']} guarded routes without a key, with a "
+        f"wrong one or an empty one: all 401; {c['hostile']} requests with hostile or "
         "traversing job ids: all 404 (or 405), no file read or written; job ids are 128 "
         "random bits"
     ),

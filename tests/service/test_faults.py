@@ -10,14 +10,9 @@ times (default 1). With ``TUNEOPT_FIGURES`` set, each test records what it measu
 
 from __future__ import annotations
 
-import json
 import os
 import signal
-import subprocess
-import sys
 import time
-import urllib.error
-import urllib.request
 from collections.abc import Callable, Iterator, Sequence
 from pathlib import Path
 from typing import Any
@@ -26,14 +21,13 @@ import optuna
 import pytest
 from fastapi.testclient import TestClient
 from optuna.trial import TrialState
-from pydantic import SecretStr
 from redis import Redis
 from redis.exceptions import ConnectionError as RedisConnectionError
 from redis.exceptions import RedisError
-from rq import Worker
 
 from tests.figures import record
-from tests.service.conftest import RedisServer, _free_port, small_scenario
+from tests.service.conftest import RedisServer, small_scenario
+from tests.service.processes import LIMIT, ApiProcess, Supervisor, Workers, kill, stop
 from tuneopt.optimise.redis_storage import redis_storage
 from tuneopt.optimise.runner import count_finished
 from tuneopt.service import tasks
@@ -41,8 +35,6 @@ from tuneopt.service.api import create_app
 from tuneopt.service.records import JobRecord, JobState, JobStore
 from tuneopt.service.settings import Settings
 
-ROOT = Path(__file__).resolve().parents[2]
-LIMIT = 240.0  # [s] no fault test waits longer than this for anything
 ROUNDS = int(os.environ.get("TUNEOPT_FAULT_ROUNDS", "1"))  # each fault scenario, N times
 POLL = 0.2  # [s] between two reads of the jobs
 
@@ -64,192 +56,6 @@ def _timed(request: pytest.FixtureRequest) -> Iterator[None]:
 # processes ---------------------------------------------------------------------------------
 
 
-def service_env(settings: Settings) -> dict[str, str]:
-    """The environment of a service process run with ``settings``: this process's environment
-    without its own ``TUNEOPT_`` variables (a test's knobs, such as ``TUNEOPT_FIGURES``, are
-    unknown settings to the service, which refuses to start with them), and every setting."""
-    env = {k: v for k, v in os.environ.items() if not k.upper().startswith("TUNEOPT_")}
-    for name in Settings.model_fields:
-        value = getattr(settings, name)
-        if value is None:
-            continue
-        if isinstance(value, SecretStr):
-            value = value.get_secret_value()
-        elif isinstance(value, bool):
-            value = "true" if value else "false"
-        env[f"TUNEOPT_{name.upper()}"] = str(value)
-    return env
-
-
-def _stop(procs: Sequence[subprocess.Popen[bytes]]) -> None:
-    """SIGTERM each process still running, then SIGKILL whichever has not ended in 10 s."""
-    for proc in procs:
-        if proc.poll() is None:
-            proc.send_signal(signal.SIGTERM)
-    for proc in procs:
-        try:
-            proc.wait(timeout=10)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-            proc.wait()
-
-
-def _kill(proc: subprocess.Popen[bytes]) -> None:
-    proc.send_signal(signal.SIGKILL)
-    proc.wait(timeout=10)
-
-
-def _log_tail(path: Path, lines: int = 30) -> str:
-    if not path.is_file():
-        return "(no log)"
-    return "\n".join(path.read_text(errors="replace").splitlines()[-lines:])
-
-
-class Workers:
-    """Worker processes started by a test; each is stopped by its own pid."""
-
-    def __init__(self, settings: Settings, logs: Path):
-        self.env = service_env(settings)
-        self.url = settings.redis_url.get_secret_value()
-        self.logs = logs
-        self.procs: dict[str, subprocess.Popen[bytes]] = {}
-        self.names: dict[str, str] = {}  # rq name of each role's latest process
-        self.history: list[subprocess.Popen[bytes]] = []
-
-    def start(self, name: str) -> subprocess.Popen[bytes]:
-        """Start a worker under a new rq name (a dead worker's name stays taken a while)."""
-        log = open(self.logs / f"{name}.log", "ab")  # noqa: SIM115 (closed with the process)
-        run = f"{name}-{len(self.history)}"
-        proc = subprocess.Popen(
-            [sys.executable, "-m", "tuneopt.cli", "worker", "--name", run],
-            cwd=ROOT,
-            env=self.env,
-            stdout=log,
-            stderr=subprocess.STDOUT,
-        )
-        log.close()
-        self.procs[name] = proc
-        self.names[name] = run
-        self.history.append(proc)
-        return proc
-
-    def wait_listening(self, *names: str) -> None:
-        """Wait until the latest worker of each role is listening, so that every one gets a
-        shard (workers of earlier rounds may still be listed: the names are new each start)."""
-        want = {self.names[n] for n in names}
-        redis = Redis.from_url(self.url)
-        started = time.monotonic()
-        try:
-            while not want <= {w.name for w in Worker.all(connection=redis)}:
-                for n in names:
-                    if self.procs[n].poll() is not None:
-                        pytest.fail(f"worker {n} exited:\n{_log_tail(self.logs / f'{n}.log')}")
-                if time.monotonic() - started > LIMIT:
-                    pytest.fail(f"workers {sorted(want)} did not start within {LIMIT:.0f} s")
-                time.sleep(0.1)
-        finally:
-            redis.close()
-
-    def stop_all(self) -> None:
-        _stop(self.history)
-
-
-class ApiProcess:
-    """The API in a process of its own (``tuneopt serve``) on a fixed loopback port, so that a
-    test can kill it and start it again where its clients expect it."""
-
-    def __init__(self, settings: Settings, logs: Path):
-        assert settings.api_key is not None
-        self.env = service_env(settings)
-        self.key = settings.api_key.get_secret_value()
-        self.port = _free_port()
-        self.url = f"http://127.0.0.1:{self.port}"
-        self.log = logs / "api.log"
-        self.proc: subprocess.Popen[bytes] | None = None
-        self.history: list[subprocess.Popen[bytes]] = []
-
-    def start(self) -> float:
-        """Start the API and wait until it answers; returns the seconds that took."""
-        started = time.monotonic()
-        log = open(self.log, "ab")  # noqa: SIM115 (closed with the process)
-        self.proc = subprocess.Popen(
-            [
-                sys.executable, "-m", "tuneopt.cli", "serve",
-                "--host", "127.0.0.1", "--port", str(self.port),
-            ],
-            cwd=ROOT,
-            env=self.env,
-            stdout=log,
-            stderr=subprocess.STDOUT,
-        )  # fmt: skip
-        log.close()
-        self.history.append(self.proc)
-        while True:
-            if self.proc.poll() is not None:
-                pytest.fail(f"the API exited at start:\n{_log_tail(self.log)}")
-            if time.monotonic() - started > LIMIT:
-                pytest.fail(f"the API did not answer within {LIMIT:.0f} s")
-            try:
-                self.call("GET", "/health", timeout=2)  # any answer, 503 too, means it is up
-                return time.monotonic() - started
-            except OSError:  # not listening yet
-                time.sleep(0.1)
-
-    @property
-    def alive(self) -> bool:
-        return self.proc is not None and self.proc.poll() is None
-
-    def kill(self) -> None:
-        assert self.proc is not None
-        _kill(self.proc)
-
-    def call(
-        self, method: str, path: str, body: Any = None, timeout: float = 30
-    ) -> tuple[int, Any]:
-        data = None if body is None else json.dumps(body).encode()
-        request = urllib.request.Request(self.url + path, data=data, method=method)
-        request.add_header("X-API-Key", self.key)
-        if data is not None:
-            request.add_header("Content-Type", "application/json")
-        try:
-            with urllib.request.urlopen(request, timeout=timeout) as r:
-                return r.status, json.loads(r.read())
-        except urllib.error.HTTPError as exc:
-            return exc.code, json.loads(exc.read() or b"null")
-
-    def submit(self, body: dict[str, Any]) -> str:
-        code, answer = self.call("POST", "/jobs", body)
-        assert code == 202, answer
-        return str(answer["id"])
-
-    def result(self, job_id: str) -> dict[str, Any]:
-        code, answer = self.call("GET", f"/jobs/{job_id}/result")
-        assert code == 200, answer
-        return dict(answer)
-
-
-class Supervisor:
-    """Starts again whatever died, as a process supervisor would, a bounded number of times."""
-
-    def __init__(self, workers: Workers, roles: Sequence[str], api: ApiProcess | None = None):
-        self.workers = workers
-        self.roles = list(roles)
-        self.api = api
-        self.worker_restarts = 0
-        self.api_restarts = 0
-
-    def revive(self) -> None:
-        for role in self.roles:
-            if self.workers.procs[role].poll() is not None:
-                assert self.worker_restarts < 8, "workers keep dying"
-                self.worker_restarts += 1
-                self.workers.start(role)
-        if self.api is not None and not self.api.alive:
-            assert self.api_restarts < 4, "the API keeps dying"
-            self.api_restarts += 1
-            self.api.start()
-
-
 @pytest.fixture
 def workers(settings: Settings, tmp_path: Path) -> Iterator[Workers]:
     group = Workers(settings, tmp_path)
@@ -265,7 +71,7 @@ def api_process(settings: Settings, tmp_path: Path) -> Iterator[ApiProcess]:
     try:
         yield api
     finally:
-        _stop(api.history)
+        stop(api.history)
 
 
 # reading the jobs --------------------------------------------------------------------------
@@ -562,7 +368,7 @@ def test_worker_killed_mid_job_loses_no_trial_and_the_job_finishes(
             owners = {str(t.user_attrs.get("owner", "")) for t in _running(study)}
             mine = [o for o in owners if f":{victim.pid}:" in o]
             if mine:
-                _kill(victim)
+                kill(victim)
                 killed.append(mine[0])
                 at_kill = watch.latest(job_id)
                 fresh = _study(settings, store, job_id)  # what the dead worker left behind
@@ -827,7 +633,7 @@ def test_worker_api_and_redis_killed_in_one_job_lose_nothing(
                 ]
                 if not mine:
                     return  # between two of its batches: try at the next read
-                _kill(victim)
+                kill(victim)
                 faults["at_kill"] = watch.latest(job_id)
                 fresh = _study(settings, store, job_id)  # what the dead worker left behind
                 assert fresh is not None
