@@ -12,6 +12,7 @@ import json
 import tomllib
 from collections import Counter
 from collections.abc import Iterator
+from pathlib import Path
 from typing import Any
 
 import pytest
@@ -28,6 +29,7 @@ from tests.service.conftest import small_scenario
 from tuneopt.service.settings import Settings
 
 PROBLEM = "application/problem+json"
+ROOT = Path(__file__).resolve().parents[2]
 
 
 def _describe(seen: Counter[str]) -> str:
@@ -221,6 +223,24 @@ def test_an_upload_of_many_parts_is_refused(client: TestClient, ledger: Ledger) 
     response = client.post("/jobs", files={"scenario": ("s.toml", good)}, data=many)
     _answer(response, {}, ledger, "many parts")
     assert response.status_code in (400, 422)
+
+
+def test_an_upload_name_that_climbs_out_is_only_a_name(
+    client: TestClient, ledger: Ledger, settings: Settings, tmp_path: Path
+) -> None:
+    """The API never writes an upload to disk: a file name with ``..`` or an absolute path is
+    read only for its suffix (TOML or JSON), and nothing appears where it points."""
+    text = write_toml(small_scenario()).encode()
+    target = tmp_path / "escaped.toml"
+    names = [f"../../../../{target}", str(target), "..\\..\\escaped.toml", "%2e%2e/x.toml"]
+    for name in names:
+        files = {"scenario": (name, text, "text/plain")}
+        response = client.post("/jobs", files=files, data={"trials": "4"})
+        _answer(response, {}, ledger, "upload name")
+        assert response.status_code == 202
+    assert not target.exists()
+    for folder in (Path.cwd(), ROOT, settings.results_dir):
+        assert not (folder / "escaped.toml").exists() and not (folder / "x.toml").exists()
 
 
 @pytest.mark.parametrize("name", ["trail_air.toml", "enduro_coil.toml"])
