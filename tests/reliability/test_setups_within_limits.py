@@ -169,8 +169,9 @@ TALLY = Tally(
     "settings inside the hardware's limits (hypothesis: random ranges and short studies)",
     "TUNEOPT_FUZZ_EXAMPLES=2000 pytest tests/reliability/test_setups_within_limits.py",
     lambda c: (
-        f"{c['spaces']:,} random sets of hardware ranges: every grid end and corner of the "
-        f"search space inside them; {c['studies']:,} short studies: all {c['trials']:,} "
+        f"{c['spaces']:,} random sets of hardware ranges: both ends of every setting's grid "
+        f"and the all-low and all-high setups inside them; {c['studies']:,} short studies: "
+        f"all {c['trials']:,} "
         f"proposed trials and {c['ranked']:,} ranked setups inside the ranges"
     ),
 )

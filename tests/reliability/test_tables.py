@@ -25,7 +25,7 @@ TALLY = Tally(
     "TUNEOPT_FUZZ_EXAMPLES=2000 pytest tests/reliability/test_tables.py",
     lambda c: (
         f"{c['table read'] + c['table refused']:,} damper tables ({c['table refused']:,} "
-        f"refused, each problem named by file and line) and "
+        f"refused, each problem named by its file, and by its line when it is one line's) and "
         f"{c['profile read'] + c['profile refused']:,} profile CSVs ({c['profile refused']:,} "
         "refused by line); no traceback"
     ),

@@ -148,10 +148,23 @@ def settings(redis_client: Redis, redis_server: RedisServer, tmp_path: Path) -> 
 
 @pytest.fixture
 def client(settings: Settings) -> Iterator[TestClient]:
-    with TestClient(create_app(settings), raise_server_exceptions=False) as c:
+    with TestClient(create_app(settings)) as c:  # a server error fails with its traceback
         assert settings.api_key is not None
         c.headers["X-API-Key"] = settings.api_key.get_secret_value()
         yield c
+
+
+PROBLEM = "application/problem+json"
+
+
+def problem(response: Any, status: int) -> dict[str, Any]:
+    """The problem-details body of an error answer, checked: its status, media type, title
+    and detail."""
+    assert response.status_code == status, response.text
+    assert response.headers["content-type"].startswith(PROBLEM), response.headers
+    body: dict[str, Any] = response.json()
+    assert body["status"] == status and body["title"] and body["detail"].strip()
+    return body
 
 
 def small_scenario(length: str = "40 m") -> dict[str, Any]:

@@ -7,14 +7,16 @@ import json
 from collections.abc import Iterator
 from typing import Any
 
+import numpy as np
 from fastapi.testclient import TestClient
 from redis import Redis
 
 from tests.conftest import write_toml
 from tests.figures import Tally
-from tests.service.conftest import small_scenario
+from tests.service.conftest import PROBLEM, problem, small_scenario
 from tuneopt.model import Scenario
 from tuneopt.service.api import create_app
+from tuneopt.service.records import is_job_id, new_job_id
 from tuneopt.service.settings import Settings
 
 TALLY = Tally(
@@ -23,22 +25,12 @@ TALLY = Tally(
     lambda c: (
         f"{c['refused']} requests to the {c['routes']} guarded routes without a key, with a "
         f"wrong one or an empty one: all 401; {c['hostile']} requests with hostile or "
-        "traversing job ids: all 404 (or 405), no file read or written; job ids are 128 "
-        "random bits"
+        "traversing job ids: all 404 (or 405), no results folder made; "
+        f"{c['ids']:,} new job ids: all distinct, 32 hex digits, {c['ones'] / c['bits']:.2%} "
+        "of their bits set"
     ),
 )
 _record_tally = TALLY.recorder()
-PROBLEM = "application/problem+json"
-
-
-def _problem(response: Any, status: int) -> dict[str, Any]:
-    assert response.status_code == status, response.text
-    assert response.headers["content-type"].startswith(PROBLEM)
-    body = response.json()
-    assert body["status"] == status and body["title"] and body["detail"]
-    return body
-
-
 def _fields(body: dict[str, Any]) -> dict[str, str]:
     return {e["field"]: e["message"] for e in body.get("errors", [])}
 
@@ -48,7 +40,7 @@ def test_broken_scenario_names_each_field(client: TestClient) -> None:
     data["fork"]["travel"] = "a lot"
     data["rider"]["mass"] = "-5 kg"
     data["colour"] = "red"
-    body = _problem(client.post("/jobs", json={"scenario": data, "trials": 8}), 422)
+    body = problem(client.post("/jobs", json={"scenario": data, "trials": 8}), 422)
     fields = _fields(body)
     assert "scenario.fork.travel" in fields
     assert "scenario.rider.mass" in fields
@@ -69,46 +61,46 @@ def test_request_fields_types_and_limits(client: TestClient, redis_client: Redis
         ({"scenario": "not a table"}, "scenario"),
     ]
     for body, field in cases:
-        fields = _fields(_problem(client.post("/jobs", json=body), 422))
+        fields = _fields(problem(client.post("/jobs", json=body), 422))
         assert field in fields, (body.keys(), fields)
     long = small_scenario()
     long["course"]["length"] = "900 m"
-    fields = _fields(_problem(client.post("/jobs", json={"scenario": long}), 422))
+    fields = _fields(problem(client.post("/jobs", json={"scenario": long}), 422))
     assert "above this service's limit" in fields["scenario.course.length"]
     assert redis_client.zcard("tuneopt:jobs") == 0  # nothing refused was queued
 
 
 def test_malformed_bodies(client: TestClient) -> None:
     headers = {"content-type": "application/json"}
-    body = _problem(client.post("/jobs", content=b'{"scenario": ', headers=headers), 400)
+    body = problem(client.post("/jobs", content=b'{"scenario": ', headers=headers), 400)
     assert "not valid JSON" in body["detail"]
-    _problem(client.post("/jobs", content=b"[1, 2]", headers=headers), 422)
-    body = _problem(client.post("/jobs", content=b'{"trials": NaN}', headers=headers), 400)
+    problem(client.post("/jobs", content=b"[1, 2]", headers=headers), 422)
+    body = problem(client.post("/jobs", content=b'{"trials": NaN}', headers=headers), 400)
     assert "NaN" in body["detail"]
-    _problem(client.post("/jobs", content=b"[" * 20_000 + b"]" * 20_000, headers=headers), 400)
-    _problem(client.post("/jobs", content=b"\xff\xfe", headers=headers), 400)
-    _problem(client.post("/jobs", content=b"x=1", headers={"content-type": "text/plain"}), 415)
+    problem(client.post("/jobs", content=b"[" * 20_000 + b"]" * 20_000, headers=headers), 400)
+    problem(client.post("/jobs", content=b"\xff\xfe", headers=headers), 400)
+    problem(client.post("/jobs", content=b"x=1", headers={"content-type": "text/plain"}), 415)
     huge = json.dumps({"scenario": small_scenario(), "pad": "x" * 100_000}).encode()
-    body = _problem(client.post("/jobs", content=huge, headers=headers), 413)
+    body = problem(client.post("/jobs", content=huge, headers=headers), 413)
     assert "larger" in body["detail"]
 
     def chunks() -> Iterator[bytes]:  # no Content-Length: counted as it arrives
         for start in range(0, len(huge), 8192):
             yield huge[start : start + 8192]
 
-    body = _problem(client.post("/jobs", content=chunks(), headers=headers), 413)
+    body = problem(client.post("/jobs", content=chunks(), headers=headers), 413)
     assert "larger" in body["detail"]
 
 
 def test_toml_upload_errors(client: TestClient) -> None:
     files = {"scenario": ("bike.toml", b"[rider\nmass = ", "application/toml")}
-    fields = _fields(_problem(client.post("/jobs", files=files), 422))
+    fields = _fields(problem(client.post("/jobs", files=files), 422))
     assert fields["scenario"].startswith("not valid TOML")
     good = write_toml(small_scenario()).encode()
     files = {"scenario": ("bike.toml", good, "application/toml")}
-    fields = _fields(_problem(client.post("/jobs", files=files, data={"colour": "red"}), 422))
+    fields = _fields(problem(client.post("/jobs", files=files, data={"colour": "red"}), 422))
     assert "colour" in fields
-    fields = _fields(_problem(client.post("/jobs", files=files, data={"trials": "many"}), 422))
+    fields = _fields(problem(client.post("/jobs", files=files, data={"trials": "many"}), 422))
     assert "trials" in fields
 
 
@@ -128,9 +120,25 @@ def test_unknown_and_hostile_job_ids(client: TestClient, settings: Settings) -> 
             response = client.request(method, f"/jobs/{job_id}{suffix}")
             assert response.status_code in (404, 405), (job_id, suffix, response.status_code)
             if response.headers["content-type"].startswith(PROBLEM):
-                _problem(response, response.status_code)
+                problem(response, response.status_code)
             TALLY.add("hostile")
     assert not settings.results_dir.exists()  # nothing was written either
+
+
+def test_job_ids_are_random_not_sequential() -> None:
+    """One client cannot guess another's job: ids are 128 bits from the system's random source
+    (Python's secrets module), not a counter."""
+    ids = [new_job_id() for _ in range(10_000)]
+    assert len(set(ids)) == len(ids) and all(is_job_id(i) for i in ids)
+    steps = {int(b, 16) - int(a, 16) for a, b in zip(ids, ids[1:], strict=False)}
+    assert len(steps) == len(ids) - 1  # no fixed stride between successive ids
+    bits = np.unpackbits(np.frombuffer(bytes.fromhex("".join(ids)), dtype=np.uint8))
+    # 1.28 million fair bits: the share of ones is 0.5 with a standard deviation of 0.00044
+    # (binomial [D]); outside 0.5 ± 0.005 is more than 11 of them
+    assert abs(bits.mean() - 0.5) < 0.005
+    TALLY.add("ids", len(ids))
+    TALLY.add("ones", int(bits.sum()))
+    TALLY.add("bits", bits.size)
 
 
 def test_api_key_missing_or_wrong_is_refused(client: TestClient) -> None:
@@ -147,7 +155,7 @@ def test_api_key_missing_or_wrong_is_refused(client: TestClient) -> None:
         for method, path in routes:
             client.headers.pop("X-API-Key", None)
             response = client.request(method, path, headers=headers, json={"scenario": {}})
-            body = _problem(response, 401)
+            body = problem(response, 401)
             assert response.headers["www-authenticate"] == "X-API-Key"
             assert "key" in body["detail"]
             TALLY.add("refused")
@@ -184,10 +192,10 @@ def test_a_wrong_method_names_every_method_the_path_serves(client: TestClient) -
     """RFC 9110 §15.5.6: a 405 answer lists the target's methods in Allow (a path may have a
     route per method; all of them count)."""
     response = client.request("OPTIONS", "/jobs")
-    _problem(response, 405)
+    problem(response, 405)
     assert {m.strip() for m in response.headers["allow"].split(",")} >= {"GET", "POST"}
     response = client.put(f"/jobs/{'a' * 32}")
-    _problem(response, 405)
+    problem(response, 405)
     assert {m.strip() for m in response.headers["allow"].split(",")} >= {"GET", "DELETE"}
 
 

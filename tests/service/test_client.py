@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
+from typing import Any
 
 import pytest
 import yaml
@@ -12,6 +13,7 @@ import yaml
 from tests.conftest import write_toml
 from tests.service.conftest import small_scenario
 from tuneopt.cli import build_parser, main
+from tuneopt.service.records import JobStore
 from tuneopt.service.settings import Settings
 from tuneopt.service.worker import make_worker
 
@@ -38,18 +40,35 @@ def test_submit_status_and_result_over_http(
 
 
 def test_cancel_over_http_keeps_what_finished(
-    api: str, settings: Settings, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+    api: str,
+    settings: Settings,
+    tmp_path: Path,
+    capsys: pytest.CaptureFixture[str],
+    monkeypatch: pytest.MonkeyPatch,
 ) -> None:
     scenario = tmp_path / "small.toml"
     scenario.write_text(write_toml(small_scenario()))
-    assert main(["submit", str(scenario), "--api", api, "--trials", "400"]) == 0
+    assert main(["submit", str(scenario), "--api", api, "--trials", "400", "--seed", "3"]) == 0
     job = capsys.readouterr().out.split()[-1]
-    assert main(["cancel", job, "--api", api]) == 0
-    out = capsys.readouterr().out
-    assert "queued" in out and "cancelling" in out
+    report = JobStore.record_progress
+    answers: list[int] = []
+
+    def report_then_cancel(self: JobStore, *args: Any) -> None:  # after the first batch
+        report(self, *args)
+        if not answers:
+            answers.append(main(["cancel", job, "--api", api]))
+
+    monkeypatch.setattr(JobStore, "record_progress", report_then_cancel)
     make_worker(settings, name="client-cancel").work(burst=True)
+    assert answers == [0]
+    out = capsys.readouterr().out
+    assert "running" in out and "cancelling" in out
     assert main(["status", job, "--api", api]) == 0
     assert "cancelled" in capsys.readouterr().out
+    assert main(["result", job, "--api", api, "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["stopped"] == "cancelled" and data["ranked"]  # what finished is ranked
+    assert 0 < data["trials"]["finished"] < 400
 
 
 def test_client_errors_are_clear(

@@ -22,6 +22,7 @@ import pytest
 from fastapi.testclient import TestClient
 from optuna.trial import TrialState
 from redis import Redis
+from redis.client import Pipeline
 from redis.exceptions import ConnectionError as RedisConnectionError
 from redis.exceptions import RedisError
 
@@ -307,12 +308,13 @@ def test_a_submission_cut_off_between_record_and_queue_leaves_no_stranded_job(
     """The API writes a job's record and queues the job's start. An API killed between the two
     writes, or whose Redis connection drops there, must not leave a record that says queued
     while nothing will ever start it: both are written, or neither. The cut is made here by
-    failing the queueing, which stops the submission at the same point as a SIGKILL would."""
+    failing the transaction's commit, which stops the submission where a dropped connection
+    or a SIGKILL would: everything the submission wrote must go through that commit."""
 
-    def cut(*args: Any, **kwargs: Any) -> None:
-        raise RedisConnectionError("the connection dropped between the two writes")
+    def cut(self: Pipeline, *args: Any, **kwargs: Any) -> None:
+        raise RedisConnectionError("the connection dropped before the commit")
 
-    monkeypatch.setattr(tasks, "enqueue_start", cut)
+    monkeypatch.setattr(Pipeline, "execute", cut)
     queue_key = f"rq:queue:{settings.queue}"
     with TestClient(create_app(settings)) as client:
         assert settings.api_key is not None

@@ -158,7 +158,7 @@ def test_deleting_a_live_job_hides_it_at_once_and_purges_it_when_its_parts_stop(
     for path in ("", "/result", "/report"):
         assert client.get(f"/jobs/{job_id}{path}").status_code == 404
     assert client.post(f"/jobs/{job_id}/cancel").status_code == 404
-    assert client.delete(f"/jobs/{job_id}").status_code == 404
+    assert client.delete(f"/jobs/{job_id}").status_code == 202  # still being stopped
     assert [j["id"] for j in client.get("/jobs").json()["jobs"]] == [kept]
     _work(settings)
     redis = Redis.from_url(settings.redis_url.get_secret_value())
@@ -166,6 +166,59 @@ def test_deleting_a_live_job_hides_it_at_once_and_purges_it_when_its_parts_stop(
     assert not list(redis.scan_iter(match=f"tuneopt:study:{job_id}*"))
     assert not (settings.results_dir / job_id).exists()
     assert client.get(f"/jobs/{kept}").json()["state"] == "done"  # the other job is untouched
+
+
+def test_deleting_a_job_while_its_shard_runs_stops_the_shard_and_purges_it(
+    client: TestClient, settings: Settings, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    job_id = _submit(client, trials=400, shards=1, batch_size=4, realisations=1)
+    _work(settings, max_jobs=1)  # the start part: study made, shard queued
+    report = JobStore.record_progress
+    answers: list[int] = []
+    reports: list[int] = []
+
+    def report_then_delete(self: JobStore, job: str, shard: int, finished: int, *a: Any) -> None:
+        report(self, job, shard, finished, *a)
+        reports.append(finished)
+        if not answers:
+            answers.append(client.delete(f"/jobs/{job}").status_code)
+
+    monkeypatch.setattr(JobStore, "record_progress", report_then_delete)
+    _work(settings)
+    assert answers == [202]
+    assert len(reports) == 1  # the shard stopped at its next batch, not at the budget
+    redis = Redis.from_url(settings.redis_url.get_secret_value())
+    assert not list(redis.scan_iter(match=f"tuneopt:*{job_id}*"))
+    assert not (settings.results_dir / job_id).exists()
+
+
+def test_late_writes_after_a_purge_bring_nothing_back(
+    client: TestClient, settings: Settings, redis_client: Redis
+) -> None:
+    """A part still running when its ended job was purged (say a shard of a job whose start
+    part failed for good) reports progress and errors that must not rebuild a half-record."""
+    job_id = _submit(client, trials=4)
+    store = JobStore(redis_client)
+    tasks.purge_job(store, settings.results_dir, job_id)
+    store.record_progress(job_id, 0, 4, 1.0, 30.0)
+    store.add_error(job_id, "shard 0: late")
+    store.set_fields(job_id, started="1")
+    assert not list(redis_client.scan_iter(match=f"tuneopt:job:{job_id}*"))
+    assert store.get(job_id) is None
+    assert client.get(f"/jobs/{job_id}").status_code == 404
+
+
+def test_a_deleted_job_whose_parts_were_lost_is_purged_when_asked_again(
+    client: TestClient, settings: Settings, redis_client: Redis
+) -> None:
+    job_id = _submit(client, trials=4)
+    assert client.delete(f"/jobs/{job_id}").status_code == 202
+    assert client.delete(f"/jobs/{job_id}").status_code == 202  # its start part is queued
+    for key in redis_client.scan_iter(match="rq:*"):  # the queue is lost (say, a flushed db)
+        redis_client.delete(key)
+    assert client.delete(f"/jobs/{job_id}").status_code == 204
+    assert not list(redis_client.scan_iter(match=f"tuneopt:job:{job_id}*"))
+    assert client.delete(f"/jobs/{job_id}").status_code == 404
 
 
 def test_deadline_finalises_with_the_best_so_far(client: TestClient, settings: Settings) -> None:

@@ -1,7 +1,7 @@
 """``tuneopt submit``, ``status``, ``result`` and ``cancel``: the job service from the command
 line.
 
-They talk to the HTTP API only (standard library client); the API key comes from
+They use the HTTP API only (standard library client); the API key comes from
 TUNEOPT_API_KEY, as for the service.
 """
 

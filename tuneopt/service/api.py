@@ -280,9 +280,10 @@ def create_app(settings: Settings) -> FastAPI:
         "finished is ranked",
     )
     def cancel_job(job_id: str) -> JobStatus:
-        record = load(job_id)
+        load(job_id)
         if not store.request_cancel(job_id):
-            raise ProblemError(409, f"the job has ended ({record.state.value}); nothing to cancel")
+            ended = load(job_id).state.value
+            raise ProblemError(409, f"the job has ended ({ended}); nothing to cancel")
         return _status(load(job_id))
 
     @app.delete(
@@ -298,8 +299,13 @@ def create_app(settings: Settings) -> FastAPI:
         "first)",
     )
     def delete_job(job_id: str) -> Response:
-        load(job_id)
-        if store.request_delete(job_id):
+        record = store.get(job_id) if is_job_id(job_id) else None
+        if record is None:
+            raise ProblemError(404, "no such job")
+        if record.deleted:  # asked before: purge now unless a part of it may still run
+            if tasks.parts_pending(queue, job_id, int(record.request.get("shards", 0))):
+                return Response(status_code=202)
+        elif store.request_delete(job_id):
             return Response(status_code=202)
         tasks.purge_job(store, settings.results_dir, job_id)
         return Response(status_code=204)

@@ -79,6 +79,28 @@ class JobRecord:
         return eta
 
 
+# Writes by a job's parts land only on a record that exists: a part still running after the
+# job was purged must not bring a stray half-record back.
+_SET_IF_EXISTS = """
+if redis.call('EXISTS', KEYS[1]) == 0 then return 0 end
+redis.call('HSET', KEYS[1], unpack(ARGV))
+return 1
+"""
+_PROGRESS = """
+if redis.call('EXISTS', KEYS[1]) == 0 then return 0 end
+redis.call('HSET', KEYS[1], unpack(ARGV, 2))
+local c = tonumber(redis.call('HGET', KEYS[1], 'finished') or '0')
+if tonumber(ARGV[1]) > c then redis.call('HSET', KEYS[1], 'finished', ARGV[1]) end
+return 1
+"""
+_ERROR = """
+if redis.call('EXISTS', KEYS[1]) == 0 then return 0 end
+redis.call('RPUSH', KEYS[2], ARGV[1])
+redis.call('LTRIM', KEYS[2], -20, -1)
+return 1
+"""
+
+
 def _float(value: str | None) -> float | None:
     return float(value) if value not in (None, "") else None
 
@@ -144,7 +166,7 @@ class JobStore:
 
     def get(self, job_id: str) -> JobRecord | None:
         raw: dict[str, str] = self.redis.hgetall(self.key(job_id))  # type: ignore[assignment]
-        if not raw:
+        if "id" not in raw or "state" not in raw:  # gone, or only a stray write left
             return None
         now = time.time()
         rate = 0.0
@@ -183,7 +205,9 @@ class JobStore:
         return [r for r in records if r is not None and not r.deleted]
 
     def set_fields(self, job_id: str, **fields: Any) -> None:
-        self.redis.hset(self.key(job_id), mapping={k: str(v) for k, v in fields.items()})
+        """Set fields of a job that exists (a purged job stays purged)."""
+        pairs = [str(x) for k, v in fields.items() for x in (k, v)]
+        self.redis.eval(_SET_IF_EXISTS, 1, self.key(job_id), *pairs)
 
     def move(self, job_id: str, to: JobState, **fields: Any) -> bool:
         """Set the state unless the job already ended (a final state never changes)."""
@@ -224,6 +248,11 @@ class JobStore:
     def is_cancel_requested(self, job_id: str) -> bool:
         return self.redis.hget(self.key(job_id), "cancel") == "1"
 
+    def should_stop(self, job_id: str) -> bool:
+        """True once a job's running parts should stop: cancelled, ended, or gone."""
+        state, cancel = self.redis.hmget(self.key(job_id), ["state", "cancel"])
+        return state is None or JobState(str(state)).is_final or cancel == "1"
+
     def is_deleted(self, job_id: str) -> bool:
         return self.redis.hget(self.key(job_id), "deleted") == "1"
 
@@ -231,32 +260,21 @@ class JobStore:
     def record_progress(
         self, job_id: str, shard: int, finished: int, best: float | None, per_minute: float
     ) -> None:
-        fields: dict[Any, Any] = {
-            f"rate:{shard}": f"{per_minute!r}|{time.time()!r}",
-        }
+        """A shard's progress, on a job that exists; shards report in any order, so the
+        largest count of finished trials seen is kept."""
+        pairs = [f"rate:{shard}", f"{per_minute!r}|{time.time()!r}"]
         if best is not None:
-            fields["best_score"] = repr(best)
-        with self.redis.pipeline() as pipe:
-            pipe.hset(self.key(job_id), mapping=fields)
-            # shards report in any order: keep the largest count seen
-            pipe.eval(
-                "local c = tonumber(redis.call('HGET', KEYS[1], 'finished') or '0') "
-                "if tonumber(ARGV[1]) > c then "
-                "redis.call('HSET', KEYS[1], 'finished', ARGV[1]) end",
-                1,
-                self.key(job_id),
-                str(finished),
-            )
-            pipe.execute()
+            pairs += ["best_score", repr(best)]
+        self.redis.eval(_PROGRESS, 1, self.key(job_id), str(finished), *pairs)
 
     def clear_rate(self, job_id: str, shard: int) -> None:
         self.redis.hdel(self.key(job_id), f"rate:{shard}")
 
     def add_error(self, job_id: str, message: str) -> None:
-        with self.redis.pipeline() as pipe:
-            pipe.rpush(self._errors_key(job_id), message[:2000])
-            pipe.ltrim(self._errors_key(job_id), -20, -1)
-            pipe.execute()
+        """Keep the job's last 20 errors (not for a job that is gone)."""
+        self.redis.eval(
+            _ERROR, 2, self.key(job_id), self._errors_key(job_id), message[:2000]
+        )
 
     # shard owners: who ran a shard last, so that its retry can reap what it left running
     def swap_owner(self, job_id: str, shard: int, owner: str) -> str | None:

@@ -18,7 +18,8 @@ import optuna
 from redis import Redis
 from redis.client import Pipeline
 from rq import Queue, Retry
-from rq.job import Callback, Dependency, Job
+from rq.exceptions import NoSuchJobError
+from rq.job import Callback, Dependency, Job, JobStatus
 from rq.serializers import JSONSerializer
 
 from tuneopt.model import InputError, Scenario, scenario_from_data
@@ -45,6 +46,7 @@ __all__ = [
     "enqueue_start",
     "finalise_job",
     "job_failed",
+    "parts_pending",
     "purge_job",
     "rq_id",
     "run_shard_job",
@@ -229,7 +231,7 @@ def run_shard_job(job_id: str, shard: int) -> int:
             space,
             evaluator,
             shard,
-            should_stop=lambda: _stopping.is_set() or store.is_cancel_requested(job_id),
+            should_stop=lambda: _stopping.is_set() or store.should_stop(job_id),
             on_batch=report,
         )
         if (
@@ -368,20 +370,39 @@ def _write_report(
 def _end(store: JobStore, job_id: str, state: JobState, **fields: Any) -> str:
     """Move the job to its final state; a job deleted while it was live is purged here, by the
     part that ended it."""
-    store.move(job_id, state, **fields)
+    moved = store.move(job_id, state, **fields)
     if store.is_deleted(job_id):
         purge_job(store, _current().results_dir, job_id)
         return "deleted"
+    if not moved:  # another part ended it first
+        record = store.get(job_id)
+        return record.state.value if record is not None else "gone"
     return state.value
 
 
+def parts_pending(queue: Queue, job_id: str, shards: int) -> bool:
+    """Whether a queued part of the job (its start, a shard, its finaliser) may still run."""
+    parts = ["start", *(f"shard-{k}" for k in range(shards)), "final"]
+    waiting = {JobStatus.QUEUED, JobStatus.STARTED, JobStatus.DEFERRED, JobStatus.SCHEDULED}
+    for part in parts:
+        try:
+            job = Job.fetch(rq_id(job_id, part), connection=queue.connection,
+                            serializer=JSONSerializer)  # fmt: skip
+        except NoSuchJobError:
+            continue
+        if job.get_status(refresh=False) in waiting:
+            return True
+    return False
+
+
 def purge_job(store: JobStore, results_dir: Path, job_id: str) -> None:
-    """Everything a job left: its record, result, errors, study journal and files."""
+    """Everything a job left: its study journal, files, result, errors and record. The record
+    goes last: while it stands, a purge cut short can be asked for again."""
     record = store.get(job_id)
     shards = int(record.request.get("shards", 0)) if record is not None else 0
-    store.purge(job_id, shards)
     delete_study_keys(store.redis, store.study_prefix(job_id))
     shutil.rmtree(result_folder(results_dir, job_id), ignore_errors=True)
+    store.purge(job_id, shards)
 
 
 def result_folder(results_dir: Path, job_id: str) -> Path:
