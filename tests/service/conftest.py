@@ -63,7 +63,7 @@ class RedisServer:
                 "--bind", "127.0.0.1",
                 "--dir", str(self.folder),
                 "--appendonly", "yes",
-                "--appendfsync", "everysec",
+                "--appendfsync", "always",
                 "--save", "",
                 "--maxmemory-policy", "noeviction",
                 "--requirepass", self.password,

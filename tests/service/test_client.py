@@ -92,7 +92,7 @@ def test_compose_file_runs_the_real_entry_points() -> None:
     redis = " ".join(services["redis"]["command"])
     for setting in (
         "--appendonly yes",
-        "--appendfsync everysec",
+        "--appendfsync always",
         "--maxmemory-policy noeviction",
         "--requirepass",
     ):
