@@ -18,7 +18,7 @@ TALLY = Tally(
     "TUNEOPT_FUZZ_EXAMPLES=2000 pytest tests/reliability/test_files.py",
     lambda c: (
         f"{c['cut']:,} cut files ({'every byte' if FULL_SIZE else 'every 23rd/37th byte'}): "
-        f"{c['refused']:,} refused with a reason, the rest whole scenarios; no traceback"
+        f"{c['refused']:,} refused with a reason, the rest still valid scenarios; no traceback"
     ),
 )
 _record_tally = TALLY.recorder()
