@@ -167,11 +167,14 @@ class ApiProcess:
         kill(self.proc)
 
     def call(
-        self, method: str, path: str, body: Any = None, timeout: float = 30
+        self, method: str, path: str, body: Any = None, timeout: float = 30, key: str = ""
     ) -> tuple[int, Any]:
+        """(status, parsed body); ``key`` is sent as the Idempotency-Key."""
         data = None if body is None else json.dumps(body).encode()
         request = urllib.request.Request(self.url + path, data=data, method=method)
         request.add_header("X-API-Key", self.key)
+        if key:
+            request.add_header("Idempotency-Key", key)
         if data is not None:
             request.add_header("Content-Type", "application/json")
         try:

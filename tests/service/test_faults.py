@@ -10,10 +10,15 @@ times (default 1). With ``TUNEOPT_FIGURES`` set, each test records what it measu
 
 from __future__ import annotations
 
+import json
 import os
 import signal
+import threading
 import time
+import urllib.error
+import urllib.request
 from collections.abc import Callable, Iterator, Sequence
+from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 from typing import Any
 
@@ -26,9 +31,12 @@ from redis.client import Pipeline
 from redis.exceptions import ConnectionError as RedisConnectionError
 from redis.exceptions import RedisError
 
+from tests.conftest import write_toml
 from tests.figures import record
 from tests.service.conftest import RedisServer, small_scenario
 from tests.service.processes import LIMIT, ApiProcess, Supervisor, Workers, kill, stop
+from tuneopt.cli import main
+from tuneopt.cli import submit as submit_command
 from tuneopt.optimise.redis_storage import redis_storage
 from tuneopt.optimise.runner import count_finished
 from tuneopt.service import tasks
@@ -336,6 +344,69 @@ def test_a_submission_cut_off_between_record_and_queue_leaves_no_stranded_job(
         f"answered {response.status_code}; {len(listed)} jobs listed, {len(records)} job records "
         f"and {entries} queue entries left behind (an uncut submission writes both)",
         _reproduce("cut_off", rounds=False),
+    )
+
+
+def test_a_submission_whose_answer_was_lost_is_sent_again_without_a_second_job(
+    api: str,
+    settings: Settings,
+    redis_client: Redis,
+    tmp_path: Path,
+    monkeypatch: pytest.MonkeyPatch,
+    capsys: pytest.CaptureFixture[str],
+) -> None:
+    """The API stores a job and its answer never reaches the client (the connection drops,
+    or the API dies before it replies). ``tuneopt submit`` sends the submission again with the
+    same Idempotency-Key and is told the job it made; clients sending one key at once get one
+    job between them."""
+    scenario = tmp_path / "small.toml"
+    scenario.write_text(write_toml(small_scenario()))
+    real = urllib.request.urlopen
+    lost: list[str] = []
+
+    def answer_lost(request: Any, *args: Any, **kwargs: Any) -> Any:
+        response = real(request, *args, **kwargs)  # the API has stored the job
+        if request.get_method() == "POST" and not lost:
+            lost.append(json.loads(response.read())["id"])
+            response.close()
+            raise urllib.error.URLError("connection reset by peer")
+        return response
+
+    monkeypatch.setattr(submit_command, "RETRY_PAUSE", 0.05)
+    monkeypatch.setattr(urllib.request, "urlopen", answer_lost)
+    assert main(["submit", str(scenario), "--api", api, "--trials", "4"]) == 0
+    told = capsys.readouterr().out.split()[-1]
+    monkeypatch.undo()
+    jobs = redis_client.zrange(f"{settings.key_prefix}:jobs", 0, -1)
+    assert lost and told == lost[0] and jobs == [told]
+
+    # eight clients send one submission with one key at the same moment, to two API processes
+    apis = [ApiProcess(settings, tmp_path / f"api{n}") for n in range(2)]
+    try:
+        for one in apis:
+            one.log.parent.mkdir()
+            one.start()
+        body = {"scenario": small_scenario(), "trials": 4}
+        start = threading.Barrier(8)
+
+        def send(n: int) -> tuple[int, Any]:
+            start.wait(timeout=30)
+            return apis[n % 2].call("POST", "/jobs", body, key="eight-clients-one-key")
+
+        with ThreadPoolExecutor(8) as pool:
+            answers = list(pool.map(send, range(8)))
+    finally:
+        stop([p for one in apis for p in one.history])
+    ids = {answer["id"] for _, answer in answers}
+    assert {code for code, _ in answers} == {202} and len(ids) == 1, answers
+    assert redis_client.zcard(f"{settings.key_prefix}:jobs") == 2
+    assert redis_client.llen(f"rq:queue:{settings.queue}") == 2
+    record(
+        "a submission whose answer was lost, sent again; one key sent by 8 clients at once",
+        f"tuneopt submit sent it again with its Idempotency-Key and was told the job it had "
+        f"made: {len(jobs)} job stored; 8 simultaneous submissions with one key to 2 API "
+        f"processes: {len(answers)} answers of 202 naming {len(ids)} job",
+        "pytest tests/service/test_faults.py -k answer_was_lost",
     )
 
 

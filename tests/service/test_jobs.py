@@ -7,6 +7,7 @@ import json
 import threading
 import time
 import zlib
+from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 from typing import Any
 
@@ -24,6 +25,7 @@ from tuneopt.optimise import StudyPlan, build_space, run_local, start_run
 from tuneopt.optimise.redis_storage import redis_storage
 from tuneopt.optimise.runner import ask_batch
 from tuneopt.service import tasks
+from tuneopt.service.api import create_app
 from tuneopt.service.records import JobStore
 from tuneopt.service.settings import Settings
 from tuneopt.service.worker import make_worker
@@ -219,6 +221,71 @@ def test_a_deleted_job_whose_parts_were_lost_is_purged_when_asked_again(
     assert client.delete(f"/jobs/{job_id}").status_code == 204
     assert not list(redis_client.scan_iter(match=f"tuneopt:job:{job_id}*"))
     assert client.delete(f"/jobs/{job_id}").status_code == 404
+
+
+def test_a_submission_sent_again_with_its_key_gets_the_same_job(
+    client: TestClient, redis_client: Redis
+) -> None:
+    body = {"scenario": small_scenario(), "trials": 4}
+    key = {"Idempotency-Key": "shop-overnight-0001"}
+    first = client.post("/jobs", json=body, headers=key)
+    again = client.post("/jobs", json=body, headers=key)
+    assert first.status_code == again.status_code == 202
+    assert first.json()["id"] == again.json()["id"]
+    assert redis_client.zcard("tuneopt:jobs") == 1
+    assert redis_client.llen("rq:queue:tuneopt") == 1
+    assert not [k for k in redis_client.scan_iter("tuneopt:submission:*") if "shop" in k]
+    # the same key with another request is refused, naming the header
+    other = client.post("/jobs", json={**body, "trials": 5}, headers=key)
+    assert other.status_code == 422
+    assert other.json()["errors"][0]["field"] == "Idempotency-Key"
+    # a key that is not one: too short, or not printable ASCII
+    for bad in ("short", "has space in it", "schlüssel-für-die-nacht".encode("latin-1")):
+        response = client.post("/jobs", json=body, headers={"Idempotency-Key": bad})
+        assert response.status_code in (400, 422), (bad, response.text)
+    # without a key, each submission is a job of its own
+    assert client.post("/jobs", json=body).json()["id"] != first.json()["id"]
+    assert redis_client.zcard("tuneopt:jobs") == 2
+    # once its job is deleted, the key says so
+    assert client.delete(f"/jobs/{first.json()['id']}").status_code == 202
+    gone = client.post("/jobs", json=body, headers=key)
+    assert gone.status_code == 409 and "deleted" in gone.json()["detail"]
+
+
+def test_two_submissions_racing_with_one_key_make_one_job(
+    settings: Settings, redis_client: Redis, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """Both submissions read the key before either commits (held there by a slow enqueue): the
+    transaction of the later one finds the key changed, and it answers with the first's job."""
+    real = tasks.enqueue_start
+
+    def slow(*args: Any, **kwargs: Any) -> Any:
+        time.sleep(0.5)  # inside the transaction, after the key was read
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(tasks, "enqueue_start", slow)
+    body = {"scenario": small_scenario(), "trials": 4}
+    assert settings.api_key is not None
+    start = threading.Barrier(2)
+
+    def send(_: int) -> tuple[int, str]:
+        with TestClient(create_app(settings)) as c:
+            start.wait(timeout=30)
+            response = c.post(
+                "/jobs",
+                json=body,
+                headers={
+                    "X-API-Key": settings.api_key.get_secret_value(),  # type: ignore[union-attr]
+                    "Idempotency-Key": "two-at-once",
+                },
+            )
+            return response.status_code, response.json()["id"]
+
+    with ThreadPoolExecutor(2) as pool:
+        answers = list(pool.map(send, range(2)))
+    assert [code for code, _ in answers] == [202, 202]
+    assert len({job for _, job in answers}) == 1
+    assert redis_client.zcard("tuneopt:jobs") == 1 and redis_client.llen("rq:queue:tuneopt") == 1
 
 
 def test_deadline_finalises_with_the_best_so_far(client: TestClient, settings: Settings) -> None:

@@ -14,10 +14,13 @@ import sys
 import time
 import urllib.error
 import urllib.request
+import uuid
 from typing import Any
 
 DEFAULT_API = "http://127.0.0.1:8000"
 ENDED = ("done", "failed", "cancelled")
+SUBMIT_ATTEMPTS = 3
+RETRY_PAUSE = 1.0  # [s], times the attempt's number
 
 
 class ApiError(Exception):
@@ -49,7 +52,16 @@ def register(sub: Any) -> None:
         p.set_defaults(func=run, action=name)
 
 
-def _request(api: str, method: str, path: str, body: dict[str, Any] | None = None) -> Any:
+def _request(
+    api: str,
+    method: str,
+    path: str,
+    body: dict[str, Any] | None = None,
+    headers: dict[str, str] | None = None,
+    attempts: int = 1,
+) -> Any:
+    """One call to the API; with ``attempts`` > 1, a call that got no answer (or a 503) is
+    sent again after a pause (only for calls that are safe to repeat)."""
     data = None if body is None else json.dumps(body).encode()
     req = urllib.request.Request(api.rstrip("/") + path, data=data, method=method)
     req.add_header("Accept", "application/json")
@@ -58,14 +70,26 @@ def _request(api: str, method: str, path: str, body: dict[str, Any] | None = Non
     key = os.environ.get("TUNEOPT_API_KEY")
     if key:
         req.add_header("X-API-Key", key)
-    try:
-        with urllib.request.urlopen(req, timeout=30) as response:
-            return json.loads(response.read() or b"null")
-    except urllib.error.HTTPError as exc:
-        raise ApiError(_problem_text(exc), 2 if exc.code in (400, 413, 415, 422) else 1) from None
-    except (urllib.error.URLError, OSError) as exc:
-        reason = getattr(exc, "reason", exc)
-        raise ApiError(f"cannot reach the job service at {api}: {reason}", 1) from None
+    for name, value in (headers or {}).items():
+        req.add_header(name, value)
+    for attempt in range(1, attempts + 1):
+        try:
+            with urllib.request.urlopen(req, timeout=30) as response:
+                return json.loads(response.read() or b"null")
+        except urllib.error.HTTPError as exc:
+            if exc.code == 503 and attempt < attempts:
+                time.sleep(RETRY_PAUSE * attempt)
+                continue
+            raise ApiError(
+                _problem_text(exc), 2 if exc.code in (400, 413, 415, 422) else 1
+            ) from None
+        except (urllib.error.URLError, OSError) as exc:
+            if attempt < attempts:
+                time.sleep(RETRY_PAUSE * attempt)
+                continue
+            reason = getattr(exc, "reason", exc)
+            raise ApiError(f"cannot reach the job service at {api}: {reason}", 1) from None
+    raise AssertionError("unreachable")
 
 
 def _problem_text(exc: urllib.error.HTTPError) -> str:
@@ -143,7 +167,10 @@ def run(args: argparse.Namespace) -> int:
                 body["trials"] = args.trials
             if args.seed is not None:
                 body["seed"] = args.seed
-            status = _request(args.api, "POST", "/jobs", body)
+            # one key for every attempt: a submission whose answer was lost, sent again, gets
+            # the job it made rather than a second one
+            token = {"Idempotency-Key": uuid.uuid4().hex}
+            status = _request(args.api, "POST", "/jobs", body, token, SUBMIT_ATTEMPTS)
             print(f"submitted job {status['id']}")
             if not args.wait:
                 return 0

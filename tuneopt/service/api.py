@@ -6,22 +6,23 @@ only JSON records to Redis and queues JSON-serialised rq jobs: nothing it sends 
 
 from __future__ import annotations
 
+import hashlib
 import json
 import secrets
 import time
 from datetime import UTC, datetime
 from typing import Annotated, Any
 
-from fastapi import Depends, FastAPI, Request, Response
+from fastapi import Depends, FastAPI, Header, Request, Response
 from fastapi.responses import FileResponse
 from fastapi.security import APIKeyHeader
 from pydantic import BaseModel
-from redis import Redis
+from redis import Redis, WatchError
 from rq import Queue, Worker
 from rq.serializers import JSONSerializer
 
 from tuneopt.model import Scenario
-from tuneopt.model.errors import InputError
+from tuneopt.model.errors import FieldProblem, InputError
 from tuneopt.service import tasks
 from tuneopt.service.limits import BodyLimit
 from tuneopt.service.problems import Problem, ProblemError, install_handlers
@@ -35,6 +36,20 @@ _KEY_HEADER = "X-API-Key"
 _key_header = APIKeyHeader(name=_KEY_HEADER, auto_error=False)
 _FORM_FIELDS = set(JobRequest.model_fields) - {"scenario"}
 _COMPONENT = "#/components/schemas/{model}"
+# how long a submission can be repeated with the same Idempotency-Key and get the same job [s]
+_SUBMISSION_TTL = 24 * 3600
+_IdempotencyKey = Annotated[
+    str | None,
+    Header(
+        alias="Idempotency-Key",
+        min_length=8,
+        max_length=200,
+        pattern=r"^[!-~]+$",
+        description="a token of the client's choosing (8 to 200 printable ASCII characters): "
+        "the same submission sent again with it within a day gets the same job, not a "
+        "second one",
+    ),
+]
 _ERRORS = {
     status: {"model": Problem, "content": {"application/problem+json": {}}}
     for status in (400, 401, 404, 409, 413, 415, 422, 503)
@@ -202,26 +217,62 @@ def create_app(settings: Settings) -> FastAPI:
         },
         summary="Submit a job: a scenario (JSON body, or a TOML/JSON file upload) and its budget",
     )
-    async def submit(request: Request, response: Response) -> JobStatus:
+    async def submit(
+        request: Request, response: Response, idempotency_key: _IdempotencyKey = None
+    ) -> JobStatus:
         data, strict = await _read_body(request)
         job = validate_job(data, settings, strict=strict)
+        scenario = job.scenario.model_dump(mode="json")
+        fingerprint = hashlib.sha256(
+            json.dumps([scenario, job.options()], sort_keys=True).encode()
+        ).hexdigest()
         job_id = new_job_id()
-        # one transaction: the job is recorded and queued, or neither (an API stopped between
-        # the two would leave a record saying queued that no worker would ever start)
+        seen = store.submission_key(idempotency_key) if idempotency_key else None
+        # one transaction: the job is recorded and queued (and its key kept), or none of it
+        # (an API stopped between the writes would leave a record saying queued that no worker
+        # would ever start)
         with raw.pipeline() as pipe:
-            pipe.multi()
-            store.create(
-                job_id,
-                job.scenario.model_dump(mode="json"),
-                job.options(),
-                job.scenario.name,
-                pipe=pipe,
-            )
-            tasks.enqueue_start(queue, job_id, settings.shard_retries, pipeline=pipe)
-            pipe.execute()
+            while True:
+                try:
+                    if seen is not None:
+                        pipe.watch(seen)  # a repeat sent at the same moment loses here
+                        earlier = pipe.get(seen)
+                        if earlier is not None:
+                            pipe.unwatch()
+                            job_id = _repeated(json.loads(earlier), fingerprint)
+                            break
+                    pipe.multi()
+                    store.create(job_id, scenario, job.options(), job.scenario.name, pipe=pipe)
+                    tasks.enqueue_start(queue, job_id, settings.shard_retries, pipeline=pipe)
+                    if seen is not None:
+                        made = json.dumps({"job": job_id, "request": fingerprint})
+                        pipe.set(seen, made, ex=_SUBMISSION_TTL)
+                    pipe.execute()
+                    break
+                except WatchError:
+                    continue
         response.headers["Location"] = f"/jobs/{job_id}"
         response.headers["Retry-After"] = "5"
         return _status(load(job_id))
+
+    def _repeated(earlier: dict[str, str], fingerprint: str) -> str:
+        """The job an earlier submission with the same key made, if it was this request."""
+        if earlier.get("request") != fingerprint:
+            raise InputError(
+                [
+                    FieldProblem(
+                        "Idempotency-Key",
+                        "was sent before with a different request; use a new key for a new "
+                        "submission",
+                    )
+                ]
+            )
+        record = store.get(earlier["job"])
+        if record is None or record.deleted:
+            raise ProblemError(
+                409, "the job first submitted with this Idempotency-Key has been deleted"
+            )
+        return record.id
 
     @app.get("/jobs", response_model=JobList, dependencies=guarded, summary="Recent jobs")
     def list_jobs() -> JobList:

@@ -5,6 +5,7 @@ Nothing here is pickled: the API reads and writes only these hashes and strings.
 
 from __future__ import annotations
 
+import hashlib
 import json
 import re
 import secrets
@@ -160,6 +161,12 @@ class JobStore:
         target.zadd(self.index_key, {job_id: now})
         if pipe is None:
             target.execute()
+
+    # submissions a client may repeat (Idempotency-Key)
+    def submission_key(self, token: str) -> str:
+        """Where the job made for a client's idempotency key is kept (the key hashed: a
+        client's token is never stored as it was sent)."""
+        return f"{self.prefix}:submission:{hashlib.sha256(token.encode()).hexdigest()}"
 
     def exists(self, job_id: str) -> bool:
         return bool(self.redis.exists(self.key(job_id)))
