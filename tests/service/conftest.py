@@ -15,7 +15,7 @@ import socket
 import subprocess
 import threading
 import time
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import Any
 
@@ -26,6 +26,7 @@ from redis import Redis
 
 from tests.conftest import scenario_data
 from tuneopt.service.api import create_app
+from tuneopt.service.records import JobStore
 from tuneopt.service.settings import Settings
 
 
@@ -152,6 +153,26 @@ def client(settings: Settings) -> Iterator[TestClient]:
         assert settings.api_key is not None
         c.headers["X-API-Key"] = settings.api_key.get_secret_value()
         yield c
+
+
+def after_first_report(
+    monkeypatch: pytest.MonkeyPatch, action: Callable[[str], Any]
+) -> tuple[list[int], list[Any]]:
+    """Run ``action(job_id)`` once, right after a shard's first progress report, as a client
+    acting while the job runs. Returns the finished counts reported, and what the action
+    returned."""
+    report = JobStore.record_progress
+    reports: list[int] = []
+    answers: list[Any] = []
+
+    def hooked(self: JobStore, job: str, shard: int, finished: int, *rest: Any) -> None:
+        report(self, job, shard, finished, *rest)
+        reports.append(finished)
+        if not answers:
+            answers.append(action(job))
+
+    monkeypatch.setattr(JobStore, "record_progress", hooked)
+    return reports, answers
 
 
 PROBLEM = "application/problem+json"

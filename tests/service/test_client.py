@@ -5,15 +5,13 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
-from typing import Any
 
 import pytest
 import yaml
 
 from tests.conftest import write_toml
-from tests.service.conftest import small_scenario
+from tests.service.conftest import after_first_report, small_scenario
 from tuneopt.cli import build_parser, main
-from tuneopt.service.records import JobStore
 from tuneopt.service.settings import Settings
 from tuneopt.service.worker import make_worker
 
@@ -50,15 +48,7 @@ def test_cancel_over_http_keeps_what_finished(
     scenario.write_text(write_toml(small_scenario()))
     assert main(["submit", str(scenario), "--api", api, "--trials", "400", "--seed", "3"]) == 0
     job = capsys.readouterr().out.split()[-1]
-    report = JobStore.record_progress
-    answers: list[int] = []
-
-    def report_then_cancel(self: JobStore, *args: Any) -> None:  # after the first batch
-        report(self, *args)
-        if not answers:
-            answers.append(main(["cancel", job, "--api", api]))
-
-    monkeypatch.setattr(JobStore, "record_progress", report_then_cancel)
+    _, answers = after_first_report(monkeypatch, lambda j: main(["cancel", j, "--api", api]))
     make_worker(settings, name="client-cancel").work(burst=True)
     assert answers == [0]
     out = capsys.readouterr().out

@@ -19,7 +19,7 @@ from redis import Redis
 
 from tests.conftest import write_toml
 from tests.figures import record
-from tests.service.conftest import small_scenario
+from tests.service.conftest import after_first_report, small_scenario
 from tuneopt.model import scenario_from_data
 from tuneopt.optimise import StudyPlan, build_space, run_local, start_run
 from tuneopt.optimise.redis_storage import redis_storage
@@ -115,16 +115,11 @@ def test_cancel_stops_shards_and_keeps_what_finished(
     job_id = _submit(client, trials=400, shards=2, batch_size=4, realisations=1)
     _work(settings, max_jobs=1)  # the start part: study made, shards queued
     # cancel from inside the run, right after the first batch is told, as a client would
-    report = JobStore.record_progress
-    cancels = []
-
-    def report_then_cancel(self: JobStore, job: str, *args: Any) -> None:
-        report(self, job, *args)
-        cancels.append(client.post(f"/jobs/{job}/cancel").status_code)
-
-    monkeypatch.setattr(JobStore, "record_progress", report_then_cancel)
+    _, cancels = after_first_report(
+        monkeypatch, lambda job: client.post(f"/jobs/{job}/cancel").status_code
+    )
     _work(settings)
-    assert cancels and set(cancels) == {202}
+    assert cancels == [202]
     status = client.get(f"/jobs/{job_id}").json()
     assert status["state"] == "cancelled" and status["cancel_requested"]
     result = client.get(f"/jobs/{job_id}/result").json()
@@ -175,17 +170,9 @@ def test_deleting_a_job_while_its_shard_runs_stops_the_shard_and_purges_it(
 ) -> None:
     job_id = _submit(client, trials=400, shards=1, batch_size=4, realisations=1)
     _work(settings, max_jobs=1)  # the start part: study made, shard queued
-    report = JobStore.record_progress
-    answers: list[int] = []
-    reports: list[int] = []
-
-    def report_then_delete(self: JobStore, job: str, shard: int, finished: int, *a: Any) -> None:
-        report(self, job, shard, finished, *a)
-        reports.append(finished)
-        if not answers:
-            answers.append(client.delete(f"/jobs/{job}").status_code)
-
-    monkeypatch.setattr(JobStore, "record_progress", report_then_delete)
+    reports, answers = after_first_report(
+        monkeypatch, lambda job: client.delete(f"/jobs/{job}").status_code
+    )
     _work(settings)
     assert answers == [202]
     assert len(reports) == 1  # the shard stopped at its next batch, not at the budget
