@@ -21,12 +21,12 @@ from tests.conftest import write_toml
 from tests.figures import record
 from tests.service.conftest import after_first_report, small_scenario
 from tuneopt.model import scenario_from_data
-from tuneopt.optimise import StudyPlan, build_space, run_local, start_run
+from tuneopt.optimise import Evaluator, StudyPlan, build_space, run_local, start_run
 from tuneopt.optimise.redis_storage import redis_storage
 from tuneopt.optimise.runner import ask_batch
 from tuneopt.service import tasks
 from tuneopt.service.api import create_app
-from tuneopt.service.records import JobStore
+from tuneopt.service.records import JobState, JobStore
 from tuneopt.service.settings import Settings
 from tuneopt.service.worker import make_worker
 
@@ -195,6 +195,30 @@ def test_late_writes_after_a_purge_bring_nothing_back(
     assert not list(redis_client.scan_iter(match=f"tuneopt:job:{job_id}*"))
     assert store.get(job_id) is None
     assert client.get(f"/jobs/{job_id}").status_code == 404
+
+
+def test_a_job_purged_while_its_shard_evaluates_leaves_no_journal(
+    client: TestClient, settings: Settings, redis_client: Redis, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """The job ended (say its start part failed for good) and was deleted while a shard was
+    still simulating a batch: the shard's last results, told after the purge, go too."""
+    job_id = _submit(client, trials=400, shards=1, batch_size=4, realisations=1)
+    _work(settings, max_jobs=1)  # the start part: study made, shard queued
+    store = JobStore(redis_client)
+    real = Evaluator.evaluate
+    calls: list[int] = []
+
+    def purge_midway(self: Evaluator, *args: Any, **kwargs: Any) -> Any:
+        calls.append(1)
+        if len(calls) == 2:
+            store.move(job_id, JobState.FAILED)
+            assert client.delete(f"/jobs/{job_id}").status_code == 204  # ended: purged now
+        return real(self, *args, **kwargs)
+
+    monkeypatch.setattr(Evaluator, "evaluate", purge_midway)
+    _work(settings)
+    assert len(calls) == 2  # the shard stopped after the batch it was in
+    assert not list(redis_client.scan_iter(match=f"tuneopt:*{job_id}*"))
 
 
 def test_a_deleted_job_whose_parts_were_lost_is_purged_when_asked_again(

@@ -234,6 +234,9 @@ def run_shard_job(job_id: str, shard: int) -> int:
             should_stop=lambda: _stopping.is_set() or store.should_stop(job_id),
             on_batch=report,
         )
+        if store.get(job_id) is None:  # purged while this shard ran: what its last batch
+            delete_study_keys(store.redis, store.study_prefix(job_id))  # wrote goes too
+            return done
         if (
             _stopping.is_set()
             and not store.is_cancel_requested(job_id)
