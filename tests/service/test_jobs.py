@@ -235,7 +235,7 @@ def test_a_deleted_job_whose_parts_were_lost_is_purged_when_asked_again(
 
 
 def test_a_submission_sent_again_with_its_key_gets_the_same_job(
-    client: TestClient, redis_client: Redis
+    client: TestClient, redis_client: Redis, settings: Settings
 ) -> None:
     body = {"scenario": small_scenario(), "trials": 4}
     key = {"Idempotency-Key": "shop-overnight-0001"}
@@ -257,10 +257,13 @@ def test_a_submission_sent_again_with_its_key_gets_the_same_job(
     # without a key, each submission is a job of its own
     assert client.post("/jobs", json=body).json()["id"] != first.json()["id"]
     assert redis_client.zcard("tuneopt:jobs") == 2
-    # once its job is deleted, the key says so
+    # once its job is deleted, the key makes a new job
     assert client.delete(f"/jobs/{first.json()['id']}").status_code == 202
-    gone = client.post("/jobs", json=body, headers=key)
-    assert gone.status_code == 409 and "deleted" in gone.json()["detail"]
+    anew = client.post("/jobs", json=body, headers=key)
+    assert anew.status_code == 202 and anew.json()["id"] != first.json()["id"]
+    assert client.post("/jobs", json=body, headers=key).json()["id"] == anew.json()["id"]
+    tasks.purge_job(JobStore(redis_client), settings.results_dir, anew.json()["id"])
+    assert not list(redis_client.scan_iter("tuneopt:submission:*"))  # purged with its job
 
 
 def test_two_submissions_racing_with_one_key_make_one_job(

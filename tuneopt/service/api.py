@@ -237,9 +237,12 @@ def create_app(settings: Settings) -> FastAPI:
                     if seen is not None:
                         pipe.watch(seen)  # a repeat sent at the same moment loses here
                         earlier = pipe.get(seen)
-                        if earlier is not None:
+                        made_before = (
+                            None if earlier is None else _repeated(json.loads(earlier), fingerprint)
+                        )
+                        if made_before is not None:
                             pipe.unwatch()
-                            job_id = _repeated(json.loads(earlier), fingerprint)
+                            job_id = made_before
                             break
                     pipe.multi()
                     store.create(job_id, scenario, job.options(), job.scenario.name, pipe=pipe)
@@ -247,6 +250,7 @@ def create_app(settings: Settings) -> FastAPI:
                     if seen is not None:
                         made = json.dumps({"job": job_id, "request": fingerprint})
                         pipe.set(seen, made, ex=_SUBMISSION_TTL)
+                        pipe.hset(store.key(job_id), "submission", seen)  # purged with it
                     pipe.execute()
                     break
                 except WatchError:
@@ -255,8 +259,9 @@ def create_app(settings: Settings) -> FastAPI:
         response.headers["Retry-After"] = "5"
         return _status(load(job_id))
 
-    def _repeated(earlier: dict[str, str], fingerprint: str) -> str:
-        """The job an earlier submission with the same key made, if it was this request."""
+    def _repeated(earlier: dict[str, str], fingerprint: str) -> str | None:
+        """The job an earlier submission with the same key made, if it was this request; None
+        when that job has since been deleted (the key is then free for a new job)."""
         if earlier.get("request") != fingerprint:
             raise InputError(
                 [
@@ -269,9 +274,7 @@ def create_app(settings: Settings) -> FastAPI:
             )
         record = store.get(earlier["job"])
         if record is None or record.deleted:
-            raise ProblemError(
-                409, "the job first submitted with this Idempotency-Key has been deleted"
-            )
+            return None
         return record.id
 
     @app.get("/jobs", response_model=JobList, dependencies=guarded, summary="Recent jobs")

@@ -298,6 +298,9 @@ class JobStore:
 
     def purge(self, job_id: str, shards: int) -> None:
         keys = [self.key(job_id), self._result_key(job_id), self._errors_key(job_id)]
+        submission = self.redis.hget(self.key(job_id), "submission")  # its Idempotency-Key
+        if submission:
+            keys.append(str(submission))
         keys += [self._owner_key(job_id, k) for k in range(shards)]
         with self.redis.pipeline() as pipe:
             pipe.delete(*keys)
