@@ -262,6 +262,9 @@ def test_a_submission_sent_again_with_its_key_gets_the_same_job(
     anew = client.post("/jobs", json=body, headers=key)
     assert anew.status_code == 202 and anew.json()["id"] != first.json()["id"]
     assert client.post("/jobs", json=body, headers=key).json()["id"] == anew.json()["id"]
+    # the deleted job, purged at last, leaves the key with the job that took it over
+    tasks.purge_job(JobStore(redis_client), settings.results_dir, first.json()["id"])
+    assert client.post("/jobs", json=body, headers=key).json()["id"] == anew.json()["id"]
     tasks.purge_job(JobStore(redis_client), settings.results_dir, anew.json()["id"])
     assert not list(redis_client.scan_iter("tuneopt:submission:*"))  # purged with its job
 

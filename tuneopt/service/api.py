@@ -223,11 +223,14 @@ def create_app(settings: Settings) -> FastAPI:
         data, strict = await _read_body(request)
         job = validate_job(data, settings, strict=strict)
         scenario = job.scenario.model_dump(mode="json")
-        fingerprint = hashlib.sha256(
-            json.dumps([scenario, job.options()], sort_keys=True).encode()
-        ).hexdigest()
         job_id = new_job_id()
         seen = store.submission_key(idempotency_key) if idempotency_key else None
+        fingerprint = (
+            hashlib.sha256(json.dumps([scenario, job.options()], sort_keys=True).encode())
+            .hexdigest()
+            if seen is not None
+            else ""
+        )
         # one transaction: the job is recorded and queued (and its key kept), or none of it
         # (an API stopped between the writes would leave a record saying queued that no worker
         # would ever start)
@@ -236,10 +239,7 @@ def create_app(settings: Settings) -> FastAPI:
                 try:
                     if seen is not None:
                         pipe.watch(seen)  # a repeat sent at the same moment loses here
-                        earlier = pipe.get(seen)
-                        made_before = (
-                            None if earlier is None else _repeated(json.loads(earlier), fingerprint)
-                        )
+                        made_before = _repeated(pipe.get(seen), fingerprint)
                         if made_before is not None:
                             pipe.unwatch()
                             job_id = made_before
@@ -259,9 +259,12 @@ def create_app(settings: Settings) -> FastAPI:
         response.headers["Retry-After"] = "5"
         return _status(load(job_id))
 
-    def _repeated(earlier: dict[str, str], fingerprint: str) -> str | None:
+    def _repeated(kept: bytes | str | None, fingerprint: str) -> str | None:
         """The job an earlier submission with the same key made, if it was this request; None
-        when that job has since been deleted (the key is then free for a new job)."""
+        when there was none or that job has since been deleted (the key is then free)."""
+        if kept is None:
+            return None
+        earlier = json.loads(kept)
         if earlier.get("request") != fingerprint:
             raise InputError(
                 [

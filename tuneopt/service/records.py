@@ -101,6 +101,14 @@ redis.call('LTRIM', KEYS[2], -20, -1)
 return 1
 """
 
+# a purged job's Idempotency-Key is forgotten only if it still names that job (a later
+# submission may have taken the key over once the job was deleted)
+_FORGET_SUBMISSION = """
+local v = redis.call('GET', KEYS[1])
+if v and string.find(v, ARGV[1], 1, true) then redis.call('DEL', KEYS[1]) end
+return 0
+"""
+
 
 def _float(value: str | None) -> float | None:
     return float(value) if value not in (None, "") else None
@@ -296,13 +304,16 @@ class JobStore:
         text = self.redis.get(self._result_key(job_id))
         return None if text is None else json.loads(str(text))
 
-    def purge(self, job_id: str, shards: int) -> None:
+    def purge(self, job_id: str) -> None:
+        """The job's record, result, errors, shard owners and Idempotency-Key, in one
+        transaction."""
+        request, submission = self.redis.hmget(self.key(job_id), ["request", "submission"])
+        shards = int(json.loads(request).get("shards", 0)) if request else 0
         keys = [self.key(job_id), self._result_key(job_id), self._errors_key(job_id)]
-        submission = self.redis.hget(self.key(job_id), "submission")  # its Idempotency-Key
-        if submission:
-            keys.append(str(submission))
         keys += [self._owner_key(job_id, k) for k in range(shards)]
         with self.redis.pipeline() as pipe:
+            if submission:
+                pipe.eval(_FORGET_SUBMISSION, 1, str(submission), job_id)
             pipe.delete(*keys)
             pipe.zrem(self.index_key, job_id)
             pipe.execute()

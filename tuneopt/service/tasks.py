@@ -234,7 +234,7 @@ def run_shard_job(job_id: str, shard: int) -> int:
             should_stop=lambda: _stopping.is_set() or store.should_stop(job_id),
             on_batch=report,
         )
-        if store.get(job_id) is None:  # purged while this shard ran: what its last batch
+        if not store.exists(job_id):  # purged while this shard ran: what its last batch
             delete_study_keys(store.redis, store.study_prefix(job_id))  # wrote goes too
             return done
         if (
@@ -401,11 +401,9 @@ def parts_pending(queue: Queue, job_id: str, shards: int) -> bool:
 def purge_job(store: JobStore, results_dir: Path, job_id: str) -> None:
     """Everything a job left: its study journal, files, result, errors and record. The record
     goes last: while it stands, a purge cut short can be asked for again."""
-    record = store.get(job_id)
-    shards = int(record.request.get("shards", 0)) if record is not None else 0
     delete_study_keys(store.redis, store.study_prefix(job_id))
     shutil.rmtree(result_folder(results_dir, job_id), ignore_errors=True)
-    store.purge(job_id, shards)
+    store.purge(job_id)
 
 
 def result_folder(results_dir: Path, job_id: str) -> Path:
