@@ -7,7 +7,8 @@ import json
 import threading
 import time
 import zlib
-from concurrent.futures import ThreadPoolExecutor
+from concurrent.futures import ThreadPoolExecutor, wait
+from contextlib import ExitStack
 from pathlib import Path
 from typing import Any
 
@@ -283,23 +284,25 @@ def test_two_submissions_racing_with_one_key_make_one_job(
     monkeypatch.setattr(tasks, "enqueue_start", slow)
     body = {"scenario": small_scenario(), "trials": 4}
     assert settings.api_key is not None
+    key = settings.api_key.get_secret_value()  # type: ignore[union-attr]
+    headers = {"X-API-Key": key, "Idempotency-Key": "two-at-once"}
     start = threading.Barrier(2)
 
-    def send(_: int) -> tuple[int, str]:
-        with TestClient(create_app(settings)) as c:
-            start.wait(timeout=30)
-            response = c.post(
-                "/jobs",
-                json=body,
-                headers={
-                    "X-API-Key": settings.api_key.get_secret_value(),  # type: ignore[union-attr]
-                    "Idempotency-Key": "two-at-once",
-                },
-            )
-            return response.status_code, response.json()["id"]
+    def send(c: TestClient) -> tuple[int, str]:
+        start.wait(timeout=30)
+        response = c.post("/jobs", json=body, headers=headers)
+        return response.status_code, response.json()["id"]
 
-    with ThreadPoolExecutor(2) as pool:
-        answers = list(pool.map(send, range(2)))
+    # the clients (two apps, as two API processes would be) are made here, so that the threads
+    # only send: a client that failed to start would otherwise leave the other waiting
+    with ExitStack() as stack:
+        clients = [stack.enter_context(TestClient(create_app(settings))) for _ in range(2)]
+        with ThreadPoolExecutor(2) as pool:
+            futures = [pool.submit(send, c) for c in clients]
+            wait(futures)
+    failures = [f.exception() for f in futures if f.exception() is not None]
+    assert not failures, failures
+    answers = [f.result() for f in futures]
     assert [code for code, _ in answers] == [202, 202]
     assert len({job for _, job in answers}) == 1
     assert redis_client.zcard("tuneopt:jobs") == 1 and redis_client.llen("rq:queue:tuneopt") == 1
