@@ -284,7 +284,7 @@ def test_two_submissions_racing_with_one_key_make_one_job(
     monkeypatch.setattr(tasks, "enqueue_start", slow)
     body = {"scenario": small_scenario(), "trials": 4}
     assert settings.api_key is not None
-    key = settings.api_key.get_secret_value()  # type: ignore[union-attr]
+    key = settings.api_key.get_secret_value()
     headers = {"X-API-Key": key, "Idempotency-Key": "two-at-once"}
     start = threading.Barrier(2)
 

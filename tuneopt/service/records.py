@@ -105,7 +105,7 @@ return 1
 # submission may have taken the key over once the job was deleted)
 _FORGET_SUBMISSION = """
 local v = redis.call('GET', KEYS[1])
-if v and string.find(v, ARGV[1], 1, true) then redis.call('DEL', KEYS[1]) end
+if v and cjson.decode(v)['job'] == ARGV[1] then redis.call('DEL', KEYS[1]) end
 return 0
 """
 
