@@ -11,7 +11,7 @@ from numpy.testing import assert_allclose
 from tests.conftest import SCENARIOS, scenario_data
 from tuneopt.model import InputError, load_scenario, scenario_from_data
 from tuneopt.physics import front_end, layout, rear_end, static_check
-from tuneopt.physics.statics import GRAVITY
+from tuneopt.physics.statics import GRAVITY, fork_axial_load, fork_brake_load
 
 
 def test_tyre_loads_add_up_to_the_weight(scenario_path: Path) -> None:
@@ -109,3 +109,32 @@ def test_common_practice_warnings_are_marked_as_such() -> None:
     c = static_check(scenario_from_data(data))
     sag = [f for f in c.warnings if f.location == "setup.fork"]
     assert sag and sag[0].basis == "common practice, no source"
+
+
+def test_fork_axis_brake_term_adds_the_referenced_share() -> None:
+    # [D] statics: axial load F_z sin HA + F_b cos HA; at HA 65 deg and F_b = 0.9 F_z the brake
+    # adds 0.9 cot 65 deg = 42 % to the axial load of F_z alone (REFERENCES, braking section)
+    fz = 1000.0
+    extra = fork_axial_load(fz, 0.9 * fz, 65.0) / fork_axial_load(fz, 0.0, 65.0) - 1
+    assert_allclose(extra, 0.9 / np.tan(np.radians(65.0)), rtol=1e-12)
+    assert 0.415 < extra < 0.425
+    assert_allclose(fork_brake_load(0.9 * fz, 65.0), 0.9 * fz / np.tan(np.radians(65.0)))
+
+
+def test_travel_under_braking_carries_the_fork_axis_term() -> None:
+    # [D] the spring at the travel under braking holds: static sprung load + m a h / L +
+    # F_b cot HA, F_b = front share x m x a (the riding spring about sag, as the check uses)
+    s = load_scenario(SCENARIOS / "trail_air.toml")
+    c = static_check(s)
+    lay = layout(s)
+    fe = front_end(s, s.setup.fork)
+    brake = s.braking.front_share * c.total_mass * s.braking.deceleration
+    cot = 1 / np.tan(np.radians(s.bike.head_angle))
+    want = c.braking_front_load - lay.unsprung_front * GRAVITY + brake * cot
+    assert_allclose(c.fork_brake_load, brake * cot, rtol=1e-12)
+    riding = fe.riding(c.front.sag_wheel)
+    assert_allclose(riding.spring_force(c.braking_sag_front), want, rtol=1e-6)
+    # and it dives further than the load transfer alone would take it
+    plain = float(np.interp(want - brake * cot, riding.spring_force(np.linspace(0, 0.15, 3001)),
+                            np.linspace(0, 0.15, 3001)))
+    assert c.braking_sag_front > plain + 0.005

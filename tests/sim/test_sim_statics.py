@@ -83,9 +83,23 @@ def test_steady_braking_transfers_sum_of_m_a_h_over_l() -> None:
     assert res.pitch.peak_dive_travel[0] > 0 and res.pitch.peak_dive_pitch[0] > 0
 
 
+def _capacity(load: np.ndarray, fz0: float, mu: float, pd2: float, sigma: float,
+              speed: float, dt: float) -> np.ndarray:
+    """Grip capacity recomputed from a load trace: mu0 (1 + pD2 dfz) Fz through the
+    first-order lag in distance, exact for a load held over each step [S Pacejka 2012 forms]."""
+    steady = mu * (1.0 + pd2 * (load - fz0) / fz0) * np.maximum(load, 0.0)
+    out = np.empty_like(steady)
+    keep = np.exp(-speed * dt / sigma)
+    c = steady[0]
+    for i, s in enumerate(steady):
+        c = s + (c - s) * keep if i else c
+        out[i] = c
+    return out
+
+
 def test_grip_margin_under_steady_braking_runs_the_rear_short() -> None:
-    # [D] steady state: front mu (F0 + dF) vs share m a, rear mu (R0 - dF) vs (1 - share) m a,
-    # dF as above; the metrics are also recomputed from the load traces.
+    # [D] steady state: front capacity mu(F) F at F0 + dF vs share m a, rear at R0 - dF vs
+    # (1 - share) m a, dF as above; the metrics are also recomputed from the load traces.
     params = half_car(1, brake_front_share=0.6)
     bodies = _bodies(params)
     mass = sum(m for m, _, _ in bodies)
@@ -112,10 +126,18 @@ def test_grip_margin_under_steady_braking_runs_the_rear_short() -> None:
     assert mu * (front0[0] + transfer) > 0.6 * mass * a  # front keeps a margin
     assert mu * (rear0[0] - transfer) < 0.4 * mass * a  # rear runs short
     assert res.braking.first_short[0] == 2  # ShortWheel.REAR
-    assert res.front.grip_short_share_braking[0] == 0.0
-    assert res.rear.grip_short_share_braking[0] > 0.8
+    assert res.front.grip_unmet_braking[0] == 0.0
     braking = decel > 0.5
     assert_allclose(res.braking.time[0], braking.sum() * dt)
-    margin_r = mu * tr.rear_tyre_load[0, braking] - 0.4 * mass * a
+    cap_r = _capacity(tr.rear_tyre_load[0], rear0[0], mu, params.rear.load_sensitivity,
+                      params.rear.relaxation_length, 5.0, dt)
+    demand = 0.4 * mass * a
+    margin_r = cap_r[braking] - demand
     assert_allclose(res.rear.grip_margin_mean_braking[0], margin_r.mean(), rtol=1e-9)
-    assert_allclose(res.rear.grip_short_share_braking[0], np.mean(margin_r < 0), rtol=1e-12)
+    unmet = np.maximum(-margin_r, 0.0).sum() / (demand * braking.sum())
+    assert_allclose(res.rear.grip_unmet_braking[0], unmet, rtol=1e-9)
+    # steady: the rear's capacity at R0 - dF (load sensitivity raises its mu a little)
+    r = rear0[0] - transfer
+    steady = mu * (1.0 + params.rear.load_sensitivity * (r - rear0[0]) / rear0[0]) * r
+    assert_allclose(cap_r[-1], steady, rtol=1e-3)
+    assert 0.05 < res.rear.grip_unmet_braking[0] < 1.0

@@ -54,6 +54,21 @@ class Tyre(Strict):
     rim_strike_deflection: Length | None = Field(
         None, gt=0, description="deflection at which the rim hits; default 0.55 x width"
     )
+    # Grip as a force (tuneopt.sim.grip). Both defaults are estimates, not measurements: no
+    # published values for mountain-bike tyres were at hand.
+    relaxation_length: Length = Field(
+        0.15,
+        gt=0,
+        le=1.0,
+        description="rolled distance over which grip follows a change of load; estimate 0.15 m",
+    )
+    load_sensitivity: float = Field(
+        -0.1,
+        gt=-1,
+        le=0,
+        description="p_D2: relative fall of the friction coefficient per relative load above "
+        "static; estimate -0.1 (car tyres -0.05 to -0.15)",
+    )
 
     @field_validator("size")
     @classmethod

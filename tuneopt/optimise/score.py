@@ -50,8 +50,8 @@ def score_terms(metrics: Mapping[str, NDArray[np.float64]]) -> dict[str, NDArray
         "rear_load_variation": m["rear_load_variation"],
         "unloaded_time": 0.5 * (m["front_unloaded_share"] + m["rear_unloaded_share"]),
         "bottom_outs": m["front_bottom_outs_per_min"] + m["rear_bottom_outs_per_min"],
-        "front_grip": 0.5 * (m["front_grip_short_braking"] + m["front_grip_short_cornering"]),
-        "rear_grip": 0.5 * (m["rear_grip_short_braking"] + m["rear_grip_short_cornering"]),
+        "front_grip": 0.5 * (m["front_grip_unmet_braking"] + m["front_grip_unmet_cornering"]),
+        "rear_grip": 0.5 * (m["rear_grip_unmet_braking"] + m["rear_grip_unmet_cornering"]),
         "pitch": m["pitch_rate_rms"],
         "rider_vibration": m["rider_vibration_rms"],
     }

@@ -14,6 +14,7 @@ from tuneopt.physics.statics import (
     GRAVITY,
     bounce_pitch_modes,
     damping_ratio,
+    fork_brake_load,
     load_transfer,
     natural_frequency,
     rear_lift_deceleration,
@@ -80,6 +81,7 @@ class StaticCheck:
     braking_front_load: float
     braking_rear_load: float
     load_transfer: float
+    fork_brake_load: float  # front brake's push along the fork, at the wheel's travel [N]
     rear_lift_deceleration: float
     braking_sag_front: float
     braking_sag_rear: float
@@ -184,7 +186,11 @@ def static_check(scenario: Scenario, setup: Setup | None = None) -> StaticCheck:
     a = scenario.braking.deceleration
     dF = load_transfer(m, a, lay.com_height, L)
     bf, br = f_load + dF, max(r_load - dF, 0.0)
-    z_fb = _braking_sag(front.riding(z_f), bf - lay.unsprung_front * GRAVITY, z_f)
+    # the front brake's force also pushes along the inclined fork axis (F_b cos HA)
+    fork_brake = fork_brake_load(
+        scenario.braking.front_share * m * a, scenario.bike.head_angle
+    )
+    z_fb = _braking_sag(front.riding(z_f), bf - lay.unsprung_front * GRAVITY + fork_brake, z_f)
     z_rb = _braking_sag(rear.riding(z_r), br - lay.unsprung_rear * GRAVITY, z_r)
     findings = _findings(scenario, lay, fs, rs, a)
     check = StaticCheck(
@@ -200,6 +206,7 @@ def static_check(scenario: Scenario, setup: Setup | None = None) -> StaticCheck:
         braking_front_load=bf,
         braking_rear_load=br,
         load_transfer=dF,
+        fork_brake_load=fork_brake,
         rear_lift_deceleration=rear_lift_deceleration(lay.com_x, lay.com_height, L),
         braking_sag_front=z_fb,
         braking_sag_rear=z_rb,

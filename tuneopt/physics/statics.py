@@ -17,6 +17,8 @@ __all__ = [
     "bounce_pitch_modes",
     "braking_split",
     "damping_ratio",
+    "fork_axial_load",
+    "fork_brake_load",
     "load_transfer",
     "natural_frequency",
     "rear_lift_deceleration",
@@ -47,6 +49,22 @@ def braking_split(
     front, rear = static_split(mass, com_x, wheelbase)
     dF = load_transfer(mass, deceleration, com_height, wheelbase)
     return front + dF, rear - dF
+
+
+def fork_axial_load(tyre_load: float, brake_force: float, head_angle: float) -> float:
+    """Load along a telescopic fork's axis [N]: F_z·sin(HA) + F_b·cos(HA), with F_z the
+    ground's upward force on the front tyre, F_b its rearward braking force and HA the head
+    angle from horizontal [deg] (statics of the axle sliding along the axis)."""
+    ha = np.radians(head_angle)
+    return float(tyre_load * np.sin(ha) + brake_force * np.cos(ha))
+
+
+def fork_brake_load(brake_force: float, head_angle: float) -> float:
+    """The braking term of ``fork_axial_load`` seen at the wheel's vertical travel [N]:
+    F_b·cos(HA)/sin(HA) = F_b·cot(HA) (vertical travel = stroke·sin HA, so a vertical force
+    equivalent to an axial one is the axial one over sin HA)."""
+    ha = np.radians(head_angle)
+    return float(brake_force * np.cos(ha) / np.sin(ha))
 
 
 def rear_lift_deceleration(com_x: float, com_height: float, wheelbase: float) -> float:

@@ -12,6 +12,7 @@ import numpy as np
 from numba import njit
 
 from tuneopt.physics.statics import GRAVITY as GRAVITY  # one value of g everywhere
+from tuneopt.sim.grip import grip_capacity
 
 # Rim strike: beyond rim_strike_deflection the tyre stiffens by this factor times its own rate.
 # Stiff enough to stop the rim within millimetres, soft enough for RK4 at a 1 ms step with
@@ -23,9 +24,12 @@ BOTTOM_OUT_MIN_DEPTH = 2e-3
 RIM_STRIKE_MIN_DEPTH = 1e-3
 # A tyre counts as unloaded below this fraction of its static load (common practice, no source).
 UNLOADED_FRACTION = 0.1
-# Phases for the grip margin (common practice, no source) [m/s^2].
+# Phases for the grip balance (common practice, no source) [m/s^2].
 BRAKING_THRESHOLD = 0.5
 CORNERING_THRESHOLD = 1.0
+# A top-out strike: the end reaches full extension while extending faster than this [m/s]
+# (common practice, no source: a clunk a rider hears and feels).
+TOPOUT_MIN_SPEED = 0.5
 # Travel histogram for median and 95th percentile: range [-HIST_LOW, HIST_HIGH * travel].
 HIST_BINS = 2048
 HIST_LOW = 0.02
@@ -54,13 +58,21 @@ W_N_RIM = 8
 W_IN_RIM = 9
 W_SUM_S = 10
 W_S_MAX = 11
-W_N_SHORT_BRAKE = 12
+W_UNMET_BRAKE = 12  # integral of max(0, demand - capacity) over braking samples [N samples]
 W_SUM_MARGIN_BRAKE = 13
 W_FIRST_SHORT_BRAKE = 14
-W_N_SHORT_CORNER = 15
+W_UNMET_CORNER = 15
 W_SUM_MARGIN_CORNER = 16
 W_FIRST_SHORT_CORNER = 17
-W_FIELDS = 18
+W_DEMAND_BRAKE = 18  # integral of the demand over braking samples [N samples]
+W_DEMAND_CORNER = 19
+W_CAPACITY = 20  # the lagged grip capacity: a state carried from sample to sample [N]
+W_SUM_CAPACITY = 21
+W_SUM_S_FREE = 22  # travel summed outside braking and cornering (pack-down)
+W_N_FREE = 23
+W_N_TOPOUT = 24
+W_IN_TOPOUT = 25
+W_FIELDS = 26
 
 # Vibration accumulator layout (offset + field).
 V_SUM_AW2 = 0
@@ -74,6 +86,7 @@ def init_wheel_acc(acc: np.ndarray, off: int) -> None:
     acc[:, off + W_S_MAX] = -np.inf
     acc[:, off + W_FIRST_SHORT_BRAKE] = -1.0
     acc[:, off + W_FIRST_SHORT_CORNER] = -1.0
+    acc[:, off + W_CAPACITY] = np.nan  # set from the first sample's load
 
 
 @njit(cache=True, inline="always")
@@ -118,10 +131,17 @@ def sos_step(sos, zi, x):
 
 @njit(cache=True)
 def accumulate_wheel(
-    acc, off, hist, k, load, travel, tyre_defl, full_travel, rim_defl, static_load,
-    hist_low, hist_width, braking, cornering, demand, mu,
+    acc, off, hist, k, load, travel, travel_rate, tyre_defl, full_travel, rim_defl, static_load,
+    hist_low, hist_width, braking, cornering, demand, ground_load, mu, pd2, relax,
 ):
-    """Add one sample of one wheel: load [N], travel [m], tyre deflection [m], grip demand [N]."""
+    """Add one sample of one wheel.
+
+    load: tyre force in the bike's plane [N]; travel [m] and travel_rate [m/s] (compression
+    positive); tyre deflection [m]; demand: the force the phase asks of this tyre along the
+    ground [N]; ground_load: the ground-normal share of the tyre force [N]; mu, pd2: friction
+    coefficient at the static load and load sensitivity [-]; relax: this sample's weight of the
+    capacity's relaxation-length lag [-] (see tuneopt.sim.grip).
+    """
     acc[off + W_SUM_F] += load
     acc[off + W_SUM_F2] += load * load
     if load < UNLOADED_FRACTION * static_load:
@@ -146,6 +166,13 @@ def accumulate_wheel(
     elif rim > RIM_STRIKE_MIN_DEPTH:
         acc[off + W_IN_RIM] = 1.0
         acc[off + W_N_RIM] += 1.0
+    # top-out: full extension reached while extending fast; over once the end compresses again
+    if acc[off + W_IN_TOPOUT] > 0.0:
+        if travel > 0.0:
+            acc[off + W_IN_TOPOUT] = 0.0
+    elif travel <= 0.0 and travel_rate < -TOPOUT_MIN_SPEED:
+        acc[off + W_IN_TOPOUT] = 1.0
+        acc[off + W_N_TOPOUT] += 1.0
     acc[off + W_SUM_S] += travel
     if travel > acc[off + W_S_MAX]:
         acc[off + W_S_MAX] = travel
@@ -158,19 +185,32 @@ def accumulate_wheel(
     else:
         j = int(u)
     hist[j] += 1.0
-    margin = mu * load - demand
+    # grip capacity through the relaxation-length lag
+    steady = grip_capacity(ground_load, static_load, mu, pd2)
+    cap = acc[off + W_CAPACITY]
+    if cap != cap:
+        cap = steady
+    else:
+        cap += relax * (steady - cap)
+    acc[off + W_CAPACITY] = cap
+    acc[off + W_SUM_CAPACITY] += cap
+    margin = cap - demand
+    unmet = -margin if margin < 0.0 else 0.0
     if braking:
         acc[off + W_SUM_MARGIN_BRAKE] += margin
-        if margin < 0.0:
-            acc[off + W_N_SHORT_BRAKE] += 1.0
-            if acc[off + W_FIRST_SHORT_BRAKE] < 0.0:
-                acc[off + W_FIRST_SHORT_BRAKE] = k
+        acc[off + W_DEMAND_BRAKE] += demand
+        acc[off + W_UNMET_BRAKE] += unmet
+        if margin < 0.0 and acc[off + W_FIRST_SHORT_BRAKE] < 0.0:
+            acc[off + W_FIRST_SHORT_BRAKE] = k
     if cornering:
         acc[off + W_SUM_MARGIN_CORNER] += margin
-        if margin < 0.0:
-            acc[off + W_N_SHORT_CORNER] += 1.0
-            if acc[off + W_FIRST_SHORT_CORNER] < 0.0:
-                acc[off + W_FIRST_SHORT_CORNER] = k
+        acc[off + W_DEMAND_CORNER] += demand
+        acc[off + W_UNMET_CORNER] += unmet
+        if margin < 0.0 and acc[off + W_FIRST_SHORT_CORNER] < 0.0:
+            acc[off + W_FIRST_SHORT_CORNER] = k
+    if not (braking or cornering):
+        acc[off + W_SUM_S_FREE] += travel
+        acc[off + W_N_FREE] += 1.0
 
 
 @njit(cache=True)

@@ -26,7 +26,8 @@ E_F_STATIC = 11
 E_BRAKE_SHARE = 12
 E_LAT_SHARE = 13
 E_HIST_W = 14
-E_FIELDS = 15
+E_PD2 = 15  # load sensitivity of the tyre's friction coefficient
+E_FIELDS = 16
 
 
 def _uniform_step(grid: FloatArray, name: str) -> float:
@@ -95,6 +96,7 @@ def pack_wheel(
     p[:, off + E_BRAKE_SHARE] = brake_share
     p[:, off + E_LAT_SHARE] = lateral_share
     p[:, off + E_HIST_W] = (c.HIST_LOW + c.HIST_HIGH * wheel.travel) / c.HIST_BINS
+    p[:, off + E_PD2] = wheel.load_sensitivity
 
 
 def check_wheel(wheel: WheelEnd) -> None:
@@ -108,3 +110,7 @@ def check_wheel(wheel: WheelEnd) -> None:
                  "rim_strike_deflection"):
         if np.shape(getattr(wheel, name)) != (b,):
             raise ValueError(f"{name} must have shape ({b},)")
+    if not wheel.relaxation_length > 0:
+        raise ValueError("relaxation_length must be positive")
+    if not -1.0 < wheel.load_sensitivity <= 0.0:
+        raise ValueError("load_sensitivity must be in (-1, 0]")

@@ -99,6 +99,8 @@ def wheel_end(
         tyre_damping=np.full(b, tyre.damping),
         rim_strike_deflection=np.full(b, tyre.rim_strike),
         wheel_radius=tyre.outer_radius,
+        relaxation_length=tyre.relaxation_length,
+        load_sensitivity=tyre.load_sensitivity,
     )
 
 
@@ -138,6 +140,7 @@ def halfcar_params(
         frame_com_height=lay.frame_com_height,
         wheelbase=lay.wheelbase,
         brake_front_share=scenario.braking.front_share,
+        head_angle=scenario.bike.head_angle,
     )
 
 

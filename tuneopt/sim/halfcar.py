@@ -20,6 +20,16 @@ The resulting pitch moments are
 which in steady state move dF = a (m_frame h_c + m_rider h_d + m_uf R_f + m_ur R_r) / L from the
 rear tyre to the front. The braking force is split between the tyres by brake_front_share (it
 enters the grip demand); the lateral force a corner demands is split like the static loads.
+The front brake force F_b = share m_tot a also pushes along the fork axis, inclined at the head
+angle HA: F_b cos(HA) along the axis is F_b cot(HA) at the wheel's vertical travel, a
+compressing pair between the front unsprung mass (up) and the frame (down, at the front axle).
+It leaves the tyre loads unchanged in steady state; the spring carries it (statics: the axial
+load is F_z sin HA + F_b cos HA). The rear brake's reaction through the linkage (brake squat or
+rise) is left out: the scenario does not give the layout it needs.
+In a corner of lateral acceleration a_y the bike leans to tan(phi) = a_y / g and every body
+feels the effective gravity sqrt(g^2 + a_y^2) = g / cos(phi) in the bike's plane (Cossalter,
+"Motorcycle Dynamics", 2nd ed. 2006, ch. 2); the tyre forces are in that plane, their
+ground-normal share (times cos(phi)) is what the grip capacity sees.
 """
 
 from __future__ import annotations
@@ -33,9 +43,11 @@ from scipy.integrate import solve_ivp
 
 from tuneopt.sim import _common as c
 from tuneopt.sim import _wheel as w
+from tuneopt.sim.grip import relaxation_factor
 from tuneopt.sim.iso2631 import weighting_sos
 from tuneopt.sim.metrics import (
     GripPhase,
+    KickMetrics,
     PitchMetrics,
     VibrationMetrics,
     WheelMetrics,
@@ -78,7 +90,9 @@ _MB_D = 16
 _M_TOT = 17
 _N_AIRBORNE = 18  # samples with both tyres off the ground that make a landing [-]
 _N_LANDING_WINDOW = 19  # samples after touch-down watched for pitch [-]
-_F = 20
+_FB_COT = 20  # brake_front_share * m_tot * cot(HA): fork-axis brake force per unit decel [kg]
+_N_KICK_WINDOW = 21  # samples watched for the kick after a deep compression turns [-]
+_F = 22
 _R = _F + w.E_FIELDS
 _NP = _R + w.E_FIELDS
 _NS = 12
@@ -96,10 +110,20 @@ _CAR_AIR_RUN = 5
 _CAR_WINDOW_LEFT = 6
 _CAR_N_LANDINGS = 7
 _CAR_LANDING_RATE = 8
-_NACC = _ACC_CAR + 9
+_CAR_KICK_LEFT = 9
+_CAR_KICK_PEAK = 10
+_CAR_KICK_SUM = 11
+_CAR_N_KICKS = 12
+_CAR_KICK_MAX = 13
+_NACC = _ACC_CAR + 14
 # A landing: both tyres unloaded for at least this long [s]; pitch watched this long after [s].
 AIRBORNE_MIN_TIME = 0.02
 LANDING_WINDOW = 0.5
+# The kick: once an end compressed past KICK_DEPTH of its travel starts to extend, the rider's
+# upward speed relative to the ground is watched for KICK_WINDOW [s] (common practice, no
+# source: a deep compression released fast throws the rider up).
+KICK_DEPTH = 0.6
+KICK_WINDOW = 0.2
 # Output channels of one sample; traces add the weighted rider acceleration.
 _O_LOAD_F = 0
 _O_LOAD_R = 1
@@ -112,7 +136,10 @@ _O_PITCH = 7
 _O_PITCH_RATE = 8
 _O_HAND = 9
 _O_FOOT = 10
-_NOUT = 11
+_O_RATE_F = 11  # travel rates (compression positive) [m/s]
+_O_RATE_R = 12
+_O_RIDER_UP = 13  # the rider's upward speed relative to the ground under the rider [m/s]
+_NOUT = 14
 _NTRACE = _NOUT + 1
 # A rider coupling stretched or squeezed this far has come apart [m].
 _RUNAWAY_COUPLING = 0.5
@@ -145,15 +172,16 @@ class HalfCarResult:
     """Outcome of a half-car batch run; metric arrays are (B,).
 
     front, rear: WheelMetrics; pitch: PitchMetrics; rider_vibration: Wk metrics of the rider
-    body's vertical acceleration; braking, cornering: GripPhase; static_travel_front/rear [m]
-    and static_load_front/rear (tyres) [N]; duration [s]; failed (B,) bool; failure (B,)
-    FailureReason strings; traces or None.
+    body's vertical acceleration; kick: KickMetrics; braking, cornering: GripPhase;
+    static_travel_front/rear [m] and static_load_front/rear (tyres) [N]; duration [s];
+    failed (B,) bool; failure (B,) FailureReason strings; traces or None.
     """
 
     front: WheelMetrics
     rear: WheelMetrics
     pitch: PitchMetrics
     rider_vibration: VibrationMetrics
+    kick: KickMetrics
     braking: GripPhase
     cornering: GripPhase
     static_travel_front: FloatArray
@@ -174,7 +202,7 @@ def _suspension(p, o, s, sd, spring, damper):
 
 
 @njit(cache=True, inline="always")
-def _rhs(y, zf, zfd, zr, zrd, a, p, sf, df, sr, dr, dy, out):
+def _rhs(y, zf, zfd, zr, zrd, a, ay, p, sf, df, sr, dr, dy, out):
     lwb = p[_L]
     xc = p[_X_C]
     xd = p[_X_D]
@@ -185,8 +213,12 @@ def _rhs(y, zf, zfd, zr, zrd, a, p, sf, df, sr, dr, dy, out):
     # suspension at the axles
     s_f = p[_F + w.E_S0] + zuf - (zc + (lwb - xc) * th)
     s_r = p[_R + w.E_S0] + zur - (zc - xc * th)
-    f_f = _suspension(p, _F, s_f, vuf - (vc + (lwb - xc) * om), sf, df)
-    f_r = _suspension(p, _R, s_r, vur - (vc - xc * om), sr, dr)
+    r_f = vuf - (vc + (lwb - xc) * om)
+    r_r = vur - (vc - xc * om)
+    # the front brake's push along the fork axis acts like the spring: up on the wheel, down on
+    # the frame
+    f_f = _suspension(p, _F, s_f, r_f, sf, df) - p[_FB_COT] * a
+    f_r = _suspension(p, _R, s_r, r_r, sr, dr)
     # tyres
     d_f = p[_F + w.E_D0] + zf - zuf
     d_r = p[_R + w.E_D0] + zr - zur
@@ -199,7 +231,7 @@ def _rhs(y, zf, zfd, zr, zrd, a, p, sf, df, sr, dr, dy, out):
     e_ftd = (vc + (xft - xc) * om) - (vd + (xft - xd) * omd)
     f_h = p[_F_H0] + p[_K_A] * e_h + p[_C_A] * e_hd
     f_ft = p[_F_FT0] + p[_K_L] * e_ft + p[_C_L] * e_ftd
-    g = c.GRAVITY
+    g = np.sqrt(c.GRAVITY * c.GRAVITY + ay * ay)  # effective gravity in the leaned bike's plane
     a_d = (f_h + f_ft) * p[_INV_M_D] - g
     for i in range(6):
         dy[i] = y[6 + i]
@@ -221,6 +253,9 @@ def _rhs(y, zf, zfd, zr, zrd, a, p, sf, df, sr, dr, dy, out):
     out[_O_PITCH_RATE] = om
     out[_O_HAND] = e_h
     out[_O_FOOT] = e_ft
+    out[_O_RATE_F] = r_f
+    out[_O_RATE_R] = r_r
+    out[_O_RIDER_UP] = vd - (zrd + (zfd - zrd) * xd / lwb)
 
 
 @njit(cache=True)
@@ -237,7 +272,8 @@ def _is_runaway(p, out):
 
 
 @njit(cache=True)
-def _record(k, y, dy, out, zf, zr, a, ay, mu, p, acc, hist_f, hist_r, sos, zi, trace, every):
+def _record(k, y, dy, out, zf, zr, a, ay, mu, relax_f, relax_r, p, acc, hist_f, hist_r, sos, zi,
+            trace, every):
     """Checks, metric accumulation and trace for sample k (derivative and outputs given)."""
     for i in range(_NS):
         if not (np.isfinite(y[i]) and np.isfinite(dy[i])):
@@ -247,18 +283,40 @@ def _record(k, y, dy, out, zf, zr, a, ay, mu, p, acc, hist_f, hist_r, sos, zi, t
     braking = a > c.BRAKING_THRESHOLD
     cornering = ay > c.CORNERING_THRESHOLD
     m_tot = p[_M_TOT]
+    # the tyre forces lie in the leaned bike's plane; the ground-normal share is cos(lean)
+    upright = c.GRAVITY / np.sqrt(c.GRAVITY * c.GRAVITY + ay * ay)
     demand = np.hypot(p[_F + w.E_BRAKE_SHARE] * m_tot * a, p[_F + w.E_LAT_SHARE] * m_tot * ay)
     c.accumulate_wheel(
-        acc, _ACC_F, hist_f, k, out[_O_LOAD_F], out[_O_TRAVEL_F], out[_O_DEFL_F],
+        acc, _ACC_F, hist_f, k, out[_O_LOAD_F], out[_O_TRAVEL_F], out[_O_RATE_F], out[_O_DEFL_F],
         p[_F + w.E_TRAVEL], p[_F + w.E_D_RIM], p[_F + w.E_F_STATIC], c.HIST_LOW,
-        p[_F + w.E_HIST_W], braking, cornering, demand, mu,
+        p[_F + w.E_HIST_W], braking, cornering, demand, out[_O_LOAD_F] * upright, mu,
+        p[_F + w.E_PD2], relax_f,
     )
     demand = np.hypot(p[_R + w.E_BRAKE_SHARE] * m_tot * a, p[_R + w.E_LAT_SHARE] * m_tot * ay)
     c.accumulate_wheel(
-        acc, _ACC_R, hist_r, k, out[_O_LOAD_R], out[_O_TRAVEL_R], out[_O_DEFL_R],
+        acc, _ACC_R, hist_r, k, out[_O_LOAD_R], out[_O_TRAVEL_R], out[_O_RATE_R], out[_O_DEFL_R],
         p[_R + w.E_TRAVEL], p[_R + w.E_D_RIM], p[_R + w.E_F_STATIC], c.HIST_LOW,
-        p[_R + w.E_HIST_W], braking, cornering, demand, mu,
+        p[_R + w.E_HIST_W], braking, cornering, demand, out[_O_LOAD_R] * upright, mu,
+        p[_R + w.E_PD2], relax_r,
     )
+    # the kick: the rider's upward speed after a deep compression starts to extend
+    ck = _ACC_CAR
+    if acc[ck + _CAR_KICK_LEFT] > 0.0:
+        acc[ck + _CAR_KICK_LEFT] -= 1.0
+        if out[_O_RIDER_UP] > acc[ck + _CAR_KICK_PEAK]:
+            acc[ck + _CAR_KICK_PEAK] = out[_O_RIDER_UP]
+        if acc[ck + _CAR_KICK_LEFT] <= 0.0:
+            peak = acc[ck + _CAR_KICK_PEAK]
+            acc[ck + _CAR_KICK_SUM] += peak
+            acc[ck + _CAR_N_KICKS] += 1.0
+            if peak > acc[ck + _CAR_KICK_MAX]:
+                acc[ck + _CAR_KICK_MAX] = peak
+    elif (
+        (out[_O_TRAVEL_F] > KICK_DEPTH * p[_F + w.E_TRAVEL] and out[_O_RATE_F] < 0.0)
+        or (out[_O_TRAVEL_R] > KICK_DEPTH * p[_R + w.E_TRAVEL] and out[_O_RATE_R] < 0.0)
+    ):
+        acc[ck + _CAR_KICK_LEFT] = p[_N_KICK_WINDOW]
+        acc[ck + _CAR_KICK_PEAK] = out[_O_RIDER_UP] if out[_O_RIDER_UP] > 0.0 else 0.0
     aw = c.accumulate_vibration(acc, _ACC_V, sos, zi, out[_O_ACCEL_D])
     acc[_ACC_CAR + _CAR_SUM_W2] += out[_O_PITCH_RATE] ** 2
     if braking:
@@ -293,11 +351,12 @@ def _record(k, y, dy, out, zf, zr, a, ay, mu, p, acc, hist_f, hist_r, sos, zi, t
 
 
 @njit(cache=True)
-def _sample(k, y, zf, zfd, zr, zrd, a, ay, mu, p, sf, df, sr, dr, dy, out, acc, hist_f, hist_r,
-            sos, zi, trace, every):
+def _sample(k, y, zf, zfd, zr, zrd, a, ay, mu, relax_f, relax_r, p, sf, df, sr, dr, dy, out, acc,
+            hist_f, hist_r, sos, zi, trace, every):
     """Derivative and outputs at sample k, then _record. Returns a failure code."""
-    _rhs(y, zf, zfd, zr, zrd, a, p, sf, df, sr, dr, dy, out)
-    return _record(k, y, dy, out, zf, zr, a, ay, mu, p, acc, hist_f, hist_r, sos, zi, trace, every)
+    _rhs(y, zf, zfd, zr, zrd, a, ay, p, sf, df, sr, dr, dy, out)
+    return _record(k, y, dy, out, zf, zr, a, ay, mu, relax_f, relax_r, p, acc, hist_f, hist_r,
+                   sos, zi, trace, every)
 
 
 @njit(cache=True)
@@ -315,8 +374,8 @@ def _initial_state(p, zf0, zr0):
 
 
 @njit(cache=True, parallel=True)
-def _run(P, sfs, dfs, srs, drs, zf, zfd, zr, zrd, dec, lat, mu, dt, sos, acc, hist, fail,
-         trace, every):
+def _run(P, sfs, dfs, srs, drs, zf, zfd, zr, zrd, dec, lat, mu, relax_f, relax_r, dt, sos, acc,
+         hist, fail, trace, every):
     n = zf.shape[0]
     for b in prange(P.shape[0]):
         if fail[b] != 0:
@@ -350,10 +409,11 @@ def _run(P, sfs, dfs, srs, drs, zf, zfd, zr, zrd, dec, lat, mu, dt, sos, acc, hi
                     tmp[i] = y[i] + (step * kk[st - 1, i] if st > 0 else 0.0)
                 _rhs(tmp, zf[j0] + wt * (zf[j1] - zf[j0]), zfd[j0] + wt * (zfd[j1] - zfd[j0]),
                      zr[j0] + wt * (zr[j1] - zr[j0]), zrd[j0] + wt * (zrd[j1] - zrd[j0]),
-                     dec[j0] + wt * (dec[j1] - dec[j0]), p, sf, df, sr, dr, kk[st], out)
+                     dec[j0] + wt * (dec[j1] - dec[j0]), lat[j0] + wt * (lat[j1] - lat[j0]), p,
+                     sf, df, sr, dr, kk[st], out)
                 if st == 0:
-                    code = _record(k, y, kk[0], out, zf[k], zr[k], dec[k], lat[k], mu, p, acc_b,
-                                   hist_f, hist_r, sos, zi, trace_b, every)
+                    code = _record(k, y, kk[0], out, zf[k], zr[k], dec[k], lat[k], mu, relax_f[k],
+                                   relax_r[k], p, acc_b, hist_f, hist_r, sos, zi, trace_b, every)
                     if code != 0:
                         fail[b] = code
                         done = True
@@ -370,7 +430,7 @@ def _run(P, sfs, dfs, srs, drs, zf, zfd, zr, zrd, dec, lat, mu, dt, sos, acc, hi
 
 
 @njit(cache=True)
-def _rhs_at_time(t, y, zf, zfd, zr, zrd, dec, dt, p, sf, df, sr, dr):
+def _rhs_at_time(t, y, zf, zfd, zr, zrd, dec, lat, dt, p, sf, df, sr, dr):
     """The same equations at any time, the road linear between samples (for solve_ivp)."""
     u = t / dt
     i = int(u)
@@ -383,12 +443,14 @@ def _rhs_at_time(t, y, zf, zfd, zr, zrd, dec, dt, p, sf, df, sr, dr):
     out = np.empty(_NOUT)
     _rhs(y, zf[i] + f * (zf[i + 1] - zf[i]), zfd[i] + f * (zfd[i + 1] - zfd[i]),
          zr[i] + f * (zr[i + 1] - zr[i]), zrd[i] + f * (zrd[i + 1] - zrd[i]),
-         dec[i] + f * (dec[i + 1] - dec[i]), p, sf, df, sr, dr, dy, out)
+         dec[i] + f * (dec[i + 1] - dec[i]), lat[i] + f * (lat[i + 1] - lat[i]), p, sf, df, sr,
+         dr, dy, out)
     return dy
 
 
 @njit(cache=True)
-def _replay(Y, zf, zfd, zr, zrd, dec, lat, mu, p, sf, df, sr, dr, sos, acc, hist, trace, every):
+def _replay(Y, zf, zfd, zr, zrd, dec, lat, mu, relax_f, relax_r, p, sf, df, sr, dr, sos, acc, hist,
+            trace, every):
     """Accumulate metrics from given states Y (N, 12) at the sample times."""
     dy = np.empty(_NS)
     out = np.empty(_NOUT)
@@ -400,8 +462,9 @@ def _replay(Y, zf, zfd, zr, zrd, dec, lat, mu, p, sf, df, sr, dr, sos, acc, hist
     for k in range(Y.shape[0]):
         for i in range(_NS):
             y[i] = Y[k, i]
-        code = _sample(k, y, zf[k], zfd[k], zr[k], zrd[k], dec[k], lat[k], mu, p, sf, df, sr,
-                       dr, dy, out, acc, hist_f, hist_r, sos, zi, trace, every)
+        code = _sample(k, y, zf[k], zfd[k], zr[k], zrd[k], dec[k], lat[k], mu, relax_f[k],
+                       relax_r[k], p, sf, df, sr, dr, dy, out, acc, hist_f, hist_r, sos, zi, trace,
+                       every)
         if code != 0:
             break
     c.close_wheel(acc, _ACC_F)
@@ -449,6 +512,10 @@ def _pack(params: HalfCarParams) -> FloatArray:
     )
     P[:, _MB_D] = -m_d * (rider.com_height - h_c)
     P[:, _M_TOT] = m_fr + m_d + fw.unsprung_mass + rw.unsprung_mass
+    if not 0.0 < params.head_angle <= 90.0:
+        raise ValueError("head_angle must be in (0, 90] degrees")
+    ha = np.radians(params.head_angle)
+    P[:, _FB_COT] = params.brake_front_share * P[:, _M_TOT] * np.cos(ha) / np.sin(ha)
     sprung_weight = (m_fr + m_d) * g
     sprung_moment = (m_fr * params.frame_com_x + m_d * rider.com_x) * g  # about the rear axle
     spring_f = np.full(bsz, sprung_moment / lwb)
@@ -471,12 +538,15 @@ class _Prepared:
     trace: FloatArray
     every: int
     sos: FloatArray
+    relax_f: FloatArray
+    relax_r: FloatArray
 
 
 def _prepare(params: HalfCarParams, road: RoadInput, trace_every: int | None) -> _Prepared:
     P = _pack(params)
     P[:, _N_AIRBORNE] = np.ceil(AIRBORNE_MIN_TIME / road.dt - 1e-9)
     P[:, _N_LANDING_WINDOW] = np.ceil(LANDING_WINDOW / road.dt - 1e-9)
+    P[:, _N_KICK_WINDOW] = np.ceil(KICK_WINDOW / road.dt - 1e-9)
     bsz = P.shape[0]
     fail = np.zeros(bsz, dtype=np.int64)
     for o, wheel in ((_F, params.front), (_R, params.rear)):
@@ -507,6 +577,8 @@ def _prepare(params: HalfCarParams, road: RoadInput, trace_every: int | None) ->
         trace=np.zeros((bsz, _NTRACE, m)),
         every=every,
         sos=weighting_sos("Wk", 1.0 / road.dt),
+        relax_f=relaxation_factor(road.speed, road.dt, params.front.relaxation_length),
+        relax_r=relaxation_factor(road.speed, road.dt, params.rear.relaxation_length),
     )
 
 
@@ -530,8 +602,16 @@ def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> HalfCa
             peak_dive_travel=np.where(n_brake > 0, acc[:, _ACC_CAR + _CAR_DIVE_TRAVEL], np.nan),
             peak_dive_pitch=np.where(n_brake > 0, acc[:, _ACC_CAR + _CAR_DIVE_PITCH], np.nan),
         )
+    n_kicks = acc[:, _ACC_CAR + _CAR_N_KICKS].copy()
+    with np.errstate(invalid="ignore", divide="ignore"):
+        kick = KickMetrics(
+            kicks=n_kicks,
+            speed_mean=np.where(n_kicks > 0, acc[:, _ACC_CAR + _CAR_KICK_SUM] / n_kicks, np.nan),
+            speed_max=np.where(n_kicks > 0, acc[:, _ACC_CAR + _CAR_KICK_MAX], np.nan),
+        )
     for value in (pitch.pitch_rate_rms, pitch.peak_dive_travel, pitch.peak_dive_pitch,
-                  pitch.landings, pitch.landing_pitch_rate_max):
+                  pitch.landings, pitch.landing_pitch_rate_max, kick.kicks, kick.speed_mean,
+                  kick.speed_max):
         value[failed] = np.nan
     traces = None
     if trace_every:
@@ -555,6 +635,7 @@ def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> HalfCa
         rear=wheels[1],
         pitch=pitch,
         rider_vibration=vibration_metrics(acc, _ACC_V, n, dt, failed),
+        kick=kick,
         braking=GripPhase(
             time=n_brake * dt,
             first_short=first_short(acc[:, _ACC_F + c.W_FIRST_SHORT_BRAKE],
@@ -585,8 +666,8 @@ def simulate_halfcar(
     """
     prep = _prepare(params, road, trace_every)
     _run(prep.P, *prep.tables, road.front_z, road.front_zdot, road.rear_z, road.rear_zdot,
-         road.decel, road.lateral_accel, road.friction, road.dt, prep.sos, prep.acc, prep.hist,
-         prep.fail, prep.trace, prep.every)
+         road.decel, road.lateral_accel, road.friction, prep.relax_f, prep.relax_r, road.dt,
+         prep.sos, prep.acc, prep.hist, prep.fail, prep.trace, prep.every)
     return _finish(prep, road, trace_every)
 
 
@@ -617,7 +698,7 @@ def simulate_halfcar_reference(
 
         def fun(tt: float, yy: FloatArray, p: FloatArray = p, sf: FloatArray = sf,
                 df: FloatArray = df, sr: FloatArray = sr, dr: FloatArray = dr) -> FloatArray:
-            return _rhs_at_time(tt, yy, zf, zfd, zr, zrd, dec, road.dt, p, sf, df, sr, dr)
+            return _rhs_at_time(tt, yy, zf, zfd, zr, zrd, dec, lat, road.dt, p, sf, df, sr, dr)
 
         sol = solve_ivp(fun, (0.0, t[-1]), _initial_state(p, zf[0], zr[0]), method=method,
                         t_eval=t, rtol=rtol, atol=atol,
@@ -626,6 +707,6 @@ def simulate_halfcar_reference(
             prep.fail[b] = c.FAIL_NON_FINITE
             continue
         prep.fail[b] = _replay(np.ascontiguousarray(sol.y.T), zf, zfd, zr, zrd, dec, lat,
-                               road.friction, p, sf, df, sr, dr, prep.sos, prep.acc[b],
-                               prep.hist[b], prep.trace[b], prep.every)
+                               road.friction, prep.relax_f, prep.relax_r, p, sf, df, sr, dr,
+                               prep.sos, prep.acc[b], prep.hist[b], prep.trace[b], prep.every)
     return _finish(prep, road, trace_every)

@@ -18,6 +18,7 @@ __all__ = [
     "VibrationMetrics",
     "PitchMetrics",
     "GripPhase",
+    "KickMetrics",
     "ShortWheel",
     "FailureReason",
 ]
@@ -65,11 +66,16 @@ class WheelMetrics:
     bottom_outs_per_min: bottom-outs past BOTTOM_OUT_MIN_DEPTH per minute [1/min];
     bottom_out_depth_max / bottom_out_depth_mean: deepest and mean peak penetration past full
     travel over the bottom-outs [m] (0 without any); rim_strikes_per_min [1/min];
+    topouts_per_min: top-out strikes per minute, the end reaching full extension while
+    extending faster than TOPOUT_MIN_SPEED [1/min];
     travel_median, travel_p95, travel_max: vertical wheel travel [m] (0 = fully extended);
-    pack_down: mean travel over the run minus the static travel [m] (ride-height loss);
-    grip_short_share_braking / _cornering: share of the phase's time where mu*load is below the
-    force the phase demands of this wheel [-] (NaN without such a phase);
-    grip_margin_mean_braking / _cornering: mean of mu*load minus demand over the phase [N].
+    pack_down: mean travel outside braking and cornering minus the static travel [m]
+    (ride-height lost because the end does not recover between bumps; 0 without such time);
+    grip_capacity_mean: mean grip capacity mu(F_z) F_z after the relaxation-length lag [N];
+    grip_unmet_braking / _cornering: what the phase asked of this tyre and its capacity could
+    not give, over what it asked, integral of max(0, demand - capacity) dt / integral of
+    demand dt [-] (NaN without such a phase);
+    grip_margin_mean_braking / _cornering: mean of capacity minus demand over the phase [N].
     """
 
     load_mean: FloatArray
@@ -79,13 +85,15 @@ class WheelMetrics:
     bottom_out_depth_max: FloatArray
     bottom_out_depth_mean: FloatArray
     rim_strikes_per_min: FloatArray
+    topouts_per_min: FloatArray
     travel_median: FloatArray
     travel_p95: FloatArray
     travel_max: FloatArray
     pack_down: FloatArray
-    grip_short_share_braking: FloatArray
+    grip_capacity_mean: FloatArray
+    grip_unmet_braking: FloatArray
     grip_margin_mean_braking: FloatArray
-    grip_short_share_cornering: FloatArray
+    grip_unmet_cornering: FloatArray
     grip_margin_mean_cornering: FloatArray
 
 
@@ -118,6 +126,20 @@ class PitchMetrics:
     peak_dive_pitch: FloatArray
     landings: FloatArray
     landing_pitch_rate_max: FloatArray
+
+
+@dataclass(frozen=True)
+class KickMetrics:
+    """What a deep compression returns to the rider as it extends, each (B,).
+
+    kicks: deep compressions (an end past KICK_DEPTH of its travel) that turned to extend [-];
+    speed_mean / speed_max: mean and largest over them of the rider's peak upward speed
+    relative to the ground within KICK_WINDOW after the turn [m/s] (NaN without kicks).
+    """
+
+    kicks: FloatArray
+    speed_mean: FloatArray
+    speed_max: FloatArray
 
 
 @dataclass(frozen=True)
@@ -179,18 +201,30 @@ def wheel_metrics(
             bottom_out_depth_max=acc[:, off + c.W_BOTTOM_MAX].copy(),
             bottom_out_depth_mean=np.where(nb > 0, acc[:, off + c.W_BOTTOM_SUM] / nb, 0.0),
             rim_strikes_per_min=acc[:, off + c.W_N_RIM] / minutes,
+            topouts_per_min=acc[:, off + c.W_N_TOPOUT] / minutes,
             travel_median=_quantile_from_hist(hist, 0.5, low, hist_width),
             travel_p95=_quantile_from_hist(hist, 0.95, low, hist_width),
             travel_max=acc[:, off + c.W_S_MAX].copy(),
-            pack_down=acc[:, off + c.W_SUM_S] / n - static_travel,
-            grip_short_share_braking=np.where(
-                n_brake > 0, acc[:, off + c.W_N_SHORT_BRAKE] / n_brake, np.nan
+            pack_down=np.where(
+                acc[:, off + c.W_N_FREE] > 0,
+                acc[:, off + c.W_SUM_S_FREE] / acc[:, off + c.W_N_FREE] - static_travel,
+                0.0,
+            ),
+            grip_capacity_mean=acc[:, off + c.W_SUM_CAPACITY] / n,
+            grip_unmet_braking=np.where(
+                n_brake > 0,
+                acc[:, off + c.W_UNMET_BRAKE]
+                / np.maximum(acc[:, off + c.W_DEMAND_BRAKE], np.finfo(float).tiny),
+                np.nan,
             ),
             grip_margin_mean_braking=np.where(
                 n_brake > 0, acc[:, off + c.W_SUM_MARGIN_BRAKE] / n_brake, np.nan
             ),
-            grip_short_share_cornering=np.where(
-                n_corner > 0, acc[:, off + c.W_N_SHORT_CORNER] / n_corner, np.nan
+            grip_unmet_cornering=np.where(
+                n_corner > 0,
+                acc[:, off + c.W_UNMET_CORNER]
+                / np.maximum(acc[:, off + c.W_DEMAND_CORNER], np.finfo(float).tiny),
+                np.nan,
             ),
             grip_margin_mean_cornering=np.where(
                 n_corner > 0, acc[:, off + c.W_SUM_MARGIN_CORNER] / n_corner, np.nan

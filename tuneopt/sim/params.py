@@ -35,6 +35,10 @@ class WheelEnd:
     tyre_damping: (B,) radial tyre damping [N s/m].
     rim_strike_deflection: (B,) tyre deflection at which the rim hits [m].
     wheel_radius: rolling radius [m] (the terrain's envelope uses it).
+    relaxation_length: rolled distance over which the tyre's grip follows a change of load
+        [m] (first-order lag; default an estimate [?], see tuneopt.sim.grip).
+    load_sensitivity: p_D2, the friction coefficient's relative fall per unit of relative load
+        above the static load [-] (default an estimate [?]; car tyres -0.05 to -0.15 [M]).
     """
 
     travel_grid: FloatArray
@@ -47,6 +51,8 @@ class WheelEnd:
     tyre_damping: FloatArray
     rim_strike_deflection: FloatArray
     wheel_radius: float
+    relaxation_length: float = 0.15
+    load_sensitivity: float = -0.1
 
     @property
     def batch(self) -> int:
@@ -82,7 +88,10 @@ class HalfCarParams:
     Geometry in the side view at static ride height, x from the rear axle forward [m].
     frame_mass [kg] and frame_pitch_inertia [kg m^2] are the sprung bike without the rider;
     frame_com_x / frame_com_height [m]. wheelbase [m]. brake_front_share: share of the braking
-    force taken by the front tyre (0..1).
+    force taken by the front tyre (0..1). head_angle: the fork axis from horizontal [deg]; the
+    front brake force F_b pushes along it with F_b cos(HA), which at the wheel's vertical travel
+    is a compressing force F_b cot(HA) between the front unsprung mass and the frame (the
+    default 90 deg, a vertical axis, leaves it out; ``build`` takes the bike's head angle).
     """
 
     front: WheelEnd
@@ -94,6 +103,7 @@ class HalfCarParams:
     frame_com_height: float
     wheelbase: float
     brake_front_share: float = 0.6
+    head_angle: float = 90.0
 
 
 @dataclass(frozen=True)

@@ -131,9 +131,9 @@ def _record(k, y, dy, out, p, acc, hist, sos, zi, trace, every):
     ):
         return c.FAIL_RUNAWAY
     c.accumulate_wheel(
-        acc, _ACC_W, hist, k, out[_O_LOAD], s, out[_O_DEFL], p[o + w.E_TRAVEL],
-        p[o + w.E_D_RIM], p[o + w.E_F_STATIC], c.HIST_LOW, p[o + w.E_HIST_W],
-        False, False, 0.0, 0.0,
+        acc, _ACC_W, hist, k, out[_O_LOAD], s, y[3] - y[2], out[_O_DEFL],
+        p[o + w.E_TRAVEL], p[o + w.E_D_RIM], p[o + w.E_F_STATIC], c.HIST_LOW, p[o + w.E_HIST_W],
+        False, False, 0.0, out[_O_LOAD], 0.0, 0.0, 1.0,
     )
     aw = c.accumulate_vibration(acc, _ACC_V, sos, zi, out[_O_ACCEL])
     if trace.shape[1] > 0 and k % every == 0:

@@ -75,6 +75,7 @@ _MEAN_FIELDS = (
     "unloaded_share",
     "bottom_outs_per_min",
     "rim_strikes_per_min",
+    "topouts_per_min",
     "travel_p95",
     "pack_down",
 )
@@ -86,12 +87,16 @@ class CourseMetrics:
 
     Wheel metrics (front_*/rear_*) are mix-weighted means over the segments: load_variation
     (std/mean of the contact-patch load) [-], unloaded_share [-], bottom_outs_per_min [1/min],
-    rim_strikes_per_min [1/min], travel_p95 [m], pack_down [m]; travel_max [m] is the maximum
-    over the segments. *_grip_short_braking / _cornering: share of the braking or cornering time
-    in which μ × tyre load falls short of the force the phase asks of that tyre [-], averaged
-    with the mix weights over the segments that have such a phase (0 when none has).
-    pitch_rate_rms [rad/s] and rider_vibration_rms (ISO 2631-1 Wk) [m/s²]
-    are weighted means; peak_dive_travel [m] is the maximum over braking segments (NaN without
+    rim_strikes_per_min [1/min], topouts_per_min (top-out strikes) [1/min], travel_p95 [m],
+    pack_down (ride height lost outside braking and cornering) [m]; travel_max [m] and
+    bottom_out_depth_max (deepest bottom-out past full travel, 0 without any) [m] are the
+    maxima over the segments. *_grip_unmet_braking / _cornering: the share of the force the
+    braking or cornering phases asked of that tyre that its grip capacity (load sensitivity and
+    relaxation length included) could not give [-], averaged with the mix weights over the
+    segments that have such a phase (0 when none has). kick_speed: the rider's mean peak upward
+    speed after deep compressions [m/s], mix-weighted over the segments that have any (0 when
+    none has). pitch_rate_rms [rad/s] and rider_vibration_rms (ISO 2631-1 Wk) [m/s²] are
+    weighted means; peak_dive_travel [m] is the maximum over braking segments (NaN without
     any). failed (B,) bool with failure reasons; segments: the per-segment results.
     """
 
@@ -103,16 +108,21 @@ class CourseMetrics:
     rear_bottom_outs_per_min: FloatArray
     front_rim_strikes_per_min: FloatArray
     rear_rim_strikes_per_min: FloatArray
+    front_topouts_per_min: FloatArray
+    rear_topouts_per_min: FloatArray
+    front_bottom_out_depth_max: FloatArray
+    rear_bottom_out_depth_max: FloatArray
     front_travel_p95: FloatArray
     rear_travel_p95: FloatArray
     front_pack_down: FloatArray
     rear_pack_down: FloatArray
     front_travel_max: FloatArray
     rear_travel_max: FloatArray
-    front_grip_short_braking: FloatArray
-    rear_grip_short_braking: FloatArray
-    front_grip_short_cornering: FloatArray
-    rear_grip_short_cornering: FloatArray
+    front_grip_unmet_braking: FloatArray
+    rear_grip_unmet_braking: FloatArray
+    front_grip_unmet_cornering: FloatArray
+    rear_grip_unmet_cornering: FloatArray
+    kick_speed: FloatArray
     pitch_rate_rms: FloatArray
     peak_dive_travel: FloatArray
     rider_vibration_rms: FloatArray
@@ -152,14 +162,16 @@ def ride_course(params: HalfCarParams, course: PreparedCourse) -> CourseMetrics:
     for end in ("front", "rear"):
         for name in _MEAN_FIELDS:
             agg[f"{end}_{name}"] = _weighted([getattr(getattr(r, end), name) for r in results], w)
-        agg[f"{end}_travel_max"] = np.max(
-            np.stack([getattr(r, end).travel_max for r in results]), axis=0
-        )
+        for name in ("travel_max", "bottom_out_depth_max"):
+            agg[f"{end}_{name}"] = np.max(
+                np.stack([getattr(getattr(r, end), name) for r in results]), axis=0
+            )
     for end in ("front", "rear"):
         for phase in ("braking", "cornering"):
-            agg[f"{end}_grip_short_{phase}"] = _weighted_phase(
-                [getattr(getattr(r, end), f"grip_short_share_{phase}") for r in results], w
+            agg[f"{end}_grip_unmet_{phase}"] = _weighted_phase(
+                [getattr(getattr(r, end), f"grip_unmet_{phase}") for r in results], w
             )
+    agg["kick_speed"] = _weighted_phase([r.kick.speed_mean for r in results], w)
     agg["pitch_rate_rms"] = _weighted([r.pitch.pitch_rate_rms for r in results], w)
     agg["rider_vibration_rms"] = _weighted([r.rider_vibration.rms for r in results], w)
     dives = np.stack([r.pitch.peak_dive_travel for r in results])
@@ -167,6 +179,8 @@ def ride_course(params: HalfCarParams, course: PreparedCourse) -> CourseMetrics:
     agg["peak_dive_travel"] = np.max(np.where(np.isnan(dives), -np.inf, dives), axis=0)
     agg["peak_dive_travel"][~np.isfinite(agg["peak_dive_travel"])] = np.nan
     failed = np.any(np.stack([r.failed for r in results]), axis=0)
+    for value in agg.values():
+        value[failed] = np.nan
     failure = np.array([""] * params.front.batch, dtype=object)
     for r in reversed(results):
         failure = np.where(r.failed, r.failure, failure)
