@@ -15,6 +15,7 @@ from numpy.testing import assert_allclose
 
 from tests.report.page import Page, read_page, table_by_first_cell
 from tuneopt.optimise import build_space
+from tuneopt.optimise.evaluate import Evaluator
 from tuneopt.optimise.local import load_run
 from tuneopt.optimise.result import CAUTIONS
 from tuneopt.report.rides import ride_setups
@@ -64,7 +65,8 @@ def test_recommendation_is_result_json_winner(page: Page, dry_result: dict[str, 
     assert [r.attrs["data-key"] for r in rows] == list(best)
     for r in rows:
         key = r.attrs["data-key"]
-        assert r.cells == [dry_result["labels"][key], now[key], best[key]]
+        note = dry_result["ranked"][0]["flags"].get(key, "")
+        assert r.cells == [dry_result["labels"][key], now[key], best[key], note]
         assert ("changed" in r.attrs["class"]) == (now[key] != best[key])
 
 
@@ -160,12 +162,13 @@ def test_exports_equal_result_json(dry_run: Path, dry_result: dict[str, Any]) ->
 
 
 def test_rides_reproduce_the_scored_metrics(dry_run: Path, dry_result: dict[str, Any]) -> None:
-    """With one realisation the report's ride is the scored ride: at the full sample rate its
-    traces give the study's unloaded shares and deepest dive again."""
+    """With one realisation the report's ride is the search's scored ride: at the full sample
+    rate its traces give the search's unloaded shares and deepest dive again (the ranked
+    metrics are the fresh validation realisations')."""
     run = load_run(dry_run)
     assert run.realisations == 1
-    best = dry_result["ranked"][0]
-    setup = build_space(run.scenario).setup(best["indices"])
+    setup = build_space(run.scenario).setup(dry_result["ranked"][0]["indices"])
+    best = {"metrics": Evaluator(run.scenario, run.plan.seed, 1).evaluate([setup])[0].metrics}
     (r,) = ride_setups(run.scenario, [setup], ["#1"], run.plan.seed, trace_rate=1000.0)
     course = prepare_course(
         build_course(run.scenario.course, run.plan.seed),  # type: ignore[arg-type]

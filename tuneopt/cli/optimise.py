@@ -32,7 +32,18 @@ def register(sub: Any) -> None:
     p.add_argument("--seed", type=int, help="study seed: terrain and sampler (default: course's)")
     p.add_argument("--baseline", type=Path, help="file with a [setup] table to start from")
     p.add_argument("--batch", type=int, default=16, help="trials simulated together (default 16)")
-    p.add_argument("--realisations", type=int, default=2, help="terrain realisations (default 2)")
+    p.add_argument(
+        "--realisations",
+        type=int,
+        default=None,
+        help="terrain realisations each setup is raced over (default 8)",
+    )
+    p.add_argument(
+        "--validation",
+        type=int,
+        default=None,
+        help="fresh realisations the finalists are re-scored on (default 24)",
+    )
     p.add_argument("--sampler", default="tpe", help="tpe (default), cmaes, nsga2 or random")
     p.add_argument("--top", type=int, default=5, help="ranked setups to report (default 5)")
     p.set_defaults(func=run)
@@ -89,8 +100,10 @@ def _arguments(args: argparse.Namespace) -> None:
         problems.append(("--workers", "must be at least 1"))
     if args.batch < 1:
         problems.append(("--batch", "must be at least 1"))
-    if args.realisations < 1:
+    if args.realisations is not None and args.realisations < 1:
         problems.append(("--realisations", "must be at least 1"))
+    if args.validation is not None and args.validation < 2:
+        problems.append(("--validation", "must be at least 2 (an interval needs two)"))
     if args.top < 1:
         problems.append(("--top", "must be at least 1"))
     if args.seed is not None and args.seed < 0:
@@ -122,7 +135,10 @@ def run(args: argparse.Namespace) -> int:
     from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 
     from tuneopt.optimise import StudyPlan, load_run, run_local, start_run
+    from tuneopt.optimise.evaluate import DEFAULT_REALISATIONS
     from tuneopt.optimise.runner import SAMPLERS
+    from tuneopt.optimise.validation import DEFAULT_VALIDATION
+    from tuneopt.report.fresh_terrain import fresh_terrain_lines
     from tuneopt.report.ranked_table import print_ranking
     from tuneopt.report.run_report import write_run_report
 
@@ -149,7 +165,15 @@ def run(args: argparse.Namespace) -> int:
             sampler=args.sampler,
         )
         try:
-            local = start_run(scenario, args.out, plan, args.realisations, args.workers, baseline)
+            local = start_run(
+                scenario,
+                args.out,
+                plan,
+                args.realisations or DEFAULT_REALISATIONS,
+                args.workers,
+                baseline,
+                validation=args.validation or DEFAULT_VALIDATION,
+            )
         except OSError as exc:  # a parent that is a file, no permission, disk full
             raise InputError.single("--out", f"cannot write {args.out}: {exc.strerror}") from None
     with Progress(
@@ -183,6 +207,8 @@ def run(args: argparse.Namespace) -> int:
             return 130
     data = json.loads((local.out / "result.json").read_text())
     print_ranking(data)
+    for line in fresh_terrain_lines(data):
+        print(line)
     print(f"result: {local.out / 'result.json'} and {local.out / 'ranked.csv'}")
     print(f"report: {write_run_report(local.out)}")
     return 0

@@ -1,7 +1,16 @@
 """Scoring setups of one scenario: static feasibility first, then the half-car over the course.
 
-Every setup of a study rides the same terrain realisations (common random numbers): the courses
-are built once, from the study's seed, when the evaluator is made.
+Every setup of a study rides the same terrain realisations in the same order (common random
+numbers): the courses are built once, from the study's seeds, when the evaluator is made.
+
+Racing: a batch rides its realisations one after the other. Once every setup has ridden
+``RacePolicy.min_realisations`` of them, a setup whose paired difference against the leader
+(the best of the batch, or the study's best setup passed as ``reference``) is worse beyond
+doubt (a one-sided paired t-test at ``RacePolicy.confidence``) stops riding: its remaining
+realisations go to the survivors (Maron & Moore 1993; Birattari et al. 2002 [M]). Its score is
+still an estimate of its mean over every realisation: the realisations' difficulty is taken from
+the setups that rode them all (an additive model, score = setup + realisation + noise), so a
+setup dropped after three easy realisations is not scored as if the course were easy.
 """
 
 from __future__ import annotations
@@ -10,52 +19,137 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy import stats
 
 from tuneopt.model import InputError, Scenario, Setup
 from tuneopt.optimise.score import score_terms, total_score
 from tuneopt.physics import StaticCheck, static_check
 from tuneopt.sim.build import halfcar_params
-from tuneopt.sim.ride import PreparedCourse, prepare_scenario_course, ride_course
+from tuneopt.sim.ride import CourseMetrics, PreparedCourse, prepare_scenario_course, ride_course
 
-__all__ = ["Evaluator", "Outcome"]
+__all__ = [
+    "DEFAULT_REALISATIONS",
+    "Evaluator",
+    "Outcome",
+    "RacePolicy",
+    "paired_interval",
+]
+
+# Terrain realisations a study's setups are scored on by default: enough that the differences
+# being ranked stand out of the course-to-course noise once racing has dropped the clear losers
+# (chosen by the trust benchmark, benchmarks/bench_trust.py).
+DEFAULT_REALISATIONS = 8
+
+
+@dataclass(frozen=True)
+class RacePolicy:
+    """When a setup may stop riding: after ``min_realisations`` paired realisations, once it
+    is worse than the leader at one-sided ``confidence``."""
+
+    min_realisations: int = 3
+    confidence: float = 0.95
+
+    def __post_init__(self) -> None:
+        if self.min_realisations < 2:
+            raise ValueError("racing needs at least 2 realisations before a drop")
+        if not 0.5 < self.confidence < 1:
+            raise ValueError("confidence must lie between 0.5 and 1")
 
 
 @dataclass(frozen=True)
 class Outcome:
     """One setup's evaluation. ``score`` is None when the setup failed (``failure`` says why:
-    statically impossible, outside a sag window, or a simulation that went non-finite)."""
+    statically impossible, outside a sag window, or a simulation that went non-finite).
+
+    ``scores`` holds the score on each realisation ridden, in the evaluator's order (fewer than
+    the evaluator's realisations when racing stopped it early: then ``score`` is the estimate of
+    its mean over all of them, and ``terms`` and ``metrics`` are means over those ridden)."""
 
     score: float | None
     terms: dict[str, float] = field(default_factory=dict)
     metrics: dict[str, float] = field(default_factory=dict)
     sag: dict[str, float] = field(default_factory=dict)
     failure: str = ""
+    scores: tuple[float, ...] = ()
+    bottomed: int = 0  # realisations ridden in which either end bottomed out
 
     @property
     def ok(self) -> bool:
         return self.score is not None
 
 
+def paired_interval(
+    diff: Sequence[float] | np.ndarray, confidence: float = 0.95
+) -> tuple[float, float, float]:
+    """Mean of paired differences with its two-sided t interval: (mean, low, high). One value
+    gives an unbounded interval."""
+    d = np.asarray(diff, dtype=float)
+    mean = float(np.mean(d))
+    if d.size < 2:
+        return mean, -np.inf, np.inf
+    half = float(stats.t.ppf(0.5 + confidence / 2, d.size - 1) * np.std(d, ddof=1))
+    half /= np.sqrt(d.size)
+    return mean, mean - half, mean + half
+
+
+def _worse_beyond_doubt(diff: np.ndarray, confidence: float) -> bool:
+    """One-sided paired t-test: is the mean difference (setup − leader) above 0?"""
+    if diff.size < 2:
+        return False
+    sd = float(np.std(diff, ddof=1))
+    mean = float(np.mean(diff))
+    if sd == 0.0:
+        return mean > 0.0
+    t = mean / (sd / np.sqrt(diff.size))
+    return bool(t > stats.t.ppf(confidence, diff.size - 1))
+
+
 class Evaluator:
-    """Evaluates batches of setups of ``scenario`` over ``realisations`` terrain realisations
-    built from seeds ``seed, seed + 1, ...`` (default seed: the course's own)."""
+    """Evaluates batches of setups of ``scenario`` over terrain realisations built from
+    ``seeds`` (default: ``seed, seed + 1, ...``, ``realisations`` of them; default seed: the
+    course's own)."""
 
     def __init__(
-        self, scenario: Scenario, seed: int | None = None, realisations: int = 2, dt: float = 1e-3
+        self,
+        scenario: Scenario,
+        seed: int | None = None,
+        realisations: int = DEFAULT_REALISATIONS,
+        dt: float = 1e-3,
+        *,
+        seeds: Sequence[int] | None = None,
     ):
         if scenario.course is None:
             raise InputError.single("course", "missing: the optimiser needs a terrain mix")
-        if realisations < 1:
-            raise ValueError("realisations must be at least 1")
+        if seeds is None:
+            if realisations < 1:
+                raise ValueError("realisations must be at least 1")
+            first = scenario.course.seed if seed is None else seed
+            seeds = range(first, first + realisations)
+        if len(seeds) < 1:
+            raise ValueError("give at least one realisation seed")
         self.scenario = scenario
-        self.seed = scenario.course.seed if seed is None else seed
+        self.seeds: tuple[int, ...] = tuple(int(s) for s in seeds)
+        self.seed = self.seeds[0]
+        self.dt = dt
         self.courses: tuple[PreparedCourse, ...] = tuple(
-            prepare_scenario_course(scenario, self.seed + k, dt) for k in range(realisations)
+            prepare_scenario_course(scenario, s, dt) for s in self.seeds
         )
+
+    def first(self, n: int) -> Evaluator:
+        """An evaluator over this one's first ``n`` realisations (the courses are shared)."""
+        other = object.__new__(Evaluator)
+        other.scenario, other.dt = self.scenario, self.dt
+        other.seeds, other.courses = self.seeds[:n], self.courses[:n]
+        other.seed = self.seed
+        return other
+
+    @property
+    def realisations(self) -> int:
+        return len(self.courses)
 
     @property
     def simulated_seconds(self) -> float:
-        """Riding time simulated per setup [s]."""
+        """Riding time simulated per setup that rides every realisation [s]."""
         return sum(c.duration for c in self.courses)
 
     def _static(self, setup: Setup) -> tuple[StaticCheck | None, dict[str, float], str]:
@@ -79,36 +173,143 @@ class Evaluator:
                 )
         return check, sag, ""
 
-    def evaluate(self, setups: Sequence[Setup]) -> list[Outcome]:
+    def evaluate(
+        self,
+        setups: Sequence[Setup],
+        *,
+        race: RacePolicy | None = None,
+        reference: Sequence[float] | None = None,
+    ) -> list[Outcome]:
+        """Score ``setups`` on every realisation, or race them (``race``) against each other
+        and against ``reference``, the per-realisation scores of the study's best setup so far
+        (over all of this evaluator's realisations)."""
+        if reference is not None and len(reference) != self.realisations:
+            reference = None  # a leader scored on other realisations cannot be paired
         statics = [self._static(s) for s in setups]
         feasible = [i for i, (_, _, why) in enumerate(statics) if not why]
         outcomes: list[Outcome] = [Outcome(None, sag=sag, failure=why) for _, sag, why in statics]
         if not feasible:
             return outcomes
-        checks = [statics[i][0] for i in feasible]  # feasible ones all have a check
-        params = halfcar_params(
-            self.scenario,
-            [setups[i] for i in feasible],
-            checks=[c for c in checks if c is not None],
-        )
-        runs = [ride_course(params, course) for course in self.courses]
-        names = [n for n in runs[0].row(0)]
-        metrics = {n: np.mean(np.stack([getattr(r, n) for r in runs]), axis=0) for n in names}
-        failed = np.any(np.stack([r.failed for r in runs]), axis=0)
-        terms = score_terms(metrics)
-        scores = total_score(terms, self.scenario.objective)
+        n, r_total = len(feasible), self.realisations
+        scores = np.full((n, r_total), np.nan)
+        terms_sum: list[dict[str, float]] = [{} for _ in range(n)]
+        metrics_sum: list[dict[str, list[float]]] = [{} for _ in range(n)]
+        failure = [""] * n
+        bottomed = np.zeros(n, dtype=int)
+        active = np.ones(n, dtype=bool)
+        for k, course in enumerate(self.courses):
+            rows = np.flatnonzero(active)
+            if rows.size == 0:
+                break
+            picked = [feasible[j] for j in rows]
+            params = halfcar_params(
+                self.scenario,
+                [setups[i] for i in picked],
+                checks=[c for c in (statics[i][0] for i in picked) if c is not None],
+            )
+            run = ride_course(params, course)
+            self._take(run, rows, k, scores, terms_sum, metrics_sum, failure, active)
+            hits = np.asarray(run.front_bottom_outs_per_min) + np.asarray(
+                run.rear_bottom_outs_per_min
+            )
+            bottomed[rows] += np.nan_to_num(hits) > 0
+            if race is not None and k + 1 >= race.min_realisations and k + 1 < r_total:
+                self._drop_losers(scores[:, : k + 1], active, reference, race)
+        estimates = self._estimates(scores, reference)
         for j, i in enumerate(feasible):
-            row = {n: float(metrics[n][j]) for n in names}
-            if failed[j] or not np.isfinite(scores[j]):
-                reason = next((str(r.failure[j]) for r in runs if r.failed[j]), "non-finite score")
+            ridden = scores[j][np.isfinite(scores[j])]
+            sag = statics[i][1]
+            if failure[j]:
                 outcomes[i] = Outcome(
-                    None, metrics=row, sag=statics[i][1], failure=f"simulation: {reason}"
+                    None, metrics=_finite_means(metrics_sum[j]), sag=sag,
+                    failure=f"simulation: {failure[j]}",
                 )
                 continue
             outcomes[i] = Outcome(
-                float(scores[j]),
-                terms={k: float(v[j]) for k, v in terms.items()},
-                metrics=row,
-                sag=statics[i][1],
+                float(estimates[j]),
+                terms=_mean(terms_sum[j], len(ridden)),
+                metrics=_finite_means(metrics_sum[j]),
+                sag=sag,
+                scores=tuple(float(v) for v in ridden),
+                bottomed=int(bottomed[j]),
             )
         return outcomes
+
+    def _take(
+        self,
+        run: CourseMetrics,
+        rows: np.ndarray,
+        k: int,
+        scores: np.ndarray,
+        terms_sum: list[dict[str, float]],
+        metrics_sum: list[dict[str, list[float]]],
+        failure: list[str],
+        active: np.ndarray,
+    ) -> None:
+        """Book one realisation's results of the setups in ``rows``."""
+        names = list(run.row(0))
+        metrics = {m: np.asarray(getattr(run, m), dtype=float) for m in names}
+        terms = score_terms(metrics)
+        total = total_score(terms, self.scenario.objective)
+        for pos, j in enumerate(rows):
+            if run.failed[pos] or not np.isfinite(total[pos]):
+                failure[j] = str(run.failure[pos]) if run.failed[pos] else "non-finite score"
+                active[j] = False
+                continue
+            scores[j, k] = total[pos]
+            for name, v in terms.items():
+                terms_sum[j][name] = terms_sum[j].get(name, 0.0) + float(v[pos])
+            for name in names:
+                metrics_sum[j].setdefault(name, []).append(float(metrics[name][pos]))
+
+    @staticmethod
+    def _drop_losers(
+        scores: np.ndarray,
+        active: np.ndarray,
+        reference: Sequence[float] | None,
+        race: RacePolicy,
+    ) -> None:
+        k = scores.shape[1]
+        alive = np.flatnonzero(active)
+        candidates = [scores[j] for j in alive]
+        if reference is not None:
+            candidates.append(np.asarray(reference[:k], dtype=float))
+        if not candidates:
+            return
+        leader = min(candidates, key=lambda s: float(np.mean(s)))
+        for j in alive:
+            if _worse_beyond_doubt(scores[j] - leader, race.confidence):
+                active[j] = False
+
+    @staticmethod
+    def _estimates(scores: np.ndarray, reference: Sequence[float] | None) -> np.ndarray:
+        """Each setup's mean over every realisation, estimated for those that stopped early
+        from the realisations' difficulty seen by the setups that rode them all."""
+        full_rows = [row for row in scores if np.all(np.isfinite(row))]
+        if reference is not None:
+            full_rows.append(np.asarray(reference, dtype=float))
+        out = np.full(scores.shape[0], np.nan)
+        if not full_rows:
+            return out
+        full = np.stack(full_rows)
+        difficulty = np.mean(full - full.mean(axis=1, keepdims=True), axis=0)  # (R,), sums to 0
+        for j, row in enumerate(scores):
+            ridden = np.isfinite(row)
+            if ridden.any():
+                out[j] = float(np.mean(row[ridden] - difficulty[ridden]))
+        return out
+
+
+def _mean(sums: dict[str, float], count: int) -> dict[str, float]:
+    return {k: v / count for k, v in sums.items()} if count else {}
+
+
+def _finite_means(values: dict[str, list[float]]) -> dict[str, float]:
+    """Each metric's mean over the realisations where it exists (a realisation without a
+    braking zone has no dive: NaN), NaN where none has it."""
+    out = {}
+    for k, v in values.items():
+        a = np.asarray(v, dtype=float)
+        a = a[np.isfinite(a)]
+        out[k] = float(np.mean(a)) if a.size else float("nan")
+    return out

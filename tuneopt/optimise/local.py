@@ -22,7 +22,7 @@ from optuna.storages import JournalStorage
 from optuna.storages.journal import JournalFileBackend
 
 from tuneopt.model import InputError, Scenario, Setup, scenario_from_data
-from tuneopt.optimise.evaluate import Evaluator
+from tuneopt.optimise.evaluate import DEFAULT_REALISATIONS, Evaluator
 from tuneopt.optimise.ranking import Ranking, rank_study
 from tuneopt.optimise.result import write_result
 from tuneopt.optimise.runner import (
@@ -34,6 +34,7 @@ from tuneopt.optimise.runner import (
     run_shard,
 )
 from tuneopt.optimise.space import build_space
+from tuneopt.optimise.validation import DEFAULT_VALIDATION
 
 __all__ = ["LocalRun", "RunError", "load_run", "run_local", "start_run"]
 
@@ -52,6 +53,7 @@ class LocalRun:
     plan: StudyPlan
     realisations: int
     workers: int
+    validation: int = DEFAULT_VALIDATION
 
     def storage(self) -> JournalStorage:
         return JournalStorage(JournalFileBackend(str(self.out / JOURNAL)))
@@ -61,9 +63,10 @@ def start_run(
     scenario: Scenario,
     out: Path,
     plan: StudyPlan,
-    realisations: int = 2,
+    realisations: int = DEFAULT_REALISATIONS,
     workers: int = 1,
     baseline: Setup | None = None,
+    validation: int = DEFAULT_VALIDATION,
 ) -> LocalRun:
     """Prepare a new run in ``out`` (refuses a folder that already holds a study)."""
     if (out / JOURNAL).exists():
@@ -79,9 +82,10 @@ def start_run(
         "plan": asdict(plan),
         "realisations": realisations,
         "workers": workers,
+        "validation": validation,
     }
     (out / SETTINGS).write_text(json.dumps(settings, indent=2))
-    return LocalRun(out, scenario, plan, realisations, workers)
+    return LocalRun(out, scenario, plan, realisations, workers, validation)
 
 
 def load_run(out: Path, trials: int | None = None, deadline: float | None = None) -> LocalRun:
@@ -97,7 +101,12 @@ def load_run(out: Path, trials: int | None = None, deadline: float | None = None
     if deadline is not None:
         plan_data["deadline"] = deadline
     return LocalRun(
-        out, scenario, StudyPlan(**plan_data), settings["realisations"], settings["workers"]
+        out,
+        scenario,
+        StudyPlan(**plan_data),
+        settings["realisations"],
+        settings["workers"],
+        settings.get("validation", DEFAULT_VALIDATION),
     )
 
 
@@ -155,13 +164,14 @@ def _run_locked(
         run_shard(study, run.plan, space, evaluator, 0, on_batch=on_progress)
     else:
         _run_pool(run, study, on_progress)
-    ranking = rank_study(study, space, evaluator, top=top)
+    ranking = rank_study(study, space, evaluator, top=top, validation=run.validation)
     info = {
         "scenario": run.scenario.name,
         "study": run.plan.name,
         "seed": run.plan.seed,
         "sampler": run.plan.sampler,
         "realisations": run.realisations,
+        "validation_realisations": ranking.validation_realisations,
         "simulated_seconds_per_setup": evaluator.simulated_seconds,
         "parameters": [p.name for p in space.parameters],
         "labels": {p.name: p.label for p in space.parameters},

@@ -5,13 +5,21 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 import optuna
 from optuna.trial import FrozenTrial, TrialState
 
-from tuneopt.optimise.evaluate import Evaluator, Outcome
+from tuneopt.optimise.edges import edge_flags, static_warnings
+from tuneopt.optimise.evaluate import Evaluator
 from tuneopt.optimise.space import SearchSpace
+from tuneopt.optimise.validation import (
+    DEFAULT_VALIDATION,
+    FINALISTS,
+    compare_scores,
+    validation_evaluator,
+)
 
 __all__ = ["RankedSetup", "Ranking", "pareto_front", "rank_study", "tradeoff_sentence"]
 
@@ -32,6 +40,16 @@ PARETO_TERMS = ("front_load_variation", "rear_load_variation", "bottom_outs", "p
 
 @dataclass(frozen=True)
 class RankedSetup:
+    """One ranked setup. With validation, ``score``, ``terms`` and ``metrics`` are its means on
+    the fresh validation realisations and ``search_score`` is what the search told; otherwise
+    both are the search's. ``validation``: its comparison with the current setup
+    (``Comparison.as_dict``) plus its bottom-out risk (share of validation realisations with a
+    bottom-out) and, from the 2nd on, ``vs_winner``. ``flags``: settings at the end of their
+    range or a sag on its window's edge, by setting. ``warnings``: the static check's about this
+    setup. ``steps``: the score change one robustness step down and up of every setting on the
+    search's first realisations, or why there is none ("end of range", "outside the sag
+    window", "failed")."""
+
     rank: int
     trial: int
     indices: dict[str, int]
@@ -46,6 +64,11 @@ class RankedSetup:
     sensitivity: dict[str, float] = field(default_factory=dict)
     tradeoff: str = ""
     baseline: bool = False
+    search_score: float | None = None
+    validation: dict[str, Any] = field(default_factory=dict)
+    flags: dict[str, str] = field(default_factory=dict)
+    warnings: list[str] = field(default_factory=list)
+    steps: dict[str, dict[str, float | str]] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -56,6 +79,8 @@ class Ranking:
     finished: int
     infeasible: int
     failed: int
+    validation_realisations: int = 0
+    search_realisations: int = 0
 
 
 def pareto_front(points: np.ndarray) -> np.ndarray:
@@ -120,37 +145,66 @@ def _entry(rank: int, t: FrozenTrial, space: SearchSpace, base: FrozenTrial | No
         sag=dict(t.user_attrs.get("sag", {})),
         change_vs_baseline=change,
         baseline=bool(t.user_attrs.get("baseline", False)),
+        search_score=float(t.value or 0.0),
     )
 
 
-def _neighbours(space: SearchSpace, idx: dict[str, int]) -> list[tuple[str, dict[str, int]]]:
-    out = []
+def _neighbours(
+    space: SearchSpace, idx: dict[str, int]
+) -> list[tuple[str, str, dict[str, int] | None]]:
+    """(setting, "down"/"up", point or None where the step would leave the range)."""
+    out: list[tuple[str, str, dict[str, int] | None]] = []
     for p in space.parameters:
-        for sign in (-1, 1):
+        for sign, side in ((-1, "down"), (1, "up")):
             j = idx[p.name] + sign * p.robust_step
             j = min(max(j, 0), len(p.values) - 1)
-            if j != idx[p.name]:
-                out.append((p.name, {**idx, p.name: j}))
+            out.append((p.name, side, {**idx, p.name: j} if j != idx[p.name] else None))
     return out
+
+
+# Realisations of the search the robustness steps are scored on (paired with the setup itself).
+ROBUSTNESS_REALISATIONS = 4
 
 
 def _with_robustness(
     entries: Sequence[RankedSetup], space: SearchSpace, evaluator: Evaluator
 ) -> list[RankedSetup]:
-    """Score change one step either side of every setting, all in one simulator batch."""
-    jobs = [(e.rank, name, pt) for e in entries for name, pt in _neighbours(space, e.indices)]
-    outcomes: list[Outcome] = evaluator.evaluate([space.setup(pt) for _, _, pt in jobs])
+    """Score change one step either side of every setting, paired with the setup itself on the
+    search's first realisations, all in one simulator batch."""
+    ev = evaluator.first(ROBUSTNESS_REALISATIONS)
+    jobs: list[tuple[int, str, str, dict[str, int] | None]] = []
+    for e in entries:
+        jobs.append((e.rank, "", "", e.indices))
+        jobs.extend((e.rank, name, side, pt) for name, side, pt in _neighbours(space, e.indices))
+    points = [pt for *_, pt in jobs if pt is not None]
+    scored = iter(ev.evaluate([space.setup(pt) for pt in points]))
+    outcomes = [next(scored) if pt is not None else None for *_, pt in jobs]
     out = []
     for e in entries:
+        mine = [(j, o) for j, o in zip(jobs, outcomes, strict=True) if j[0] == e.rank]
+        own = mine[0][1]
+        if own is None or not own.ok:
+            out.append(e)
+            continue
         worst = 0.0
         sens: dict[str, float] = {}
-        for (rank, name, _), o in zip(jobs, outcomes, strict=True):
-            if rank != e.rank:
+        steps: dict[str, dict[str, float | str]] = {}
+        for (_, name, side, _), o in mine[1:]:
+            entry = steps.setdefault(name, {})
+            if o is None:
+                entry[side] = "end of range"
                 continue
-            delta = (o.score if o.ok else float("inf")) - e.score  # type: ignore[operator]
+            if not o.ok:
+                entry[side] = (
+                    "outside the sag window" if o.failure.startswith("infeasible") else "failed"
+                )
+                delta = float("inf")
+            else:
+                delta = float(o.score) - float(own.score)  # type: ignore[arg-type]
+                entry[side] = delta
             worst = max(worst, delta)
             sens[name] = max(sens.get(name, 0.0), abs(delta))
-        out.append(_replace(e, robustness=worst, sensitivity=sens))
+        out.append(_replace(e, robustness=worst, sensitivity=sens, steps=steps))
     return out
 
 
@@ -160,21 +214,7 @@ def _replace(e: RankedSetup, **changes: object) -> RankedSetup:
     return replace(e, **changes)  # type: ignore[arg-type]
 
 
-def rank_study(
-    study: optuna.Study,
-    space: SearchSpace,
-    evaluator: Evaluator | None = None,
-    top: int = 5,
-) -> Ranking:
-    """Rank the study's feasible trials; with an ``evaluator``, also measure robustness."""
-    trials = study.get_trials(deepcopy=False)
-    complete = [t for t in trials if t.state == TrialState.COMPLETE]
-    feasible = [t for t in complete if "failure" not in t.user_attrs and t.value is not None]
-    infeasible = len(complete) - len(feasible)
-    failed = sum(
-        t.state == TrialState.FAIL and not t.user_attrs.get("reaped", False) for t in trials
-    )
-    base = next((t for t in complete if t.user_attrs.get("baseline")), None)
+def _distinct_best(feasible: Sequence[FrozenTrial], count: int) -> list[FrozenTrial]:
     seen: set[tuple[tuple[str, int], ...]] = set()
     best: list[FrozenTrial] = []
     for t in sorted(feasible, key=lambda t: (float(t.value), t.number)):  # type: ignore[arg-type]
@@ -183,23 +223,126 @@ def rank_study(
             continue
         seen.add(key)
         best.append(t)
-        if len(best) == top:
+        if len(best) == count:
             break
+    return best
+
+
+def _validated(
+    entries: list[RankedSetup],
+    base: RankedSetup | None,
+    space: SearchSpace,
+    evaluator: Evaluator,
+    count: int,
+) -> tuple[list[RankedSetup], RankedSetup | None]:
+    """Re-score the finalists and the current setup on fresh realisations and rank them by
+    that; the figures against the current setup and the winner come from the same set."""
+    fresh = validation_evaluator(evaluator, count)
+    setups = [space.setup(e.indices) for e in entries] + [space.base]
+    outcomes = fresh.evaluate(setups)
+    base_out = outcomes[-1]
+    kept = [(e, o) for e, o in zip(entries, outcomes[:-1], strict=True) if o.ok]
+    kept.sort(key=lambda eo: (float(eo[1].score), eo[0].trial))  # type: ignore[arg-type]
+    ranked: list[RankedSetup] = []
+    for rank, (e, o) in enumerate(kept, start=1):
+        info: dict[str, Any] = {"realisations": fresh.realisations,
+                                "bottom_out_risk": o.bottomed / fresh.realisations}
+        change: dict[str, float] = {}
+        if base_out.ok:
+            info.update(compare_scores(o.scores, base_out.scores).as_dict())
+            change = {k: _relative(v, base_out.metrics[k]) for k, v in o.metrics.items()
+                      if k in base_out.metrics}
+            change["score"] = _relative(float(o.score), float(base_out.score))  # type: ignore[arg-type]
+        if ranked:
+            info["vs_winner"] = compare_scores(o.scores, kept[0][1].scores).as_dict()
+        ranked.append(_replace(
+            e, rank=rank, score=float(o.score), terms=o.terms,  # type: ignore[arg-type]
+            metrics=o.metrics, change_vs_baseline=change, validation=info,
+        ))
+    new_base = base
+    if base is not None and base_out.ok:
+        new_base = _replace(
+            base, score=float(base_out.score), terms=base_out.terms,  # type: ignore[arg-type]
+            metrics=base_out.metrics,
+            validation={"realisations": fresh.realisations,
+                        "bottom_out_risk": base_out.bottomed / fresh.realisations},
+        )
+    return ranked, new_base
+
+
+def _within_noise_sentence(e: RankedSetup) -> str:
+    vs = e.validation.get("vs_winner")
+    if not vs or not vs.get("within_noise"):
+        return ""
+    ordinal = {2: "2nd", 3: "3rd"}.get(e.rank, f"{e.rank}th")
+    return (
+        f"{ordinal} scores within noise of the winner "
+        f"({-100 * vs['gain']:+.1f} %, interval {-100 * vs['gain_high']:+.1f} % to "
+        f"{-100 * vs['gain_low']:+.1f} % over {vs['realisations']} fresh realisations)"
+    )
+
+
+def rank_study(
+    study: optuna.Study,
+    space: SearchSpace,
+    evaluator: Evaluator | None = None,
+    top: int = 5,
+    validation: int = DEFAULT_VALIDATION,
+) -> Ranking:
+    """Rank the study's feasible trials. With an ``evaluator``: re-score the best distinct
+    setups and the current one on ``validation`` fresh realisations and rank by that (0: rank
+    by the search's scores), measure robustness, and flag settings at their edges."""
+    trials = study.get_trials(deepcopy=False)
+    complete = [t for t in trials if t.state == TrialState.COMPLETE]
+    feasible = [t for t in complete if "failure" not in t.user_attrs and t.value is not None]
+    infeasible = len(complete) - len(feasible)
+    failed = sum(
+        t.state == TrialState.FAIL and not t.user_attrs.get("reaped", False) for t in trials
+    )
+    base = next((t for t in complete if t.user_attrs.get("baseline")), None)
+    validate = evaluator is not None and validation >= 2
+    best = _distinct_best(feasible, max(top, FINALISTS) if validate else top)
     entries = [_entry(i + 1, t, space, base) for i, t in enumerate(best)]
-    if evaluator is not None and entries:
-        entries = _with_robustness(entries, space, evaluator)
-    if entries:
-        winner = entries[0].terms
-        entries = [entries[0]] + [
-            _replace(e, tradeoff=tradeoff_sentence(e.rank, e.terms, winner)) for e in entries[1:]
-        ]
-    pareto: list[int] = []
-    if feasible:
-        pts = np.array([[t.user_attrs["terms"][k] for k in PARETO_TERMS] for t in feasible])
-        pareto = sorted(feasible[i].number for i in pareto_front(pts))
     baseline_entry = (
         _entry(0, base, space, base)
         if base is not None and "failure" not in base.user_attrs
         else None
     )
-    return Ranking(entries, baseline_entry, pareto, len(complete) + failed, infeasible, failed)
+    if validate and entries:
+        assert evaluator is not None
+        entries, baseline_entry = _validated(entries, baseline_entry, space, evaluator, validation)
+    entries = entries[:top]
+    if evaluator is not None and entries:
+        entries = _with_robustness(entries, space, evaluator)
+        entries = [
+            _replace(
+                e,
+                flags=edge_flags(space, e.indices, e.sag, evaluator.scenario),
+                warnings=static_warnings(evaluator.scenario, space.setup(e.indices)),
+            )
+            for e in entries
+        ]
+    if entries:
+        winner = entries[0].terms
+        entries = [entries[0]] + [
+            _replace(
+                e,
+                tradeoff=_within_noise_sentence(e)
+                or tradeoff_sentence(e.rank, e.terms, winner),
+            )
+            for e in entries[1:]
+        ]
+    pareto: list[int] = []
+    if feasible:
+        pts = np.array([[t.user_attrs["terms"][k] for k in PARETO_TERMS] for t in feasible])
+        pareto = sorted(feasible[i].number for i in pareto_front(pts))
+    return Ranking(
+        entries,
+        baseline_entry,
+        pareto,
+        len(complete) + failed,
+        infeasible,
+        failed,
+        validation_realisations=validation if validate else 0,
+        search_realisations=evaluator.realisations if evaluator is not None else 0,
+    )

@@ -25,7 +25,7 @@ from optuna.distributions import BaseDistribution, IntDistribution
 from optuna.storages import BaseStorage
 from optuna.trial import FrozenTrial, TrialState
 
-from tuneopt.optimise.evaluate import Evaluator, Outcome
+from tuneopt.optimise.evaluate import Evaluator, Outcome, RacePolicy
 from tuneopt.optimise.space import SearchSpace
 
 __all__ = [
@@ -36,6 +36,7 @@ __all__ = [
     "Progress",
     "StudyPlan",
     "count_finished",
+    "leader_scores",
     "create_study",
     "make_sampler",
     "reap_stale_trials",
@@ -88,6 +89,7 @@ class StudyPlan:
     batch_size: int = 16
     seed: int = 0
     sampler: str = "tpe"
+    racing: bool = True
 
     def __post_init__(self) -> None:
         if self.trials is None and self.deadline is None:
@@ -187,6 +189,7 @@ def _tell(study: optuna.Study, trial: optuna.Trial, outcome: Outcome) -> None:
 def _tell_outcome(study: optuna.Study, trial: optuna.Trial, outcome: Outcome) -> None:
     trial.set_user_attr("sag", outcome.sag)
     if outcome.ok:
+        trial.set_user_attr("scores", list(outcome.scores))
         trial.set_user_attr("terms", outcome.terms)
         trial.set_user_attr("metrics", outcome.metrics)
         study.tell(trial, outcome.score)
@@ -223,14 +226,33 @@ def ask_batch(
 
 
 def scenario_points(
-    space: SearchSpace, evaluator: Evaluator
-) -> Callable[[list[dict[str, int]]], list[Outcome]]:
-    """Evaluate points of a scenario's search space (indices per setting)."""
+    space: SearchSpace, evaluator: Evaluator, race: RacePolicy | None = None
+) -> Callable[..., list[Outcome]]:
+    """Evaluate points of a scenario's search space (indices per setting), racing them against
+    each other and against ``reference`` (the leader's per-realisation scores) with ``race``."""
 
-    def evaluate(points: list[dict[str, int]]) -> list[Outcome]:
-        return evaluator.evaluate([space.setup(p) for p in points])
+    def evaluate(
+        points: list[dict[str, int]], reference: list[float] | None = None
+    ) -> list[Outcome]:
+        return evaluator.evaluate(
+            [space.setup(p) for p in points], race=race, reference=reference
+        )
 
     return evaluate
+
+
+def leader_scores(trials: list[FrozenTrial], realisations: int) -> list[float] | None:
+    """Per-realisation scores of the best trial that rode all ``realisations`` (None: none
+    has yet). Racing pairs every new setup against it."""
+    best: FrozenTrial | None = None
+    for t in trials:
+        if t.state != TrialState.COMPLETE or "failure" in t.user_attrs or t.value is None:
+            continue
+        if len(t.user_attrs.get("scores", ())) != realisations:
+            continue
+        if best is None or (t.value, t.number) < (best.value, best.number):
+            best = t
+    return None if best is None else [float(v) for v in best.user_attrs["scores"]]
 
 
 def run_shard(
@@ -249,10 +271,12 @@ def run_shard(
     optuna distributions with a function scoring a list of points. Returns the number of trials
     this shard finished."""
     owner = f"{socket.gethostname()}:{os.getpid()}:{shard}"
+    realisations = 0
     if isinstance(space, SearchSpace):
         dists = _distributions(space)
         assert isinstance(evaluate, Evaluator)
-        evaluate_points = scenario_points(space, evaluate)
+        realisations = evaluate.realisations
+        evaluate_points = scenario_points(space, evaluate, RacePolicy() if plan.racing else None)
     else:
         dists = space
         assert not isinstance(evaluate, Evaluator)
@@ -273,7 +297,11 @@ def run_shard(
             if size <= 0:
                 break
         batch = ask_batch(study, plan, dists, shard, size, finished, owner)
-        outcomes = evaluate_points([{k: int(v) for k, v in t.params.items()} for t in batch])
+        points = [{k: int(v) for k, v in t.params.items()} for t in batch]
+        if realisations:
+            outcomes = evaluate_points(points, leader_scores(trials, realisations))
+        else:
+            outcomes = evaluate_points(points)
         for trial, outcome in zip(batch, outcomes, strict=True):
             _tell(study, trial, outcome)
         done += len(batch)

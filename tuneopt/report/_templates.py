@@ -76,12 +76,14 @@ RUN = (
 <h2>Recommendation</h2>
 {% if r.recommendation %}
 <p>{{ r.headline }}</p>
+{% if r.fresh_terrain %}<ul id="fresh-terrain">{% for line in r.fresh_terrain %}<li>{{ line }}</li>
+{% endfor %}</ul>{% endif %}
 <table class="settings" id="recommended-settings">
-<tr><th>setting</th><th>now</th><th>recommended (#1)</th></tr>
+<tr><th>setting</th><th>now</th><th>recommended (#1)</th><th>note</th></tr>
 {% for row in r.recommendation %}
 <tr class="{{ 'changed' if row.changed else '' }}" data-key="{{ row.key }}">
 <td>{{ row.label }}</td><td class="num">{{ row.now }}</td>
-<td class="num recommended">{{ row.recommended }}</td></tr>
+<td class="num recommended">{{ row.recommended }}</td><td class="note">{{ row.note }}</td></tr>
 {% endfor %}
 </table>
 <p class="note">Highlighted rows differ from the current setup. Settings the search did not

@@ -23,6 +23,7 @@ from tuneopt.report import ride_plots as rp
 from tuneopt.report._svg import figure_svg
 from tuneopt.report._templates import render
 from tuneopt.report.exports import write_exports
+from tuneopt.report.fresh_terrain import fresh_terrain_lines, setting_notes
 from tuneopt.report.ranked_table import ranking_columns
 from tuneopt.report.rides import TRACE_RATE, SetupRide, ride_setups
 from tuneopt.report.tradeoff_plot import draw_tradeoff, tradeoff_data
@@ -71,6 +72,7 @@ class SettingRow:
     now: str
     recommended: str
     changed: bool
+    note: str = ""
 
 
 @dataclass(frozen=True)
@@ -89,8 +91,11 @@ def recommendation_rows(result: dict[str, Any]) -> list[SettingRow]:
     best = result["ranked"][0]["settings"]
     now = (result.get("baseline") or {}).get("settings", {})
     labels = result.get("labels", {})
+    notes = setting_notes(result)
     return [
-        SettingRow(k, labels.get(k, k), now.get(k, "-"), v, now.get(k) not in (None, v))
+        SettingRow(
+            k, labels.get(k, k), now.get(k, "-"), v, now.get(k) not in (None, v), notes.get(k, "")
+        )
         for k, v in best.items()
     ]
 
@@ -213,6 +218,7 @@ class RunReport:
     description: str
     trials_line: str
     headline: str
+    fresh_terrain: list[str]
     recommendation: list[SettingRow]
     headline_metrics: list[MetricRow]
     table_headers: list[str]
@@ -362,13 +368,22 @@ def report_of(
         f"{t['finished']} trials finished ({t['infeasible']} outside the sag windows or "
         f"statically impossible, {t['failed']} failed); sampler {result.get('sampler', '-')}, "
         f"seed {result.get('seed', '-')}, {result.get('realisations', '-')} terrain "
-        f"realisation(s) of {result.get('simulated_seconds_per_setup', 0):.0f} s riding each."
+        f"realisation(s) of {result.get('simulated_seconds_per_setup', 0):.0f} s riding each"
+        " (setups clearly worse than the leader stopped early)"
+        + (
+            f"; the finalists re-scored on {result['validation_realisations']} fresh ones."
+            if result.get("validation_realisations")
+            else "."
+        )
     )
     headline = ""
     if result["ranked"]:
         best = result["ranked"][0]
         change = best.get("change_vs_baseline", {}).get("score")
         headline = f"Recommended: setup #1, score {best['score']:.3f} (lower is better)"
+        n = (best.get("validation") or {}).get("realisations")
+        if n:
+            headline += f" on {n} fresh terrain realisations"
         if change is not None and result.get("baseline"):
             headline += (
                 f", {change:+.1%} against the current setup's {result['baseline']['score']:.3f}"
@@ -396,6 +411,7 @@ def report_of(
         description=scenario.description,
         trials_line=trials_line,
         headline=headline,
+        fresh_terrain=fresh_terrain_lines(result),
         recommendation=recommendation_rows(result),
         headline_metrics=headline_metrics(result),
         table_headers=h_headers,

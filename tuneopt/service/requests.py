@@ -11,6 +11,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError
 from tuneopt.model import InputError, Scenario, scenario_from_data
 from tuneopt.model.errors import FieldProblem
 from tuneopt.model.loading import problems_from_validation
+from tuneopt.optimise.evaluate import DEFAULT_REALISATIONS
 from tuneopt.optimise.space import build_space
 from tuneopt.service.settings import Settings
 
@@ -35,7 +36,9 @@ class JobRequest(BaseModel):
     shards: int | None = Field(default=None, ge=1, description="shard jobs working the study")
     sampler: Literal["tpe", "cmaes", "nsga2", "random"] = "tpe"
     batch_size: int | None = Field(default=None, ge=1, le=256)
-    realisations: int = Field(default=2, ge=1, le=8, description="terrain realisations")
+    realisations: int = Field(
+        default=DEFAULT_REALISATIONS, ge=1, le=32, description="terrain realisations"
+    )
 
 
 class ValidJob(BaseModel):

@@ -15,6 +15,7 @@ from pydantic_settings import BaseSettings, SettingsConfigDict
 
 from tuneopt.model.errors import FieldProblem, InputError
 from tuneopt.model.loading import problems_from_validation
+from tuneopt.optimise.evaluate import DEFAULT_REALISATIONS
 
 __all__ = ["Settings", "load_settings"]
 
@@ -44,7 +45,7 @@ class Settings(BaseSettings):
 
     # workers
     batch_size: int = Field(default=16, ge=1)
-    realisations: int = Field(default=2, ge=1, le=8)
+    realisations: int = Field(default=DEFAULT_REALISATIONS, ge=1, le=32)
     shard_retries: int = Field(default=3, ge=0)
     heartbeat_seconds: float = Field(
         default=10.0, gt=0, description="how often a busy worker says it is alive [s]"

@@ -319,6 +319,7 @@ def finalise_job(job_id: str) -> str:
         "seed": record.request["seed"],
         "sampler": record.request["sampler"],
         "realisations": record.request["realisations"],
+        "validation_realisations": ranking.validation_realisations,
         "budget": budget,
         "stopped": stopped,
         "shards": record.request["shards"],

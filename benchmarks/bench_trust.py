@@ -1,0 +1,192 @@
+"""Does a recommendation hold on terrain the study never saw?
+
+For each scenario and each of three study seeds, run ``tuneopt optimise`` as a user would (the
+demo's budget: 300 trials, 2 worker processes, every other setting at its default), then score
+the recommended setup and the current one on fresh course realisations whose seeds the study
+never used. Printed per study: the gain the study states (with its interval when it gives one),
+the gain measured on the fresh realisations (mean paired difference over the current setup's
+mean score, with a 95 % t interval), the share of fresh realisations where the recommendation
+beats the current setup, its bottom-out risk there (share of realisations with a bottom-out)
+against the current setup's, and the CPU time. Per scenario: how far apart the three seeds'
+winners are, setting by setting, in steps of the search space.
+
+    python benchmarks/bench_trust.py [--fresh 40] [--trials 300] [--scenarios a.toml b.toml]
+                                     [--json out.json]
+
+Slow by design (a few minutes per study on 2 cores); not part of the test suite.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from scipy import stats
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+from tuneopt.model import load_scenario  # noqa: E402
+from tuneopt.optimise.evaluate import Evaluator  # noqa: E402
+from tuneopt.optimise.space import build_space  # noqa: E402
+
+SCENARIOS = ("scenarios/trail_air.toml", "scenarios/enduro_coil.toml")
+STUDY_SEEDS = (1, 2, 3)
+# fresh course seeds start far from any seed a study uses for its search or its own validation
+FRESH_FROM = 900_000
+
+
+def _cpu_seconds() -> float:
+    own = resource.getrusage(resource.RUSAGE_SELF)
+    kids = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return own.ru_utime + own.ru_stime + kids.ru_utime + kids.ru_stime
+
+
+def _optimise(scenario: Path, seed: int, trials: int, out: Path) -> dict[str, Any]:
+    cmd = [
+        sys.executable, "-c", "import sys; from tuneopt.cli import main; sys.exit(main())",
+        "optimise", str(scenario), "--out", str(out),
+        "--trials", str(trials), "--workers", "2", "--seed", str(seed),
+    ]
+    done = subprocess.run(cmd, cwd=ROOT, capture_output=True, text=True)
+    if done.returncode != 0:
+        raise SystemExit(f"{' '.join(cmd)} failed:\n{done.stderr[-2000:]}")
+    data: dict[str, Any] = json.loads((out / "result.json").read_text())
+    return data
+
+
+def _stated_gain(result: dict[str, Any]) -> tuple[float, float | None, float | None]:
+    """The gain the study states for its winner, as a fraction of the current setup's score,
+    with its interval when the result gives one."""
+    winner = result["ranked"][0]
+    val = winner.get("validation")
+    if val:
+        return float(val["gain"]), val.get("gain_low"), val.get("gain_high")
+    return -float(winner["change_vs_baseline"]["score"]), None, None
+
+
+def _fresh(scenario: Any, setups: list[Any], seeds: range) -> np.ndarray:
+    """Scores (len(seeds), len(setups)) and bottom-out flags on the fresh realisations."""
+    scores = np.full((len(seeds), len(setups)), np.nan)
+    bottomed = np.zeros((len(seeds), len(setups)), dtype=bool)
+    for i, s in enumerate(seeds):
+        outcomes = Evaluator(scenario, seed=s, realisations=1).evaluate(setups)
+        for j, o in enumerate(outcomes):
+            if o.ok:
+                scores[i, j] = o.score
+                m = o.metrics
+                bottomed[i, j] = (
+                    m.get("front_bottom_outs_per_min", 0.0) + m.get("rear_bottom_outs_per_min", 0.0)
+                ) > 0
+    return np.stack([scores, bottomed.astype(float)])
+
+
+def _one_study(path: Path, seed: int, trials: int, fresh: int) -> dict[str, Any]:
+    scenario = load_scenario(path)
+    space = build_space(scenario)
+    cpu0, wall0 = _cpu_seconds(), time.time()
+    with tempfile.TemporaryDirectory() as tmp:
+        result = _optimise(path, seed, trials, Path(tmp) / "run")
+    cpu_study, wall_study = _cpu_seconds() - cpu0, time.time() - wall0
+    winner = result["ranked"][0]
+    setups = [space.setup(winner["indices"]), scenario.setup]
+    scores, bottomed = _fresh(scenario, setups, range(FRESH_FROM, FRESH_FROM + fresh))
+    ok = np.all(np.isfinite(scores), axis=1)
+    w, c = scores[ok, 0], scores[ok, 1]
+    diff = c - w  # positive: the recommendation scores lower (better)
+    mean_c = float(np.mean(c))
+    half = float(stats.t.ppf(0.975, len(diff) - 1) * np.std(diff, ddof=1) / np.sqrt(len(diff)))
+    stated, low, high = _stated_gain(result)
+    return {
+        "scenario": path.name,
+        "seed": seed,
+        "stated_gain": stated,
+        "stated_low": low,
+        "stated_high": high,
+        "fresh_gain": float(np.mean(diff)) / mean_c,
+        "fresh_low": (float(np.mean(diff)) - half) / mean_c,
+        "fresh_high": (float(np.mean(diff)) + half) / mean_c,
+        "fresh_wins": float(np.mean(diff > 0)),
+        "fresh_realisations": int(ok.sum()),
+        "bottom_risk_winner": float(np.mean(bottomed[ok, 0])),
+        "bottom_risk_current": float(np.mean(bottomed[ok, 1])),
+        "indices": winner["indices"],
+        "settings": winner["settings"],
+        "cpu_seconds": cpu_study,
+        "wall_seconds": wall_study,
+    }
+
+
+def _pct(v: float | None) -> str:
+    return "–" if v is None else f"{100 * v:+.1f} %"
+
+
+def _table(rows: list[dict[str, Any]]) -> str:
+    lines = [
+        "| scenario | seed | gain stated (interval) | gain on fresh terrain (95 % interval) "
+        "| fresh wins | bottom-out risk winner / current | study CPU s |",
+        "|---|---|---|---|---|---|---|",
+    ]
+    for r in rows:
+        stated = _pct(r["stated_gain"])
+        if r["stated_low"] is not None:
+            stated += f" ({_pct(r['stated_low'])} to {_pct(r['stated_high'])})"
+        lines.append(
+            f"| {r['scenario']} | {r['seed']} | {stated} | {_pct(r['fresh_gain'])} "
+            f"({_pct(r['fresh_low'])} to {_pct(r['fresh_high'])}) | "
+            f"{100 * r['fresh_wins']:.0f} % of {r['fresh_realisations']} | "
+            f"{100 * r['bottom_risk_winner']:.0f} % / {100 * r['bottom_risk_current']:.0f} % | "
+            f"{r['cpu_seconds']:.0f} |"
+        )
+    return "\n".join(lines)
+
+
+def _spread(rows: list[dict[str, Any]]) -> str:
+    lines = []
+    for name in dict.fromkeys(r["scenario"] for r in rows):
+        mine = [r for r in rows if r["scenario"] == name]
+        keys = list(mine[0]["indices"])
+        parts = []
+        for k in keys:
+            idx = [r["indices"][k] for r in mine]
+            parts.append(f"{k} {max(idx) - min(idx)}")
+        lines.append(f"- {name}: winners' spread in steps: " + ", ".join(parts))
+        for r in mine:
+            lines.append(f"  - seed {r['seed']}: " + ", ".join(
+                f"{k} {v}" for k, v in r["settings"].items()))
+    return "\n".join(lines)
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--scenarios", nargs="+", default=list(SCENARIOS))
+    ap.add_argument("--seeds", nargs="+", type=int, default=list(STUDY_SEEDS))
+    ap.add_argument("--trials", type=int, default=300)
+    ap.add_argument("--fresh", type=int, default=40)
+    ap.add_argument("--json", type=Path)
+    args = ap.parse_args(argv)
+    rows = []
+    for scen in args.scenarios:
+        for seed in args.seeds:
+            row = _one_study(ROOT / scen, seed, args.trials, args.fresh)
+            rows.append(row)
+            print(_table([row]).splitlines()[-1], flush=True)
+    print()
+    print(_table(rows))
+    print()
+    print(_spread(rows))
+    if args.json:
+        args.json.write_text(json.dumps(rows, indent=2))
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

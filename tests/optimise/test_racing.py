@@ -1,0 +1,175 @@
+"""Racing setups over terrain realisations, and re-scoring the finalists on fresh ones.
+
+Statistical checks are against scipy's t distribution and paired t-test [D; scipy docs]."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from tuneopt.model import Scenario
+from tuneopt.optimise.edges import edge_flags
+from tuneopt.optimise.evaluate import Evaluator, RacePolicy, paired_interval
+from tuneopt.optimise.runner import leader_scores
+from tuneopt.optimise.space import build_space
+from tuneopt.optimise.validation import compare_scores, validation_seeds
+
+
+def _drop(scores: np.ndarray, reference: np.ndarray | None = None) -> np.ndarray:
+    active = np.ones(scores.shape[0], dtype=bool)
+    Evaluator._drop_losers(scores, active, reference, RacePolicy())
+    return active
+
+
+def test_a_setup_clearly_worse_stops_after_the_minimum() -> None:
+    rng = np.random.default_rng(1)
+    difficulty = rng.normal(8.0, 0.8, size=3)  # course-to-course spread, shared (paired)
+    scores = np.stack([difficulty, difficulty + 1.0]) + rng.normal(0, 0.1, size=(2, 3))
+    assert _drop(scores).tolist() == [True, False]
+
+
+def test_pure_noise_is_dropped_at_the_tests_level() -> None:
+    """Two setups with the same mean: the worse-looking one is dropped when |t| exceeds the
+    one-sided 95 % point, so in 10 % of races (two-sided 10 % of the t distribution with
+    k - 1 degrees of freedom) [D]."""
+    rng = np.random.default_rng(7)
+    drops, n = 0, 4000
+    for _ in range(n):
+        difficulty = rng.normal(8.0, 0.8, size=4)
+        scores = difficulty + rng.normal(0, 0.3, size=(2, 4))
+        drops += int(not _drop(scores).all())
+    expected = 2 * (1 - 0.95)
+    sd = np.sqrt(expected * (1 - expected) / n)
+    assert abs(drops / n - expected) < 4 * sd
+
+
+def test_a_leader_from_the_study_drops_setups_worse_than_it() -> None:
+    rng = np.random.default_rng(3)
+    difficulty = rng.normal(8.0, 0.8, size=8)
+    reference = difficulty - 0.5
+    scores = (difficulty + rng.normal(0, 0.05, size=(2, 8)))[:, :3]
+    assert not _drop(scores, reference).any()
+
+
+def test_estimates_of_stopped_setups_follow_the_additive_model() -> None:
+    """score = setup + realisation exactly: a setup stopped after 3 of 6 realisations is
+    estimated at its true mean over all 6 [D]."""
+    mu = np.array([5.0, 6.0, 7.5])
+    c = np.array([0.0, 2.0, -1.0, 0.5, 1.5, -3.0])
+    scores = mu[:, None] + c[None, :]
+    scores[2, 3:] = np.nan
+    est = Evaluator._estimates(scores, None)
+    np.testing.assert_allclose(est, mu + c.mean())
+
+
+def test_paired_interval_equals_scipys_paired_t_test() -> None:
+    rng = np.random.default_rng(5)
+    a, b = rng.normal(7, 1, 24), rng.normal(7.3, 1, 24)
+    mean, low, high = paired_interval(b - a)
+    ci = stats.ttest_rel(b, a).confidence_interval(0.95)
+    np.testing.assert_allclose([low, high], [ci.low, ci.high], rtol=1e-12)
+    assert mean == pytest.approx(np.mean(b - a))
+
+
+def test_a_pure_noise_difference_is_called_within_noise() -> None:
+    rng = np.random.default_rng(11)
+    difficulty = rng.normal(8.0, 0.8, size=24)
+    a = difficulty + rng.normal(0, 0.2, 24)
+    b = difficulty + rng.normal(0, 0.2, 24)
+    assert compare_scores(a, b).within_noise
+    better = compare_scores(difficulty * 0.95, difficulty)
+    assert not better.within_noise
+    assert better.wins == 1.0
+    assert better.gain == pytest.approx(0.05)
+
+
+def test_validation_realisations_are_never_searched() -> None:
+    for seed in (0, 3, 11, 2**31 - 5):
+        search = set(range(seed, seed + 32))
+        fresh = validation_seeds(seed, 24)
+        assert len(set(fresh)) == 24
+        assert not search & set(fresh)
+        assert all(0 <= s < 2**31 for s in fresh)
+
+
+def test_a_setup_with_its_damping_closed_is_dropped_early(small_scenario: Scenario) -> None:
+    """Every adjuster fully closed, springs unchanged: far harsher than the current setup (the
+    score's load-variation terms rise by much more than the course-to-course noise)."""
+    space = build_space(small_scenario)
+    base = space.indices(small_scenario.setup)
+    closed = dict(base)
+    for p in space.parameters:
+        if p.unit == "clicks":
+            closed[p.name] = 0 if p.note == "from closed" else len(p.values) - 1
+    ev = Evaluator(small_scenario, realisations=6)
+    good, bad = ev.evaluate(
+        [space.setup(base), space.setup(closed)], race=RacePolicy(min_realisations=3)
+    )
+    assert len(good.scores) == 6
+    assert len(bad.scores) < 6
+    assert bad.score is not None and good.score is not None and bad.score > good.score
+    # without racing both ride everything, and the estimate matches the full mean well
+    full_good, full_bad = ev.evaluate([space.setup(base), space.setup(closed)])
+    assert len(full_bad.scores) == 6
+    assert bad.score == pytest.approx(full_bad.score, rel=0.1)
+    assert full_good.score == pytest.approx(good.score, rel=1e-12)
+
+
+def test_leader_is_the_best_trial_that_rode_everything(small_scenario: Scenario) -> None:
+    import optuna
+
+    study = optuna.create_study()
+    dist = {"x": optuna.distributions.IntDistribution(0, 3)}
+    for value, scores in ((5.0, [5.0, 5.0]), (4.0, [4.0]), (4.5, [4.0, 5.0])):
+        t = study.ask(dist)
+        t.set_user_attr("scores", scores)
+        study.tell(t, value)
+    assert leader_scores(study.get_trials(), 2) == [4.0, 5.0]
+    assert leader_scores(study.get_trials(), 3) is None
+
+
+def test_edges_are_flagged(small_scenario: Scenario) -> None:
+    space = build_space(small_scenario)
+    idx = space.indices(small_scenario.setup)
+    idx["fork.pressure"] = 0
+    idx["shock.lsr"] = len(space["shock.lsr"].values) - 1
+    window = small_scenario.search.fork_sag
+    assert window is not None
+    flags = edge_flags(space, idx, {"fork": window.high - 0.2, "shock": 30.0}, small_scenario)
+    assert "softer" in flags["fork.pressure"]
+    assert "last position" in flags["shock.lsr"]
+    assert "softer" in flags["fork.sag"]
+    assert "shock.sag" not in flags
+    assert "fork.lsc" not in flags
+
+
+def test_ranking_comes_from_the_fresh_realisations(
+    small_scenario: Scenario, tmp_path: Path
+) -> None:
+    """The ranked scores, the gain and its interval are those of the validation realisations:
+    scoring the winner and the current setup there again gives them back."""
+    from tuneopt.optimise import StudyPlan
+    from tuneopt.optimise.local import run_local, start_run
+
+    plan = StudyPlan("study", trials=12, batch_size=6, seed=3)
+    run = start_run(small_scenario, tmp_path / "run", plan, realisations=2, validation=4)
+    ranking = run_local(run, top=3)
+    scores = [e.score for e in ranking.ranked]
+    assert scores == sorted(scores)
+    best = ranking.ranked[0]
+    assert best.validation["realisations"] == 4
+    space = build_space(small_scenario)
+    fresh = Evaluator(small_scenario, seeds=validation_seeds(3, 4))
+    w, b = fresh.evaluate([space.setup(best.indices), small_scenario.setup])
+    assert best.score == pytest.approx(w.score, rel=1e-12)
+    assert ranking.baseline is not None
+    assert ranking.baseline.score == pytest.approx(b.score, rel=1e-12)
+    expected = compare_scores(w.scores, b.scores)
+    assert best.validation["gain"] == pytest.approx(expected.gain, rel=1e-12)
+    assert best.validation["gain_low"] == pytest.approx(expected.gain_low, rel=1e-12)
+    for e in ranking.ranked:
+        assert set(e.steps) == set(space.names)  # every setting has both steps or a reason
+        assert all(set(v) == {"down", "up"} for v in e.steps.values())

@@ -1,0 +1,97 @@
+"""Re-scoring the finalists on terrain the search never saw.
+
+The setup that won the search was picked on the same realisations that scored it, so its score
+there is optimistically biased (the winner's curse; Kim & Nelson 2001 [M]). The finalists and
+the current setup are therefore scored again, all of them on the same fresh realisations, and
+every figure a user reads (the ranking, the gain against the current setup, which of two setups
+is better) comes from that set: a paired mean difference with its 95 % t interval, the share of
+realisations on which one beats the other, and the share on which a setup bottoms out. A
+difference whose interval holds zero is within noise and is said so.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from tuneopt.model import Setup
+from tuneopt.optimise.evaluate import Evaluator, Outcome, paired_interval
+
+__all__ = [
+    "DEFAULT_VALIDATION",
+    "FINALISTS",
+    "Comparison",
+    "compare_scores",
+    "validation_evaluator",
+    "validation_seeds",
+]
+
+# Fresh realisations the finalists are re-scored on, and how many distinct setups of the search
+# go forward to it (chosen by the trust benchmark, benchmarks/bench_trust.py).
+DEFAULT_VALIDATION = 24
+FINALISTS = 8
+# Validation courses are built from seeds this far from the study's own, so a study never
+# validates on a realisation it searched on (a study uses seed .. seed + realisations - 1).
+_VALIDATION_OFFSET = 100_000
+_SEED_LIMIT = 2**31
+
+
+def validation_seeds(study_seed: int, count: int) -> tuple[int, ...]:
+    return tuple((study_seed + _VALIDATION_OFFSET + k) % _SEED_LIMIT for k in range(count))
+
+
+def validation_evaluator(search: Evaluator, count: int = DEFAULT_VALIDATION) -> Evaluator:
+    """An evaluator for the same scenario over ``count`` fresh realisations."""
+    return Evaluator(search.scenario, seeds=validation_seeds(search.seed, count), dt=search.dt)
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """Setup A against setup B on the same realisations (lower scores are better).
+
+    gain: (mean of B − A) / mean of B, the share of B's score that A saves; gain_low/high: its
+    95 % interval; wins: share of realisations on which A scores lower; within_noise: the
+    interval holds 0; realisations: how many were paired."""
+
+    gain: float
+    gain_low: float
+    gain_high: float
+    wins: float
+    within_noise: bool
+    realisations: int
+
+    def as_dict(self) -> dict[str, float | bool | int]:
+        return {
+            "gain": self.gain,
+            "gain_low": self.gain_low,
+            "gain_high": self.gain_high,
+            "wins": self.wins,
+            "within_noise": self.within_noise,
+            "realisations": self.realisations,
+        }
+
+
+def compare_scores(a: Sequence[float], b: Sequence[float]) -> Comparison:
+    """A against B from their per-realisation scores (same realisations, same order)."""
+    sa, sb = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
+    if sa.shape != sb.shape or sa.size == 0:
+        raise ValueError("compare setups on the same, non-empty set of realisations")
+    mean, low, high = paired_interval(sb - sa)
+    scale = float(np.mean(sb))
+    if scale <= 0:
+        scale = 1.0
+    return Comparison(
+        gain=mean / scale,
+        gain_low=low / scale,
+        gain_high=high / scale,
+        wins=float(np.mean(sa < sb)),
+        within_noise=bool(low <= 0.0 <= high),
+        realisations=int(sa.size),
+    )
+
+
+def rescore(evaluator: Evaluator, setups: Sequence[Setup]) -> list[Outcome]:
+    """Every setup on every one of the evaluator's realisations (no racing)."""
+    return evaluator.evaluate(list(setups))
