@@ -9,7 +9,11 @@ from __future__ import annotations
 
 from typing import Any
 
-__all__ = ["fresh_terrain_lines", "setting_notes"]
+__all__ = ["FLAT", "flat_settings", "fresh_terrain_lines", "setting_notes"]
+
+# A setting whose one-step change moves the score by less than this share of it barely
+# matters on this course: the search's choice there is as good as any near it.
+FLAT = 0.005
 
 
 def _pct(v: float) -> str:
@@ -59,11 +63,38 @@ def fresh_terrain_lines(result: dict[str, Any]) -> list[str]:
         if "bottom_out_risk" in base_val:
             text += f"; the current setup on {round(base_val['bottom_out_risk'] * n)} of {n}"
         lines.append(text + ".")
+    flat = flat_settings(result)
+    if flat:
+        labels = result.get("labels", {})
+        parts = [f"{labels.get(k, k)} ({100 * v:.1f} %)" for k, v in flat.items()]
+        lines.append(
+            "These settings barely matter on this course (one step either way moves the score "
+            f"by less than {100 * FLAT:.1f} %, largest change shown): " + ", ".join(parts) + "."
+        )
     for note in best.get("flags", {}).values():
         lines.append(f"Edge: {note}.")
     for warning in best.get("warnings", []):
         lines.append(f"Static check on setup #1: {warning}")
     return lines
+
+
+def flat_settings(result: dict[str, Any]) -> dict[str, float]:
+    """Settings of the winner whose robustness steps both move the score by less than FLAT of
+    it, with the larger relative change (steps without a number, at a range end, count as 0)."""
+    if not result.get("ranked"):
+        return {}
+    best = result["ranked"][0]
+    score = abs(float(best.get("search_score") or best["score"])) or 1.0
+    out: dict[str, float] = {}
+    for name, sides in best.get("steps", {}).items():
+        deltas = [abs(v) for v in sides.values() if isinstance(v, int | float)]
+        if len(deltas) < len(sides) and any(
+            v != "end of range" for v in sides.values() if isinstance(v, str)
+        ):
+            continue  # a step that leaves the sag window or fails matters
+        if deltas and max(deltas) / score < FLAT:
+            out[name] = max(deltas) / score
+    return out
 
 
 def setting_notes(result: dict[str, Any]) -> dict[str, str]:

@@ -1,0 +1,56 @@
+"""The sentences on fresh terrain, edges and flat settings, from result.json's figures."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from tuneopt.report.fresh_terrain import FLAT, flat_settings, fresh_terrain_lines
+
+
+def _result(validation: dict[str, Any], steps: dict[str, Any]) -> dict[str, Any]:
+    return {
+        "labels": {"fork.lsc": "fork LSC", "fork.pressure": "fork pressure"},
+        "baseline": {"validation": {"realisations": 20, "bottom_out_risk": 0.1}},
+        "ranked": [
+            {
+                "score": 8.0,
+                "search_score": 7.8,
+                "validation": validation,
+                "flags": {"fork.pressure": "fork pressure at the low end of its range"},
+                "warnings": ["fork sag 34 % is above the usual 15-25 %"],
+                "steps": steps,
+            }
+        ],
+    }
+
+
+def test_a_gain_beyond_noise_is_stated_with_its_interval() -> None:
+    val = {"realisations": 20, "gain": 0.03, "gain_low": 0.01, "gain_high": 0.05,
+           "wins": 0.9, "within_noise": False, "bottom_out_risk": 0.25}  # fmt: skip
+    lines = fresh_terrain_lines(_result(val, {}))
+    assert "3.0 % better" in lines[0] and "1.0 % to 5.0 %" in lines[0]
+    assert "18 of 20" in lines[0]
+    assert lines[1] == (
+        "Setup #1 bottomed out on 5 of 20 fresh realisations; the current setup on 2 of 20."
+    )
+    assert any(line.startswith("Edge: fork pressure at the low end") for line in lines)
+    assert any(line.startswith("Static check on setup #1: fork sag") for line in lines)
+
+
+def test_a_gain_within_noise_says_so() -> None:
+    val = {"realisations": 20, "gain": 0.004, "gain_low": -0.01, "gain_high": 0.018,
+           "wins": 0.55, "within_noise": True, "bottom_out_risk": 0.1}  # fmt: skip
+    line = fresh_terrain_lines(_result(val, {}))[0]
+    assert "within noise" in line and "not shown to help" in line
+
+
+def test_flat_settings_are_those_both_steps_barely_move() -> None:
+    small = 0.5 * FLAT * 7.8
+    steps = {
+        "fork.lsc": {"down": small, "up": -small},
+        "fork.pressure": {"down": "end of range", "up": 3 * FLAT * 7.8},
+        "shock.lsr": {"down": small, "up": "outside the sag window"},
+    }
+    flat = flat_settings(_result({}, steps))
+    assert list(flat) == ["fork.lsc"]
+    assert flat["fork.lsc"] == 0.5 * FLAT
