@@ -23,8 +23,20 @@ class Objective(Strict):
     rear_load_variation: float = Field(1.0, ge=0)
     unloaded_time: float = Field(1.0, ge=0)
     bottom_outs: float = Field(1.0, ge=0)
-    front_grip: float = Field(1.0, ge=0, description="front tyre short of grip in phases")
-    rear_grip: float = Field(0.5, ge=0, description="rear tyre short of grip in phases")
+    bottom_out_depth: float = Field(0.5, ge=0, description="deepest bottom-out past travel")
+    bottom_out_risk: float = Field(
+        1.0, ge=0, description="share of course realisations with a bottom-out"
+    )
+    rim_strikes: float = Field(1.0, ge=0, description="rim strikes per minute")
+    front_grip: float = Field(
+        1.0, ge=0, description="share of the grip asked of the front tyre that was not there"
+    )
+    rear_grip: float = Field(
+        0.5, ge=0, description="share of the grip asked of the rear tyre that was not there"
+    )
+    pack_down: float = Field(0.5, ge=0, description="ride height lost over repeated bumps")
+    top_outs: float = Field(0.5, ge=0, description="top-out strikes per minute")
+    kick: float = Field(1.0, ge=0, description="rider thrown up as a deep compression extends")
     pitch: float = Field(0.5, ge=0)
     rider_vibration: float = Field(0.0, ge=0)
 

@@ -115,13 +115,15 @@ _CAR_KICK_PEAK = 10
 _CAR_KICK_SUM = 11
 _CAR_N_KICKS = 12
 _CAR_KICK_MAX = 13
-_NACC = _ACC_CAR + 14
+_CAR_KICK_BASE = 14
+_NACC = _ACC_CAR + 15
 # A landing: both tyres unloaded for at least this long [s]; pitch watched this long after [s].
 AIRBORNE_MIN_TIME = 0.02
 LANDING_WINDOW = 0.5
-# The kick: once an end compressed past KICK_DEPTH of its travel starts to extend, the rider's
-# upward speed relative to the ground is watched for KICK_WINDOW [s] (common practice, no
-# source: a deep compression released fast throws the rider up).
+# The kick: once an end compressed past KICK_DEPTH of its travel starts to extend, its
+# extension speed is watched for KICK_WINDOW [s] (common practice, no source: a deep compression
+# released fast throws the frame, and the rider on it, up). The rider's own speed relative to
+# the ground was tried and left: over rocks it follows the ground, not the rebound.
 KICK_DEPTH = 0.6
 KICK_WINDOW = 0.2
 # Output channels of one sample; traces add the weighted rider acceleration.
@@ -299,12 +301,13 @@ def _record(k, y, dy, out, zf, zr, a, ay, mu, relax_f, relax_r, p, acc, hist_f, 
         p[_R + w.E_HIST_W], braking, cornering, demand, out[_O_LOAD_R] * upright, mu,
         p[_R + w.E_PD2], relax_r,
     )
-    # the kick: the rider's upward speed after a deep compression starts to extend
+    # the kick: how fast a deep compression extends
     ck = _ACC_CAR
     if acc[ck + _CAR_KICK_LEFT] > 0.0:
         acc[ck + _CAR_KICK_LEFT] -= 1.0
-        if out[_O_RIDER_UP] > acc[ck + _CAR_KICK_PEAK]:
-            acc[ck + _CAR_KICK_PEAK] = out[_O_RIDER_UP]
+        ext = -out[_O_RATE_F] if acc[ck + _CAR_KICK_BASE] > 0.0 else -out[_O_RATE_R]
+        if ext > acc[ck + _CAR_KICK_PEAK]:
+            acc[ck + _CAR_KICK_PEAK] = ext
         if acc[ck + _CAR_KICK_LEFT] <= 0.0:
             peak = acc[ck + _CAR_KICK_PEAK]
             acc[ck + _CAR_KICK_SUM] += peak
@@ -316,7 +319,11 @@ def _record(k, y, dy, out, zf, zr, a, ay, mu, relax_f, relax_r, p, acc, hist_f, 
         or (out[_O_TRAVEL_R] > KICK_DEPTH * p[_R + w.E_TRAVEL] and out[_O_RATE_R] < 0.0)
     ):
         acc[ck + _CAR_KICK_LEFT] = p[_N_KICK_WINDOW]
-        acc[ck + _CAR_KICK_PEAK] = out[_O_RIDER_UP] if out[_O_RIDER_UP] > 0.0 else 0.0
+        # which end turned (the front when both did)
+        acc[ck + _CAR_KICK_BASE] = 1.0 if (
+            out[_O_TRAVEL_F] > KICK_DEPTH * p[_F + w.E_TRAVEL] and out[_O_RATE_F] < 0.0
+        ) else 0.0
+        acc[ck + _CAR_KICK_PEAK] = 0.0
     aw = c.accumulate_vibration(acc, _ACC_V, sos, zi, out[_O_ACCEL_D])
     acc[_ACC_CAR + _CAR_SUM_W2] += out[_O_PITCH_RATE] ** 2
     if braking:

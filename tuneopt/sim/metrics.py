@@ -133,8 +133,9 @@ class KickMetrics:
     """What a deep compression returns to the rider as it extends, each (B,).
 
     kicks: deep compressions (an end past KICK_DEPTH of its travel) that turned to extend [-];
-    speed_mean / speed_max: mean and largest over them of the rider's peak upward speed
-    relative to the ground within KICK_WINDOW after the turn [m/s] (NaN without kicks).
+    speed_mean / speed_max: mean and largest over them of that end's peak extension speed
+    within KICK_WINDOW after the turn [m/s] (NaN without kicks): the speed at which the stored
+    spring energy is handed back to the frame and the rider.
     """
 
     kicks: FloatArray
