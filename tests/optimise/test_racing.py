@@ -14,6 +14,7 @@ from tuneopt.model import Scenario
 from tuneopt.optimise.edges import edge_flags
 from tuneopt.optimise.evaluate import Evaluator, RacePolicy, paired_interval
 from tuneopt.optimise.runner import leader_scores
+from tuneopt.optimise.sag_windows import sag_windows
 from tuneopt.optimise.space import build_space
 from tuneopt.optimise.validation import compare_scores, validation_seeds
 
@@ -136,9 +137,10 @@ def test_edges_are_flagged(small_scenario: Scenario) -> None:
     idx = space.indices(small_scenario.setup)
     idx["fork.pressure"] = 0
     idx["shock.lsr"] = len(space["shock.lsr"].values) - 1
-    window = small_scenario.search.fork_sag
-    assert window is not None
-    flags = edge_flags(space, idx, {"fork": window.high - 0.2, "shock": 30.0}, small_scenario)
+    windows = sag_windows(small_scenario)
+    assert windows.fork is not None and windows.shock is not None
+    mid = 0.5 * (windows.shock.low + windows.shock.high)
+    flags = edge_flags(space, idx, {"fork": windows.fork.high - 0.2, "shock": mid}, windows)
     assert "softer" in flags["fork.pressure"]
     assert "last position" in flags["shock.lsr"]
     assert "softer" in flags["fork.sag"]

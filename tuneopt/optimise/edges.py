@@ -7,6 +7,7 @@ from __future__ import annotations
 from collections.abc import Mapping
 
 from tuneopt.model import InputError, Scenario, Setup
+from tuneopt.optimise.sag_windows import SagWindows
 from tuneopt.optimise.space import Parameter, SearchSpace
 from tuneopt.physics import static_check
 
@@ -30,7 +31,7 @@ def _end_words(p: Parameter, at_low: bool) -> str:
 
 
 def edge_flags(
-    space: SearchSpace, indices: Mapping[str, int], sag: Mapping[str, float], scenario: Scenario
+    space: SearchSpace, indices: Mapping[str, int], sag: Mapping[str, float], windows: SagWindows
 ) -> dict[str, str]:
     """Flags by setting name (and "fork.sag"/"shock.sag") for a point of the space."""
     flags: dict[str, str] = {}
@@ -42,19 +43,21 @@ def edge_flags(
             flags[p.name] = f"{p.label} at the low end of its range: {_end_words(p, True)}"
         elif i == len(p.values) - 1:
             flags[p.name] = f"{p.label} at the high end of its range: {_end_words(p, False)}"
-    search = scenario.search
-    for end, window in (("fork", search.fork_sag), ("shock", search.shock_sag)):
+    for end in ("fork", "shock"):
+        window = windows.get(end)
         value = sag.get(end)
         if window is None or value is None:
             continue
         if value >= window.high - SAG_EDGE:
             flags[f"{end}.sag"] = (
-                f"{end} sag {value:.1f} % is at the sag window's edge ({window.high:.0f} %): "
+                f"{end} sag {value:.1f} % is at the sag window's edge ({window.high:.0f} %, "
+                f"{window.basis}): "
                 f"the search wanted softer"
             )
         elif value <= window.low + SAG_EDGE:
             flags[f"{end}.sag"] = (
-                f"{end} sag {value:.1f} % is at the sag window's edge ({window.low:.0f} %): "
+                f"{end} sag {value:.1f} % is at the sag window's edge ({window.low:.0f} %, "
+                f"{window.basis}): "
                 f"the search wanted stiffer"
             )
     return flags

@@ -22,6 +22,7 @@ import numpy as np
 from scipy import stats
 
 from tuneopt.model import InputError, Scenario, Setup
+from tuneopt.optimise.sag_windows import sag_windows
 from tuneopt.optimise.score import score_terms, total_score
 from tuneopt.physics import StaticCheck, static_check
 from tuneopt.sim.build import halfcar_params
@@ -134,13 +135,14 @@ class Evaluator:
         self.courses: tuple[PreparedCourse, ...] = tuple(
             prepare_scenario_course(scenario, s, dt) for s in self.seeds
         )
+        self.windows = sag_windows(scenario)
 
     def first(self, n: int) -> Evaluator:
         """An evaluator over this one's first ``n`` realisations (the courses are shared)."""
         other = object.__new__(Evaluator)
         other.scenario, other.dt = self.scenario, self.dt
         other.seeds, other.courses = self.seeds[:n], self.courses[:n]
-        other.seed = self.seed
+        other.seed, other.windows = self.seed, self.windows
         return other
 
     @property
@@ -160,8 +162,8 @@ class Evaluator:
         sag = {"fork": check.front.sag_percent, "shock": check.rear.sag_percent}
         if check.errors:
             return check, sag, "static: " + "; ".join(f.message for f in check.errors)
-        search = self.scenario.search
-        for end, window in (("fork", search.fork_sag), ("shock", search.shock_sag)):
+        for end in ("fork", "shock"):
+            window = self.windows.get(end)
             if window is not None and not window.low <= sag[end] <= window.high:
                 return (
                     check,

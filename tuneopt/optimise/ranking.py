@@ -317,7 +317,7 @@ def rank_study(
         entries = [
             _replace(
                 e,
-                flags=edge_flags(space, e.indices, e.sag, evaluator.scenario),
+                flags=edge_flags(space, e.indices, e.sag, evaluator.windows),
                 warnings=static_warnings(evaluator.scenario, space.setup(e.indices)),
             )
             for e in entries
