@@ -111,3 +111,60 @@ def test_landings_and_pitch_after_them_match_traces() -> None:
         assert landings >= 1
         assert res.pitch.landings[b] == landings
         assert_allclose(res.pitch.landing_pitch_rate_max[b], peak, rtol=1e-12)
+
+
+def test_topouts_kicks_and_pack_down_match_traces() -> None:
+    # independent loops over the traces [D]; thresholds as documented in the simulator
+    from dataclasses import replace
+
+    from tuneopt.sim.halfcar import KICK_DEPTH, KICK_WINDOW
+
+    road = demo_road(3.0, seed=5, bump_height=0.17)
+    n = road.samples
+    t = np.arange(n) * road.dt
+    decel = np.where((t > 0.5) & (t < 1.2), 4.0, 0.0)
+    lateral = np.where((t > 1.8) & (t < 2.5), 3.0, 0.0)
+    road = replace(road, decel=decel, lateral_accel=lateral)
+    params = half_car(
+        2,
+        front=dict(rate=[6e3, 8e3], compression=300.0, rebound=[150.0, 900.0]),
+        rear=dict(rate=[10e3, 14e3], compression=400.0, rebound=[200.0, 1300.0]),
+    )
+    res = simulate_halfcar(params, road, trace_every=1)
+    tr = res.traces
+    assert tr is not None and not res.failed.any()
+    minutes = road.duration / 60.0
+    free = (decel <= 0.5) & (lateral <= 1.0)
+    window = int(np.ceil(KICK_WINDOW / road.dt - 1e-9))
+    for b in range(2):
+        for m, travel, rate, s0 in (
+            (res.front, tr.front_travel[b], tr.front_travel_rate[b], res.static_travel_front[b]),
+            (res.rear, tr.rear_travel[b], tr.rear_travel_rate[b], res.static_travel_rear[b]),
+        ):
+            count, inside = 0, False
+            for x, v in zip(travel, rate, strict=True):
+                if inside:
+                    inside = x <= 0.0
+                elif x <= 0.0 and v < -0.5:
+                    inside, count = True, count + 1
+            assert_allclose(m.topouts_per_min[b], count / minutes, rtol=1e-12)
+            assert_allclose(m.pack_down[b], travel[free].mean() - s0, rtol=1e-9)
+        # kicks: a window opens when an end past KICK_DEPTH of its travel extends
+        deep_f = (tr.front_travel[b] > KICK_DEPTH * params.front.travel[b]) & (
+            tr.front_travel_rate[b] < 0)
+        deep_r = (tr.rear_travel[b] > KICK_DEPTH * params.rear.travel[b]) & (
+            tr.rear_travel_rate[b] < 0)
+        peaks, k = [], 0
+        while k < n:
+            if deep_f[k] or deep_r[k]:
+                rate = tr.front_travel_rate[b] if deep_f[k] else tr.rear_travel_rate[b]
+                peaks.append(max(0.0, float(np.max(-rate[k + 1 : k + 1 + window]))))
+                k += window + 1
+            else:
+                k += 1
+        assert res.kick.kicks[b] == len(peaks)
+        if peaks:
+            assert_allclose(res.kick.speed_mean[b], np.mean(peaks), rtol=1e-9)
+    assert res.front.topouts_per_min.max() > 0 and res.kick.kicks.min() > 0
+    # the slower rebound returns its deep compressions more slowly
+    assert res.kick.speed_mean[1] < res.kick.speed_mean[0]

@@ -153,7 +153,8 @@ class HalfCarTraces:
 
     front/rear_tyre_load [N], front/rear_travel [m], front/rear_tyre_deflection [m],
     rider_accel (vertical, unweighted) [m/s^2], rider_accel_weighted (Wk) [m/s^2],
-    pitch [rad] (nose-up positive), pitch_rate [rad/s].
+    pitch [rad] (nose-up positive), pitch_rate [rad/s], front/rear_travel_rate (compression
+    positive) [m/s].
     """
 
     time: FloatArray
@@ -167,6 +168,8 @@ class HalfCarTraces:
     rider_accel_weighted: FloatArray
     pitch: FloatArray
     pitch_rate: FloatArray
+    front_travel_rate: FloatArray
+    rear_travel_rate: FloatArray
 
 
 @dataclass(frozen=True)
@@ -609,6 +612,15 @@ def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> HalfCa
             peak_dive_travel=np.where(n_brake > 0, acc[:, _ACC_CAR + _CAR_DIVE_TRAVEL], np.nan),
             peak_dive_pitch=np.where(n_brake > 0, acc[:, _ACC_CAR + _CAR_DIVE_PITCH], np.nan),
         )
+    # a kick window still open at the end of the run counts with what it saw
+    open_ = acc[:, _ACC_CAR + _CAR_KICK_LEFT] > 0
+    peak = acc[:, _ACC_CAR + _CAR_KICK_PEAK]
+    acc[open_, _ACC_CAR + _CAR_KICK_SUM] += peak[open_]
+    acc[open_, _ACC_CAR + _CAR_N_KICKS] += 1.0
+    acc[:, _ACC_CAR + _CAR_KICK_MAX] = np.where(
+        open_, np.maximum(acc[:, _ACC_CAR + _CAR_KICK_MAX], peak), acc[:, _ACC_CAR + _CAR_KICK_MAX]
+    )
+    acc[open_, _ACC_CAR + _CAR_KICK_LEFT] = 0.0
     n_kicks = acc[:, _ACC_CAR + _CAR_N_KICKS].copy()
     with np.errstate(invalid="ignore", divide="ignore"):
         kick = KickMetrics(
@@ -636,6 +648,8 @@ def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> HalfCa
             rider_accel_weighted=tr[:, _NOUT],
             pitch=tr[:, _O_PITCH],
             pitch_rate=tr[:, _O_PITCH_RATE],
+            front_travel_rate=tr[:, _O_RATE_F],
+            rear_travel_rate=tr[:, _O_RATE_R],
         )
     return HalfCarResult(
         front=wheels[0],
