@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -11,7 +13,7 @@ from scipy.signal import welch
 
 from tuneopt.model.course import TERRAIN_NAMES, CourseSpec
 from tuneopt.model.errors import InputError
-from tuneopt.terrain import LEAD_IN, TERRAIN_LIBRARY, build_course, wheel_inputs
+from tuneopt.terrain import LEAD_IN, TERRAIN_LIBRARY, build_course, build_segment, wheel_inputs
 from tuneopt.terrain.speed import GRIP_USE
 
 G = 9.80665
@@ -116,12 +118,15 @@ def test_speed_obeys_constant_deceleration_in_braking_zones(wet_course) -> None:
 
 
 def test_braking_and_cornering_stay_within_grip(wet_course) -> None:
-    # [D] friction circle: lateral v^2/r and braking deceleration below mu g; riders keep a
-    # margin GRIP_USE (common practice, no source)
+    # [D] friction circle: lateral v^2/r and braking deceleration below mu g, i.e. corner speed
+    # <= sqrt(mu g R); riders keep a margin of at least 1 - GRIP_USE.high (common practice, no
+    # source)
     for seg in wet_course.segments:
-        limit = GRIP_USE * seg.friction * G * (1 + 1e-9)
+        limit = GRIP_USE.high * seg.friction * G * (1 + 1e-9)
         assert np.all(seg.decel <= limit)
         assert np.all(seg.speed**2 * seg.curvature <= limit)
+        corner = seg.curvature > 0
+        assert np.all(seg.speed[corner] <= np.sqrt(seg.friction * G / seg.curvature[corner]))
 
 
 def test_braking_ends_where_the_corner_starts(wet_course) -> None:
@@ -133,10 +138,9 @@ def test_braking_ends_where_the_corner_starts(wet_course) -> None:
 
 def test_smooth_hardpack_profile_is_in_its_iso_class() -> None:
     # [S] ISO 8608 class B: Gd(n0) between 32e-6 and 128e-6 m^3; Welch one-sided [S]
-    spec = CourseSpec.model_validate(
-        {"mix": [{"terrain": "smooth_hardpack", "share": 1}], "length": "1000 m"}
-    )
-    seg = build_course(spec, seed=2).segments[0]
+    # the background alone: the type's rare G-outs are laid over it, not part of its class
+    terrain = replace(TERRAIN_LIBRARY["smooth_hardpack"], big_hits=())
+    seg = build_segment(terrain, 1000.0, 0.005, 0.8, 1.0, seed=2)
     z = seg.z[seg.x > 10.0]
     n, p = welch(z, fs=1.0 / seg.dx, nperseg=16384, scaling="density")
     inside = (n >= 0.05) & (n <= 5.0)
@@ -155,7 +159,7 @@ def test_overrides_change_the_segment() -> None:
                     base
                     | {
                         "speed": "9 km/h",
-                        "feature_height": "30 cm",
+                        "feature_height": "60 cm",  # the tallest built-in one is 45 cm
                         "friction": 0.5,
                         "roughness": "B",
                     }
@@ -204,14 +208,21 @@ def test_too_short_own_length_names_the_length() -> None:
     assert info.value.problems[0].location == "course.mix[0].length"
 
 
-def test_feature_height_on_a_type_without_features() -> None:
+def test_feature_height_scales_the_big_hits_too() -> None:
+    # smooth_hardpack has no everyday features, only rare G-outs: feature_height sets their depth
     spec = CourseSpec.model_validate(
-        {"mix": [{"terrain": "smooth_hardpack", "share": 1, "feature_height": "10 cm"}]}
+        {"mix": [{"terrain": "smooth_hardpack", "share": 1, "feature_height": "10 cm"}],
+         "length": "800 m"}
     )
-    with pytest.raises(InputError) as info:
-        build_course(spec, 0)
-    assert info.value.problems[0].location == "course.mix[0].feature_height"
-    assert "no discrete features" in info.value.problems[0].message
+    segment = build_course(spec, 0).segments[0]
+    assert segment.big_hits
+    assert all(hit.height <= 0.1 + 1e-12 for hit in segment.big_hits)
+
+
+def test_feature_height_on_a_type_without_features() -> None:
+    bare = replace(TERRAIN_LIBRARY["smooth_hardpack"], big_hits=())
+    with pytest.raises(ValueError, match="no discrete features"):
+        bare.with_feature_height(0.1)
 
 
 @pytest.mark.parametrize("seed", [-1, 1.5, True, "3"])

@@ -5,6 +5,11 @@ wheelbase plus a wheel radius), so both wheels start on level ground; the backgr
 then fades in over TAPER metres before the first feature, corner or braking zone. Each segment
 draws from its own random streams, seeded by (seed, segment index, stream), so the roughness of
 one segment does not change when another entry of the mix is edited.
+
+Big hits come first: their number is fixed by the segment's length and the type's rates (see
+tuneopt.terrain.features.lay_big_hits), so every realisation carries its share; the everyday
+features fill the stretches between them. On a wet surface the straights are ridden at the
+type's wet_speed_factor of its dry speed, unless the mix entry sets its own speed.
 """
 
 from __future__ import annotations
@@ -16,7 +21,13 @@ from numpy.typing import NDArray
 
 from tuneopt.model.course import CourseSpec, MixEntry
 from tuneopt.model.errors import FieldProblem, InputError
-from tuneopt.terrain.features import lay_braking_bumps, lay_features
+from tuneopt.terrain.features import (
+    PlacedFeature,
+    clear_stretches,
+    lay_big_hits,
+    lay_braking_bumps,
+    lay_features,
+)
 from tuneopt.terrain.library import terrain_type
 from tuneopt.terrain.parameters import Roughness, TerrainType, iso_8608_class_mean
 from tuneopt.terrain.roughness import synthesise_profile
@@ -27,7 +38,7 @@ __all__ = ["Segment", "Course", "build_course", "build_segment", "read_only", "L
 LEAD_IN = 3.0  # [m] flat and smooth start of every segment
 TAPER = 2.0  # [m] the roughness fades in over this distance after the lead-in
 
-_ROUGHNESS, _FEATURES, _CORNERS, _BUMPS = range(4)
+_ROUGHNESS, _FEATURES, _CORNERS, _BUMPS, _BIG_HITS = range(5)
 
 
 @dataclass(frozen=True)
@@ -38,8 +49,9 @@ class Segment:
     friction: tyre-ground friction coefficient [-]; dx [m]; x: (N,) distance from the segment
     start [m]; z: (N,) profile elevation [m], features included, before any wheel envelope;
     speed: (N,) riding speed [m/s] > 0; decel: (N,) braking deceleration [m/s^2] >= 0;
-    curvature: (N,) path curvature 1/radius [1/m], 0 on straights. Segments built here hold
-    read-only arrays.
+    curvature: (N,) path curvature 1/radius [1/m], 0 on straights; features: the discrete
+    features as laid, big hits marked (empty for segments not built from a terrain type).
+    Segments built here hold read-only arrays.
     """
 
     terrain: str
@@ -51,11 +63,17 @@ class Segment:
     speed: NDArray[np.float64]
     decel: NDArray[np.float64]
     curvature: NDArray[np.float64]
+    features: tuple[PlacedFeature, ...] = ()
 
     @property
     def length(self) -> float:
         """Segment length [m]."""
         return float(self.x[-1] - self.x[0])
+
+    @property
+    def big_hits(self) -> tuple[PlacedFeature, ...]:
+        """The big hits laid on this segment."""
+        return tuple(f for f in self.features if f.big)
 
 
 @dataclass(frozen=True)
@@ -82,9 +100,13 @@ def _rng(seed: int, index: int, stream: int) -> np.random.Generator:
     return np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(index, stream)))
 
 
-def _apply_overrides(terrain: TerrainType, entry: MixEntry, where: str) -> TerrainType:
+def _apply_overrides(
+    terrain: TerrainType, entry: MixEntry, where: str, surface: str = "dry"
+) -> TerrainType:
     if entry.speed is not None:
         terrain = replace(terrain, speed=entry.speed)
+    else:
+        terrain = replace(terrain, speed=terrain.straight_speed(surface))
     if isinstance(entry.roughness, str):
         terrain = replace(terrain, roughness=Roughness(iso_8608_class_mean(entry.roughness)))
     elif entry.roughness is not None:
@@ -108,7 +130,10 @@ def build_segment(
     seed: int,
     index: int = 0,
 ) -> Segment:
-    """Synthesise one segment of ``terrain`` [length m at spacing dx m] from (seed, index)."""
+    """Synthesise one segment of ``terrain`` [length m at spacing dx m] from (seed, index).
+
+    ``terrain.speed`` is ridden on the straights as given (build_course applies the surface).
+    Raises ValueError when the segment is too short for its lead-in or its big hits."""
     if length < LEAD_IN + TAPER + 1.0:
         raise ValueError(f"segment length {length} m is shorter than the lead-in and fade-in")
     n = int(round(length / dx)) + 1
@@ -119,12 +144,19 @@ def build_segment(
     fade = 0.5 - 0.5 * np.cos(np.pi * fade)
     z = synthesise_profile(n, dx, terrain.roughness, _rng(seed, index, _ROUGHNESS)) * fade
 
-    features, _ = lay_features(x, terrain.features, start, x[-1], _rng(seed, index, _FEATURES))
-    z += features
+    end = float(x[-1])
+    big_z, big = lay_big_hits(x, terrain.big_hits, start, end, _rng(seed, index, _BIG_HITS))
+    z += big_z
+    placed: list[PlacedFeature] = list(big)
+    feature_rng = _rng(seed, index, _FEATURES)
+    for a, b in clear_stretches(start, end, big):
+        everyday, laid = lay_features(x, terrain.features, a, b, feature_rng)
+        z += everyday
+        placed.extend(laid)
 
     if terrain.corners is not None:
         events = place_corners(
-            terrain.corners, terrain.speed, friction, start, x[-1], _rng(seed, index, _CORNERS)
+            terrain.corners, terrain.speed, friction, start, end, _rng(seed, index, _CORNERS)
         )
     else:
         events = ()
@@ -144,6 +176,7 @@ def build_segment(
         speed=read_only(profile.speed),
         decel=read_only(profile.decel),
         curvature=read_only(profile.curvature),
+        features=tuple(sorted(placed, key=lambda p: p.start)),
     )
 
 
@@ -161,7 +194,7 @@ def build_course(spec: CourseSpec, seed: int) -> Course:
     for i, entry in enumerate(spec.mix):
         where = f"course.mix[{i}]"
         try:
-            terrain = _apply_overrides(terrain_type(entry.terrain), entry, where)
+            terrain = _apply_overrides(terrain_type(entry.terrain), entry, where, spec.surface)
         except InputError as exc:
             problems.extend(exc.problems)
             continue
@@ -187,8 +220,12 @@ def build_course(spec: CourseSpec, seed: int) -> Course:
         plans.append((terrain, length, friction, entry.share))
     if problems:
         raise InputError(problems)
-    segments = tuple(
-        build_segment(terrain, length, spec.spacing, friction, share, seed, i)
-        for i, (terrain, length, friction, share) in enumerate(plans)
-    )
-    return Course(segments=segments, seed=seed, surface=spec.surface)
+    segments: list[Segment] = []
+    for i, (terrain, length, friction, share) in enumerate(plans):
+        try:
+            segments.append(build_segment(terrain, length, spec.spacing, friction, share, seed, i))
+        except ValueError as exc:  # big hits scaled up until they no longer fit
+            problems.append(FieldProblem(f"course.mix[{i}]", f"{terrain.name}: {exc}"))
+    if problems:
+        raise InputError(problems)
+    return Course(segments=tuple(segments), seed=seed, surface=spec.surface)

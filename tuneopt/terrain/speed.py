@@ -1,25 +1,39 @@
 """Corners, the braking before them, and the speed profile that follows.
 
-A corner of radius r is ridden at v_c = min(v0, sqrt(GRIP_USE mu g r)): the rider keeps a margin
-on the grip (common practice, no source). Before it the rider brakes at a constant deceleration
-a <= GRIP_USE mu g, so in the braking zone v^2 = v_start^2 - 2 a s; after it the speed comes back
-at ACCELERATION, v^2 = v_c^2 + 2 a_acc s. The speed at every point is the lowest of all these
-limits and v0; the deceleration reported is the one of the braking limit that binds there.
+Riders do not use the same share of the grip everywhere: for each corner a share u_c of the
+friction limit is taken from GRIP_USE, and the corner of radius r is ridden at
+v_c = min(v0, sqrt(u_c mu g r)). Before it the rider brakes at a constant deceleration
+a = min(the deceleration the rider wants, u_b mu g), with its own share u_b from GRIP_USE (the
+spread is common practice, no source), so in the braking zone v^2 = v_start^2 - 2 a s; after it
+the speed comes back at ACCELERATION, v^2 = v_c^2 + 2 a_acc s. The speed at every point is the
+lowest of all these limits and v0; the deceleration reported is the one of the braking limit
+that binds there. The grip shares run through evenly spread sequences (Spread.sequence), so a
+segment's few corners already span the range: each share is uniform and deterministic from the
+seed, and one realisation differs less from the next. A lower friction (a wet surface) lowers
+every corner speed and every grip-capped deceleration; the straights' speed v0 comes from the
+terrain type and the surface.
 """
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
 
-from tuneopt.terrain.parameters import Corners
+from tuneopt.terrain.parameters import Corners, Spread
 
 __all__ = ["CornerEvent", "SpeedProfile", "place_corners", "speed_profile", "GRIP_USE"]
 
 G = 9.80665  # [m/s^2] standard gravity
-GRIP_USE = 0.7  # share of the friction limit riders use in corners and braking (no source)
+# share of the friction limit a rider uses in one corner or one braking zone, taken for each
+# (common practice, no source)
+GRIP_USE = Spread(0.55, 0.9)
+# steps of the sequences that spread the grip shares evenly over a segment's corners and braking
+# zones: fractional parts of sqrt 2 and sqrt 3, so that the two never move in lockstep
+_CORNER_STEP = math.sqrt(2.0) - 1.0
+_BRAKE_STEP = math.sqrt(3.0) - 1.0
 ACCELERATION = 1.0  # [m/s^2] speed regained after a corner by gravity and pedalling (no source)
 
 
@@ -52,21 +66,28 @@ def place_corners(
     start: float,
     end: float,
     rng: np.random.Generator,
+    grip_use: Spread = GRIP_USE,
 ) -> tuple[CornerEvent, ...]:
-    """Corners between ``start`` and ``end`` [m] for straight speed v0 [m/s] and friction mu."""
+    """Corners between ``start`` and ``end`` [m] for straight speed v0 [m/s] and friction mu;
+    each corner and each braking zone uses a share of the friction limit taken from
+    ``grip_use``."""
     if v0 <= 0:
         raise ValueError(f"speed must be greater than 0, got {v0}")
     if friction <= 0:
         raise ValueError(f"friction must be greater than 0, got {friction}")
-    grip = GRIP_USE * friction * G
+    if not 0 < grip_use.low <= grip_use.high <= 1:
+        raise ValueError(f"grip use must lie in (0, 1], got {grip_use.low}-{grip_use.high}")
+    limit = friction * G
+    corner_use = grip_use.sequence(rng, _CORNER_STEP)
+    brake_use = grip_use.sequence(rng, _BRAKE_STEP)
     events: list[CornerEvent] = []
     pos = start
     while True:
         gap = corners.gap.draw(rng)
         radius = corners.radius.draw(rng)
         arc = corners.arc.draw(rng)
-        decel = min(corners.decel.draw(rng), grip)
-        v_corner = min(v0, float(np.sqrt(grip * radius)))
+        decel = min(corners.decel.draw(rng), next(brake_use) * limit)
+        v_corner = min(v0, float(np.sqrt(next(corner_use) * limit * radius)))
         braking = (v0 * v0 - v_corner * v_corner) / (2.0 * decel)
         brake_start = pos + gap
         entry = brake_start + braking
