@@ -18,7 +18,9 @@ from tuneopt.optimise.score import score_terms, total_score
 from tuneopt.sim.build import halfcar_params
 from tuneopt.sim.ride import prepare_scenario_course, ride_course
 
-SEEDS = (11, 12, 13)
+# ten realisations: each carries a few big hits, and a single bottom-out or top-out in one of
+# them moves a setup's mean by tenths of a point, as much as a few clicks of rebound do
+SEEDS = tuple(range(11, 21))
 
 
 def _sweep(end: str, clicks: list[int]) -> tuple[np.ndarray, dict[str, np.ndarray]]:
@@ -44,7 +46,7 @@ def test_fork_rebound_sweep_has_an_interior_best_with_a_reason_on_each_side() ->
     s = load_scenario(SCENARIOS / "trail_air.toml")
     adj = s.fork.damper.adjusters["lsr"]
     assert adj.counted_from == "closed"  # click 0 is the slowest rebound
-    clicks = [0, 5, 10, 14, adj.clicks]
+    clicks = [0, 4, 8, 12, 15, adj.clicks]
     score, terms = _sweep("fork", clicks)
     best = int(np.argmin(score))
     assert 0 < best < len(clicks) - 1, f"scores {np.round(score, 3)} over clicks {clicks}"

@@ -83,6 +83,15 @@ def test_steady_braking_dive_includes_the_brake_force_along_the_fork() -> None:
     assert_allclose(tp.front_travel[0, -1] - s0, transfer / rate, rtol=1e-4)
     # the braking term is a large part of the dive: F_b cot 65 deg against the transfer
     assert fork.pitch.peak_dive_travel[0] > 1.3 * plain.pitch.peak_dive_travel[0]
+    # on a slippery surface the tyre passes only mu F_z of brake force, and the fork term with it
+    mu = 0.2
+    slick = simulate_halfcar(replace(base, head_angle=ha),
+                             replace(road, friction=mu), trace_every=1)
+    ts = slick.traces
+    assert ts is not None
+    capped = mu * (front0[0] + transfer) * np.cos(np.radians(ha)) / np.sin(np.radians(ha))
+    assert capped < fork_term
+    assert_allclose(ts.front_travel[0, -1] - s0, (transfer + capped) / rate, rtol=1e-4)
 
 
 def test_lean_load_factor_in_a_steady_corner() -> None:

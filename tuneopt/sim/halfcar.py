@@ -23,6 +23,8 @@ enters the grip demand); the lateral force a corner demands is split like the st
 The front brake force F_b = share m_tot a also pushes along the fork axis, inclined at the head
 angle HA: F_b cos(HA) along the axis is F_b cot(HA) at the wheel's vertical travel, a
 compressing pair between the front unsprung mass (up) and the frame (down, at the front axle).
+The tyre passes at most mu times its load of brake force, so the pair fades as the front
+unloads and vanishes in the air.
 It leaves the tyre loads unchanged in steady state; the spring carries it (statics: the axial
 load is F_z sin HA + F_b cos HA). The rear brake's reaction through the linkage (brake squat or
 rise) is left out: the scenario does not give the layout it needs.
@@ -92,7 +94,8 @@ _N_AIRBORNE = 18  # samples with both tyres off the ground that make a landing [
 _N_LANDING_WINDOW = 19  # samples after touch-down watched for pitch [-]
 _FB_COT = 20  # brake_front_share * m_tot * cot(HA): fork-axis brake force per unit decel [kg]
 _N_KICK_WINDOW = 21  # samples watched for the kick after a deep compression turns [-]
-_F = 22
+_MU_COT = 22  # the road's friction coefficient times cot(HA): caps the fork-axis brake term
+_F = 23
 _R = _F + w.E_FIELDS
 _NP = _R + w.E_FIELDS
 _NS = 12
@@ -220,15 +223,18 @@ def _rhs(y, zf, zfd, zr, zrd, a, ay, p, sf, df, sr, dr, dy, out):
     s_r = p[_R + w.E_S0] + zur - (zc - xc * th)
     r_f = vuf - (vc + (lwb - xc) * om)
     r_r = vur - (vc - xc * om)
-    # the front brake's push along the fork axis acts like the spring: up on the wheel, down on
-    # the frame
-    f_f = _suspension(p, _F, s_f, r_f, sf, df) - p[_FB_COT] * a
-    f_r = _suspension(p, _R, s_r, r_r, sr, dr)
     # tyres
     d_f = p[_F + w.E_D0] + zf - zuf
     d_r = p[_R + w.E_D0] + zr - zur
     t_f = c.tyre_force(d_f, zfd - vuf, p[_F + w.E_K_T], p[_F + w.E_C_T], p[_F + w.E_D_RIM])
     t_r = c.tyre_force(d_r, zrd - vur, p[_R + w.E_K_T], p[_R + w.E_C_T], p[_R + w.E_D_RIM])
+    # the front brake's push along the fork axis acts like the spring: up on the wheel, down on
+    # the frame; the tyre passes no more brake force than mu times its load (none in the air)
+    fork_brake = p[_FB_COT] * a
+    if fork_brake > p[_MU_COT] * t_f:
+        fork_brake = p[_MU_COT] * t_f
+    f_f = _suspension(p, _F, s_f, r_f, sf, df) - fork_brake
+    f_r = _suspension(p, _R, s_r, r_r, sr, dr)
     # rider couplings (compression = frame point above its static place relative to the rider's)
     e_h = (zc + (xh - xc) * th) - (zd + (xh - xd) * ph)
     e_hd = (vc + (xh - xc) * om) - (vd + (xh - xd) * omd)
@@ -557,6 +563,8 @@ def _prepare(params: HalfCarParams, road: RoadInput, trace_every: int | None) ->
     P[:, _N_AIRBORNE] = np.ceil(AIRBORNE_MIN_TIME / road.dt - 1e-9)
     P[:, _N_LANDING_WINDOW] = np.ceil(LANDING_WINDOW / road.dt - 1e-9)
     P[:, _N_KICK_WINDOW] = np.ceil(KICK_WINDOW / road.dt - 1e-9)
+    ha = np.radians(params.head_angle)
+    P[:, _MU_COT] = road.friction * np.cos(ha) / np.sin(ha)
     bsz = P.shape[0]
     fail = np.zeros(bsz, dtype=np.int64)
     for o, wheel in ((_F, params.front), (_R, params.rear)):
