@@ -159,7 +159,7 @@ def test_overrides_change_the_segment() -> None:
                     base
                     | {
                         "speed": "9 km/h",
-                        "feature_height": "60 cm",  # the tallest built-in one is 45 cm
+                        "feature_height": "90 cm",  # the tallest built-in one is 60 cm
                         "friction": 0.5,
                         "roughness": "B",
                     }

@@ -105,7 +105,7 @@ _TYPES = (
             BigHits(FeatureKind.ROCK, height=_S(0.15, 0.25), length=_S(0.3, 0.8), every=20.0),
             BigHits(FeatureKind.STEP_DOWN, height=_S(0.18, 0.28), length=_S(0.1, 0.1),
                     every=30.0),
-            BigHits(FeatureKind.DROP, height=_S(0.25, 0.45), length=_S(1.0, 2.0), every=60.0),
+            BigHits(FeatureKind.DROP, height=_S(0.3, 0.6), length=_S(1.0, 2.0), every=60.0),
         ),
         wet_speed_factor=0.85,
     ),
