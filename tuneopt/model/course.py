@@ -13,7 +13,7 @@ Example::
     share = 0.4
     speed = "18 km/h"        # optional: riding speed on the straights
     roughness = "E"          # optional: ISO 8608 class letter, or Gd(n0) in m^3 as a number
-    feature_height = "12 cm" # optional: height of the tallest discrete feature
+    feature_height = "12 cm" # optional: height of the tallest discrete feature, big hits included
     friction = 0.35          # optional: overrides the surface's friction for this entry
     length = "200 m"         # optional: this entry's own length
 
@@ -78,7 +78,11 @@ class MixEntry(BaseModel):
         default=None, description="ISO 8608 class letter A-H, or Gd(n0) at n0 = 0.1 cycle/m [m^3]"
     )
     feature_height: Length | None = Field(
-        default=None, description="height of the tallest discrete feature; others scale with it"
+        default=None,
+        description=(
+            "height of the tallest discrete feature, big hits (drops, ledges, G-outs) included; "
+            "the others scale with it"
+        ),
     )
     friction: float | None = Field(
         default=None, description="tyre-ground friction coefficient, overrides the surface's"
