@@ -37,6 +37,12 @@ def test_a_gain_beyond_noise_is_stated_with_its_interval() -> None:
     assert any(line.startswith("Static check on setup #1: fork sag") for line in lines)
 
 
+def test_a_step_out_of_the_sag_window_is_said() -> None:
+    steps = {"fork.pressure": {"down": "outside the sag window", "up": 0.2}}
+    lines = fresh_terrain_lines(_result({}, steps))
+    assert "One step down on fork pressure leaves the sag window: set it exactly." in lines
+
+
 def test_a_gain_within_noise_says_so() -> None:
     val = {"realisations": 20, "gain": 0.004, "gain_low": -0.01, "gain_high": 0.018,
            "wins": 0.55, "within_noise": True, "bottom_out_risk": 0.1}  # fmt: skip

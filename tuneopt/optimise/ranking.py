@@ -48,7 +48,7 @@ class RankedSetup:
     range or a sag on its window's edge, by setting. ``warnings``: the static check's about this
     setup. ``steps``: the score change one robustness step down and up of every setting on the
     search's first realisations, or why there is none ("end of range", "outside the sag
-    window", "failed")."""
+    window", "failed"); ``robustness`` is the largest rise among the steps that ride."""
 
     rank: int
     trial: int
@@ -195,13 +195,13 @@ def _with_robustness(
                 entry[side] = "end of range"
                 continue
             if not o.ok:
+                # said in the step itself; the numbers stay those of the steps that ride
                 entry[side] = (
                     "outside the sag window" if o.failure.startswith("infeasible") else "failed"
                 )
-                delta = float("inf")
-            else:
-                delta = float(o.score) - float(own.score)  # type: ignore[arg-type]
-                entry[side] = delta
+                continue
+            delta = float(o.score) - float(own.score)  # type: ignore[arg-type]
+            entry[side] = delta
             worst = max(worst, delta)
             sens[name] = max(sens.get(name, 0.0), abs(delta))
         out.append(_replace(e, robustness=worst, sensitivity=sens, steps=steps))

@@ -71,6 +71,14 @@ def fresh_terrain_lines(result: dict[str, Any]) -> list[str]:
             "These settings barely matter on this course (one step either way moves the score "
             f"by less than {100 * FLAT:.1f} %, largest change shown): " + ", ".join(parts) + "."
         )
+    labels = result.get("labels", {})
+    for name, sides in best.get("steps", {}).items():
+        for side, value in sides.items():
+            if value in ("outside the sag window", "failed"):
+                what = "leaves the sag window" if value != "failed" else "could not be ridden"
+                lines.append(
+                    f"One step {side} on {labels.get(name, name)} {what}: set it exactly."
+                )
     for note in best.get("flags", {}).values():
         lines.append(f"Edge: {note}.")
     for warning in best.get("warnings", []):

@@ -390,13 +390,8 @@ def report_of(
             )
         if best.get("robustness") is not None:
             headline += (
-                f"; one step off on any setting raises its score by at most "
+                f"; one step off on any setting that stays ridable raises its score by at most "
                 f"{best['robustness']:.3f}"
-            )
-        elif best.get("sensitivity"):
-            headline += (
-                "; one step off on some setting leaves it unridable in the simulation or "
-                "outside the sag window, so dial it exactly"
             )
         headline += "."
     h_headers, h_rows = ranking_columns(result)
