@@ -129,7 +129,7 @@ def sos_step(sos, zi, x):
     return x
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def accumulate_wheel(
     acc, off, hist, k, load, travel, travel_rate, tyre_defl, full_travel, rim_defl, static_load,
     hist_low, hist_width, braking, cornering, demand, ground_load, mu, pd2, relax,

@@ -31,7 +31,7 @@ def grip_capacity(fz, fz0, mu0, pd2):
     friction coefficient mu0 at fz0 [-], load sensitivity pd2 [-]); 0 when unloaded."""
     if fz <= 0.0:
         return 0.0
-    if pd2 < 0.0:
+    if pd2 < 0.0 and fz > fz0:  # the peak lies above fz0 for -1 < pd2 < 0
         peak = 0.5 * fz0 * (1.0 - 1.0 / pd2)
         if fz > peak:
             fz = peak

@@ -143,8 +143,7 @@ _O_HAND = 9
 _O_FOOT = 10
 _O_RATE_F = 11  # travel rates (compression positive) [m/s]
 _O_RATE_R = 12
-_O_RIDER_UP = 13  # the rider's upward speed relative to the ground under the rider [m/s]
-_NOUT = 14
+_NOUT = 13
 _NTRACE = _NOUT + 1
 # A rider coupling stretched or squeezed this far has come apart [m].
 _RUNAWAY_COUPLING = 0.5
@@ -242,7 +241,8 @@ def _rhs(y, zf, zfd, zr, zrd, a, ay, p, sf, df, sr, dr, dy, out):
     e_ftd = (vc + (xft - xc) * om) - (vd + (xft - xd) * omd)
     f_h = p[_F_H0] + p[_K_A] * e_h + p[_C_A] * e_hd
     f_ft = p[_F_FT0] + p[_K_L] * e_ft + p[_C_L] * e_ftd
-    g = np.sqrt(c.GRAVITY * c.GRAVITY + ay * ay)  # effective gravity in the leaned bike's plane
+    # effective gravity in the leaned bike's plane
+    g = c.GRAVITY if ay == 0.0 else np.sqrt(c.GRAVITY * c.GRAVITY + ay * ay)
     a_d = (f_h + f_ft) * p[_INV_M_D] - g
     for i in range(6):
         dy[i] = y[6 + i]
@@ -266,7 +266,6 @@ def _rhs(y, zf, zfd, zr, zrd, a, ay, p, sf, df, sr, dr, dy, out):
     out[_O_FOOT] = e_ft
     out[_O_RATE_F] = r_f
     out[_O_RATE_R] = r_r
-    out[_O_RIDER_UP] = vd - (zrd + (zfd - zrd) * xd / lwb)
 
 
 @njit(cache=True)
@@ -282,6 +281,16 @@ def _is_runaway(p, out):
     return abs(out[_O_HAND]) > _RUNAWAY_COUPLING or abs(out[_O_FOOT]) > _RUNAWAY_COUPLING
 
 
+@njit(cache=True, inline="always")
+def _demand(fx, fy):
+    """Force asked along the ground [N] from its braking and lateral parts (friction circle)."""
+    if fx == 0.0:
+        return abs(fy)
+    if fy == 0.0:
+        return abs(fx)
+    return np.sqrt(fx * fx + fy * fy)
+
+
 @njit(cache=True)
 def _record(k, y, dy, out, zf, zr, a, ay, mu, relax_f, relax_r, p, acc, hist_f, hist_r, sos, zi,
             trace, every):
@@ -295,15 +304,15 @@ def _record(k, y, dy, out, zf, zr, a, ay, mu, relax_f, relax_r, p, acc, hist_f, 
     cornering = ay > c.CORNERING_THRESHOLD
     m_tot = p[_M_TOT]
     # the tyre forces lie in the leaned bike's plane; the ground-normal share is cos(lean)
-    upright = c.GRAVITY / np.sqrt(c.GRAVITY * c.GRAVITY + ay * ay)
-    demand = np.hypot(p[_F + w.E_BRAKE_SHARE] * m_tot * a, p[_F + w.E_LAT_SHARE] * m_tot * ay)
+    upright = 1.0 if ay == 0.0 else c.GRAVITY / np.sqrt(c.GRAVITY * c.GRAVITY + ay * ay)
+    demand = _demand(p[_F + w.E_BRAKE_SHARE] * m_tot * a, p[_F + w.E_LAT_SHARE] * m_tot * ay)
     c.accumulate_wheel(
         acc, _ACC_F, hist_f, k, out[_O_LOAD_F], out[_O_TRAVEL_F], out[_O_RATE_F], out[_O_DEFL_F],
         p[_F + w.E_TRAVEL], p[_F + w.E_D_RIM], p[_F + w.E_F_STATIC], c.HIST_LOW,
         p[_F + w.E_HIST_W], braking, cornering, demand, out[_O_LOAD_F] * upright, mu,
         p[_F + w.E_PD2], relax_f,
     )
-    demand = np.hypot(p[_R + w.E_BRAKE_SHARE] * m_tot * a, p[_R + w.E_LAT_SHARE] * m_tot * ay)
+    demand = _demand(p[_R + w.E_BRAKE_SHARE] * m_tot * a, p[_R + w.E_LAT_SHARE] * m_tot * ay)
     c.accumulate_wheel(
         acc, _ACC_R, hist_r, k, out[_O_LOAD_R], out[_O_TRAVEL_R], out[_O_RATE_R], out[_O_DEFL_R],
         p[_R + w.E_TRAVEL], p[_R + w.E_D_RIM], p[_R + w.E_F_STATIC], c.HIST_LOW,
