@@ -42,3 +42,10 @@ def test_tradeoff_sentence_when_the_winner_had_none() -> None:
         3, {"bottom_outs": 0.2, "pitch": 0.8}, {"bottom_outs": 0.0, "pitch": 1.0}
     )
     assert text == "3rd is 20% calmer on pitch motion but has bottom-outs where the winner has none"
+
+
+def test_every_score_term_reads_in_a_sentence() -> None:
+    from tuneopt.optimise.ranking import _WORDS
+    from tuneopt.optimise.score import TERMS
+
+    assert set(_WORDS) == set(TERMS)

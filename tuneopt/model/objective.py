@@ -114,8 +114,12 @@ class Search(Strict):
     front_tyre_pressure: PressureRange | None = None
     rear_tyre_pressure: PressureRange | None = None
     tyre_pressures: bool = Field(False, description="search tyre pressures too")
-    fork_sag: SagWindow | None = SagWindow(low=12, high=35)
-    shock_sag: SagWindow | None = SagWindow(low=20, high=40)
+    fork_sag: SagWindow | None = Field(
+        None, description="default: the usual range for the bike's kind, holding the current sag"
+    )
+    shock_sag: SagWindow | None = Field(
+        None, description="default: the usual range for the bike's kind, holding the current sag"
+    )
     # lower bounds keep the number of dialable values finite (0.1 psi; 0.01 bar)
     # 1 psi to the last bit as the unit library converts it, so that k steps equal "k psi"
     # exactly: a step a hair short put the grid's first value one psi above a whole-psi

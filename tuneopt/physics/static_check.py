@@ -10,6 +10,7 @@ import numpy as np
 from tuneopt.model import InputError, Scenario, Setup
 from tuneopt.physics.hardware import SuspensionEnd, front_end, rear_end, tyre_stiffness
 from tuneopt.physics.layout import Layout, layout
+from tuneopt.physics.practice import bike_kind, usual_sag
 from tuneopt.physics.statics import (
     GRAVITY,
     bounce_pitch_modes,
@@ -236,8 +237,10 @@ def _findings(
     def warn(loc: str, msg: str, basis: str = COMMON_PRACTICE) -> None:
         out.append(Finding("warning", loc, msg, basis))
 
-    for end, where, lo, hi in ((fs, "setup.fork", 15, 25), (rs, "setup.shock", 25, 35)):
+    usual_f, usual_r = usual_sag(scenario.fork.travel)
+    for end, where, usual in ((fs, "setup.fork", usual_f), (rs, "setup.shock", usual_r)):
         sag = end.sag_percent
+        lo, hi = f"{usual.low:.0f}", f"{usual.high:.0f}"
         if sag > 60:
             out.append(
                 Finding(
@@ -248,8 +251,12 @@ def _findings(
                     "follows from the travel",
                 )
             )
-        elif not lo <= sag <= hi:
-            warn(where, f"sag {sag:.0f} % of stroke is outside the usual {lo}-{hi} %")
+        elif not usual.low <= sag <= usual.high:
+            warn(
+                where,
+                f"sag {sag:.0f} % of stroke is outside the usual {lo}-{hi} % for a "
+                f"{bike_kind(scenario.fork.travel)} bike",
+            )
     if not 2.0 <= rs.leverage_at_sag <= 3.5:
         warn("shock.leverage", f"leverage ratio {rs.leverage_at_sag:.2f} at sag is outside 2.0-3.5")
     ha = scenario.bike.head_angle
