@@ -68,3 +68,45 @@ def test_dry_against_wet_page(dry_run: Path, wet_run: Path, tmp_path: Path) -> N
     )
     assert page.figures == ["Scores on both courses"]
     assert "http:" not in html and "https:" not in html
+
+
+def test_each_differing_setting_names_the_term_that_drives_it(dry_run: Path) -> None:
+    """The reason's number is the paired score change of swapping that one setting, checked by
+    riding the swapped setup again; the term named is the weighted term that grew most."""
+    from tuneopt.optimise.compare import TERM_NAMES, _reason, _swap_costs, _weighted
+    from tuneopt.optimise.evaluate import Evaluator
+    from tuneopt.optimise.local import load_run
+    from tuneopt.optimise.space import build_space
+
+    run = load_run(dry_run)
+    best = json.loads((dry_run / "result.json").read_text())["ranked"][0]
+    space = build_space(run.scenario)
+    winner = space.setup(best["indices"])
+    key = "fork.lsr"
+    other = dict(best["indices"])
+    other[key] = 0 if other[key] > 0 else len(space[key].values) - 1
+    other_value = space[key].values[other[key]]
+    ev = Evaluator(run.scenario, run.plan.seed, run.realisations)
+    own, swapped = ev.evaluate([winner, space.setup(other)])
+    assert own.ok and swapped.ok
+    costs = _swap_costs(ev, run.scenario, winner, {key: other_value}, own)
+    total, term, delta = costs[key]  # type: ignore[misc]
+    assert total == pytest.approx(float(swapped.score) - float(own.score), abs=1e-12)  # type: ignore[arg-type]
+    grown = {
+        t: v - _weighted(own, run.scenario)[t] for t, v in _weighted(swapped, run.scenario).items()
+    }
+    assert term == max(grown, key=lambda t: grown[t])
+    assert delta == pytest.approx(grown[term])
+    text = _reason("0", "9", costs[key], costs[key])
+    if total > 0:
+        assert TERM_NAMES[term] in text
+    assert text.startswith("on B's course 0 ")
+    assert compare_runs_reasons_cover_differences(dry_run)
+
+
+def compare_runs_reasons_cover_differences(run: Path) -> bool:
+    """Comparing a run with itself: no setting differs, so nothing needs a reason."""
+    from tuneopt.optimise.compare import compare_runs
+
+    c = compare_runs(run, run)
+    return not c.differences and not c.reasons

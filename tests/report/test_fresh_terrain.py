@@ -60,3 +60,11 @@ def test_flat_settings_are_those_both_steps_barely_move() -> None:
     flat = flat_settings(_result({}, steps))
     assert list(flat) == ["fork.lsc"]
     assert flat["fork.lsc"] == 0.5 * FLAT
+
+
+def test_a_winner_that_is_the_current_setup_says_so() -> None:
+    result = _result({"realisations": 20, "gain": 0.0, "gain_low": 0.0, "gain_high": 0.0,
+                      "wins": 0.0, "within_noise": True, "bottom_out_risk": 0.0}, {})  # fmt: skip
+    result["ranked"][0]["settings"] = {"fork.lsc": "4"}
+    result["baseline"]["settings"] = {"fork.lsc": "4"}
+    assert "setup #1 is the current setup" in fresh_terrain_lines(result)[0]

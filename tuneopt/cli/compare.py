@@ -70,6 +70,10 @@ def run(args: argparse.Namespace) -> int:
     t.add_row("score on B's course", fmt("a_on_b"), fmt("b_on_b"))
     console.print(t)
     console.print("* differs between the winners. Lower scores are better.")
+    if c.reasons:
+        console.print("Why each differing setting differs (one setting swapped, same terrain):")
+        for key, why in c.reasons.items():
+            console.print(f"  {escape(key)}: {escape(why)}")
     for caution in CAUTIONS:
         console.print(f"[dim]- {caution}[/]")
     if args.out is not None:

@@ -134,6 +134,8 @@ def comparison_page(a: Path, b: Path) -> str:
             )
     for key, why in c.failures.items():
         sentences.append(f"{key.replace('_', ' ')}: {why}")
+    for key, why in c.reasons.items():
+        sentences.append(f"Why {labels.get(key, key)} differs: {why}.")
     wa, wb = ra["ranked"][0]["metrics"], rb["ranked"][0]["metrics"]
     metric_rows = []
     for key, label, scale, fmt in HEADLINE_METRICS:

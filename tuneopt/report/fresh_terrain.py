@@ -29,7 +29,13 @@ def fresh_terrain_lines(result: dict[str, Any]) -> list[str]:
     val = best.get("validation") or {}
     lines: list[str] = []
     n = val.get("realisations")
-    if n and "gain" in val:
+    now = (result.get("baseline") or {}).get("settings")
+    if best.get("baseline") or (now is not None and best.get("settings") == now):
+        lines.append(
+            "The search found no setup better than the current one on fresh terrain: setup #1 "
+            "is the current setup."
+        )
+    elif n and "gain" in val:
         wins = round(val["wins"] * n)
         if val["within_noise"]:
             lines.append(
