@@ -92,17 +92,13 @@ def init_wheel_acc(acc: np.ndarray, off: int) -> None:
 @njit(cache=True, inline="always")
 def table_value(row, x0, inv_dx, x):
     """Linear interpolation on a uniform grid (start x0, 1/spacing inv_dx), extrapolated with the
-    end slopes."""
-    if x != x:
-        return np.nan
+    end slopes; NaN for NaN (no early exit: the clamps send NaN to the first interval and f
+    carries it)."""
     u = (x - x0) * inv_dx
-    n = row.shape[0]
-    if u < 0.0:
-        i = 0
-    elif u > n - 2.0:
-        i = n - 2
-    else:
-        i = int(u)
+    top = row.shape[0] - 2.0
+    v = u if u > 0.0 else 0.0
+    v = v if v < top else top
+    i = int(v)
     f = u - i
     return row[i] + f * (row[i + 1] - row[i])
 
@@ -223,7 +219,7 @@ def close_wheel(acc, off):
             acc[off + W_BOTTOM_MAX] = acc[off + W_EVENT_MAX]
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def accumulate_vibration(acc, off, sos, zi, accel):
     """Weight one acceleration sample [m/s^2] and add it; returns the weighted value."""
     aw = sos_step(sos, zi, accel)

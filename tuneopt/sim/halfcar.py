@@ -268,7 +268,7 @@ def _rhs(y, zf, zfd, zr, zrd, a, ay, p, sf, df, sr, dr, dy, out):
     out[_O_RATE_R] = r_r
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _is_runaway(p, out):
     for o, ch_s, ch_d in ((_F, _O_TRAVEL_F, _O_DEFL_F), (_R, _O_TRAVEL_R, _O_DEFL_R)):
         s = out[ch_s]
@@ -291,7 +291,7 @@ def _demand(fx, fy):
     return np.sqrt(fx * fx + fy * fy)
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _record(k, y, dy, out, zf, zr, a, ay, mu, relax_f, relax_r, p, acc, hist_f, hist_r, sos, zi,
             trace, every):
     """Checks, metric accumulation and trace for sample k (derivative and outputs given)."""

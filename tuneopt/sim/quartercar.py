@@ -116,7 +116,7 @@ def _rhs(y, zr, zrd, p, spring, damper, dy, out):
     out[_O_ACCEL] = a_s
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _record(k, y, dy, out, p, acc, hist, sos, zi, trace, every):
     """Checks, metric accumulation and trace for sample k (derivative and outputs given)."""
     for i in range(4):
