@@ -47,3 +47,17 @@ def test_bad_quantities_say_why(adapter: object, value: object, fragment: str) -
 
 def test_convert_shows_trade_units() -> None:
     assert_allclose(convert(586054.37, "Pa", "psi"), 85.0, rtol=1e-6)
+
+
+def test_a_decimal_comma_is_refused_not_read_as_thousands() -> None:
+    # the unit library alone reads "1,8 bar" as 18 bar [D: 1.8 bar = 180 kPa by definition]
+    with pytest.raises(ValueError, match="decimals with a point"):
+        parse_quantity("1,8 bar", "Pa")
+    assert parse_quantity("1.8 bar", "Pa") == pytest.approx(180_000.0)
+
+
+def test_grams_for_a_deceleration_get_a_hint() -> None:
+    with pytest.raises(ValueError, match="g0"):
+        parse_quantity("0.6 g", "m/s**2")
+    # standard gravity 9.80665 m/s^2 (CGPM 1901) [S]
+    assert parse_quantity("0.6 g0", "m/s**2") == pytest.approx(0.6 * 9.80665)

@@ -63,6 +63,12 @@ def parse_quantity(value: Any, si_unit: str, *, bare_unit: str | None = None) ->
         text = value.strip()
         if not text:
             raise ValueError("empty quantity")
+        if "," in text:
+            # the unit library reads "1,8 bar" as 18 bar (a thousands separator): refuse it
+            raise ValueError(
+                f"{value!r}: write decimals with a point, as in '1.8 bar'; a comma is not "
+                "read as a decimal mark"
+            )
         try:
             q = reg.Quantity(text)
         except (pint.errors.UndefinedUnitError, pint.errors.DefinitionSyntaxError) as exc:
@@ -74,8 +80,12 @@ def parse_quantity(value: Any, si_unit: str, *, bare_unit: str | None = None) ->
         try:
             number = float(q.to(si_unit).magnitude)
         except pint.errors.DimensionalityError:
+            hint = ""
+            if si_unit == "m/s**2" and str(q.units) == "gram":
+                hint = " ('g' is grams here; write standard gravity as 'g0', e.g. '0.6 g0')"
             raise ValueError(
                 f"{value!r} has units of {q.dimensionality}, expected a quantity in {si_unit}"
+                + hint
             ) from None
     else:
         raise ValueError(f"expected a number or a quantity with a unit, got {type(value).__name__}")
