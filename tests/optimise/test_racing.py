@@ -175,3 +175,12 @@ def test_ranking_comes_from_the_fresh_realisations(
     for e in ranking.ranked:
         assert set(e.steps) == set(space.names)  # every setting has both steps or a reason
         assert all(set(v) == {"down", "up"} for v in e.steps.values())
+
+
+def test_realisations_built_on_the_way_score_as_kept_ones(small_scenario: Scenario) -> None:
+    kept = Evaluator(small_scenario, realisations=3)
+    lazy = Evaluator(small_scenario, realisations=3, keep_courses=False)
+    setups = [small_scenario.setup]
+    a, b = kept.evaluate(setups)[0], lazy.evaluate(setups)[0]
+    assert a.scores == b.scores
+    assert kept.simulated_seconds == lazy.simulated_seconds

@@ -15,7 +15,7 @@ setup dropped after three easy realisations is not scored as if the course were 
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -118,6 +118,7 @@ class Evaluator:
         dt: float = 1e-3,
         *,
         seeds: Sequence[int] | None = None,
+        keep_courses: bool = True,
     ):
         if scenario.course is None:
             raise InputError.single("course", "missing: the optimiser needs a terrain mix")
@@ -132,8 +133,12 @@ class Evaluator:
         self.seeds: tuple[int, ...] = tuple(int(s) for s in seeds)
         self.seed = self.seeds[0]
         self.dt = dt
-        self.courses: tuple[PreparedCourse, ...] = tuple(
-            prepare_scenario_course(scenario, s, dt) for s in self.seeds
+        # kept, every batch rides them; an evaluator used once (the validation's) builds each
+        # when it rides it and lets it go, so 24 long realisations never sit in memory at once
+        self._kept: tuple[PreparedCourse, ...] | None = (
+            tuple(prepare_scenario_course(scenario, s, dt) for s in self.seeds)
+            if keep_courses
+            else None
         )
         self.windows = sag_windows(scenario)
 
@@ -141,13 +146,23 @@ class Evaluator:
         """An evaluator over this one's first ``n`` realisations (the courses are shared)."""
         other = object.__new__(Evaluator)
         other.scenario, other.dt = self.scenario, self.dt
-        other.seeds, other.courses = self.seeds[:n], self.courses[:n]
+        other.seeds = self.seeds[:n]
+        other._kept = None if self._kept is None else self._kept[:n]
         other.seed, other.windows = self.seed, self.windows
         return other
 
     @property
+    def courses(self) -> Iterator[PreparedCourse]:
+        """The realisations in order (built on the way when they are not kept)."""
+        if self._kept is not None:
+            yield from self._kept
+            return
+        for s in self.seeds:
+            yield prepare_scenario_course(self.scenario, s, self.dt)
+
+    @property
     def realisations(self) -> int:
-        return len(self.courses)
+        return len(self.seeds)
 
     @property
     def simulated_seconds(self) -> float:

@@ -44,7 +44,12 @@ def validation_seeds(study_seed: int, count: int) -> tuple[int, ...]:
 
 def validation_evaluator(search: Evaluator, count: int = DEFAULT_VALIDATION) -> Evaluator:
     """An evaluator for the same scenario over ``count`` fresh realisations."""
-    return Evaluator(search.scenario, seeds=validation_seeds(search.seed, count), dt=search.dt)
+    return Evaluator(
+        search.scenario,
+        seeds=validation_seeds(search.seed, count),
+        dt=search.dt,
+        keep_courses=False,
+    )
 
 
 @dataclass(frozen=True)
