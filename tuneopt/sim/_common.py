@@ -8,11 +8,20 @@ reference (fed with the reference's states at the same sample times).
 
 from __future__ import annotations
 
+from collections.abc import Iterator
+from contextlib import contextmanager
+
+import numba
 import numpy as np
 from numba import njit
 
 from tuneopt.physics.statics import GRAVITY as GRAVITY  # one value of g everywhere
 from tuneopt.sim.grip import grip_capacity
+
+# Floating-point freedoms the RK4 kernels compile with (fused multiply-add, reassociation,
+# reciprocals; results move by rounding only). Never the no-NaN or no-Inf assumptions: the
+# failure checks test for them.
+FAST = {"nsz", "arcp", "contract", "reassoc"}
 
 # Rim strike: beyond rim_strike_deflection the tyre stiffens by this factor times its own rate.
 # Stiff enough to stop the rim within millimetres, soft enough for RK4 at a 1 ms step with
@@ -79,6 +88,18 @@ V_SUM_AW2 = 0
 V_SUM_AW4 = 1
 V_MAX_AW = 2
 V_FIELDS = 3
+
+
+@contextmanager
+def kernel_threads(batch: int) -> Iterator[None]:
+    """Run a batch kernel on no more threads than setups: a thread left without a setup waits
+    for the others spinning, and burns CPU for nothing."""
+    threads = numba.get_num_threads()
+    numba.set_num_threads(max(1, min(batch, threads)))
+    try:
+        yield
+    finally:
+        numba.set_num_threads(threads)
 
 
 def init_wheel_acc(acc: np.ndarray, off: int) -> None:

@@ -398,7 +398,7 @@ def _initial_state(p, zf0, zr0):
     return y
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, fastmath=c.FAST)
 def _run(P, sfs, dfs, srs, drs, zf, zfd, zr, zrd, dec, lat, mu, relax_f, relax_r, dt, sos, acc,
          hist, fail, trace, every):
     n = zf.shape[0]
@@ -703,9 +703,10 @@ def simulate_halfcar(
     trace_every: keep time series every that many samples (None: metrics only).
     """
     prep = _prepare(params, road, trace_every)
-    _run(prep.P, *prep.tables, road.front_z, road.front_zdot, road.rear_z, road.rear_zdot,
-         road.decel, road.lateral_accel, road.friction, prep.relax_f, prep.relax_r, road.dt,
-         prep.sos, prep.acc, prep.hist, prep.fail, prep.trace, prep.every)
+    with c.kernel_threads(prep.P.shape[0]):
+        _run(prep.P, *prep.tables, road.front_z, road.front_zdot, road.rear_z, road.rear_zdot,
+             road.decel, road.lateral_accel, road.friction, prep.relax_f, prep.relax_r, road.dt,
+             prep.sos, prep.acc, prep.hist, prep.fail, prep.trace, prep.every)
     return _finish(prep, road, trace_every)
 
 

@@ -151,7 +151,7 @@ def _sample(k, y, zr, zrd, p, spring, damper, dy, out, acc, hist, sos, zi, trace
     return _record(k, y, dy, out, p, acc, hist, sos, zi, trace, every)
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, fastmath=c.FAST)
 def _run(P, springs, dampers, zr, zrd, dt, sos, acc, hist, fail, trace, every):
     n = zr.shape[0]
     for b in prange(P.shape[0]):
@@ -319,8 +319,9 @@ def simulate_quartercar(
     trace_every: keep time series every that many samples (None: metrics only).
     """
     prep = _prepare(params, road, trace_every)
-    _run(prep.P, prep.springs, prep.dampers, road.front_z, road.front_zdot, road.dt, prep.sos,
-         prep.acc, prep.hist, prep.fail, prep.trace, prep.every)
+    with c.kernel_threads(prep.P.shape[0]):
+        _run(prep.P, prep.springs, prep.dampers, road.front_z, road.front_zdot, road.dt,
+             prep.sos, prep.acc, prep.hist, prep.fail, prep.trace, prep.every)
     return _finish(prep, road, trace_every)
 
 
