@@ -184,3 +184,35 @@ def test_untagged_running_trials_are_reaped_once_old() -> None:
     assert reap_stale_trials(study, owner_prefix="host:1:") == 0  # young: maybe still tagging
     assert reap_stale_trials(study, owner_prefix="host:1:", untagged_after=0.0) == 1
     assert [t.state for t in study.trials] == [TrialState.FAIL, TrialState.WAITING]
+
+
+def test_shards_asking_at_once_never_pass_the_budget(tmp_path: Path) -> None:
+    """Two shards in threads on one journal, each with a batch as large as the budget: under
+    the shared ask lock they finish exactly the budget (without it both asked a full batch)."""
+    import threading
+    import time as _time
+
+    from tuneopt.optimise.local import _ask_lock
+
+    storage = _journal(tmp_path / "j.log")
+    plan = StudyPlan("s", trials=12, batch_size=12, seed=1)
+    dists = {"x": IntDistribution(0, 9)}
+    optuna.create_study(storage=storage, study_name="s")
+    barrier = threading.Barrier(2)
+
+    def slow(points: list[dict[str, int]]) -> list[Outcome]:
+        _time.sleep(0.2)  # both shards are inside their first batch at the same time
+        return [Outcome(float(p["x"])) for p in points]
+
+    def shard(k: int) -> None:
+        study = optuna.load_study(study_name="s", storage=storage)
+        barrier.wait()
+        run_shard(study, plan, dists, slow, k, ask_lock=lambda: _ask_lock(tmp_path))
+
+    threads = [threading.Thread(target=shard, args=(k,)) for k in range(2)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    study = optuna.load_study(study_name="s", storage=storage)
+    assert len(study.get_trials(states=(TrialState.COMPLETE,))) == 12

@@ -132,11 +132,30 @@ def _exclusive(out: Path) -> Iterator[None]:
             fcntl.flock(handle, fcntl.LOCK_UN)
 
 
+@contextmanager
+def _ask_lock(out: Path) -> Iterator[None]:
+    """The run's shards take turns to count trials and ask a batch (the budget is kept)."""
+    with open(out / "ask.lock", "a+") as handle:
+        fcntl.flock(handle, fcntl.LOCK_EX)
+        try:
+            yield
+        finally:
+            fcntl.flock(handle, fcntl.LOCK_UN)
+
+
 def _shard_process(run: LocalRun, shard: int, stop: Any) -> int:
     space = build_space(run.scenario)
     evaluator = Evaluator(run.scenario, run.plan.seed, run.realisations)
     study = optuna.load_study(study_name=run.plan.name, storage=run.storage())
-    return run_shard(study, run.plan, space, evaluator, shard, should_stop=stop.is_set)
+    return run_shard(
+        study,
+        run.plan,
+        space,
+        evaluator,
+        shard,
+        should_stop=stop.is_set,
+        ask_lock=lambda: _ask_lock(run.out),
+    )
 
 
 def run_local(

@@ -18,7 +18,9 @@ import os
 import socket
 import time
 from collections.abc import Callable
+from contextlib import AbstractContextManager, nullcontext
 from dataclasses import dataclass
+from typing import Any
 
 import optuna
 from optuna.distributions import BaseDistribution, IntDistribution
@@ -264,12 +266,15 @@ def run_shard(
     should_stop: Callable[[], bool] = lambda: False,
     on_batch: Callable[[Progress], None] | None = None,
     clock: Callable[[], float] = time.time,
+    ask_lock: Callable[[], AbstractContextManager[Any]] | None = None,
 ) -> int:
     """Ask, evaluate and tell batches until the budget, the deadline or ``should_stop()``.
 
     ``space`` is a scenario's search space (then ``evaluate`` is its Evaluator), or plain
-    optuna distributions with a function scoring a list of points. Returns the number of trials
-    this shard finished."""
+    optuna distributions with a function scoring a list of points. ``ask_lock`` makes a lock
+    that the shards of one study share: counting the trials and asking the next batch happen
+    under it, so shards asking at the same moment never ask past the budget. Returns the number
+    of trials this shard finished."""
     owner = f"{socket.gethostname()}:{os.getpid()}:{shard}"
     realisations = 0
     if isinstance(space, SearchSpace):
@@ -288,15 +293,18 @@ def run_shard(
         now = clock()
         if plan.deadline is not None and now >= plan.deadline:
             break
-        trials = study.get_trials(deepcopy=False)
-        finished = sum(_is_finished(t) for t in trials)
-        running = sum(t.state == TrialState.RUNNING for t in trials)
-        size = plan.batch_size
-        if plan.trials is not None:
-            size = min(size, plan.trials - finished - running)
-            if size <= 0:
-                break
-        batch = ask_batch(study, plan, dists, shard, size, finished, owner)
+        with ask_lock() if ask_lock is not None else nullcontext():
+            trials = study.get_trials(deepcopy=False)
+            finished = sum(_is_finished(t) for t in trials)
+            running = sum(t.state == TrialState.RUNNING for t in trials)
+            size = plan.batch_size
+            if plan.trials is not None:
+                size = min(size, plan.trials - finished - running)
+            batch = (
+                ask_batch(study, plan, dists, shard, size, finished, owner) if size > 0 else []
+            )
+        if not batch:
+            break
         points = [{k: int(v) for k, v in t.params.items()} for t in batch]
         if realisations:
             outcomes = evaluate_points(points, leader_scores(trials, realisations))

@@ -117,6 +117,21 @@ def enqueue_start(queue: Queue, job_id: str, retries: int, pipeline: Pipeline | 
     )
 
 
+# Counting a job's trials and asking the next batch is a short step (well under a second);
+# a lock left by a killed worker lapses after this long [s].
+ASK_LOCK_SECONDS = 10
+
+
+def _ask_lock(store: JobStore, job_id: str) -> Any:
+    """The lock a job's shards share while they count trials and ask a batch, so that shards
+    asking at the same moment never ask past the budget."""
+    return store.redis.lock(
+        f"{store.study_prefix(job_id)}:ask-lock",
+        timeout=ASK_LOCK_SECONDS,
+        blocking_timeout=3 * ASK_LOCK_SECONDS,
+    )
+
+
 def _plan(job_id: str, request: dict[str, Any], deadline: float) -> StudyPlan:
     return StudyPlan(
         name=job_id,
@@ -233,6 +248,7 @@ def run_shard_job(job_id: str, shard: int) -> int:
             shard,
             should_stop=lambda: _stopping.is_set() or store.should_stop(job_id),
             on_batch=report,
+            ask_lock=lambda: _ask_lock(store, job_id),
         )
         if not store.exists(job_id):  # purged while this shard ran: what its last batch
             delete_study_keys(store.redis, store.study_prefix(job_id))  # wrote goes too
@@ -297,6 +313,7 @@ def finalise_job(job_id: str) -> str:
                 evaluator,
                 int(request["shards"]),
                 should_stop=lambda: store.is_cancel_requested(job_id),
+                ask_lock=lambda: _ask_lock(store, job_id),
             )
         except Exception as exc:  # rank what finished rather than lose it
             store.add_error(job_id, f"finaliser: {type(exc).__name__}: {exc}")
