@@ -7,14 +7,15 @@ and turns pydantic's errors into :class:`InputError`.
 from __future__ import annotations
 
 import csv
+import difflib
 import io
 import json
 import math
 import tomllib
 from pathlib import Path
-from typing import Any
+from typing import Any, get_args
 
-from pydantic import ValidationError
+from pydantic import BaseModel, ValidationError
 
 from tuneopt.model._quantity import parse_quantity
 from tuneopt.model.errors import FieldProblem, InputError
@@ -64,14 +65,43 @@ def _location(loc: tuple[Any, ...]) -> str:
     return ".".join(parts).replace(".[", "[")
 
 
-def problems_from_validation(exc: ValidationError, prefix: str = "") -> list[FieldProblem]:
-    """Turn a pydantic ValidationError into field problems, one per field, deduplicated."""
+def _fields_at(root: type[BaseModel], path: tuple[Any, ...]) -> set[str]:
+    """The field names a model accepts at ``path`` below ``root`` (empty when unknown)."""
+    models: list[type[BaseModel]] = [root]
+    for part in path:
+        if isinstance(part, int) or part in _UNION_TAGS:
+            continue
+        nxt: list[type[BaseModel]] = []
+        for m in models:
+            f = m.model_fields.get(str(part))
+            if f is not None:
+                nxt.extend(_models_in(f.annotation))
+        models = nxt
+    return {name for m in models for name in m.model_fields}
+
+
+def _models_in(annotation: Any) -> list[type[BaseModel]]:
+    if isinstance(annotation, type) and issubclass(annotation, BaseModel):
+        return [annotation]
+    return [m for arg in get_args(annotation) for m in _models_in(arg)]
+
+
+def problems_from_validation(
+    exc: ValidationError, prefix: str = "", root: type[BaseModel] | None = None
+) -> list[FieldProblem]:
+    """Turn a pydantic ValidationError into field problems, one per field, deduplicated. With
+    the ``root`` model, an unknown field names the nearest known one ("did you mean 'mass'?")."""
     seen: dict[str, str] = {}
     for err in exc.errors(include_url=False):
         loc = _location(tuple(err["loc"]))
         if prefix:
             loc = f"{prefix}.{loc}" if loc else prefix
         msg = _MESSAGES.get(err["type"], err["msg"])
+        if err["type"] == "extra_forbidden" and root is not None and err["loc"]:
+            known = _fields_at(root, tuple(err["loc"][:-1]))
+            close = difflib.get_close_matches(str(err["loc"][-1]), sorted(known), n=1)
+            if close:
+                msg = f"unknown field; did you mean {close[0]!r}?"
         if msg.startswith("Value error, "):
             msg = msg[len("Value error, ") :]
         if err["type"] in ("float_type", "float_parsing") and "input" in err:
@@ -237,7 +267,7 @@ def scenario_from_data(
     try:
         scenario = Scenario.model_validate(data)
     except ValidationError as exc:
-        raise InputError(problems_from_validation(exc), source) from None
+        raise InputError(problems_from_validation(exc, root=Scenario), source) from None
     problems = setup_problems(scenario, scenario.setup)
     if problems:
         raise InputError(problems, source)
