@@ -138,7 +138,6 @@ def run(args: argparse.Namespace) -> int:
     from tuneopt.optimise.evaluate import DEFAULT_REALISATIONS
     from tuneopt.optimise.runner import SAMPLERS
     from tuneopt.optimise.validation import DEFAULT_VALIDATION
-    from tuneopt.report.fresh_terrain import fresh_terrain_lines
     from tuneopt.report.ranked_table import print_ranking
     from tuneopt.report.run_report import write_run_report
 
@@ -207,8 +206,6 @@ def run(args: argparse.Namespace) -> int:
             return 130
     data = json.loads((local.out / "result.json").read_text())
     print_ranking(data)
-    for line in fresh_terrain_lines(data):
-        print(line)
     print(f"result: {local.out / 'result.json'} and {local.out / 'ranked.csv'}")
     print(f"report: {write_run_report(local.out)}")
     return 0

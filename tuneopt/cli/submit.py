@@ -143,7 +143,6 @@ def _wait(api: str, job: str) -> dict[str, Any]:
 
 
 def _show_result(api: str, job: str, as_json: bool) -> None:
-    from tuneopt.report.fresh_terrain import fresh_terrain_lines
     from tuneopt.report.ranked_table import print_ranking
 
     data = _request(api, "GET", f"/jobs/{job}/result")
@@ -151,8 +150,6 @@ def _show_result(api: str, job: str, as_json: bool) -> None:
         print(json.dumps(data, indent=2))
     elif data.get("ranked"):
         print_ranking(data)
-        for line in fresh_terrain_lines(data):
-            print(line)
     else:
         print("the job ended without a ridable setup")
         for caution in data.get("cautions", []):

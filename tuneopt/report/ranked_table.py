@@ -12,6 +12,8 @@ from rich.console import Console
 from rich.markup import escape
 from rich.table import Table
 
+from tuneopt.report.fresh_terrain import fresh_terrain_lines
+
 __all__ = ["print_ranking", "ranking_columns"]
 
 SHOWN_METRICS = (
@@ -96,5 +98,7 @@ def print_ranking(data: dict[str, Any], console: Console | None = None) -> None:
         f"{t['finished']} trials finished ({t['infeasible']} outside the sag windows, "
         f"{t['failed']} failed)."
     )
+    for line in fresh_terrain_lines(data):
+        console.print(escape(line))
     for c in data["cautions"]:
         console.print(f"[dim]- {c}[/]")
