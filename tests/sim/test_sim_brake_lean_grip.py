@@ -124,7 +124,7 @@ def _accumulate(loads: np.ndarray, static_load: float, mu: float, pd2: float,
     for k, load in enumerate(loads):
         c.accumulate_wheel(row, 0, hist, k, load, 0.03, 0.0, 0.01, 0.15, 0.03, static_load,
                            c.HIST_LOW, 1e-4, phase, False, demand, load, mu, pd2, relax[k])
-        caps[k] = row[c.W_CAPACITY]
+        caps[k] = row[c.WheelAcc.CAPACITY]
     return np.concatenate((row, caps))
 
 
@@ -137,7 +137,7 @@ def test_load_variance_costs_mean_grip() -> None:
     loads = fz0 + sd * rng.standard_normal(n)
     relax = relaxation_factor(np.full(n, 5.0), 1e-3, 0.15)
     out = _accumulate(loads, fz0, mu0, pd2, relax)
-    mean_cap = out[c.W_SUM_CAPACITY] / n
+    mean_cap = out[c.WheelAcc.SUM_CAPACITY] / n
     want = mu0 * (fz0 + pd2 * sd**2 / fz0)
     cost = mu0 * abs(pd2) * sd**2 / fz0  # 3.15 N of 350 N
     assert abs(mean_cap - want) < 0.1 * cost
@@ -170,7 +170,7 @@ def test_unmet_share_of_a_gaussian_load_against_scipy() -> None:
     n = 200_000
     loads = m + sd * rng.standard_normal(n)
     out = _accumulate(loads, m, mu, 0.0, np.ones(n), demand=demand, phase=True)
-    got = out[c.W_UNMET_BRAKE] / out[c.W_DEMAND_BRAKE]
+    got = out[c.WheelAcc.UNMET_BRAKE] / out[c.WheelAcc.DEMAND_BRAKE]
     z = (demand - mu * m) / (mu * sd)
     want = ((demand - mu * m) * norm.cdf(z) + mu * sd * norm.pdf(z)) / demand
     assert_allclose(got, want, rtol=0.03)

@@ -10,6 +10,8 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 from contextlib import contextmanager
+from enum import IntEnum, auto
+from typing import Any
 
 import numba
 import numpy as np
@@ -44,6 +46,15 @@ HIST_BINS = 2048
 HIST_LOW = 0.02
 HIST_HIGH = 1.3
 
+class Layout(IntEnum):
+    """Fields of a packed row: numbered 0, 1, 2, ... in the order written, so that no two share
+    a column. The kernels index rows with the members (compiled as constants)."""
+
+    @staticmethod
+    def _generate_next_value_(name: str, start: int, count: int, last_values: list[Any]) -> int:
+        return count
+
+
 # Failure codes.
 FAIL_NONE = 0
 FAIL_NON_FINITE = 1
@@ -54,40 +65,49 @@ RUNAWAY_TRAVEL = 0.1
 RUNAWAY_TYRE = 0.3
 RUNAWAY_ANGLE = 0.6
 
-# Per-wheel accumulator layout (offset + field).
-W_SUM_F = 0
-W_SUM_F2 = 1
-W_N_UNLOADED = 2
-W_N_BOTTOM = 3
-W_BOTTOM_MAX = 4
-W_BOTTOM_SUM = 5
-W_IN_BOTTOM = 6
-W_EVENT_MAX = 7
-W_N_RIM = 8
-W_IN_RIM = 9
-W_SUM_S = 10
-W_S_MAX = 11
-W_UNMET_BRAKE = 12  # integral of max(0, demand - capacity) over braking samples [N samples]
-W_SUM_MARGIN_BRAKE = 13
-W_FIRST_SHORT_BRAKE = 14
-W_UNMET_CORNER = 15
-W_SUM_MARGIN_CORNER = 16
-W_FIRST_SHORT_CORNER = 17
-W_DEMAND_BRAKE = 18  # integral of the demand over braking samples [N samples]
-W_DEMAND_CORNER = 19
-W_CAPACITY = 20  # the lagged grip capacity: a state carried from sample to sample [N]
-W_SUM_CAPACITY = 21
-W_SUM_S_FREE = 22  # travel summed outside braking and cornering (pack-down)
-W_N_FREE = 23
-W_N_TOPOUT = 24
-W_IN_TOPOUT = 25
-W_FIELDS = 26
+# Per-wheel accumulator layout.
+class WheelAcc(Layout):
+    """One wheel's block of a run's accumulator row (added to the block's offset)."""
 
-# Vibration accumulator layout (offset + field).
-V_SUM_AW2 = 0
-V_SUM_AW4 = 1
-V_MAX_AW = 2
-V_FIELDS = 3
+    SUM_F = auto()
+    SUM_F2 = auto()
+    N_UNLOADED = auto()
+    N_BOTTOM = auto()
+    BOTTOM_MAX = auto()
+    BOTTOM_SUM = auto()
+    IN_BOTTOM = auto()
+    EVENT_MAX = auto()
+    N_RIM = auto()
+    IN_RIM = auto()
+    SUM_S = auto()
+    S_MAX = auto()
+    UNMET_BRAKE = auto()  # integral of max(0, demand - capacity) over braking samples [N samples]
+    SUM_MARGIN_BRAKE = auto()
+    FIRST_SHORT_BRAKE = auto()
+    UNMET_CORNER = auto()
+    SUM_MARGIN_CORNER = auto()
+    FIRST_SHORT_CORNER = auto()
+    DEMAND_BRAKE = auto()  # integral of the demand over braking samples [N samples]
+    DEMAND_CORNER = auto()
+    CAPACITY = auto()  # the lagged grip capacity: a state carried from sample to sample [N]
+    SUM_CAPACITY = auto()
+    SUM_S_FREE = auto()  # travel summed outside braking and cornering (pack-down)
+    N_FREE = auto()
+    N_TOPOUT = auto()
+    IN_TOPOUT = auto()
+
+
+W_FIELDS = len(WheelAcc)
+
+class VibAcc(Layout):
+    """A weighted acceleration's block of a run's accumulator row."""
+
+    SUM_AW2 = auto()
+    SUM_AW4 = auto()
+    MAX_AW = auto()
+
+
+V_FIELDS = len(VibAcc)
 
 
 @contextmanager
@@ -104,10 +124,10 @@ def kernel_threads(batch: int) -> Iterator[None]:
 
 def init_wheel_acc(acc: np.ndarray, off: int) -> None:
     """Set the starting values that are not zero (runs in numpy before the kernel)."""
-    acc[:, off + W_S_MAX] = -np.inf
-    acc[:, off + W_FIRST_SHORT_BRAKE] = -1.0
-    acc[:, off + W_FIRST_SHORT_CORNER] = -1.0
-    acc[:, off + W_CAPACITY] = np.nan  # set from the first sample's load
+    acc[:, off + WheelAcc.S_MAX] = -np.inf
+    acc[:, off + WheelAcc.FIRST_SHORT_BRAKE] = -1.0
+    acc[:, off + WheelAcc.FIRST_SHORT_CORNER] = -1.0
+    acc[:, off + WheelAcc.CAPACITY] = np.nan  # set from the first sample's load
 
 
 @njit(cache=True, inline="always")
@@ -122,6 +142,16 @@ def table_value(row, x0, inv_dx, x):
     i = int(v)
     f = u - i
     return row[i] + f * (row[i + 1] - row[i])
+
+
+@njit(cache=True, inline="always")
+def end_runaway(travel, tyre_defl, full_travel):
+    """An end's travel [m] or its tyre's deflection [m] beyond the runaway limits."""
+    return (
+        travel > full_travel + RUNAWAY_TRAVEL
+        or travel < -RUNAWAY_TRAVEL
+        or tyre_defl > RUNAWAY_TYRE
+    )
 
 
 @njit(cache=True, inline="always")
@@ -159,40 +189,40 @@ def accumulate_wheel(
     coefficient at the static load and load sensitivity [-]; relax: this sample's weight of the
     capacity's relaxation-length lag [-] (see tuneopt.sim.grip).
     """
-    acc[off + W_SUM_F] += load
-    acc[off + W_SUM_F2] += load * load
+    acc[off + WheelAcc.SUM_F] += load
+    acc[off + WheelAcc.SUM_F2] += load * load
     if load < UNLOADED_FRACTION * static_load:
-        acc[off + W_N_UNLOADED] += 1.0
+        acc[off + WheelAcc.N_UNLOADED] += 1.0
     depth = travel - full_travel
-    if acc[off + W_IN_BOTTOM] > 0.0:
-        if depth > acc[off + W_EVENT_MAX]:
-            acc[off + W_EVENT_MAX] = depth
+    if acc[off + WheelAcc.IN_BOTTOM] > 0.0:
+        if depth > acc[off + WheelAcc.EVENT_MAX]:
+            acc[off + WheelAcc.EVENT_MAX] = depth
         if depth < 0.0:
-            acc[off + W_IN_BOTTOM] = 0.0
-            acc[off + W_BOTTOM_SUM] += acc[off + W_EVENT_MAX]
-            if acc[off + W_EVENT_MAX] > acc[off + W_BOTTOM_MAX]:
-                acc[off + W_BOTTOM_MAX] = acc[off + W_EVENT_MAX]
+            acc[off + WheelAcc.IN_BOTTOM] = 0.0
+            acc[off + WheelAcc.BOTTOM_SUM] += acc[off + WheelAcc.EVENT_MAX]
+            if acc[off + WheelAcc.EVENT_MAX] > acc[off + WheelAcc.BOTTOM_MAX]:
+                acc[off + WheelAcc.BOTTOM_MAX] = acc[off + WheelAcc.EVENT_MAX]
     elif depth > BOTTOM_OUT_MIN_DEPTH:
-        acc[off + W_IN_BOTTOM] = 1.0
-        acc[off + W_N_BOTTOM] += 1.0
-        acc[off + W_EVENT_MAX] = depth
+        acc[off + WheelAcc.IN_BOTTOM] = 1.0
+        acc[off + WheelAcc.N_BOTTOM] += 1.0
+        acc[off + WheelAcc.EVENT_MAX] = depth
     rim = tyre_defl - rim_defl
-    if acc[off + W_IN_RIM] > 0.0:
+    if acc[off + WheelAcc.IN_RIM] > 0.0:
         if rim < 0.0:
-            acc[off + W_IN_RIM] = 0.0
+            acc[off + WheelAcc.IN_RIM] = 0.0
     elif rim > RIM_STRIKE_MIN_DEPTH:
-        acc[off + W_IN_RIM] = 1.0
-        acc[off + W_N_RIM] += 1.0
+        acc[off + WheelAcc.IN_RIM] = 1.0
+        acc[off + WheelAcc.N_RIM] += 1.0
     # top-out: full extension reached while extending fast; over once the end compresses again
-    if acc[off + W_IN_TOPOUT] > 0.0:
+    if acc[off + WheelAcc.IN_TOPOUT] > 0.0:
         if travel > 0.0:
-            acc[off + W_IN_TOPOUT] = 0.0
+            acc[off + WheelAcc.IN_TOPOUT] = 0.0
     elif travel <= 0.0 and travel_rate < -TOPOUT_MIN_SPEED:
-        acc[off + W_IN_TOPOUT] = 1.0
-        acc[off + W_N_TOPOUT] += 1.0
-    acc[off + W_SUM_S] += travel
-    if travel > acc[off + W_S_MAX]:
-        acc[off + W_S_MAX] = travel
+        acc[off + WheelAcc.IN_TOPOUT] = 1.0
+        acc[off + WheelAcc.N_TOPOUT] += 1.0
+    acc[off + WheelAcc.SUM_S] += travel
+    if travel > acc[off + WheelAcc.S_MAX]:
+        acc[off + WheelAcc.S_MAX] = travel
     nb = hist.shape[0]
     u = (travel + hist_low) / hist_width
     if u < 0.0:
@@ -204,40 +234,40 @@ def accumulate_wheel(
     hist[j] += 1.0
     # grip capacity through the relaxation-length lag
     steady = grip_capacity(ground_load, static_load, mu, pd2)
-    cap = acc[off + W_CAPACITY]
+    cap = acc[off + WheelAcc.CAPACITY]
     if cap != cap:
         cap = steady
     else:
         cap += relax * (steady - cap)
-    acc[off + W_CAPACITY] = cap
-    acc[off + W_SUM_CAPACITY] += cap
+    acc[off + WheelAcc.CAPACITY] = cap
+    acc[off + WheelAcc.SUM_CAPACITY] += cap
     margin = cap - demand
     unmet = -margin if margin < 0.0 else 0.0
     if braking:
-        acc[off + W_SUM_MARGIN_BRAKE] += margin
-        acc[off + W_DEMAND_BRAKE] += demand
-        acc[off + W_UNMET_BRAKE] += unmet
-        if margin < 0.0 and acc[off + W_FIRST_SHORT_BRAKE] < 0.0:
-            acc[off + W_FIRST_SHORT_BRAKE] = k
+        acc[off + WheelAcc.SUM_MARGIN_BRAKE] += margin
+        acc[off + WheelAcc.DEMAND_BRAKE] += demand
+        acc[off + WheelAcc.UNMET_BRAKE] += unmet
+        if margin < 0.0 and acc[off + WheelAcc.FIRST_SHORT_BRAKE] < 0.0:
+            acc[off + WheelAcc.FIRST_SHORT_BRAKE] = k
     if cornering:
-        acc[off + W_SUM_MARGIN_CORNER] += margin
-        acc[off + W_DEMAND_CORNER] += demand
-        acc[off + W_UNMET_CORNER] += unmet
-        if margin < 0.0 and acc[off + W_FIRST_SHORT_CORNER] < 0.0:
-            acc[off + W_FIRST_SHORT_CORNER] = k
+        acc[off + WheelAcc.SUM_MARGIN_CORNER] += margin
+        acc[off + WheelAcc.DEMAND_CORNER] += demand
+        acc[off + WheelAcc.UNMET_CORNER] += unmet
+        if margin < 0.0 and acc[off + WheelAcc.FIRST_SHORT_CORNER] < 0.0:
+            acc[off + WheelAcc.FIRST_SHORT_CORNER] = k
     if not (braking or cornering):
-        acc[off + W_SUM_S_FREE] += travel
-        acc[off + W_N_FREE] += 1.0
+        acc[off + WheelAcc.SUM_S_FREE] += travel
+        acc[off + WheelAcc.N_FREE] += 1.0
 
 
 @njit(cache=True)
 def close_wheel(acc, off):
     """Close a bottom-out event still open at the end of the run."""
-    if acc[off + W_IN_BOTTOM] > 0.0:
-        acc[off + W_IN_BOTTOM] = 0.0
-        acc[off + W_BOTTOM_SUM] += acc[off + W_EVENT_MAX]
-        if acc[off + W_EVENT_MAX] > acc[off + W_BOTTOM_MAX]:
-            acc[off + W_BOTTOM_MAX] = acc[off + W_EVENT_MAX]
+    if acc[off + WheelAcc.IN_BOTTOM] > 0.0:
+        acc[off + WheelAcc.IN_BOTTOM] = 0.0
+        acc[off + WheelAcc.BOTTOM_SUM] += acc[off + WheelAcc.EVENT_MAX]
+        if acc[off + WheelAcc.EVENT_MAX] > acc[off + WheelAcc.BOTTOM_MAX]:
+            acc[off + WheelAcc.BOTTOM_MAX] = acc[off + WheelAcc.EVENT_MAX]
 
 
 @njit(cache=True, inline="always")
@@ -245,8 +275,8 @@ def accumulate_vibration(acc, off, sos, zi, accel):
     """Weight one acceleration sample [m/s^2] and add it; returns the weighted value."""
     aw = sos_step(sos, zi, accel)
     a2 = aw * aw
-    acc[off + V_SUM_AW2] += a2
-    acc[off + V_SUM_AW4] += a2 * a2
-    if abs(aw) > acc[off + V_MAX_AW]:
-        acc[off + V_MAX_AW] = abs(aw)
+    acc[off + VibAcc.SUM_AW2] += a2
+    acc[off + VibAcc.SUM_AW4] += a2 * a2
+    if abs(aw) > acc[off + VibAcc.MAX_AW]:
+        acc[off + VibAcc.MAX_AW] = abs(aw)
     return aw

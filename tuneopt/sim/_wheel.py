@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from enum import auto
+
 import numpy as np
 from numpy.typing import NDArray
 
@@ -10,24 +12,28 @@ from tuneopt.sim.params import WheelEnd
 
 FloatArray = NDArray[np.float64]
 
-# Columns of one wheel end inside a kernel parameter row (added to the end's offset).
-E_INV_M_U = 0  # 1 / unsprung mass: the loops multiply rather than divide
-E_K_T = 1
-E_C_T = 2
-E_D_RIM = 3
-E_S0 = 4
-E_D0 = 5
-E_TRAVEL = 6
-E_T0 = 7
-E_INV_TD = 8  # 1 / travel grid spacing
-E_V0 = 9
-E_INV_VD = 10  # 1 / velocity grid spacing
-E_F_STATIC = 11
-E_BRAKE_SHARE = 12
-E_LAT_SHARE = 13
-E_HIST_W = 14
-E_PD2 = 15  # load sensitivity of the tyre's friction coefficient
-E_FIELDS = 16
+class End(c.Layout):
+    """Columns of one wheel end inside a kernel parameter row (added to the end's offset)."""
+
+    INV_M_U = auto()  # 1 / unsprung mass: the loops multiply rather than divide
+    K_T = auto()
+    C_T = auto()
+    D_RIM = auto()
+    S0 = auto()
+    D0 = auto()
+    TRAVEL = auto()
+    T0 = auto()
+    INV_TD = auto()  # 1 / travel grid spacing
+    V0 = auto()
+    INV_VD = auto()  # 1 / velocity grid spacing
+    F_STATIC = auto()
+    BRAKE_SHARE = auto()
+    LAT_SHARE = auto()
+    HIST_W = auto()
+    PD2 = auto()  # load sensitivity of the tyre's friction coefficient
+
+
+E_FIELDS = len(End)
 
 
 def _uniform_step(grid: FloatArray, name: str) -> float:
@@ -81,22 +87,22 @@ def pack_wheel(
 ) -> None:
     """Fill the end's columns of the parameter rows p (B, n) for a static spring load [N]."""
     tyre_load = spring_load + wheel.unsprung_mass * c.GRAVITY
-    p[:, off + E_INV_M_U] = 1.0 / wheel.unsprung_mass
-    p[:, off + E_K_T] = wheel.tyre_stiffness
-    p[:, off + E_C_T] = wheel.tyre_damping
-    p[:, off + E_D_RIM] = wheel.rim_strike_deflection
-    p[:, off + E_S0] = static_travel(wheel, spring_load)
-    p[:, off + E_D0] = static_tyre_deflection(wheel, tyre_load)
-    p[:, off + E_TRAVEL] = wheel.travel
-    p[:, off + E_T0] = wheel.travel_grid[0]
-    p[:, off + E_INV_TD] = 1.0 / _uniform_step(np.asarray(wheel.travel_grid), "travel_grid")
-    p[:, off + E_V0] = wheel.velocity_grid[0]
-    p[:, off + E_INV_VD] = 1.0 / _uniform_step(np.asarray(wheel.velocity_grid), "velocity_grid")
-    p[:, off + E_F_STATIC] = tyre_load
-    p[:, off + E_BRAKE_SHARE] = brake_share
-    p[:, off + E_LAT_SHARE] = lateral_share
-    p[:, off + E_HIST_W] = (c.HIST_LOW + c.HIST_HIGH * wheel.travel) / c.HIST_BINS
-    p[:, off + E_PD2] = wheel.load_sensitivity
+    p[:, off + End.INV_M_U] = 1.0 / wheel.unsprung_mass
+    p[:, off + End.K_T] = wheel.tyre_stiffness
+    p[:, off + End.C_T] = wheel.tyre_damping
+    p[:, off + End.D_RIM] = wheel.rim_strike_deflection
+    p[:, off + End.S0] = static_travel(wheel, spring_load)
+    p[:, off + End.D0] = static_tyre_deflection(wheel, tyre_load)
+    p[:, off + End.TRAVEL] = wheel.travel
+    p[:, off + End.T0] = wheel.travel_grid[0]
+    p[:, off + End.INV_TD] = 1.0 / _uniform_step(np.asarray(wheel.travel_grid), "travel_grid")
+    p[:, off + End.V0] = wheel.velocity_grid[0]
+    p[:, off + End.INV_VD] = 1.0 / _uniform_step(np.asarray(wheel.velocity_grid), "velocity_grid")
+    p[:, off + End.F_STATIC] = tyre_load
+    p[:, off + End.BRAKE_SHARE] = brake_share
+    p[:, off + End.LAT_SHARE] = lateral_share
+    p[:, off + End.HIST_W] = (c.HIST_LOW + c.HIST_HIGH * wheel.travel) / c.HIST_BINS
+    p[:, off + End.PD2] = wheel.load_sensitivity
 
 
 def check_wheel(wheel: WheelEnd) -> None:

@@ -37,6 +37,7 @@ ground-normal share (times cos(phi)) is what the grip capacity sees.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from enum import auto
 
 import numpy as np
 from numba import njit, prange
@@ -45,6 +46,7 @@ from scipy.integrate import solve_ivp
 
 from tuneopt.sim import _common as c
 from tuneopt.sim import _wheel as w
+from tuneopt.sim._wheel import End
 from tuneopt.sim.grip import relaxation_factor
 from tuneopt.sim.iso2631 import weighting_sos
 from tuneopt.sim.metrics import (
@@ -71,31 +73,36 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 
-# Parameter row (masses and inertias as reciprocals: the loops multiply rather than divide).
-_INV_M_FR = 0
-_INV_I_FR = 1
-_X_C = 2
-_L = 3
-_INV_M_D = 4
-_INV_I_D = 5
-_X_D = 6
-_X_H = 7
-_X_FT = 8
-_K_A = 9
-_C_A = 10
-_K_L = 11
-_C_L = 12
-_F_H0 = 13
-_F_FT0 = 14
-_MB_F = 15
-_MB_D = 16
-_M_TOT = 17
-_N_AIRBORNE = 18  # samples with both tyres off the ground that make a landing [-]
-_N_LANDING_WINDOW = 19  # samples after touch-down watched for pitch [-]
-_FB_COT = 20  # brake_front_share * m_tot * cot(HA): fork-axis brake force per unit decel [kg]
-_N_KICK_WINDOW = 21  # samples watched for the kick after a deep compression turns [-]
-_MU_COT = 22  # the road's friction coefficient times cot(HA): caps the fork-axis brake term
-_F = 23
+class Par(c.Layout):
+    """The half-car's parameter row before its two wheel-end blocks (masses and inertias as
+    reciprocals: the loops multiply rather than divide)."""
+
+    INV_M_FR = auto()
+    INV_I_FR = auto()
+    X_C = auto()
+    L = auto()
+    INV_M_D = auto()
+    INV_I_D = auto()
+    X_D = auto()
+    X_H = auto()
+    X_FT = auto()
+    K_A = auto()
+    C_A = auto()
+    K_L = auto()
+    C_L = auto()
+    F_H0 = auto()
+    F_FT0 = auto()
+    MB_F = auto()
+    MB_D = auto()
+    M_TOT = auto()
+    N_AIRBORNE = auto()  # samples with both tyres off the ground that make a landing [-]
+    N_LANDING_WINDOW = auto()  # samples after touch-down watched for pitch [-]
+    FB_COT = auto()  # brake_front_share m_tot cot(HA): fork-axis brake force per unit decel [kg]
+    N_KICK_WINDOW = auto()  # samples watched for the kick after a deep compression turns [-]
+    MU_COT = auto()  # the road's friction coefficient times cot(HA): caps the fork-axis brake
+
+
+_F = len(Par)  # the front wheel end's block
 _R = _F + w.E_FIELDS
 _NP = _R + w.E_FIELDS
 _NS = 12
@@ -104,22 +111,30 @@ _ACC_F = 0
 _ACC_R = c.W_FIELDS
 _ACC_V = 2 * c.W_FIELDS
 _ACC_CAR = 2 * c.W_FIELDS + c.V_FIELDS
-_CAR_N_BRAKE = 0
-_CAR_N_CORNER = 1
-_CAR_SUM_W2 = 2
-_CAR_DIVE_TRAVEL = 3
-_CAR_DIVE_PITCH = 4
-_CAR_AIR_RUN = 5
-_CAR_WINDOW_LEFT = 6
-_CAR_N_LANDINGS = 7
-_CAR_LANDING_RATE = 8
-_CAR_KICK_LEFT = 9
-_CAR_KICK_PEAK = 10
-_CAR_KICK_SUM = 11
-_CAR_N_KICKS = 12
-_CAR_KICK_MAX = 13
-_CAR_KICK_BASE = 14
-_NACC = _ACC_CAR + 15
+
+
+class Car(c.Layout):
+    """The whole bike's block of the accumulator row."""
+
+    N_BRAKE = auto()
+    N_CORNER = auto()
+    SUM_W2 = auto()
+    DIVE_TRAVEL = auto()
+    DIVE_PITCH = auto()
+    AIR_RUN = auto()
+    WINDOW_LEFT = auto()
+    N_LANDINGS = auto()
+    LANDING_RATE = auto()
+    KICK_LEFT = auto()
+    KICK_PEAK = auto()
+    KICK_SUM = auto()
+    N_KICKS = auto()
+    KICK_MAX = auto()
+    KICK_BASE = auto()
+
+
+_NACC = _ACC_CAR + len(Car)
+
 # A landing: both tyres unloaded for at least this long [s]; pitch watched this long after [s].
 AIRBORNE_MIN_TIME = 0.02
 LANDING_WINDOW = 0.5
@@ -129,21 +144,27 @@ LANDING_WINDOW = 0.5
 # the ground was tried and left: over rocks it follows the ground, not the rebound.
 KICK_DEPTH = 0.6
 KICK_WINDOW = 0.2
-# Output channels of one sample; traces add the weighted rider acceleration.
-_O_LOAD_F = 0
-_O_LOAD_R = 1
-_O_TRAVEL_F = 2
-_O_TRAVEL_R = 3
-_O_DEFL_F = 4
-_O_DEFL_R = 5
-_O_ACCEL_D = 6
-_O_PITCH = 7
-_O_PITCH_RATE = 8
-_O_HAND = 9
-_O_FOOT = 10
-_O_RATE_F = 11  # travel rates (compression positive) [m/s]
-_O_RATE_R = 12
-_NOUT = 13
+
+
+class Out(c.Layout):
+    """Output channels of one sample; traces add the weighted rider acceleration."""
+
+    LOAD_F = auto()
+    LOAD_R = auto()
+    TRAVEL_F = auto()
+    TRAVEL_R = auto()
+    DEFL_F = auto()
+    DEFL_R = auto()
+    ACCEL_D = auto()
+    PITCH = auto()
+    PITCH_RATE = auto()
+    HAND = auto()
+    FOOT = auto()
+    RATE_F = auto()  # travel rates (compression positive) [m/s]
+    RATE_R = auto()
+
+
+_NOUT = len(Out)
 _NTRACE = _NOUT + 1
 # A rider coupling stretched or squeezed this far has come apart [m].
 _RUNAWAY_COUPLING = 0.5
@@ -203,35 +224,35 @@ class HalfCarResult:
 
 @njit(cache=True, inline="always")
 def _suspension(p, o, s, sd, spring, damper):
-    return c.table_value(spring, p[o + w.E_T0], p[o + w.E_INV_TD], s) + c.table_value(
-        damper, p[o + w.E_V0], p[o + w.E_INV_VD], sd
+    return c.table_value(spring, p[o + End.T0], p[o + End.INV_TD], s) + c.table_value(
+        damper, p[o + End.V0], p[o + End.INV_VD], sd
     )
 
 
 @njit(cache=True, inline="always")
 def _rhs(y, zf, zfd, zr, zrd, a, ay, p, sf, df, sr, dr, dy, out):
-    lwb = p[_L]
-    xc = p[_X_C]
-    xd = p[_X_D]
-    xh = p[_X_H]
-    xft = p[_X_FT]
+    lwb = p[Par.L]
+    xc = p[Par.X_C]
+    xd = p[Par.X_D]
+    xh = p[Par.X_H]
+    xft = p[Par.X_FT]
     zc, th, zd, ph, zuf, zur = y[0], y[1], y[2], y[3], y[4], y[5]
     vc, om, vd, omd, vuf, vur = y[6], y[7], y[8], y[9], y[10], y[11]
     # suspension at the axles
-    s_f = p[_F + w.E_S0] + zuf - (zc + (lwb - xc) * th)
-    s_r = p[_R + w.E_S0] + zur - (zc - xc * th)
+    s_f = p[_F + End.S0] + zuf - (zc + (lwb - xc) * th)
+    s_r = p[_R + End.S0] + zur - (zc - xc * th)
     r_f = vuf - (vc + (lwb - xc) * om)
     r_r = vur - (vc - xc * om)
     # tyres
-    d_f = p[_F + w.E_D0] + zf - zuf
-    d_r = p[_R + w.E_D0] + zr - zur
-    t_f = c.tyre_force(d_f, zfd - vuf, p[_F + w.E_K_T], p[_F + w.E_C_T], p[_F + w.E_D_RIM])
-    t_r = c.tyre_force(d_r, zrd - vur, p[_R + w.E_K_T], p[_R + w.E_C_T], p[_R + w.E_D_RIM])
+    d_f = p[_F + End.D0] + zf - zuf
+    d_r = p[_R + End.D0] + zr - zur
+    t_f = c.tyre_force(d_f, zfd - vuf, p[_F + End.K_T], p[_F + End.C_T], p[_F + End.D_RIM])
+    t_r = c.tyre_force(d_r, zrd - vur, p[_R + End.K_T], p[_R + End.C_T], p[_R + End.D_RIM])
     # the front brake's push along the fork axis acts like the spring: up on the wheel, down on
     # the frame; the tyre passes no more brake force than mu times its load (none in the air)
-    fork_brake = p[_FB_COT] * a
-    if fork_brake > p[_MU_COT] * t_f:
-        fork_brake = p[_MU_COT] * t_f
+    fork_brake = p[Par.FB_COT] * a
+    if fork_brake > p[Par.MU_COT] * t_f:
+        fork_brake = p[Par.MU_COT] * t_f
     f_f = _suspension(p, _F, s_f, r_f, sf, df) - fork_brake
     f_r = _suspension(p, _R, s_r, r_r, sr, dr)
     # rider couplings (compression = frame point above its static place relative to the rider's)
@@ -239,46 +260,44 @@ def _rhs(y, zf, zfd, zr, zrd, a, ay, p, sf, df, sr, dr, dy, out):
     e_hd = (vc + (xh - xc) * om) - (vd + (xh - xd) * omd)
     e_ft = (zc + (xft - xc) * th) - (zd + (xft - xd) * ph)
     e_ftd = (vc + (xft - xc) * om) - (vd + (xft - xd) * omd)
-    f_h = p[_F_H0] + p[_K_A] * e_h + p[_C_A] * e_hd
-    f_ft = p[_F_FT0] + p[_K_L] * e_ft + p[_C_L] * e_ftd
+    f_h = p[Par.F_H0] + p[Par.K_A] * e_h + p[Par.C_A] * e_hd
+    f_ft = p[Par.F_FT0] + p[Par.K_L] * e_ft + p[Par.C_L] * e_ftd
     # effective gravity in the leaned bike's plane
     g = c.GRAVITY if ay == 0.0 else np.sqrt(c.GRAVITY * c.GRAVITY + ay * ay)
-    a_d = (f_h + f_ft) * p[_INV_M_D] - g
+    a_d = (f_h + f_ft) * p[Par.INV_M_D] - g
     for i in range(6):
         dy[i] = y[6 + i]
-    dy[6] = (f_f + f_r - f_h - f_ft) * p[_INV_M_FR] - g
+    dy[6] = (f_f + f_r - f_h - f_ft) * p[Par.INV_M_FR] - g
     dy[7] = (f_f * (lwb - xc) - f_r * xc - f_h * (xh - xc) - f_ft * (xft - xc)
-             + p[_MB_F] * a) * p[_INV_I_FR]
+             + p[Par.MB_F] * a) * p[Par.INV_I_FR]
     dy[8] = a_d
-    dy[9] = (f_h * (xh - xd) + f_ft * (xft - xd) + p[_MB_D] * a) * p[_INV_I_D]
-    dy[10] = (t_f - f_f) * p[_F + w.E_INV_M_U] - g
-    dy[11] = (t_r - f_r) * p[_R + w.E_INV_M_U] - g
-    out[_O_LOAD_F] = t_f
-    out[_O_LOAD_R] = t_r
-    out[_O_TRAVEL_F] = s_f
-    out[_O_TRAVEL_R] = s_r
-    out[_O_DEFL_F] = d_f
-    out[_O_DEFL_R] = d_r
-    out[_O_ACCEL_D] = a_d
-    out[_O_PITCH] = th
-    out[_O_PITCH_RATE] = om
-    out[_O_HAND] = e_h
-    out[_O_FOOT] = e_ft
-    out[_O_RATE_F] = r_f
-    out[_O_RATE_R] = r_r
+    dy[9] = (f_h * (xh - xd) + f_ft * (xft - xd) + p[Par.MB_D] * a) * p[Par.INV_I_D]
+    dy[10] = (t_f - f_f) * p[_F + End.INV_M_U] - g
+    dy[11] = (t_r - f_r) * p[_R + End.INV_M_U] - g
+    out[Out.LOAD_F] = t_f
+    out[Out.LOAD_R] = t_r
+    out[Out.TRAVEL_F] = s_f
+    out[Out.TRAVEL_R] = s_r
+    out[Out.DEFL_F] = d_f
+    out[Out.DEFL_R] = d_r
+    out[Out.ACCEL_D] = a_d
+    out[Out.PITCH] = th
+    out[Out.PITCH_RATE] = om
+    out[Out.HAND] = e_h
+    out[Out.FOOT] = e_ft
+    out[Out.RATE_F] = r_f
+    out[Out.RATE_R] = r_r
 
 
 @njit(cache=True, inline="always")
 def _is_runaway(p, out):
-    for o, ch_s, ch_d in ((_F, _O_TRAVEL_F, _O_DEFL_F), (_R, _O_TRAVEL_R, _O_DEFL_R)):
-        s = out[ch_s]
-        if s > p[o + w.E_TRAVEL] + c.RUNAWAY_TRAVEL or s < -c.RUNAWAY_TRAVEL:
-            return True
-        if out[ch_d] > c.RUNAWAY_TYRE:
-            return True
-    if abs(out[_O_PITCH]) > c.RUNAWAY_ANGLE:
+    if c.end_runaway(out[Out.TRAVEL_F], out[Out.DEFL_F], p[_F + End.TRAVEL]):
         return True
-    return abs(out[_O_HAND]) > _RUNAWAY_COUPLING or abs(out[_O_FOOT]) > _RUNAWAY_COUPLING
+    if c.end_runaway(out[Out.TRAVEL_R], out[Out.DEFL_R], p[_R + End.TRAVEL]):
+        return True
+    if abs(out[Out.PITCH]) > c.RUNAWAY_ANGLE:
+        return True
+    return abs(out[Out.HAND]) > _RUNAWAY_COUPLING or abs(out[Out.FOOT]) > _RUNAWAY_COUPLING
 
 
 @njit(cache=True, inline="always")
@@ -302,71 +321,71 @@ def _record(k, y, dy, out, zf, zr, a, ay, mu, relax_f, relax_r, p, acc, hist_f, 
         return c.FAIL_RUNAWAY
     braking = a > c.BRAKING_THRESHOLD
     cornering = ay > c.CORNERING_THRESHOLD
-    m_tot = p[_M_TOT]
+    m_tot = p[Par.M_TOT]
     # the tyre forces lie in the leaned bike's plane; the ground-normal share is cos(lean)
     upright = 1.0 if ay == 0.0 else c.GRAVITY / np.sqrt(c.GRAVITY * c.GRAVITY + ay * ay)
-    demand = _demand(p[_F + w.E_BRAKE_SHARE] * m_tot * a, p[_F + w.E_LAT_SHARE] * m_tot * ay)
+    demand = _demand(p[_F + End.BRAKE_SHARE] * m_tot * a, p[_F + End.LAT_SHARE] * m_tot * ay)
     c.accumulate_wheel(
-        acc, _ACC_F, hist_f, k, out[_O_LOAD_F], out[_O_TRAVEL_F], out[_O_RATE_F], out[_O_DEFL_F],
-        p[_F + w.E_TRAVEL], p[_F + w.E_D_RIM], p[_F + w.E_F_STATIC], c.HIST_LOW,
-        p[_F + w.E_HIST_W], braking, cornering, demand, out[_O_LOAD_F] * upright, mu,
-        p[_F + w.E_PD2], relax_f,
+        acc, _ACC_F, hist_f, k, out[Out.LOAD_F], out[Out.TRAVEL_F], out[Out.RATE_F],
+        out[Out.DEFL_F], p[_F + End.TRAVEL], p[_F + End.D_RIM], p[_F + End.F_STATIC], c.HIST_LOW,
+        p[_F + End.HIST_W], braking, cornering, demand, out[Out.LOAD_F] * upright, mu,
+        p[_F + End.PD2], relax_f,
     )
-    demand = _demand(p[_R + w.E_BRAKE_SHARE] * m_tot * a, p[_R + w.E_LAT_SHARE] * m_tot * ay)
+    demand = _demand(p[_R + End.BRAKE_SHARE] * m_tot * a, p[_R + End.LAT_SHARE] * m_tot * ay)
     c.accumulate_wheel(
-        acc, _ACC_R, hist_r, k, out[_O_LOAD_R], out[_O_TRAVEL_R], out[_O_RATE_R], out[_O_DEFL_R],
-        p[_R + w.E_TRAVEL], p[_R + w.E_D_RIM], p[_R + w.E_F_STATIC], c.HIST_LOW,
-        p[_R + w.E_HIST_W], braking, cornering, demand, out[_O_LOAD_R] * upright, mu,
-        p[_R + w.E_PD2], relax_r,
+        acc, _ACC_R, hist_r, k, out[Out.LOAD_R], out[Out.TRAVEL_R], out[Out.RATE_R],
+        out[Out.DEFL_R], p[_R + End.TRAVEL], p[_R + End.D_RIM], p[_R + End.F_STATIC], c.HIST_LOW,
+        p[_R + End.HIST_W], braking, cornering, demand, out[Out.LOAD_R] * upright, mu,
+        p[_R + End.PD2], relax_r,
     )
     # the kick: how fast a deep compression extends
     ck = _ACC_CAR
-    if acc[ck + _CAR_KICK_LEFT] > 0.0:
-        acc[ck + _CAR_KICK_LEFT] -= 1.0
-        ext = -out[_O_RATE_F] if acc[ck + _CAR_KICK_BASE] > 0.0 else -out[_O_RATE_R]
-        if ext > acc[ck + _CAR_KICK_PEAK]:
-            acc[ck + _CAR_KICK_PEAK] = ext
-        if acc[ck + _CAR_KICK_LEFT] <= 0.0:
-            peak = acc[ck + _CAR_KICK_PEAK]
-            acc[ck + _CAR_KICK_SUM] += peak
-            acc[ck + _CAR_N_KICKS] += 1.0
-            if peak > acc[ck + _CAR_KICK_MAX]:
-                acc[ck + _CAR_KICK_MAX] = peak
+    if acc[ck + Car.KICK_LEFT] > 0.0:
+        acc[ck + Car.KICK_LEFT] -= 1.0
+        ext = -out[Out.RATE_F] if acc[ck + Car.KICK_BASE] > 0.0 else -out[Out.RATE_R]
+        if ext > acc[ck + Car.KICK_PEAK]:
+            acc[ck + Car.KICK_PEAK] = ext
+        if acc[ck + Car.KICK_LEFT] <= 0.0:
+            peak = acc[ck + Car.KICK_PEAK]
+            acc[ck + Car.KICK_SUM] += peak
+            acc[ck + Car.N_KICKS] += 1.0
+            if peak > acc[ck + Car.KICK_MAX]:
+                acc[ck + Car.KICK_MAX] = peak
     elif (
-        (out[_O_TRAVEL_F] > KICK_DEPTH * p[_F + w.E_TRAVEL] and out[_O_RATE_F] < 0.0)
-        or (out[_O_TRAVEL_R] > KICK_DEPTH * p[_R + w.E_TRAVEL] and out[_O_RATE_R] < 0.0)
+        (out[Out.TRAVEL_F] > KICK_DEPTH * p[_F + End.TRAVEL] and out[Out.RATE_F] < 0.0)
+        or (out[Out.TRAVEL_R] > KICK_DEPTH * p[_R + End.TRAVEL] and out[Out.RATE_R] < 0.0)
     ):
-        acc[ck + _CAR_KICK_LEFT] = p[_N_KICK_WINDOW]
+        acc[ck + Car.KICK_LEFT] = p[Par.N_KICK_WINDOW]
         # which end turned (the front when both did)
-        acc[ck + _CAR_KICK_BASE] = 1.0 if (
-            out[_O_TRAVEL_F] > KICK_DEPTH * p[_F + w.E_TRAVEL] and out[_O_RATE_F] < 0.0
+        acc[ck + Car.KICK_BASE] = 1.0 if (
+            out[Out.TRAVEL_F] > KICK_DEPTH * p[_F + End.TRAVEL] and out[Out.RATE_F] < 0.0
         ) else 0.0
-        acc[ck + _CAR_KICK_PEAK] = 0.0
-    aw = c.accumulate_vibration(acc, _ACC_V, sos, zi, out[_O_ACCEL_D])
-    acc[_ACC_CAR + _CAR_SUM_W2] += out[_O_PITCH_RATE] ** 2
+        acc[ck + Car.KICK_PEAK] = 0.0
+    aw = c.accumulate_vibration(acc, _ACC_V, sos, zi, out[Out.ACCEL_D])
+    acc[_ACC_CAR + Car.SUM_W2] += out[Out.PITCH_RATE] ** 2
     if braking:
-        acc[_ACC_CAR + _CAR_N_BRAKE] += 1.0
-        dive = out[_O_TRAVEL_F] - p[_F + w.E_S0]
-        if dive > acc[_ACC_CAR + _CAR_DIVE_TRAVEL]:
-            acc[_ACC_CAR + _CAR_DIVE_TRAVEL] = dive
-        nose_down = (zf - zr) / p[_L] - out[_O_PITCH]
-        if nose_down > acc[_ACC_CAR + _CAR_DIVE_PITCH]:
-            acc[_ACC_CAR + _CAR_DIVE_PITCH] = nose_down
+        acc[_ACC_CAR + Car.N_BRAKE] += 1.0
+        dive = out[Out.TRAVEL_F] - p[_F + End.S0]
+        if dive > acc[_ACC_CAR + Car.DIVE_TRAVEL]:
+            acc[_ACC_CAR + Car.DIVE_TRAVEL] = dive
+        nose_down = (zf - zr) / p[Par.L] - out[Out.PITCH]
+        if nose_down > acc[_ACC_CAR + Car.DIVE_PITCH]:
+            acc[_ACC_CAR + Car.DIVE_PITCH] = nose_down
     if cornering:
-        acc[_ACC_CAR + _CAR_N_CORNER] += 1.0
+        acc[_ACC_CAR + Car.N_CORNER] += 1.0
     # landings: both tyres off the ground long enough, then the first contact
-    if out[_O_LOAD_F] <= 0.0 and out[_O_LOAD_R] <= 0.0:
-        acc[_ACC_CAR + _CAR_AIR_RUN] += 1.0
+    if out[Out.LOAD_F] <= 0.0 and out[Out.LOAD_R] <= 0.0:
+        acc[_ACC_CAR + Car.AIR_RUN] += 1.0
     else:
-        if acc[_ACC_CAR + _CAR_AIR_RUN] >= p[_N_AIRBORNE]:
-            acc[_ACC_CAR + _CAR_N_LANDINGS] += 1.0
-            acc[_ACC_CAR + _CAR_WINDOW_LEFT] = p[_N_LANDING_WINDOW]
-        acc[_ACC_CAR + _CAR_AIR_RUN] = 0.0
-    if acc[_ACC_CAR + _CAR_WINDOW_LEFT] > 0.0:
-        acc[_ACC_CAR + _CAR_WINDOW_LEFT] -= 1.0
-        rate = abs(out[_O_PITCH_RATE])
-        if rate > acc[_ACC_CAR + _CAR_LANDING_RATE]:
-            acc[_ACC_CAR + _CAR_LANDING_RATE] = rate
+        if acc[_ACC_CAR + Car.AIR_RUN] >= p[Par.N_AIRBORNE]:
+            acc[_ACC_CAR + Car.N_LANDINGS] += 1.0
+            acc[_ACC_CAR + Car.WINDOW_LEFT] = p[Par.N_LANDING_WINDOW]
+        acc[_ACC_CAR + Car.AIR_RUN] = 0.0
+    if acc[_ACC_CAR + Car.WINDOW_LEFT] > 0.0:
+        acc[_ACC_CAR + Car.WINDOW_LEFT] -= 1.0
+        rate = abs(out[Out.PITCH_RATE])
+        if rate > acc[_ACC_CAR + Car.LANDING_RATE]:
+            acc[_ACC_CAR + Car.LANDING_RATE] = rate
     if trace.shape[1] > 0 and k % every == 0:
         j = k // every
         for ch in range(_NOUT):
@@ -388,10 +407,10 @@ def _sample(k, y, zf, zfd, zr, zrd, a, ay, mu, relax_f, relax_r, p, sf, df, sr, 
 def _initial_state(p, zf0, zr0):
     """Static equilibrium carried rigidly onto the road's starting heights."""
     y = np.zeros(_NS)
-    th = (zf0 - zr0) / p[_L]
-    y[0] = zr0 + p[_X_C] * th
+    th = (zf0 - zr0) / p[Par.L]
+    y[0] = zr0 + p[Par.X_C] * th
     y[1] = th
-    y[2] = zr0 + p[_X_D] * th
+    y[2] = zr0 + p[Par.X_D] * th
     y[3] = th
     y[4] = zf0
     y[5] = zr0
@@ -500,7 +519,7 @@ def _replay(Y, zf, zfd, zr, zrd, dec, lat, mu, relax_f, relax_r, p, sf, df, sr, 
 def static_tyre_loads(params: HalfCarParams) -> tuple[FloatArray, FloatArray]:
     """Front and rear tyre loads at rest on level ground [N], each (B,), from moment balance."""
     p = _pack(params)
-    return p[:, _F + w.E_F_STATIC].copy(), p[:, _R + w.E_F_STATIC].copy()
+    return p[:, _F + End.F_STATIC].copy(), p[:, _R + End.F_STATIC].copy()
 
 
 def _pack(params: HalfCarParams) -> FloatArray:
@@ -515,32 +534,32 @@ def _pack(params: HalfCarParams) -> FloatArray:
     g = c.GRAVITY
     m_fr, m_d, lwb = params.frame_mass, rider.mass, params.wheelbase
     P = np.zeros((bsz, _NP))
-    P[:, _INV_M_FR] = 1.0 / m_fr
-    P[:, _INV_I_FR] = 1.0 / params.frame_pitch_inertia
-    P[:, _X_C] = params.frame_com_x
-    P[:, _L] = lwb
-    P[:, _INV_M_D] = 1.0 / m_d
-    P[:, _INV_I_D] = 1.0 / rider.pitch_inertia
-    P[:, _X_D] = rider.com_x
-    P[:, _X_H] = rider.hand_x
-    P[:, _X_FT] = rider.foot_x
-    P[:, _K_A] = rider.arm_stiffness
-    P[:, _C_A] = rider.arm_damping
-    P[:, _K_L] = rider.leg_stiffness
-    P[:, _C_L] = rider.leg_damping
+    P[:, Par.INV_M_FR] = 1.0 / m_fr
+    P[:, Par.INV_I_FR] = 1.0 / params.frame_pitch_inertia
+    P[:, Par.X_C] = params.frame_com_x
+    P[:, Par.L] = lwb
+    P[:, Par.INV_M_D] = 1.0 / m_d
+    P[:, Par.INV_I_D] = 1.0 / rider.pitch_inertia
+    P[:, Par.X_D] = rider.com_x
+    P[:, Par.X_H] = rider.hand_x
+    P[:, Par.X_FT] = rider.foot_x
+    P[:, Par.K_A] = rider.arm_stiffness
+    P[:, Par.C_A] = rider.arm_damping
+    P[:, Par.K_L] = rider.leg_stiffness
+    P[:, Par.C_L] = rider.leg_damping
     span = rider.hand_x - rider.foot_x
-    P[:, _F_H0] = m_d * g * (rider.com_x - rider.foot_x) / span
-    P[:, _F_FT0] = m_d * g * (rider.hand_x - rider.com_x) / span
+    P[:, Par.F_H0] = m_d * g * (rider.com_x - rider.foot_x) / span
+    P[:, Par.F_FT0] = m_d * g * (rider.hand_x - rider.com_x) / span
     h_c = params.frame_com_height
-    P[:, _MB_F] = -(
+    P[:, Par.MB_F] = -(
         (m_fr + m_d) * h_c + fw.unsprung_mass * fw.wheel_radius + rw.unsprung_mass * rw.wheel_radius
     )
-    P[:, _MB_D] = -m_d * (rider.com_height - h_c)
-    P[:, _M_TOT] = m_fr + m_d + fw.unsprung_mass + rw.unsprung_mass
+    P[:, Par.MB_D] = -m_d * (rider.com_height - h_c)
+    P[:, Par.M_TOT] = m_fr + m_d + fw.unsprung_mass + rw.unsprung_mass
     if not 0.0 < params.head_angle <= 90.0:
         raise ValueError("head_angle must be in (0, 90] degrees")
     ha = np.radians(params.head_angle)
-    P[:, _FB_COT] = params.brake_front_share * P[:, _M_TOT] * np.cos(ha) / np.sin(ha)
+    P[:, Par.FB_COT] = params.brake_front_share * P[:, Par.M_TOT] * np.cos(ha) / np.sin(ha)
     sprung_weight = (m_fr + m_d) * g
     sprung_moment = (m_fr * params.frame_com_x + m_d * rider.com_x) * g  # about the rear axle
     spring_f = np.full(bsz, sprung_moment / lwb)
@@ -569,21 +588,21 @@ class _Prepared:
 
 def _prepare(params: HalfCarParams, road: RoadInput, trace_every: int | None) -> _Prepared:
     P = _pack(params)
-    P[:, _N_AIRBORNE] = np.ceil(AIRBORNE_MIN_TIME / road.dt - 1e-9)
-    P[:, _N_LANDING_WINDOW] = np.ceil(LANDING_WINDOW / road.dt - 1e-9)
-    P[:, _N_KICK_WINDOW] = np.ceil(KICK_WINDOW / road.dt - 1e-9)
+    P[:, Par.N_AIRBORNE] = np.ceil(AIRBORNE_MIN_TIME / road.dt - 1e-9)
+    P[:, Par.N_LANDING_WINDOW] = np.ceil(LANDING_WINDOW / road.dt - 1e-9)
+    P[:, Par.N_KICK_WINDOW] = np.ceil(KICK_WINDOW / road.dt - 1e-9)
     ha = np.radians(params.head_angle)
-    P[:, _MU_COT] = road.friction * np.cos(ha) / np.sin(ha)
+    P[:, Par.MU_COT] = road.friction * np.cos(ha) / np.sin(ha)
     bsz = P.shape[0]
     fail = np.zeros(bsz, dtype=np.int64)
     for o, wheel in ((_F, params.front), (_R, params.rear)):
-        s0 = P[:, o + w.E_S0]
+        s0 = P[:, o + End.S0]
         fail[~((s0 <= wheel.travel) & (s0 >= wheel.travel_grid[0]))] = c.FAIL_STATIC
     acc = np.zeros((bsz, _NACC))
     c.init_wheel_acc(acc, _ACC_F)
     c.init_wheel_acc(acc, _ACC_R)
-    acc[:, _ACC_CAR + _CAR_DIVE_TRAVEL] = -np.inf
-    acc[:, _ACC_CAR + _CAR_DIVE_PITCH] = -np.inf
+    acc[:, _ACC_CAR + Car.DIVE_TRAVEL] = -np.inf
+    acc[:, _ACC_CAR + Car.DIVE_PITCH] = -np.inf
     every = int(trace_every) if trace_every else 1
     m = (road.samples - 1) // every + 1 if trace_every else 0
 
@@ -613,37 +632,37 @@ def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> HalfCa
     failed = prep.fail != 0
     P, acc = prep.P, prep.acc
     n, dt = road.samples, road.dt
-    n_brake = acc[:, _ACC_CAR + _CAR_N_BRAKE]
-    n_corner = acc[:, _ACC_CAR + _CAR_N_CORNER]
+    n_brake = acc[:, _ACC_CAR + Car.N_BRAKE]
+    n_corner = acc[:, _ACC_CAR + Car.N_CORNER]
     wheels = [
-        wheel_metrics(acc, off, prep.hist[:, i], n, dt, P[:, o + w.E_F_STATIC], P[:, o + w.E_S0],
-                      P[:, o + w.E_HIST_W], n_brake, n_corner, failed)
+        wheel_metrics(acc, off, prep.hist[:, i], n, dt, P[:, o + End.F_STATIC], P[:, o + End.S0],
+                      P[:, o + End.HIST_W], n_brake, n_corner, failed)
         for i, (off, o) in enumerate(((_ACC_F, _F), (_ACC_R, _R)))
     ]
     with np.errstate(invalid="ignore"):
         pitch = PitchMetrics(
-            pitch_rate_rms=np.sqrt(acc[:, _ACC_CAR + _CAR_SUM_W2] / n),
-            landings=acc[:, _ACC_CAR + _CAR_N_LANDINGS].copy(),
-            landing_pitch_rate_max=np.where(acc[:, _ACC_CAR + _CAR_N_LANDINGS] > 0,
-                                            acc[:, _ACC_CAR + _CAR_LANDING_RATE], np.nan),
-            peak_dive_travel=np.where(n_brake > 0, acc[:, _ACC_CAR + _CAR_DIVE_TRAVEL], np.nan),
-            peak_dive_pitch=np.where(n_brake > 0, acc[:, _ACC_CAR + _CAR_DIVE_PITCH], np.nan),
+            pitch_rate_rms=np.sqrt(acc[:, _ACC_CAR + Car.SUM_W2] / n),
+            landings=acc[:, _ACC_CAR + Car.N_LANDINGS].copy(),
+            landing_pitch_rate_max=np.where(acc[:, _ACC_CAR + Car.N_LANDINGS] > 0,
+                                            acc[:, _ACC_CAR + Car.LANDING_RATE], np.nan),
+            peak_dive_travel=np.where(n_brake > 0, acc[:, _ACC_CAR + Car.DIVE_TRAVEL], np.nan),
+            peak_dive_pitch=np.where(n_brake > 0, acc[:, _ACC_CAR + Car.DIVE_PITCH], np.nan),
         )
     # a kick window still open at the end of the run counts with what it saw
-    open_ = acc[:, _ACC_CAR + _CAR_KICK_LEFT] > 0
-    peak = acc[:, _ACC_CAR + _CAR_KICK_PEAK]
-    acc[open_, _ACC_CAR + _CAR_KICK_SUM] += peak[open_]
-    acc[open_, _ACC_CAR + _CAR_N_KICKS] += 1.0
-    acc[:, _ACC_CAR + _CAR_KICK_MAX] = np.where(
-        open_, np.maximum(acc[:, _ACC_CAR + _CAR_KICK_MAX], peak), acc[:, _ACC_CAR + _CAR_KICK_MAX]
+    open_ = acc[:, _ACC_CAR + Car.KICK_LEFT] > 0
+    peak = acc[:, _ACC_CAR + Car.KICK_PEAK]
+    acc[open_, _ACC_CAR + Car.KICK_SUM] += peak[open_]
+    acc[open_, _ACC_CAR + Car.N_KICKS] += 1.0
+    acc[:, _ACC_CAR + Car.KICK_MAX] = np.where(
+        open_, np.maximum(acc[:, _ACC_CAR + Car.KICK_MAX], peak), acc[:, _ACC_CAR + Car.KICK_MAX]
     )
-    acc[open_, _ACC_CAR + _CAR_KICK_LEFT] = 0.0
-    n_kicks = acc[:, _ACC_CAR + _CAR_N_KICKS].copy()
+    acc[open_, _ACC_CAR + Car.KICK_LEFT] = 0.0
+    n_kicks = acc[:, _ACC_CAR + Car.N_KICKS].copy()
     with np.errstate(invalid="ignore", divide="ignore"):
         kick = KickMetrics(
             kicks=n_kicks,
-            speed_mean=np.where(n_kicks > 0, acc[:, _ACC_CAR + _CAR_KICK_SUM] / n_kicks, np.nan),
-            speed_max=np.where(n_kicks > 0, acc[:, _ACC_CAR + _CAR_KICK_MAX], np.nan),
+            speed_mean=np.where(n_kicks > 0, acc[:, _ACC_CAR + Car.KICK_SUM] / n_kicks, np.nan),
+            speed_max=np.where(n_kicks > 0, acc[:, _ACC_CAR + Car.KICK_MAX], np.nan),
         )
     for value in (pitch.pitch_rate_rms, pitch.peak_dive_travel, pitch.peak_dive_pitch,
                   pitch.landings, pitch.landing_pitch_rate_max, kick.kicks, kick.speed_mean,
@@ -655,18 +674,18 @@ def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> HalfCa
         tr[failed] = np.nan
         traces = HalfCarTraces(
             time=np.arange(tr.shape[2], dtype=np.float64) * (prep.every * dt),
-            front_tyre_load=tr[:, _O_LOAD_F],
-            rear_tyre_load=tr[:, _O_LOAD_R],
-            front_travel=tr[:, _O_TRAVEL_F],
-            rear_travel=tr[:, _O_TRAVEL_R],
-            front_tyre_deflection=tr[:, _O_DEFL_F],
-            rear_tyre_deflection=tr[:, _O_DEFL_R],
-            rider_accel=tr[:, _O_ACCEL_D],
+            front_tyre_load=tr[:, Out.LOAD_F],
+            rear_tyre_load=tr[:, Out.LOAD_R],
+            front_travel=tr[:, Out.TRAVEL_F],
+            rear_travel=tr[:, Out.TRAVEL_R],
+            front_tyre_deflection=tr[:, Out.DEFL_F],
+            rear_tyre_deflection=tr[:, Out.DEFL_R],
+            rider_accel=tr[:, Out.ACCEL_D],
             rider_accel_weighted=tr[:, _NOUT],
-            pitch=tr[:, _O_PITCH],
-            pitch_rate=tr[:, _O_PITCH_RATE],
-            front_travel_rate=tr[:, _O_RATE_F],
-            rear_travel_rate=tr[:, _O_RATE_R],
+            pitch=tr[:, Out.PITCH],
+            pitch_rate=tr[:, Out.PITCH_RATE],
+            front_travel_rate=tr[:, Out.RATE_F],
+            rear_travel_rate=tr[:, Out.RATE_R],
         )
     return HalfCarResult(
         front=wheels[0],
@@ -676,18 +695,18 @@ def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> HalfCa
         kick=kick,
         braking=GripPhase(
             time=n_brake * dt,
-            first_short=first_short(acc[:, _ACC_F + c.W_FIRST_SHORT_BRAKE],
-                                    acc[:, _ACC_R + c.W_FIRST_SHORT_BRAKE]),
+            first_short=first_short(acc[:, _ACC_F + c.WheelAcc.FIRST_SHORT_BRAKE],
+                                    acc[:, _ACC_R + c.WheelAcc.FIRST_SHORT_BRAKE]),
         ),
         cornering=GripPhase(
             time=n_corner * dt,
-            first_short=first_short(acc[:, _ACC_F + c.W_FIRST_SHORT_CORNER],
-                                    acc[:, _ACC_R + c.W_FIRST_SHORT_CORNER]),
+            first_short=first_short(acc[:, _ACC_F + c.WheelAcc.FIRST_SHORT_CORNER],
+                                    acc[:, _ACC_R + c.WheelAcc.FIRST_SHORT_CORNER]),
         ),
-        static_travel_front=P[:, _F + w.E_S0].copy(),
-        static_travel_rear=P[:, _R + w.E_S0].copy(),
-        static_load_front=P[:, _F + w.E_F_STATIC].copy(),
-        static_load_rear=P[:, _R + w.E_F_STATIC].copy(),
+        static_travel_front=P[:, _F + End.S0].copy(),
+        static_travel_rear=P[:, _R + End.S0].copy(),
+        static_load_front=P[:, _F + End.F_STATIC].copy(),
+        static_load_rear=P[:, _R + End.F_STATIC].copy(),
         duration=road.duration,
         failed=failed,
         failure=failure_reasons(prep.fail),

@@ -189,46 +189,47 @@ def wheel_metrics(
     """Turn one wheel's accumulator block (B, ...) into metrics."""
     n = float(samples)
     minutes = max(samples - 1, 1) * dt / 60.0
-    mean = acc[:, off + c.W_SUM_F] / n
-    var = np.maximum(acc[:, off + c.W_SUM_F2] / n - mean**2, 0.0)
-    nb = acc[:, off + c.W_N_BOTTOM]
+    mean = acc[:, off + c.WheelAcc.SUM_F] / n
+    var = np.maximum(acc[:, off + c.WheelAcc.SUM_F2] / n - mean**2, 0.0)
+    nb = acc[:, off + c.WheelAcc.N_BOTTOM]
     low = np.full(len(mean), c.HIST_LOW)
     with np.errstate(invalid="ignore", divide="ignore"):
         fields = dict(
             load_mean=mean,
             load_variation=np.sqrt(var) / mean,
-            unloaded_share=acc[:, off + c.W_N_UNLOADED] / n,
+            unloaded_share=acc[:, off + c.WheelAcc.N_UNLOADED] / n,
             bottom_outs_per_min=nb / minutes,
-            bottom_out_depth_max=acc[:, off + c.W_BOTTOM_MAX].copy(),
-            bottom_out_depth_mean=np.where(nb > 0, acc[:, off + c.W_BOTTOM_SUM] / nb, 0.0),
-            rim_strikes_per_min=acc[:, off + c.W_N_RIM] / minutes,
-            topouts_per_min=acc[:, off + c.W_N_TOPOUT] / minutes,
+            bottom_out_depth_max=acc[:, off + c.WheelAcc.BOTTOM_MAX].copy(),
+            bottom_out_depth_mean=np.where(nb > 0, acc[:, off + c.WheelAcc.BOTTOM_SUM] / nb, 0.0),
+            rim_strikes_per_min=acc[:, off + c.WheelAcc.N_RIM] / minutes,
+            topouts_per_min=acc[:, off + c.WheelAcc.N_TOPOUT] / minutes,
             travel_median=_quantile_from_hist(hist, 0.5, low, hist_width),
             travel_p95=_quantile_from_hist(hist, 0.95, low, hist_width),
-            travel_max=acc[:, off + c.W_S_MAX].copy(),
+            travel_max=acc[:, off + c.WheelAcc.S_MAX].copy(),
             pack_down=np.where(
-                acc[:, off + c.W_N_FREE] > 0,
-                acc[:, off + c.W_SUM_S_FREE] / acc[:, off + c.W_N_FREE] - static_travel,
+                acc[:, off + c.WheelAcc.N_FREE] > 0,
+                acc[:, off + c.WheelAcc.SUM_S_FREE] / acc[:, off + c.WheelAcc.N_FREE]
+                - static_travel,
                 0.0,
             ),
-            grip_capacity_mean=acc[:, off + c.W_SUM_CAPACITY] / n,
+            grip_capacity_mean=acc[:, off + c.WheelAcc.SUM_CAPACITY] / n,
             grip_unmet_braking=np.where(
                 n_brake > 0,
-                acc[:, off + c.W_UNMET_BRAKE]
-                / np.maximum(acc[:, off + c.W_DEMAND_BRAKE], np.finfo(float).tiny),
+                acc[:, off + c.WheelAcc.UNMET_BRAKE]
+                / np.maximum(acc[:, off + c.WheelAcc.DEMAND_BRAKE], np.finfo(float).tiny),
                 np.nan,
             ),
             grip_margin_mean_braking=np.where(
-                n_brake > 0, acc[:, off + c.W_SUM_MARGIN_BRAKE] / n_brake, np.nan
+                n_brake > 0, acc[:, off + c.WheelAcc.SUM_MARGIN_BRAKE] / n_brake, np.nan
             ),
             grip_unmet_cornering=np.where(
                 n_corner > 0,
-                acc[:, off + c.W_UNMET_CORNER]
-                / np.maximum(acc[:, off + c.W_DEMAND_CORNER], np.finfo(float).tiny),
+                acc[:, off + c.WheelAcc.UNMET_CORNER]
+                / np.maximum(acc[:, off + c.WheelAcc.DEMAND_CORNER], np.finfo(float).tiny),
                 np.nan,
             ),
             grip_margin_mean_cornering=np.where(
-                n_corner > 0, acc[:, off + c.W_SUM_MARGIN_CORNER] / n_corner, np.nan
+                n_corner > 0, acc[:, off + c.WheelAcc.SUM_MARGIN_CORNER] / n_corner, np.nan
             ),
         )
     for value in fields.values():
@@ -240,10 +241,10 @@ def vibration_metrics(
     acc: FloatArray, off: int, samples: int, dt: float, failed: NDArray[np.bool_]
 ) -> VibrationMetrics:
     """Turn a vibration accumulator block into weighted RMS, crest factor and VDV."""
-    rms = np.sqrt(acc[:, off + c.V_SUM_AW2] / samples)
+    rms = np.sqrt(acc[:, off + c.VibAcc.SUM_AW2] / samples)
     with np.errstate(invalid="ignore", divide="ignore"):
-        crest = acc[:, off + c.V_MAX_AW] / rms
-    vdv = (acc[:, off + c.V_SUM_AW4] * dt) ** 0.25
+        crest = acc[:, off + c.VibAcc.MAX_AW] / rms
+    vdv = (acc[:, off + c.VibAcc.SUM_AW4] * dt) ** 0.25
     for value in (rms, crest, vdv):
         value[failed] = np.nan
     return VibrationMetrics(rms=rms, crest_factor=crest, vdv=vdv)

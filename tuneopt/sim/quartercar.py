@@ -14,6 +14,7 @@ Integrated with fixed-step RK4 at the road's sample spacing; the road is linear 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from enum import auto
 
 import numpy as np
 from numba import njit, prange
@@ -22,6 +23,7 @@ from scipy.integrate import solve_ivp
 
 from tuneopt.sim import _common as c
 from tuneopt.sim import _wheel as w
+from tuneopt.sim._wheel import End
 from tuneopt.sim.iso2631 import weighting_sos
 from tuneopt.sim.metrics import (
     VibrationMetrics,
@@ -42,21 +44,33 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 
-# Parameter row: 1 / sprung mass then the wheel end's columns.
-_INV_M_S = 0
-_W = 1
-_NP = 1 + w.E_FIELDS
+
+
+class Par(c.Layout):
+    """The quarter-car's parameter row before its wheel end's block."""
+
+    INV_M_S = auto()  # 1 / sprung mass [1/kg]
+
+
+_W = len(Par)  # the wheel end's block
+_NP = _W + w.E_FIELDS
 # Accumulator row: wheel block then vibration block.
 _ACC_W = 0
 _ACC_V = c.W_FIELDS
 _NACC = c.W_FIELDS + c.V_FIELDS
-# Output channels of one sample; traces add the weighted acceleration.
-_O_LOAD = 0
-_O_TRAVEL = 1
-_O_DEFL = 2
-_O_ACCEL = 3
-_NOUT = 4
-_NTRACE = 5
+
+
+class Out(c.Layout):
+    """Output channels of one sample; traces add the weighted acceleration."""
+
+    LOAD = auto()
+    TRAVEL = auto()
+    DEFL = auto()
+    ACCEL = auto()
+
+
+_NOUT = len(Out)
+_NTRACE = _NOUT + 1
 
 
 @dataclass(frozen=True)
@@ -98,22 +112,22 @@ class QuarterCarResult:
 @njit(cache=True, inline="always")
 def _rhs(y, zr, zrd, p, spring, damper, dy, out):
     o = _W
-    s = p[o + w.E_S0] + y[1] - y[0]
+    s = p[o + End.S0] + y[1] - y[0]
     sd = y[3] - y[2]
-    f_susp = c.table_value(spring, p[o + w.E_T0], p[o + w.E_INV_TD], s) + c.table_value(
-        damper, p[o + w.E_V0], p[o + w.E_INV_VD], sd
+    f_susp = c.table_value(spring, p[o + End.T0], p[o + End.INV_TD], s) + c.table_value(
+        damper, p[o + End.V0], p[o + End.INV_VD], sd
     )
-    d = p[o + w.E_D0] + zr - y[1]
-    f_tyre = c.tyre_force(d, zrd - y[3], p[o + w.E_K_T], p[o + w.E_C_T], p[o + w.E_D_RIM])
-    a_s = f_susp * p[_INV_M_S] - c.GRAVITY
+    d = p[o + End.D0] + zr - y[1]
+    f_tyre = c.tyre_force(d, zrd - y[3], p[o + End.K_T], p[o + End.C_T], p[o + End.D_RIM])
+    a_s = f_susp * p[Par.INV_M_S] - c.GRAVITY
     dy[0] = y[2]
     dy[1] = y[3]
     dy[2] = a_s
-    dy[3] = (f_tyre - f_susp) * p[o + w.E_INV_M_U] - c.GRAVITY
-    out[_O_LOAD] = f_tyre
-    out[_O_TRAVEL] = s
-    out[_O_DEFL] = d
-    out[_O_ACCEL] = a_s
+    dy[3] = (f_tyre - f_susp) * p[o + End.INV_M_U] - c.GRAVITY
+    out[Out.LOAD] = f_tyre
+    out[Out.TRAVEL] = s
+    out[Out.DEFL] = d
+    out[Out.ACCEL] = a_s
 
 
 @njit(cache=True, inline="always")
@@ -123,19 +137,15 @@ def _record(k, y, dy, out, p, acc, hist, sos, zi, trace, every):
         if not (np.isfinite(y[i]) and np.isfinite(dy[i])):
             return c.FAIL_NON_FINITE
     o = _W
-    s = out[_O_TRAVEL]
-    if (
-        s > p[o + w.E_TRAVEL] + c.RUNAWAY_TRAVEL
-        or s < -c.RUNAWAY_TRAVEL
-        or out[_O_DEFL] > c.RUNAWAY_TYRE
-    ):
+    s = out[Out.TRAVEL]
+    if c.end_runaway(s, out[Out.DEFL], p[o + End.TRAVEL]):
         return c.FAIL_RUNAWAY
     c.accumulate_wheel(
-        acc, _ACC_W, hist, k, out[_O_LOAD], s, y[3] - y[2], out[_O_DEFL],
-        p[o + w.E_TRAVEL], p[o + w.E_D_RIM], p[o + w.E_F_STATIC], c.HIST_LOW, p[o + w.E_HIST_W],
-        False, False, 0.0, out[_O_LOAD], 0.0, 0.0, 1.0,
+        acc, _ACC_W, hist, k, out[Out.LOAD], s, y[3] - y[2], out[Out.DEFL],
+        p[o + End.TRAVEL], p[o + End.D_RIM], p[o + End.F_STATIC], c.HIST_LOW, p[o + End.HIST_W],
+        False, False, 0.0, out[Out.LOAD], 0.0, 0.0, 1.0,
     )
-    aw = c.accumulate_vibration(acc, _ACC_V, sos, zi, out[_O_ACCEL])
+    aw = c.accumulate_vibration(acc, _ACC_V, sos, zi, out[Out.ACCEL])
     if trace.shape[1] > 0 and k % every == 0:
         j = k // every
         for ch in range(_NOUT):
@@ -258,10 +268,10 @@ def _prepare(params: QuarterCarParams, road: RoadInput, trace_every: int | None)
     bsz = wheel.batch
     sprung = np.broadcast_to(np.asarray(params.sprung_mass, dtype=np.float64), (bsz,))
     P = np.zeros((bsz, _NP))
-    P[:, _INV_M_S] = 1.0 / sprung
+    P[:, Par.INV_M_S] = 1.0 / sprung
     w.pack_wheel(P, _W, wheel, sprung * c.GRAVITY, 0.0, np.ones(bsz))
     fail = np.zeros(bsz, dtype=np.int64)
-    s0 = P[:, _W + w.E_S0]
+    s0 = P[:, _W + End.S0]
     fail[~((s0 <= wheel.travel) & (s0 >= wheel.travel_grid[0]))] = c.FAIL_STATIC
     acc = np.zeros((bsz, _NACC))
     c.init_wheel_acc(acc, _ACC_W)
@@ -290,20 +300,20 @@ def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> Quarte
         tr[failed] = np.nan
         traces = QuarterCarTraces(
             time=np.arange(tr.shape[2], dtype=np.float64) * (prep.every * road.dt),
-            tyre_load=tr[:, _O_LOAD],
-            travel=tr[:, _O_TRAVEL],
-            tyre_deflection=tr[:, _O_DEFL],
-            body_accel=tr[:, _O_ACCEL],
+            tyre_load=tr[:, Out.LOAD],
+            travel=tr[:, Out.TRAVEL],
+            tyre_deflection=tr[:, Out.DEFL],
+            body_accel=tr[:, Out.ACCEL],
             body_accel_weighted=tr[:, _NOUT],
         )
     return QuarterCarResult(
         wheel=wheel_metrics(
-            prep.acc, _ACC_W, prep.hist, road.samples, road.dt, P[:, _W + w.E_F_STATIC],
-            P[:, _W + w.E_S0], P[:, _W + w.E_HIST_W], none, none, failed,
+            prep.acc, _ACC_W, prep.hist, road.samples, road.dt, P[:, _W + End.F_STATIC],
+            P[:, _W + End.S0], P[:, _W + End.HIST_W], none, none, failed,
         ),
         body_vibration=vibration_metrics(prep.acc, _ACC_V, road.samples, road.dt, failed),
-        static_travel=P[:, _W + w.E_S0].copy(),
-        static_load=P[:, _W + w.E_F_STATIC].copy(),
+        static_travel=P[:, _W + End.S0].copy(),
+        static_load=P[:, _W + End.F_STATIC].copy(),
         duration=road.duration,
         failed=failed,
         failure=failure_reasons(prep.fail),
