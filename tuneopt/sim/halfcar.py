@@ -36,15 +36,16 @@ ground-normal share (times cos(phi)) is what the grip capacity sees.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from enum import auto
 
 import numpy as np
 from numba import njit, prange
 from numpy.typing import NDArray
-from scipy.integrate import solve_ivp
 
 from tuneopt.sim import _common as c
+from tuneopt.sim import _driver as drv
 from tuneopt.sim import _wheel as w
 from tuneopt.sim._wheel import End
 from tuneopt.sim.grip import relaxation_factor
@@ -476,13 +477,7 @@ def _run(P, sfs, dfs, srs, drs, zf, zfd, zr, zrd, dec, lat, mu, relax_f, relax_r
 @njit(cache=True)
 def _rhs_at_time(t, y, zf, zfd, zr, zrd, dec, lat, dt, p, sf, df, sr, dr):
     """The same equations at any time, the road linear between samples (for solve_ivp)."""
-    u = t / dt
-    i = int(u)
-    if i > zf.shape[0] - 2:
-        i = zf.shape[0] - 2
-    if i < 0:
-        i = 0
-    f = u - i
+    i, f = drv.road_position(t, dt, zf.shape[0])
     dy = np.empty(_NS)
     out = np.empty(_NOUT)
     _rhs(y, zf[i] + f * (zf[i + 1] - zf[i]), zfd[i] + f * (zfd[i + 1] - zfd[i]),
@@ -596,15 +591,15 @@ def _prepare(params: HalfCarParams, road: RoadInput, trace_every: int | None) ->
     bsz = P.shape[0]
     fail = np.zeros(bsz, dtype=np.int64)
     for o, wheel in ((_F, params.front), (_R, params.rear)):
-        s0 = P[:, o + End.S0]
-        fail[~((s0 <= wheel.travel) & (s0 >= wheel.travel_grid[0]))] = c.FAIL_STATIC
+        fail[drv.static_failures(P[:, o + End.S0], wheel.travel, wheel.travel_grid[0])] = (
+            c.FAIL_STATIC
+        )
     acc = np.zeros((bsz, _NACC))
     c.init_wheel_acc(acc, _ACC_F)
     c.init_wheel_acc(acc, _ACC_R)
     acc[:, _ACC_CAR + Car.DIVE_TRAVEL] = -np.inf
     acc[:, _ACC_CAR + Car.DIVE_PITCH] = -np.inf
-    every = int(trace_every) if trace_every else 1
-    m = (road.samples - 1) // every + 1 if trace_every else 0
+    every, m = drv.trace_layout(road.samples, trace_every)
 
     def table(a: FloatArray) -> FloatArray:
         return np.ascontiguousarray(a, dtype=np.float64)
@@ -745,26 +740,24 @@ def simulate_halfcar_reference(
     metric accumulation as the RK4 kernel. max_step [s] defaults to the road's dt.
     """
     prep = _prepare(params, road, trace_every)
-    t = np.arange(road.samples) * road.dt
     zf, zfd, zr, zrd = road.front_z, road.front_zdot, road.rear_z, road.rear_zdot
     dec, lat = road.decel, road.lateral_accel
-    for b in range(prep.P.shape[0]):
-        if prep.fail[b] != 0:
-            continue
+
+    def setup(b: int) -> tuple[Callable[[float, FloatArray], FloatArray], FloatArray]:
         p = prep.P[b]
         sf, df, sr, dr = (tab[b] for tab in prep.tables)
 
-        def fun(tt: float, yy: FloatArray, p: FloatArray = p, sf: FloatArray = sf,
-                df: FloatArray = df, sr: FloatArray = sr, dr: FloatArray = dr) -> FloatArray:
+        def fun(tt: float, yy: FloatArray) -> FloatArray:
             return _rhs_at_time(tt, yy, zf, zfd, zr, zrd, dec, lat, road.dt, p, sf, df, sr, dr)
 
-        sol = solve_ivp(fun, (0.0, t[-1]), _initial_state(p, zf[0], zr[0]), method=method,
-                        t_eval=t, rtol=rtol, atol=atol,
-                        max_step=max_step if max_step is not None else road.dt)
-        if sol.status != 0 or sol.y.shape[1] != t.shape[0]:
-            prep.fail[b] = c.FAIL_NON_FINITE
-            continue
-        prep.fail[b] = _replay(np.ascontiguousarray(sol.y.T), zf, zfd, zr, zrd, dec, lat,
-                               road.friction, prep.relax_f, prep.relax_r, p, sf, df, sr, dr,
-                               prep.sos, prep.acc[b], prep.hist[b], prep.trace[b], prep.every)
+        return fun, _initial_state(p, zf[0], zr[0])
+
+    def replay(b: int, Y: FloatArray) -> int:
+        sf, df, sr, dr = (tab[b] for tab in prep.tables)
+        return int(_replay(Y, zf, zfd, zr, zrd, dec, lat, road.friction, prep.relax_f,
+                           prep.relax_r, prep.P[b], sf, df, sr, dr, prep.sos, prep.acc[b],
+                           prep.hist[b], prep.trace[b], prep.every))
+
+    drv.solve_reference(road, prep.fail, setup, replay, rtol=rtol, atol=atol,
+                        max_step=max_step, method=method)
     return _finish(prep, road, trace_every)

@@ -13,15 +13,16 @@ Integrated with fixed-step RK4 at the road's sample spacing; the road is linear 
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from enum import auto
 
 import numpy as np
 from numba import njit, prange
 from numpy.typing import NDArray
-from scipy.integrate import solve_ivp
 
 from tuneopt.sim import _common as c
+from tuneopt.sim import _driver as drv
 from tuneopt.sim import _wheel as w
 from tuneopt.sim._wheel import End
 from tuneopt.sim.iso2631 import weighting_sos
@@ -216,13 +217,7 @@ def _run(P, springs, dampers, zr, zrd, dt, sos, acc, hist, fail, trace, every):
 @njit(cache=True)
 def _rhs_at_time(t, y, zr, zrd, dt, p, spring, damper):
     """The same equations at any time, the road linear between samples (for solve_ivp)."""
-    u = t / dt
-    i = int(u)
-    if i > zr.shape[0] - 2:
-        i = zr.shape[0] - 2
-    if i < 0:
-        i = 0
-    f = u - i
+    i, f = drv.road_position(t, dt, zr.shape[0])
     dy = np.empty(4)
     out = np.empty(_NOUT)
     _rhs(y, zr[i] + f * (zr[i + 1] - zr[i]), zrd[i] + f * (zrd[i + 1] - zrd[i]), p, spring,
@@ -271,12 +266,12 @@ def _prepare(params: QuarterCarParams, road: RoadInput, trace_every: int | None)
     P[:, Par.INV_M_S] = 1.0 / sprung
     w.pack_wheel(P, _W, wheel, sprung * c.GRAVITY, 0.0, np.ones(bsz))
     fail = np.zeros(bsz, dtype=np.int64)
-    s0 = P[:, _W + End.S0]
-    fail[~((s0 <= wheel.travel) & (s0 >= wheel.travel_grid[0]))] = c.FAIL_STATIC
+    fail[drv.static_failures(P[:, _W + End.S0], wheel.travel, wheel.travel_grid[0])] = (
+        c.FAIL_STATIC
+    )
     acc = np.zeros((bsz, _NACC))
     c.init_wheel_acc(acc, _ACC_W)
-    every = int(trace_every) if trace_every else 1
-    m = (road.samples - 1) // every + 1 if trace_every else 0
+    every, m = drv.trace_layout(road.samples, trace_every)
     return _Prepared(
         P=P,
         springs=np.ascontiguousarray(wheel.spring_force, dtype=np.float64),
@@ -351,28 +346,20 @@ def simulate_quartercar_reference(
     same metric accumulation as the RK4 kernel. max_step [s] defaults to the road's dt.
     """
     prep = _prepare(params, road, trace_every)
-    t = np.arange(road.samples) * road.dt
     zr, zrd = road.front_z, road.front_zdot
-    for b in range(prep.P.shape[0]):
-        if prep.fail[b] != 0:
-            continue
+
+    def setup(b: int) -> tuple[Callable[[float, FloatArray], FloatArray], FloatArray]:
         p, spring, damper = prep.P[b], prep.springs[b], prep.dampers[b]
-        y0 = np.array([zr[0], zr[0], 0.0, 0.0])
-        sol = solve_ivp(
-            lambda tt, yy, p=p, spring=spring, damper=damper: _rhs_at_time(
-                tt, yy, zr, zrd, road.dt, p, spring, damper
-            ),
-            (0.0, t[-1]),
-            y0,
-            method=method,
-            t_eval=t,
-            rtol=rtol,
-            atol=atol,
-            max_step=max_step if max_step is not None else road.dt,
-        )
-        if sol.status != 0 or sol.y.shape[1] != t.shape[0]:
-            prep.fail[b] = c.FAIL_NON_FINITE
-            continue
-        prep.fail[b] = _replay(np.ascontiguousarray(sol.y.T), zr, zrd, p, spring, damper,
-                               prep.sos, prep.acc[b], prep.hist[b], prep.trace[b], prep.every)
+
+        def fun(tt: float, yy: FloatArray) -> FloatArray:
+            return _rhs_at_time(tt, yy, zr, zrd, road.dt, p, spring, damper)
+
+        return fun, np.array([zr[0], zr[0], 0.0, 0.0])
+
+    def replay(b: int, Y: FloatArray) -> int:
+        return int(_replay(Y, zr, zrd, prep.P[b], prep.springs[b], prep.dampers[b], prep.sos,
+                           prep.acc[b], prep.hist[b], prep.trace[b], prep.every))
+
+    drv.solve_reference(road, prep.fail, setup, replay, rtol=rtol, atol=atol,
+                        max_step=max_step, method=method)
     return _finish(prep, road, trace_every)
