@@ -29,6 +29,31 @@ def road_position(t, dt, n):
     return i, u - i
 
 
+@njit(cache=True, inline="always")
+def rk4_stage(st, k, dt):
+    """Where RK4 stage st of the step from sample k takes the road and its state: the sample
+    j1 the road moves towards, the weight wt of that move, and the step [s] from the state."""
+    if st == 0:
+        return k, 0.0, 0.0
+    if st < 3:
+        return k + 1, 0.5, 0.5 * dt
+    return k + 1, 1.0, dt
+
+
+@njit(cache=True, inline="always")
+def rk4_stage_state(tmp, y, kk, st, step, n):
+    """The state of stage st: y plus step times the previous stage's rate (n states)."""
+    for i in range(n):
+        tmp[i] = y[i] + (step * kk[st - 1, i] if st > 0 else 0.0)
+
+
+@njit(cache=True, inline="always")
+def rk4_update(y, kk, dt, n):
+    """The RK4 step of the n states y from the four stage rates kk."""
+    for i in range(n):
+        y[i] += dt / 6.0 * (kk[0, i] + 2.0 * kk[1, i] + 2.0 * kk[2, i] + kk[3, i])
+
+
 def trace_layout(samples: int, trace_every: int | None) -> tuple[int, int]:
     """Trace stride and number of kept samples (0 without traces)."""
     every = int(trace_every) if trace_every else 1

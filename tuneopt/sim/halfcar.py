@@ -444,17 +444,11 @@ def _run(P, sfs, dfs, srs, drs, zf, zfd, zr, zrd, dec, lat, mu, relax_f, relax_r
             done = False
             for st in range(4):
                 # road at the stage time: sample k, the midpoint, or sample k + 1
-                if st == 0:
-                    j0, j1, wt, step = k, k, 0.0, 0.0
-                elif st < 3:
-                    j0, j1, wt, step = k, k + 1, 0.5, 0.5 * h
-                else:
-                    j0, j1, wt, step = k, k + 1, 1.0, h
-                for i in range(_NS):
-                    tmp[i] = y[i] + (step * kk[st - 1, i] if st > 0 else 0.0)
-                _rhs(tmp, zf[j0] + wt * (zf[j1] - zf[j0]), zfd[j0] + wt * (zfd[j1] - zfd[j0]),
-                     zr[j0] + wt * (zr[j1] - zr[j0]), zrd[j0] + wt * (zrd[j1] - zrd[j0]),
-                     dec[j0] + wt * (dec[j1] - dec[j0]), lat[j0] + wt * (lat[j1] - lat[j0]), p,
+                j1, wt, step = drv.rk4_stage(st, k, h)
+                drv.rk4_stage_state(tmp, y, kk, st, step, _NS)
+                _rhs(tmp, zf[k] + wt * (zf[j1] - zf[k]), zfd[k] + wt * (zfd[j1] - zfd[k]),
+                     zr[k] + wt * (zr[j1] - zr[k]), zrd[k] + wt * (zrd[j1] - zrd[k]),
+                     dec[k] + wt * (dec[j1] - dec[k]), lat[k] + wt * (lat[j1] - lat[k]), p,
                      sf, df, sr, dr, kk[st], out)
                 if st == 0:
                     code = _record(k, y, kk[0], out, zf[k], zr[k], dec[k], lat[k], mu, relax_f[k],
@@ -468,8 +462,7 @@ def _run(P, sfs, dfs, srs, drs, zf, zfd, zr, zrd, dec, lat, mu, relax_f, relax_r
                         break
             if done:
                 break
-            for i in range(_NS):
-                y[i] += h / 6.0 * (kk[0, i] + 2.0 * kk[1, i] + 2.0 * kk[2, i] + kk[3, i])
+            drv.rk4_update(y, kk, h, _NS)
         c.close_wheel(acc_b, _ACC_F)
         c.close_wheel(acc_b, _ACC_R)
 

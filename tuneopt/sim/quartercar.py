@@ -188,14 +188,8 @@ def _run(P, springs, dampers, zr, zrd, dt, sos, acc, hist, fail, trace, every):
             done = False
             for st in range(4):
                 # road at the stage time: sample k, the midpoint, or sample k + 1
-                if st == 0:
-                    j1, wt, step = k, 0.0, 0.0
-                elif st < 3:
-                    j1, wt, step = k + 1, 0.5, 0.5 * h
-                else:
-                    j1, wt, step = k + 1, 1.0, h
-                for i in range(4):
-                    tmp[i] = y[i] + (step * kk[st - 1, i] if st > 0 else 0.0)
+                j1, wt, step = drv.rk4_stage(st, k, h)
+                drv.rk4_stage_state(tmp, y, kk, st, step, 4)
                 _rhs(tmp, zr[k] + wt * (zr[j1] - zr[k]), zrd[k] + wt * (zrd[j1] - zrd[k]), p,
                      spring, damper, kk[st], out)
                 if st == 0:
@@ -209,8 +203,7 @@ def _run(P, springs, dampers, zr, zrd, dt, sos, acc, hist, fail, trace, every):
                         break
             if done:
                 break
-            for i in range(4):
-                y[i] += h / 6.0 * (kk[0, i] + 2.0 * kk[1, i] + 2.0 * kk[2, i] + kk[3, i])
+            drv.rk4_update(y, kk, h, 4)
         c.close_wheel(acc_b, _ACC_W)
 
 
