@@ -73,9 +73,11 @@ def test_resume_with_a_larger_budget_continues(finished: Path, tmp_path: Path) -
 
     copy = tmp_path / "copy"
     shutil.copytree(finished, copy)
-    assert main(["optimise", "--resume", str(copy), "--trials", "32", "--realisations", "1"]) == 0
+    assert main(["optimise", "--resume", str(copy), "--trials", "32"]) == 0
     data = json.loads((copy / "result.json").read_text())
     assert data["trials"]["finished"] == 32
+    # a resumed run keeps its realisations: asking for others is refused, not ignored
+    assert main(["optimise", "--resume", str(copy), "--realisations", "3"]) == 2
 
 
 def test_an_existing_study_is_not_overwritten(

@@ -34,17 +34,39 @@ def test_a_setup_clearly_worse_stops_after_the_minimum() -> None:
 
 def test_pure_noise_is_dropped_at_the_tests_level() -> None:
     """Two setups with the same mean: the worse-looking one is dropped when |t| exceeds the
-    one-sided 95 % point, so in 10 % of races (two-sided 10 % of the t distribution with
-    k - 1 degrees of freedom) [D]."""
+    one-sided point at 1 - 0.05/2 (Bonferroni over the 2 setups riding), so in 5 % of races
+    (two-sided 5 % of the t distribution with k - 1 degrees of freedom) [D]."""
     rng = np.random.default_rng(7)
     drops, n = 0, 4000
     for _ in range(n):
         difficulty = rng.normal(8.0, 0.8, size=4)
         scores = difficulty + rng.normal(0, 0.3, size=(2, 4))
         drops += int(not _drop(scores).all())
-    expected = 2 * (1 - 0.95)
+    expected = 2 * (0.05 / 2)
     sd = np.sqrt(expected * (1 - expected) / n)
     assert abs(drops / n - expected) < 4 * sd
+
+
+def test_a_batch_of_equal_setups_mostly_rides_on() -> None:
+    """16 equal setups raced over 8 realisations with a look after each from the 3rd: the
+    Bonferroni correction over the batch keeps most riding. Bound: the 9 % measured for this
+    race on synthetic scores, with room (a regression guard, no outside source); without the
+    correction about half were dropped."""
+    rng = np.random.default_rng(2)
+    dropped = []
+    for _ in range(200):
+        scores = rng.normal(8.0, 0.8, size=8) + rng.normal(0, 0.3, size=(16, 8))
+        active = np.ones(16, dtype=bool)
+        for k in range(3, 8):
+            masked = np.where(active[:, None], scores[:, :k], np.nan)
+            Evaluator._drop_losers(masked, active, None, RacePolicy())
+        dropped.append(1 - active.mean())
+    assert np.mean(dropped) < 0.15
+
+
+def test_estimates_fall_back_to_plain_means_without_a_full_rider() -> None:
+    scores = np.array([[1.0, 1.0, 1.0, 1.0, np.nan], [2.0, 2.1, 2.0, np.nan, np.nan]])
+    np.testing.assert_allclose(Evaluator._estimates(scores, None), [1.0, 6.1 / 3])
 
 
 def test_a_leader_from_the_study_drops_setups_worse_than_it() -> None:
@@ -169,6 +191,7 @@ def test_ranking_comes_from_the_fresh_realisations(
     assert best.score == pytest.approx(w.score, rel=1e-12)
     assert ranking.baseline is not None
     assert ranking.baseline.score == pytest.approx(b.score, rel=1e-12)
+    assert best.score <= ranking.baseline.score  # the current setup competed in the finals
     expected = compare_scores(w.scores, b.scores)
     assert best.validation["gain"] == pytest.approx(expected.gain, rel=1e-12)
     assert best.validation["gain_low"] == pytest.approx(expected.gain_low, rel=1e-12)

@@ -45,7 +45,7 @@ def test_tradeoff_sentence_when_the_winner_had_none() -> None:
 
 
 def test_every_score_term_reads_in_a_sentence() -> None:
-    from tuneopt.optimise.ranking import _WORDS
+    from tuneopt.optimise.ranking import TERM_WORDS
     from tuneopt.optimise.score import TERMS
 
-    assert set(_WORDS) == set(TERMS)
+    assert set(TERM_WORDS) == set(TERMS)

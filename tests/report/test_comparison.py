@@ -101,6 +101,7 @@ def test_each_differing_setting_names_the_term_that_drives_it(dry_run: Path) -> 
     if total > 0:
         assert TERM_NAMES[term] in text
     assert text.startswith("on B's course 0 ")
+    assert "not scored" in _reason("0", "9", "outside this course's search range", None)
     assert compare_runs_reasons_cover_differences(dry_run)
 
 

@@ -49,6 +49,12 @@ def register(sub: Any) -> None:
     p.set_defaults(func=run)
 
 
+# Every search realisation is held in memory by each worker process; the validation's are
+# built one at a time, but each costs a ride of every finalist.
+MAX_REALISATIONS = 64
+MAX_VALIDATION = 200
+
+
 def parse_deadline(text: str, now: dt.datetime | None = None) -> float:
     """Unix time of a deadline given as HH:MM (the next such time) or an ISO date-time."""
     now = now or dt.datetime.now()
@@ -100,10 +106,17 @@ def _arguments(args: argparse.Namespace) -> None:
         problems.append(("--workers", "must be at least 1"))
     if args.batch < 1:
         problems.append(("--batch", "must be at least 1"))
-    if args.realisations is not None and args.realisations < 1:
-        problems.append(("--realisations", "must be at least 1"))
-    if args.validation is not None and args.validation < 2:
-        problems.append(("--validation", "must be at least 2 (an interval needs two)"))
+    if args.realisations is not None and not 1 <= args.realisations <= MAX_REALISATIONS:
+        problems.append(("--realisations", f"must be between 1 and {MAX_REALISATIONS}"))
+    if args.validation is not None and not 2 <= args.validation <= MAX_VALIDATION:
+        problems.append(
+            ("--validation", f"must be between 2 (an interval needs two) and {MAX_VALIDATION}")
+        )
+    for name in ("realisations", "validation"):
+        if args.resume is not None and getattr(args, name) is not None:
+            problems.append(
+                (f"--{name}", "a resumed run keeps its own; start a new run to change it")
+            )
     if args.top < 1:
         problems.append(("--top", "must be at least 1"))
     if args.seed is not None and args.seed < 0:

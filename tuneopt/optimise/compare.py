@@ -18,25 +18,11 @@ from typing import Any
 from tuneopt.model import InputError, Scenario, Setup, setup_problems
 from tuneopt.optimise.evaluate import Evaluator, Outcome
 from tuneopt.optimise.local import load_run
+from tuneopt.optimise.ranking import TERM_WORDS
 from tuneopt.optimise.space import build_space
 
-# Plain names of the score's terms, as a tuner would say them.
-TERM_NAMES = {
-    "front_load_variation": "front tyre load variation",
-    "rear_load_variation": "rear tyre load variation",
-    "unloaded_time": "time with a wheel unloaded",
-    "bottom_outs": "bottom-outs",
-    "bottom_out_depth": "bottom-out depth",
-    "bottom_out_risk": "bottom-out risk",
-    "rim_strikes": "rim strikes",
-    "front_grip": "grip asked of the front tyre and not there",
-    "rear_grip": "grip asked of the rear tyre and not there",
-    "pack_down": "pack-down",
-    "top_outs": "top-out strikes",
-    "kick": "kick after deep compressions",
-    "pitch": "pitch motion",
-    "rider_vibration": "vibration at the rider",
-}
+# Plain names of the score's terms, as the trade-off sentences say them.
+TERM_NAMES = {term: words[0] for term, words in TERM_WORDS.items()}
 
 __all__ = ["Comparison", "compare_runs"]
 
@@ -109,7 +95,10 @@ def compare_runs(a: Path, b: Path) -> Comparison:
     shared = [k for k in diff if k in si_a and k in si_b]
     on_b = _swap_costs(ev_b, sb, wb, {k: si_a[k] for k in shared}, b_on_b)
     on_a = _swap_costs(ev_a, sa, wa, {k: si_b[k] for k in shared}, a_on_a)
-    reasons = {k: _reason(shown_a[k], shown_b[k], on_a.get(k), on_b.get(k)) for k in shared}
+    reasons = {
+        k: _reason(shown_a[k], shown_b[k], on_a.get(k, "not scored"), on_b.get(k, "not scored"))
+        for k in shared
+    }
     return Comparison(
         names=(sa.name, sb.name),
         settings=(shown_a, shown_b),
@@ -125,25 +114,38 @@ def _weighted(o: Outcome, scenario: Scenario) -> dict[str, float]:
     return {k: weights.get(k, 0.0) * v for k, v in o.terms.items()}
 
 
+Cost = tuple[float, str, float] | None | str
+
+
 def _swap_costs(
     ev: Evaluator, scenario: Scenario, winner: Setup, others: dict[str, float], own: Outcome
-) -> dict[str, tuple[float, str, float] | None]:
+) -> dict[str, Cost]:
     """For each setting: (score change, the term that grew most, its change) when the winner
-    takes the other winner's value of that one setting on its own course (None: not ridable)."""
-    if not others or not own.ok:
+    takes the other winner's value of that one setting on its own course; None when that is
+    not ridable; a string saying why it was not scored (the other value lies outside this
+    course's search range). Settings missing here were not scored at all."""
+    if not others:
         return {}
+    if not own.ok:
+        return {k: "this course's winner itself is not ridable here" for k in others}
     space = build_space(scenario, winner)
     base = space.indices(winner)
-    names = [k for k in others if k in space.names]
-    setups = [
-        space.setup({**base, k: space[k].index_of(others[k])}) for k in names
-    ]
+    out: dict[str, Cost] = {}
+    names = []
+    for k in others:
+        if k not in space.names:
+            continue
+        values = space[k].values
+        if not min(values) - 1e-9 <= others[k] <= max(values) + 1e-9:
+            out[k] = "outside this course's search range"
+            continue
+        names.append(k)
+    setups = [space.setup({**base, k: space[k].index_of(others[k])}) for k in names]
     outcomes = ev.evaluate([winner, *setups])
     ref = outcomes[0]
     if not ref.ok:
-        return {}
+        return {k: "this course's winner itself is not ridable here" for k in others}
     ref_terms = _weighted(ref, scenario)
-    out: dict[str, tuple[float, str, float] | None] = {}
     for k, o in zip(names, outcomes[1:], strict=True):
         if not o.ok:
             out[k] = None
@@ -155,16 +157,14 @@ def _swap_costs(
     return out
 
 
-def _reason(
-    value_a: str,
-    value_b: str,
-    on_a: tuple[float, str, float] | None,
-    on_b: tuple[float, str, float] | None,
-) -> str:
+def _reason(value_a: str, value_b: str, on_a: Cost, on_b: Cost) -> str:
     parts = []
     for course, other_value, cost in (("B's", value_a, on_b), ("A's", value_b, on_a)):
         if cost is None:
             parts.append(f"on {course} course {other_value} leaves the winner unridable")
+            continue
+        if isinstance(cost, str):
+            parts.append(f"on {course} course {other_value} was not scored ({cost})")
             continue
         total, term, delta = cost
         if total <= 0:
@@ -172,7 +172,7 @@ def _reason(
                          f"({total:+.3f} points)")  # fmt: skip
             continue
         parts.append(
-            f"on {course} course {other_value} costs {total:+.3f} points, most of it in "
-            f"{TERM_NAMES.get(term, term)} ({delta:+.3f})"
+            f"on {course} course {other_value} costs {total:+.3f} points; the term that grows "
+            f"most is {TERM_NAMES.get(term, term)} ({delta:+.3f})"
         )
     return "; ".join(parts)

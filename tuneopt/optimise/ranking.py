@@ -24,7 +24,7 @@ from tuneopt.optimise.validation import (
 __all__ = ["RankedSetup", "Ranking", "pareto_front", "rank_study", "tradeoff_sentence"]
 
 # How each score term reads in a sentence: (noun phrase, "better" adjective, "worse" adjective).
-_WORDS = {
+TERM_WORDS = {
     "front_load_variation": ("front tyre load", "steadier", "more variable"),
     "rear_load_variation": ("rear tyre load", "steadier", "more variable"),
     "unloaded_time": ("time with a wheel unloaded", "shorter", "longer"),
@@ -112,12 +112,12 @@ def _relative(a: float, b: float) -> float:
 def tradeoff_sentence(rank: int, terms: dict[str, float], winner: dict[str, float]) -> str:
     """ "2nd is 9 % steadier on the front tyre load but has 2.0× the bottom-outs"."""
     ordinal = {2: "2nd", 3: "3rd"}.get(rank, f"{rank}th")
-    changes = {k: _relative(terms[k], winner[k]) for k in _WORDS if k in terms and k in winner}
+    changes = {k: _relative(terms[k], winner[k]) for k in TERM_WORDS if k in terms and k in winner}
     better = min(changes, key=lambda k: changes[k])
     worse = max(changes, key=lambda k: changes[k])
 
     def phrase(key: str, good: bool) -> str:
-        noun, up, down = _WORDS[key]
+        noun, up, down = TERM_WORDS[key]
         change = changes[key]
         if not np.isfinite(change):
             return f"has {noun} where the winner has none"
@@ -308,6 +308,12 @@ def rank_study(
     base = next((t for t in complete if t.user_attrs.get("baseline")), None)
     validate = evaluator is not None and validation >= 2
     best = _distinct_best(feasible, max(top, FINALISTS) if validate else top)
+    if validate and base is not None and "failure" not in base.user_attrs:
+        # the current setup always competes on the fresh realisations: when it rides best
+        # there, it is the recommendation
+        key = tuple(sorted((k, int(v)) for k, v in base.params.items()))
+        if all(tuple(sorted((k, int(v)) for k, v in t.params.items())) != key for t in best):
+            best.append(base)
     entries = [_entry(i + 1, t, space, base) for i, t in enumerate(best)]
     baseline_entry = (
         _entry(0, base, space, base)
@@ -339,9 +345,16 @@ def rank_study(
             for e in entries[1:]
         ]
     pareto: list[int] = []
-    if feasible:
-        pts = np.array([[t.user_attrs["terms"][k] for k in PARETO_TERMS] for t in feasible])
-        pareto = sorted(feasible[i].number for i in pareto_front(pts))
+    # over the trials that rode every realisation: the terms of one stopped early are means
+    # over its first few realisations only, not comparable
+    full = [
+        t for t in feasible
+        if evaluator is None
+        or len(t.user_attrs.get("scores", ())) in (0, evaluator.realisations)
+    ]  # fmt: skip
+    if full:
+        pts = np.array([[t.user_attrs["terms"][k] for k in PARETO_TERMS] for t in full])
+        pareto = sorted(full[i].number for i in pareto_front(pts))
     return Ranking(
         entries,
         baseline_entry,

@@ -6,17 +6,21 @@ a shard number). Each shard runs the same study runner as a local run, on a jour
 
 from __future__ import annotations
 
+import logging
 import os
 import shutil
 import socket
 import threading
 import time
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
 import optuna
 from redis import Redis
 from redis.client import Pipeline
+from redis.exceptions import LockError
 from rq import Queue, Retry
 from rq.exceptions import NoSuchJobError
 from rq.job import Callback, Dependency, Job, JobStatus
@@ -39,6 +43,8 @@ from tuneopt.optimise.redis_storage import delete_study_keys, redis_storage
 from tuneopt.optimise.runner import count_finished
 from tuneopt.service.records import JobState, JobStore, is_job_id
 from tuneopt.service.settings import Settings
+
+log = logging.getLogger(__name__)
 
 __all__ = [
     "ShardInterrupted",
@@ -117,19 +123,37 @@ def enqueue_start(queue: Queue, job_id: str, retries: int, pipeline: Pipeline | 
     )
 
 
-# Counting a job's trials and asking the next batch is a short step (well under a second);
-# a lock left by a killed worker lapses after this long [s].
-ASK_LOCK_SECONDS = 10
+# Counting a job's trials and asking the next batch is a short step (about a second with a
+# long study); a lock left by a killed worker lapses after this long [s].
+ASK_LOCK_SECONDS = 60
 
 
-def _ask_lock(store: JobStore, job_id: str) -> Any:
+@contextmanager
+def _ask_lock(store: JobStore, job_id: str) -> Iterator[None]:
     """The lock a job's shards share while they count trials and ask a batch, so that shards
-    asking at the same moment never ask past the budget."""
-    return store.redis.lock(
+    asking at the same moment never ask past the budget. A lock that cannot be had in time, or
+    that lapsed before it was released, costs at most one batch over the budget, never the
+    shard: it is logged and the shard goes on."""
+    lock = store.redis.lock(
         f"{store.study_prefix(job_id)}:ask-lock",
         timeout=ASK_LOCK_SECONDS,
-        blocking_timeout=3 * ASK_LOCK_SECONDS,
+        blocking_timeout=ASK_LOCK_SECONDS,
     )
+    held = False
+    try:
+        held = bool(lock.acquire())
+    except LockError:
+        pass
+    if not held:
+        log.warning("job %s: asking a batch without the ask lock (not had in time)", job_id)
+    try:
+        yield
+    finally:
+        if held:
+            try:
+                lock.release()
+            except LockError:  # it lapsed while held: another shard may have asked meanwhile
+                log.warning("job %s: the ask lock lapsed before it was released", job_id)
 
 
 def _plan(job_id: str, request: dict[str, Any], deadline: float) -> StudyPlan:
