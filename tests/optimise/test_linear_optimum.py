@@ -2,7 +2,7 @@
 
 Reference: the stationary covariance of the linear quarter-car under white road velocity from
 scipy.linalg.solve_continuous_lyapunov, minimised over the damping with
-scipy.optimize.minimize_scalar (REFERENCES.md, quarter-car linear theory [D]). The optimiser
+scipy.optimize.minimize_scalar (docs/references.md, quarter-car linear theory [D]). The optimiser
 sees only time-domain simulations of the same quarter-car on one road record (common random
 numbers), through the same study runner the scenarios use.
 """
@@ -27,7 +27,7 @@ DAMPING = np.geomspace(150.0, 3000.0, 301)  # the optimiser's choices [N s/m]
 
 
 def _sigmas(c: float) -> tuple[float, float]:
-    """σ(F_t) and σ(z̈_s) of the linear quarter-car (REFERENCES.md state space)."""
+    """σ(F_t) and σ(z̈_s) of the linear quarter-car (docs/references.md state space)."""
     a, b = linear_quartercar_system(M_S, M_U, K, c, K_T)
     p = solve_continuous_lyapunov(a, -Q * (b @ b.T))
     acc = np.array([-K / M_S, -c / M_S, 0.0, c / M_S])
@@ -76,7 +76,7 @@ def _optimise(road: RoadInput, measure: str) -> float:
 def test_road_holding_and_comfort_optima(road: RoadInput) -> None:
     c_road = minimize_scalar(lambda c: _sigmas(c)[0], bounds=(150, 3000), method="bounded").x
     c_comfort = minimize_scalar(lambda c: _sigmas(c)[1], bounds=(150, 3000), method="bounded").x
-    # comfort optimum in closed form c_A = k·√((m_s+m_u)/k_t) (REFERENCES.md [D])
+    # comfort optimum in closed form c_A = k·√((m_s+m_u)/k_t) (docs/references.md [D])
     assert c_comfort == pytest.approx(K * np.sqrt((M_S + M_U) / K_T), rel=1e-3)
     # the two optima bracket each other as theory says: road holding wants more damping
     assert c_road > 1.2 * c_comfort

@@ -18,7 +18,7 @@ from tuneopt.physics.practice import bike_kind
      (0.200, "downhill")],
 )  # fmt: skip
 def test_kind_follows_fork_travel(travel: float, kind: str) -> None:
-    # travel bands: common practice, no source (REFERENCES "Bicycle numbers")
+    # travel bands: common practice, no source (docs/references.md, rules of thumb)
     assert bike_kind(travel) == kind
 
 

@@ -63,7 +63,7 @@ def test_bilinear_curve_has_its_knee_and_slopes() -> None:
 
 
 def test_equivalent_damping_of_a_linear_damper_is_its_coefficient() -> None:
-    # c_eq = E_cycle/(π·ω·X²) for a sinusoidal dyno test (REFERENCES [D]); for F = c·v the
+    # c_eq = E_cycle/(π·ω·X²) for a sinusoidal dyno test (docs/references.md [D]); for F = c·v the
     # energy per cycle is π·c·ω·X², so c_eq = c
     c, X, f = 1500.0, 0.01, 2.0
     w = 2 * np.pi * f
@@ -71,7 +71,7 @@ def test_equivalent_damping_of_a_linear_damper_is_its_coefficient() -> None:
     v = X * w * np.cos(w * t)
     d = DamperParams(BilinearCurve(c, c, 0.1), BilinearCurve(c, c, 0.1))
     assert_allclose(equivalent_viscous_damping(d.force(v), v, t, X, w), c, rtol=1e-6)
-    # peak velocity of the test is 2π·f·X (REFERENCES, Konieczny 2016)
+    # peak velocity of the test is 2π·f·X (docs/references.md, Konieczny 2016)
     assert_allclose(v.max(), 2 * np.pi * f * X, rtol=1e-9)
 
 

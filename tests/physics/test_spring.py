@@ -25,7 +25,7 @@ FORK = AirSpringParams(AREA, 200e-6, 6e5, AREA, 30e-6, 6e5, 1.3)
 
 
 def test_positive_chamber_follows_the_polytropic_law() -> None:
-    # p·V^n = const (REFERENCES: air spring, standard physics), checked from its definition
+    # p·V^n = const (docs/references.md: air spring, standard physics), checked from its definition
     spring = AirSpringParams(AREA, 200e-6, 6e5, polytropic_index=1.3)
     x = np.linspace(0, 0.15, 7)
     p_abs = spring.force(x) / AREA + ATMOSPHERE
@@ -79,7 +79,7 @@ def test_more_spacers_give_more_end_stroke_force(spacers: int, pressure: float) 
 
 
 def test_linear_spring_frequency_from_static_deflection() -> None:
-    # f = √(g/δ)/2π for a linear spring without preload (REFERENCES [D])
+    # f = √(g/δ)/2π for a linear spring without preload (docs/references.md [D])
     k, m = 12e3, 40.0
     coil = CoilSpringParams(k)
     delta = solve_travel(coil.force, m * GRAVITY, 0.2)
@@ -94,8 +94,9 @@ def test_end_stops_act_only_beyond_the_free_travel() -> None:
 
 
 def test_fork_wheel_rate_is_axial_rate_over_sin_squared() -> None:
-    # vertical rate = axial rate/sin²(HA) for an axle sliding along the fork axis (REFERENCES
-    # [D]), checked on the assembled end against a numerical derivative of its vertical force
+    # vertical rate = axial rate/sin²(HA) for an axle sliding along the fork axis
+    # (docs/references.md [D]), checked on the assembled end against a numerical derivative of
+    # its vertical force
     s = load_scenario(SCENARIOS / "downhill_coil.toml")
     end = front_end(s, s.setup.fork)
     sin = np.sin(np.radians(s.bike.head_angle))
@@ -109,8 +110,8 @@ def test_fork_wheel_rate_is_axial_rate_over_sin_squared() -> None:
 
 
 def test_rear_wheel_force_derivative_matches_the_wheel_rate() -> None:
-    # k_w = k_s/LR² − (F_s/LR²)·dLR/dx_w (REFERENCES [D]) against a central difference of the
-    # wheel force F_s(s(x_w))/LR(x_w)
+    # k_w = k_s/LR² − (F_s/LR²)·dLR/dx_w (docs/references.md [D]) against a central difference
+    # of the wheel force F_s(s(x_w))/LR(x_w)
     for name in ("trail_air", "enduro_coil", "downhill_coil"):
         s = load_scenario(SCENARIOS / f"{name}.toml")
         end = rear_end(s, s.setup.shock)

@@ -42,7 +42,7 @@ def test_spring_holds_the_sprung_load_at_sag(scenario_path: Path) -> None:
 
 def test_coil_fork_frequency_from_static_deflection() -> None:
     # f = √(g/δ)/2π for a linear spring without preload, δ the vertical static deflection at
-    # the wheel (REFERENCES [D])
+    # the wheel (docs/references.md [D])
     data = scenario_data("downhill_coil")
     data["fork"]["spring"]["preload"] = 0
     s = scenario_from_data(data)
@@ -53,7 +53,7 @@ def test_coil_fork_frequency_from_static_deflection() -> None:
 
 
 def test_fork_damping_ratio_uses_the_vertical_coefficient() -> None:
-    # ζ = c/(2√(k·m)) with c = c_axial/sin²(HA) at the wheel (REFERENCES [D])
+    # ζ = c/(2√(k·m)) with c = c_axial/sin²(HA) at the wheel (docs/references.md [D])
     s = load_scenario(SCENARIOS / "downhill_coil.toml")
     c = static_check(s)
     adj = s.fork.damper.adjusters["lsr"]
@@ -113,7 +113,8 @@ def test_common_practice_warnings_are_marked_as_such() -> None:
 
 def test_fork_axis_brake_term_adds_the_referenced_share() -> None:
     # [D] statics: axial load F_z sin HA + F_b cos HA; at HA 65 deg and F_b = 0.9 F_z the brake
-    # adds 0.9 cot 65 deg = 42 % to the axial load of F_z alone (REFERENCES, braking section)
+    # adds 0.9 cot 65 deg = 42 % to the axial load of F_z alone (docs/references.md, grip
+    # capacity and braking through the fork)
     fz = 1000.0
     extra = fork_axial_load(fz, 0.9 * fz, 65.0) / fork_axial_load(fz, 0.0, 65.0) - 1
     assert_allclose(extra, 0.9 / np.tan(np.radians(65.0)), rtol=1e-12)

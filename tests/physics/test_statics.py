@@ -25,7 +25,7 @@ from tuneopt.physics.statics import (
 
 
 def test_static_split_by_moment_balance() -> None:
-    # F_front = m·g·l_r/L, loads add up to the weight (REFERENCES, standard)
+    # F_front = m·g·l_r/L, loads add up to the weight (docs/references.md, standard)
     f, r = static_split(95.0, 0.52, 1.23)
     assert_allclose(f, 95 * GRAVITY * 0.52 / 1.23)
     assert_allclose(f + r, 95 * GRAVITY)
@@ -39,7 +39,7 @@ def test_braking_load_transfer() -> None:
 
 
 def test_rear_lifts_where_the_transfer_equals_the_static_rear_load() -> None:
-    # front brake only: the rear lifts at a/g = l_f/h (REFERENCES [D])
+    # front brake only: the rear lifts at a/g = l_f/h (docs/references.md [D])
     a = rear_lift_deceleration(0.52, 0.95, 1.23)
     assert_allclose(a / GRAVITY, (1.23 - 0.52) / 0.95)
     _, rear = braking_split(95, 0.52, 0.95, 1.23, a)
@@ -58,7 +58,7 @@ def test_rear_lifts_where_the_transfer_equals_the_static_rear_load() -> None:
 def test_bounce_pitch_modes_match_scipy_eigh(
     kf: float, kr: float, lf: float, lr: float, m: float, ky: float
 ) -> None:
-    # generalised eigenproblem K·φ = ω²·M·φ solved by scipy.linalg.eigh (REFERENCES [D])
+    # generalised eigenproblem K·φ = ω²·M·φ solved by scipy.linalg.eigh (docs/references.md [D])
     inertia = m * ky**2
     K = np.array([[kf + kr, kf * lf - kr * lr], [kf * lf - kr * lr, kf * lf**2 + kr * lr**2]])
     w2 = eigh(K, np.diag([m, inertia]), eigvals_only=True)
@@ -102,7 +102,7 @@ def test_solve_travel_matches_brentq() -> None:
 
 
 def test_leverage_from_ratio_and_from_stroke_agree() -> None:
-    # the same linkage given both ways: stroke = ∫ dx/LR (REFERENCES [D])
+    # the same linkage given both ways: stroke = ∫ dx/LR (docs/references.md [D])
     w = np.linspace(0, 0.14, 8)
     lr = 2.8 - 2.5 * w
     a = LeverageCurve.from_ratio(w, lr)

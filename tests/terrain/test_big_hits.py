@@ -24,7 +24,7 @@ from tuneopt.terrain.features import (
 from tuneopt.terrain.parameters import BIG_HIT_KINDS, BigHits
 
 SQUARE_EDGES = (FeatureKind.ROCK, FeatureKind.STEP_UP, FeatureKind.STEP_DOWN, FeatureKind.DROP)
-BIG_EDGE = 0.15  # [m] square edges of about 15 cm and more are big hits (REFERENCES.md, CP)
+BIG_EDGE = 0.15  # [m] square edges of about 15 cm and more are big hits (docs/references.md, CP)
 DX = 0.005
 
 
@@ -79,7 +79,7 @@ def test_sequence_spreads_evenly() -> None:
 
 
 def test_library_big_hits_are_big_and_everyday_features_are_not() -> None:
-    # square edges of 15 cm and more are big hits (REFERENCES.md: common practice, no source);
+    # square edges of 15 cm and more are big hits (docs/references.md: common practice, no source);
     # everyday square edges stay below them, so a realisation's big hits are the laid ones
     for terrain in TERRAIN_LIBRARY.values():
         assert terrain.big_hits, f"{terrain.name} has no big hits"

@@ -50,8 +50,8 @@ def _step(h: float, dx: float, n: int, edge: int) -> np.ndarray:
 
 @pytest.mark.parametrize("h", [0.02, 0.08, 0.15, 0.3])
 def test_centre_starts_rising_before_a_step_up(h: float) -> None:
-    # [D] REFERENCES: a circle of radius R meets a step of height h sqrt(2Rh - h^2) before the
-    # edge; from there the centre follows the circle about the step's corner.
+    # [D] docs/references.md: a circle of radius R meets a step of height h sqrt(2Rh - h^2)
+    # before the edge; from there the centre follows the circle about the step's corner.
     R, dx, edge = 0.37, 0.001, 2000
     z = _step(h, dx, 4000, edge)
     env = rolling_envelope(z, dx, R)

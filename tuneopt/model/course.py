@@ -56,7 +56,7 @@ TERRAIN_NAMES: tuple[str, ...] = (
 )
 ISO_8608_CLASSES = "ABCDEFGH"
 SHARE_TOLERANCE = 0.01
-MAX_SPACING = 0.005  # [m] coarser sampling under-predicts tyre-load variation (REFERENCES.md)
+MAX_SPACING = 0.005  # [m] coarser sampling under-predicts tyre-load variation (docs/references.md)
 MIN_SPACING = 0.0005  # [m] finer only costs memory
 MAX_SPEED = 30.0  # [m/s] 108 km/h; beyond that a bare number was probably meant in km/h
 MIN_SPEED = 1.0  # [m/s] walking pace; slower only makes the simulation long

@@ -87,7 +87,7 @@ class DamperParams:
 def equivalent_viscous_damping(
     force: ArrayLike, velocity: ArrayLike, time: ArrayLike, amplitude: float, omega: float
 ) -> float:
-    """c_eq = E_cycle/(π·ω·X²) from a sinusoidal dyno cycle (REFERENCES, [D])."""
+    """c_eq = E_cycle/(π·ω·X²) from a sinusoidal dyno cycle (docs/references.md, [D])."""
     f = np.asarray(force, dtype=float)
     v = np.asarray(velocity, dtype=float)
     t = np.asarray(time, dtype=float)

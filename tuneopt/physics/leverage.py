@@ -1,8 +1,8 @@
 """Rear linkage: leverage ratio LR = d(wheel travel)/d(shock stroke), and the fork's incline.
 
 Wheel force = shock force/LR; wheel rate k_w = k_s/LR² − (F_s/LR²)·dLR/dx_w; wheel damping
-c_w = c_s/LR² (REFERENCES, [D]). A telescopic fork at head angle HA from horizontal, with the
-axle sliding along the fork axis: vertical travel = stroke·sin HA, vertical force =
+c_w = c_s/LR² (docs/references.md, [D]). A telescopic fork at head angle HA from horizontal,
+with the axle sliding along the fork axis: vertical travel = stroke·sin HA, vertical force =
 axial force/sin HA, vertical rate = axial rate/sin² HA ([D]).
 """
 

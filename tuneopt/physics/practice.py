@@ -1,10 +1,10 @@
 """What tuners usually start from, by the kind of bike (common practice, no source).
 
 The kind follows the fork's travel: cross-country up to 125 mm, trail up to 155 mm, enduro up
-to 185 mm, downhill beyond (REFERENCES: cross-country 100-120, trail 120-150, enduro 150-180,
-downhill 190-210 mm, common practice). The usual sag ranges, in % of stroke, centre on the
-trade's rule of thumb (fork 15-25 %, rear 25-35 %) and shift deeper with travel; they are
-starting points a tuner would accept, not limits from any maker.
+to 185 mm, downhill beyond (common practice: cross-country 100-120, trail 120-150, enduro
+150-180, downhill 190-210 mm; docs/references.md, rules of thumb). The usual sag ranges, in %
+of stroke, centre on the trade's rule of thumb (fork 15-25 %, rear 25-35 %) and shift deeper
+with travel; they are starting points a tuner would accept, not limits from any maker.
 """
 
 from __future__ import annotations

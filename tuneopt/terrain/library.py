@@ -4,9 +4,9 @@ The numbers are demo parameters of our own, chosen to look like trail riding; no
 measurement. The background roughness is ISO 8608 class B to D [?]: a measured unpaved road was
 class C (Barbosa 2011), and with a bicycle's light wheel loads the linear quarter-car already
 predicts a tyre-load variation near 0.9 of the static load on class D at 9 m/s (Lyapunov, see
-REFERENCES.md), a front wheel skipping on every stretch. Smooth stretches are therefore B, and
+docs/references.md), a front wheel skipping on every stretch. Smooth stretches are therefore B, and
 the rough types get their roughness mostly from their discrete features. Friction coefficients
-follow the scenario range 0.3 (wet roots, mud) to 0.8 (dry hardpack) in REFERENCES.md [?].
+follow the scenario range 0.3 (wet roots, mud) to 0.8 (dry hardpack) in docs/references.md [?].
 Speeds, feature sizes and corner sizes are common practice, no source.
 
 Everyday features stay below 15 cm on the rough types; what is taller (square edges and ledges
