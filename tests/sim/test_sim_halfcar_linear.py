@@ -96,7 +96,7 @@ def test_rhs_jacobian_matches_hand_built_linear_model() -> None:
     y0 = hc._initial_state(p, 0.0, 0.0)
 
     def rhs(y: np.ndarray) -> np.ndarray:
-        return hc._rhs_at_time(0.0, y, zero, zero, zero, zero, zero, zero, 1e-3, p, *tabs)
+        return hc._rhs_at_time(0.0, y, (zero,) * 6, 1e-3, p, tuple(tabs))
 
     assert np.max(np.abs(rhs(y0))) < 1e-9  # static equilibrium
     jac = np.zeros((12, 12))

@@ -419,8 +419,15 @@ def _initial_state(p, zf0, zr0):
 
 
 @njit(cache=True, parallel=True, fastmath=c.FAST)
-def _run(P, sfs, dfs, srs, drs, zf, zfd, zr, zrd, dec, lat, mu, relax_f, relax_r, dt, sos, acc,
-         hist, fail, trace, every):
+def _run(P, tables, road, mu, relax, dt, sos, acc, hist, fail, trace, every):
+    """RK4 over the batch: P (B, _NP) parameter rows; tables (front spring, front damper, rear
+    spring, rear damper), each (B, K); road (front height, its rate, rear height, its rate,
+    deceleration, lateral acceleration), each (N,); mu the road's friction coefficient; relax
+    (front, rear) the grip lag's weights (N,); dt [s]; sos the rider's weighting filter; acc,
+    hist, fail, trace the outputs filled in place (trace every `every` samples)."""
+    sfs, dfs, srs, drs = tables
+    zf, zfd, zr, zrd, dec, lat = road
+    relax_f, relax_r = relax
     n = zf.shape[0]
     for b in prange(P.shape[0]):
         if fail[b] != 0:
@@ -468,8 +475,11 @@ def _run(P, sfs, dfs, srs, drs, zf, zfd, zr, zrd, dec, lat, mu, relax_f, relax_r
 
 
 @njit(cache=True)
-def _rhs_at_time(t, y, zf, zfd, zr, zrd, dec, lat, dt, p, sf, df, sr, dr):
-    """The same equations at any time, the road linear between samples (for solve_ivp)."""
+def _rhs_at_time(t, y, road, dt, p, tables):
+    """The same equations at any time, the road linear between samples (for solve_ivp);
+    road and tables as _run's, the tables one setup's rows."""
+    zf, zfd, zr, zrd, dec, lat = road
+    sf, df, sr, dr = tables
     i, f = drv.road_position(t, dt, zf.shape[0])
     dy = np.empty(_NS)
     out = np.empty(_NOUT)
@@ -481,9 +491,12 @@ def _rhs_at_time(t, y, zf, zfd, zr, zrd, dec, lat, dt, p, sf, df, sr, dr):
 
 
 @njit(cache=True)
-def _replay(Y, zf, zfd, zr, zrd, dec, lat, mu, relax_f, relax_r, p, sf, df, sr, dr, sos, acc, hist,
-            trace, every):
-    """Accumulate metrics from given states Y (N, 12) at the sample times."""
+def _replay(Y, road, mu, relax, p, tables, sos, acc, hist, trace, every):
+    """Accumulate metrics from given states Y (N, 12) at the sample times (road, relax as
+    _run's, tables one setup's rows)."""
+    zf, zfd, zr, zrd, dec, lat = road
+    sf, df, sr, dr = tables
+    relax_f, relax_r = relax
     dy = np.empty(_NS)
     out = np.empty(_NOUT)
     zi = np.zeros((sos.shape[0], 2))
@@ -702,6 +715,12 @@ def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> HalfCa
     )
 
 
+def _road_arrays(road: RoadInput) -> tuple[FloatArray, ...]:
+    """The road's channels in the order the kernels take them."""
+    return (road.front_z, road.front_zdot, road.rear_z, road.rear_zdot, road.decel,
+            road.lateral_accel)
+
+
 def simulate_halfcar(
     params: HalfCarParams, road: RoadInput, *, trace_every: int | None = None
 ) -> HalfCarResult:
@@ -711,9 +730,9 @@ def simulate_halfcar(
     """
     prep = _prepare(params, road, trace_every)
     with c.kernel_threads(prep.P.shape[0]):
-        _run(prep.P, *prep.tables, road.front_z, road.front_zdot, road.rear_z, road.rear_zdot,
-             road.decel, road.lateral_accel, road.friction, prep.relax_f, prep.relax_r, road.dt,
-             prep.sos, prep.acc, prep.hist, prep.fail, prep.trace, prep.every)
+        _run(prep.P, prep.tables, _road_arrays(road), road.friction,
+             (prep.relax_f, prep.relax_r), road.dt, prep.sos, prep.acc, prep.hist, prep.fail,
+             prep.trace, prep.every)
     return _finish(prep, road, trace_every)
 
 
@@ -733,23 +752,22 @@ def simulate_halfcar_reference(
     metric accumulation as the RK4 kernel. max_step [s] defaults to the road's dt.
     """
     prep = _prepare(params, road, trace_every)
-    zf, zfd, zr, zrd = road.front_z, road.front_zdot, road.rear_z, road.rear_zdot
-    dec, lat = road.decel, road.lateral_accel
+    arrays = _road_arrays(road)
+    relax = (prep.relax_f, prep.relax_r)
 
     def setup(b: int) -> tuple[Callable[[float, FloatArray], FloatArray], FloatArray]:
         p = prep.P[b]
-        sf, df, sr, dr = (tab[b] for tab in prep.tables)
+        tables = tuple(tab[b] for tab in prep.tables)
 
         def fun(tt: float, yy: FloatArray) -> FloatArray:
-            return _rhs_at_time(tt, yy, zf, zfd, zr, zrd, dec, lat, road.dt, p, sf, df, sr, dr)
+            return _rhs_at_time(tt, yy, arrays, road.dt, p, tables)
 
-        return fun, _initial_state(p, zf[0], zr[0])
+        return fun, _initial_state(p, road.front_z[0], road.rear_z[0])
 
     def replay(b: int, Y: FloatArray) -> int:
-        sf, df, sr, dr = (tab[b] for tab in prep.tables)
-        return int(_replay(Y, zf, zfd, zr, zrd, dec, lat, road.friction, prep.relax_f,
-                           prep.relax_r, prep.P[b], sf, df, sr, dr, prep.sos, prep.acc[b],
-                           prep.hist[b], prep.trace[b], prep.every))
+        tables = tuple(tab[b] for tab in prep.tables)
+        return int(_replay(Y, arrays, road.friction, relax, prep.P[b], tables, prep.sos,
+                           prep.acc[b], prep.hist[b], prep.trace[b], prep.every))
 
     drv.solve_reference(road, prep.fail, setup, replay, rtol=rtol, atol=atol,
                         max_step=max_step, method=method)
