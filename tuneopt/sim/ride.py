@@ -94,10 +94,10 @@ class CourseMetrics:
     braking or cornering phases asked of that tyre that its grip capacity (load sensitivity and
     relaxation length included) could not give [-], averaged with the mix weights over the
     segments that have such a phase (0 when none has). kick_speed: the mean peak extension speed
-    of an end as it rebounds from a deep compression [m/s], mix-weighted over the segments that have any (0 when
-    none has). pitch_rate_rms [rad/s] and rider_vibration_rms (ISO 2631-1 Wk) [m/s²] are
-    weighted means; peak_dive_travel [m] is the maximum over braking segments (NaN without
-    any). failed (B,) bool with failure reasons; segments: the per-segment results.
+    of an end as it rebounds from a deep compression [m/s], mix-weighted over the segments that
+    have any (0 when none has). pitch_rate_rms [rad/s] and rider_vibration_rms (ISO 2631-1 Wk)
+    [m/s²] are weighted means; peak_dive_travel [m] is the maximum over braking segments (NaN
+    without any). failed (B,) bool with failure reasons; segments: the per-segment results.
     """
 
     front_load_variation: FloatArray
