@@ -374,8 +374,8 @@ def report_of(
         f"{t['finished']} trials finished ({t['infeasible']} outside the sag windows or "
         f"statically impossible, {t['failed']} failed); sampler {result.get('sampler', '-')}, "
         f"seed {result.get('seed', '-')}, {result.get('realisations', '-')} terrain "
-        f"realisation(s) of {result.get('simulated_seconds_per_setup', 0):.0f} s riding each"
-        " (setups clearly worse than the leader stopped early)"
+        f"realisation(s), {result.get('simulated_seconds_per_setup', 0):.0f} s of riding in all "
+        "for a setup that rides them all (setups clearly worse than the leader stopped early)"
         + (
             f"; the finalists re-scored on {result['validation_realisations']} fresh ones."
             if result.get("validation_realisations")
