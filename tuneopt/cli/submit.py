@@ -21,6 +21,9 @@ DEFAULT_API = "http://127.0.0.1:8000"
 ENDED = ("done", "failed", "cancelled")
 SUBMIT_ATTEMPTS = 3
 RETRY_PAUSE = 1.0  # [s], times the attempt's number
+# A waiting client polls through an API restart or a Redis blip: 15 tries, pauses of 1, 2, ...
+# 14 s, about 105 s in all, before it gives up (the job carries on regardless).
+WAIT_ATTEMPTS = 15
 
 
 class ApiError(Exception):
@@ -77,7 +80,7 @@ def _request(
             with urllib.request.urlopen(req, timeout=30) as response:
                 return json.loads(response.read() or b"null")
         except urllib.error.HTTPError as exc:
-            if exc.code == 503 and attempt < attempts:
+            if exc.code in (502, 503, 504) and attempt < attempts:
                 time.sleep(RETRY_PAUSE * attempt)
                 continue
             raise ApiError(
@@ -128,7 +131,7 @@ def _wait(api: str, job: str) -> dict[str, Any]:
     ) as bar:
         task = bar.add_task("job", total=None, state="queued", best="-")
         while True:
-            status = _request(api, "GET", f"/jobs/{job}")
+            status = _request(api, "GET", f"/jobs/{job}", attempts=WAIT_ATTEMPTS)
             p = status["progress"]
             bar.update(
                 task,
