@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import os
 import shlex
+import socket
 from pathlib import Path
 
 import pytest
@@ -75,3 +77,13 @@ def test_compose_runs_the_projects_own_commands_with_known_settings() -> None:
         names = {k for k in service["environment"] if k.startswith("TUNEOPT_")}
         assert names <= known, names - known
     assert "redis:6379" in services["worker"]["environment"]["TUNEOPT_REDIS_URL"]
+
+
+def test_workers_and_shards_of_a_restarted_process_get_new_names(settings: Settings) -> None:
+    """A restarted container keeps its host name and PID: names must still differ, or rq
+    refuses the new worker while the dead one's name is registered (a crash loop otherwise)."""
+    from tuneopt.optimise.runner import shard_owner
+    from tuneopt.service.worker import make_worker
+
+    assert make_worker(settings).name != make_worker(settings).name
+    assert shard_owner(1).startswith(f"{socket.gethostname()}:{os.getpid()}:")

@@ -15,6 +15,7 @@ from __future__ import annotations
 import datetime
 import logging
 import os
+import secrets
 import socket
 import time
 from collections.abc import Callable
@@ -44,6 +45,7 @@ __all__ = [
     "reap_stale_trials",
     "run_shard",
     "scenario_points",
+    "shard_owner",
 ]
 
 log = logging.getLogger(__name__)
@@ -150,6 +152,16 @@ def create_study(
 # A trial is tagged with its owner just after it is asked; one still untagged after this long
 # was asked by a process that died in between [s].
 UNTAGGED_AFTER = 60.0
+
+
+# Told apart from any earlier process on the same host with the same PID (a restarted container
+# keeps both): trials of a dead process are never taken for this one's.
+_PROCESS_TOKEN = secrets.token_hex(4)
+
+
+def shard_owner(shard: int) -> str:
+    """The owner tag of this process's shard ``shard`` on the trials it asks."""
+    return f"{socket.gethostname()}:{os.getpid()}:{_PROCESS_TOKEN}:{shard}"
 
 
 def reap_stale_trials(
@@ -275,7 +287,7 @@ def run_shard(
     that the shards of one study share: counting the trials and asking the next batch happen
     under it, so shards asking at the same moment never ask past the budget. Returns the number
     of trials this shard finished."""
-    owner = f"{socket.gethostname()}:{os.getpid()}:{shard}"
+    owner = shard_owner(shard)
     realisations = 0
     if isinstance(space, SearchSpace):
         dists = _distributions(space)

@@ -7,9 +7,7 @@ a shard number). Each shard runs the same study runner as a local run, on a jour
 from __future__ import annotations
 
 import logging
-import os
 import shutil
-import socket
 import threading
 import time
 from collections.abc import Iterator
@@ -40,7 +38,7 @@ from tuneopt.optimise import (
     write_result,
 )
 from tuneopt.optimise.redis_storage import delete_study_keys, redis_storage
-from tuneopt.optimise.runner import count_finished
+from tuneopt.optimise.runner import count_finished, shard_owner
 from tuneopt.service.records import JobState, JobStore, is_job_id
 from tuneopt.service.settings import Settings
 
@@ -254,7 +252,7 @@ def run_shard_job(job_id: str, shard: int) -> int:
     assert record.deadline is not None  # set by start_job before any shard is queued
     plan = _plan(job_id, record.request, record.deadline)
     study = _study(store, job_id)
-    owner = f"{socket.gethostname()}:{os.getpid()}:{shard}"
+    owner = shard_owner(shard)
     previous = store.swap_owner(job_id, shard, owner)
     if previous is not None:
         reap_stale_trials(study, previous)

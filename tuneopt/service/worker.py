@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import logging
 import os
+import secrets
 import socket
 import threading
 from typing import Any
@@ -76,7 +77,9 @@ def make_worker(settings: Settings, name: str | None = None) -> ShardWorker:
     return ShardWorker(
         [queue],
         connection=redis,
-        name=name or f"{socket.gethostname()}-{os.getpid()}",
+        # a restarted container keeps its host name and PID 1: the random part keeps the new
+        # worker from clashing with the name the dead one left registered in Redis
+        name=name or f"{socket.gethostname()}-{os.getpid()}-{secrets.token_hex(3)}",
         worker_ttl=max(settings.heartbeat_ttl, 20),
         maintenance_interval=settings.maintenance_seconds,
         heartbeat_seconds=settings.heartbeat_seconds,
