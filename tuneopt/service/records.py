@@ -191,16 +191,21 @@ class JobStore:
                 if now - updated < _RATE_FRESH:
                     rate += per_minute
         errors: list[str] = self.redis.lrange(self._errors_key(job_id), 0, -1)  # type: ignore[assignment]
+        state = JobState(raw["state"])
+        started, ended = _float(raw.get("started")), _float(raw.get("ended"))
+        finished = int(raw.get("finished", "0"))
+        if state.is_final and started is not None and ended is not None and ended > started:
+            rate = finished / (ended - started) * 60  # an ended job: its mean over the run
         return JobRecord(
             id=raw["id"],
-            state=JobState(raw["state"]),
+            state=state,
             created=float(raw["created"]),
             request=json.loads(raw["request"]),
             scenario_name=raw.get("scenario_name", ""),
-            started=_float(raw.get("started")),
-            ended=_float(raw.get("ended")),
+            started=started,
+            ended=ended,
             deadline=_float(raw.get("deadline")),
-            finished=int(raw.get("finished", "0")),
+            finished=finished,
             best_score=_float(raw.get("best_score")),
             trials_per_minute=rate,
             cancel_requested=raw.get("cancel") == "1",
