@@ -4,6 +4,7 @@
 from __future__ import annotations
 
 import json
+import re
 from collections.abc import Iterator
 from typing import Any
 
@@ -210,3 +211,15 @@ def test_openapi_spells_out_the_scenario(client: TestClient) -> None:
     form = spec["paths"]["/jobs"]["post"]["requestBody"]["content"]["multipart/form-data"]
     assert form["schema"]["additionalProperties"] is False
     assert form["schema"]["properties"]["trials"]["type"] == "integer"
+
+
+def test_the_docs_page_loads_nothing_from_outside(client: TestClient) -> None:
+    page = client.get("/docs")
+    assert page.status_code == 200
+    html = page.text
+    assert "/docs-assets/swagger-ui-bundle.js" in html and "/openapi.json" in html
+    sources = re.findall(r"""(?:src|href|url)\s*[=:]\s*['"]([^'"]+)['"]""", html)
+    assert sources and not [s for s in sources if s.startswith(("http:", "https:", "//"))]
+    for asset in ("swagger-ui-bundle.js", "swagger-ui.css"):
+        response = client.get(f"/docs-assets/{asset}")
+        assert response.status_code == 200 and len(response.content) > 10_000

@@ -149,6 +149,30 @@ def _body_schemas() -> tuple[dict[str, Any], dict[str, Any], dict[str, Any]]:
     return body, form, components
 
 
+DOCS_ASSETS = "/docs-assets"
+
+
+def _serve_docs(app: FastAPI) -> None:
+    """The interactive API page at /docs, its script and style served by the API itself (the
+    default page loads them from an outside network and stays blank offline)."""
+    from fastapi.openapi.docs import get_swagger_ui_html
+    from fastapi.responses import HTMLResponse
+    from fastapi.staticfiles import StaticFiles
+    from swagger_ui_bundle import swagger_ui_path
+
+    app.mount(DOCS_ASSETS, StaticFiles(directory=str(swagger_ui_path)), name="docs-assets")
+
+    @app.get("/docs", include_in_schema=False)
+    def docs() -> HTMLResponse:
+        return get_swagger_ui_html(
+            openapi_url="/openapi.json",
+            title="tuneopt job service",
+            swagger_js_url=f"{DOCS_ASSETS}/swagger-ui-bundle.js",
+            swagger_css_url=f"{DOCS_ASSETS}/swagger-ui.css",
+            swagger_favicon_url="data:,",
+        )
+
+
 def create_app(settings: Settings) -> FastAPI:
     """The API on the settings' Redis and results folder."""
     tasks.configure(settings)
@@ -183,8 +207,11 @@ def create_app(settings: Settings) -> FastAPI:
         "simulated: stay within the maker's limits and have a qualified technician check any "
         "setting.",
         responses=_ERRORS,  # type: ignore[arg-type]
+        docs_url=None,  # served below from files installed with the package: works offline
+        redoc_url=None,
     )
     install_handlers(app)
+    _serve_docs(app)
     body_schema, form_schema, components = _body_schemas()
     plain_openapi = app.openapi
 
