@@ -220,11 +220,16 @@ def _replace(e: RankedSetup, **changes: object) -> RankedSetup:
     return replace(e, **changes)  # type: ignore[arg-type]
 
 
+def _point_key(t: FrozenTrial) -> tuple[tuple[str, int], ...]:
+    """A trial's point of the search space, the same for trials that asked the same setup."""
+    return tuple(sorted((k, int(v)) for k, v in t.params.items()))
+
+
 def _distinct_best(feasible: Sequence[FrozenTrial], count: int) -> list[FrozenTrial]:
     seen: set[tuple[tuple[str, int], ...]] = set()
     best: list[FrozenTrial] = []
     for t in sorted(feasible, key=lambda t: (float(t.value), t.number)):  # type: ignore[arg-type]
-        key = tuple(sorted((k, int(v)) for k, v in t.params.items()))
+        key = _point_key(t)
         if key in seen:
             continue
         seen.add(key)
@@ -311,8 +316,7 @@ def rank_study(
     if validate and base is not None and "failure" not in base.user_attrs:
         # the current setup always competes on the fresh realisations: when it rides best
         # there, it is the recommendation
-        key = tuple(sorted((k, int(v)) for k, v in base.params.items()))
-        if all(tuple(sorted((k, int(v)) for k, v in t.params.items())) != key for t in best):
+        if all(_point_key(t) != _point_key(base) for t in best):
             best.append(base)
     entries = [_entry(i + 1, t, space, base) for i, t in enumerate(best)]
     baseline_entry = (

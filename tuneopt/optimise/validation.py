@@ -16,8 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from tuneopt.model import Setup
-from tuneopt.optimise.evaluate import Evaluator, Outcome, paired_interval
+from tuneopt.optimise.evaluate import Evaluator, paired_interval
 
 __all__ = [
     "DEFAULT_VALIDATION",
@@ -96,7 +95,3 @@ def compare_scores(a: Sequence[float], b: Sequence[float]) -> Comparison:
         realisations=int(sa.size),
     )
 
-
-def rescore(evaluator: Evaluator, setups: Sequence[Setup]) -> list[Outcome]:
-    """Every setup on every one of the evaluator's realisations (no racing)."""
-    return evaluator.evaluate(list(setups))

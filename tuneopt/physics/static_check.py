@@ -10,7 +10,7 @@ import numpy as np
 from tuneopt.model import InputError, Scenario, Setup
 from tuneopt.physics.hardware import SuspensionEnd, front_end, rear_end, tyre_stiffness
 from tuneopt.physics.layout import Layout, layout
-from tuneopt.physics.practice import bike_kind, usual_sag
+from tuneopt.physics.practice import BASIS, bike_kind, usual_sag
 from tuneopt.physics.statics import (
     GRAVITY,
     bounce_pitch_modes,
@@ -25,7 +25,7 @@ from tuneopt.physics.statics import (
 
 __all__ = ["EndStatics", "Finding", "Geometry", "StaticCheck", "static_check"]
 
-COMMON_PRACTICE = "common practice, no source"
+COMMON_PRACTICE = BASIS
 
 
 @dataclass(frozen=True)

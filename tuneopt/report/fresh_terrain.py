@@ -70,14 +70,13 @@ def fresh_terrain_lines(result: dict[str, Any]) -> list[str]:
             text += f"; the current setup on {round(base_val['bottom_out_risk'] * n)} of {n}"
         lines.append(text + ".")
     flat = flat_settings(result)
+    labels = result.get("labels", {})
     if flat:
-        labels = result.get("labels", {})
         parts = [f"{labels.get(k, k)} ({100 * v:.1f} %)" for k, v in flat.items()]
         lines.append(
             "These settings barely matter on this course (one step either way moves the score "
             f"by less than {100 * FLAT:.1f} %, largest change shown): " + ", ".join(parts) + "."
         )
-    labels = result.get("labels", {})
     for name, sides in best.get("steps", {}).items():
         for side, value in sides.items():
             if value in ("outside the sag window", "failed"):
