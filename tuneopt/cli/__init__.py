@@ -23,6 +23,10 @@ _COMMANDS = (
     "serve",
     "worker",
     "submit",
+    "testday",
+    "sheet",
+    "ridelog",
+    "fit",
 )
 
 
