@@ -27,6 +27,7 @@ _COMMANDS = (
     "sheet",
     "ridelog",
     "fit",
+    "bounce",
 )
 
 
