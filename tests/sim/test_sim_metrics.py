@@ -28,6 +28,22 @@ def _count_events(depth: np.ndarray) -> tuple[int, float]:
     return count, deepest
 
 
+def _weighed_hits(depth: np.ndarray, full_depth: float) -> tuple[float, float]:
+    """Every excursion above 0, each weighed min(1, its peak / full_depth); and the deepest."""
+    total, inside, peak, deepest = 0.0, False, 0.0, 0.0
+    for d in depth:
+        if d > 0:
+            deepest = max(deepest, d)
+            peak = max(peak, d) if inside else d
+            inside = True
+        elif inside:
+            total += min(1.0, peak / full_depth)
+            inside = False
+    if inside:
+        total += min(1.0, peak / full_depth)
+    return total, deepest
+
+
 def test_streaming_metrics_match_traces() -> None:
     road = demo_road(2.0, seed=3, bump_height=0.17)
     params = half_car(
@@ -39,24 +55,28 @@ def test_streaming_metrics_match_traces() -> None:
     tr = res.traces
     assert tr is not None and not res.failed.any()
     minutes = road.duration / 60.0
-    for name, m, load, travel, static_load, static_travel, full in (
+    for name, m, load, travel, defl, static_load, static_travel, full, rim in (
         (
             "front",
             res.front,
             tr.front_tyre_load,
             tr.front_travel,
+            tr.front_tyre_deflection,
             res.static_load_front,
             res.static_travel_front,
             params.front.travel,
+            params.front.rim_strike_deflection,
         ),
         (
             "rear",
             res.rear,
             tr.rear_tyre_load,
             tr.rear_travel,
+            tr.rear_tyre_deflection,
             res.static_load_rear,
             res.static_travel_rear,
             params.rear.travel,
+            params.rear.rim_strike_deflection,
         ),
     ):
         assert_allclose(m.load_mean, load.mean(axis=1), rtol=1e-9, err_msg=name)
@@ -73,7 +93,18 @@ def test_streaming_metrics_match_traces() -> None:
             count, deepest = _count_events(travel[b] - full[b])
             assert_allclose(m.bottom_outs_per_min[b], count / minutes, rtol=1e-12)
             assert_allclose(m.bottom_out_depth_max[b], deepest, rtol=1e-12)
+            # depth-weighed hits (5 mm counts one; tuneopt.sim.BOTTOM_OUT_FULL_DEPTH)
+            hits, any_depth = _weighed_hits(travel[b] - full[b], 5e-3)
+            assert_allclose(m.bottom_out_hits_per_min[b], hits / minutes, rtol=1e-12)
+            assert_allclose(m.bottom_out_deepest[b], any_depth, rtol=1e-12)
+            # rim hits the same way, 2 mm counts one (tuneopt.sim.RIM_STRIKE_FULL_DEPTH)
+            hits, any_depth = _weighed_hits(defl[b] - rim[b], 2e-3)
+            assert_allclose(m.rim_hits_per_min[b], hits / minutes, rtol=1e-12)
+            assert_allclose(m.rim_deepest[b], any_depth, rtol=1e-12)
     assert res.front.bottom_outs_per_min.max() > 0
+    # some excursions are grazes that count less than one
+    assert np.any(res.front.bottom_out_hits_per_min < res.front.bottom_outs_per_min)
+    assert (res.front.rim_hits_per_min + res.rear.rim_hits_per_min).max() > 0
     assert_allclose(res.pitch.pitch_rate_rms, np.sqrt(np.mean(tr.pitch_rate**2, axis=1)), rtol=1e-9)
 
 

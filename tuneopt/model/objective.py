@@ -22,12 +22,19 @@ class Objective(Strict):
     front_load_variation: float = Field(1.5, ge=0)
     rear_load_variation: float = Field(1.0, ge=0)
     unloaded_time: float = Field(1.0, ge=0)
-    bottom_outs: float = Field(1.0, ge=0)
+    bottom_outs: float = Field(
+        1.0, ge=0, description="bottom-outs per minute, each weighed by its depth"
+    )
     bottom_out_depth: float = Field(0.5, ge=0, description="deepest bottom-out past travel")
     bottom_out_risk: float = Field(
-        1.0, ge=0, description="share of course realisations with a bottom-out"
+        1.0,
+        ge=0,
+        description="how firmly a run bottoms out, averaged over course realisations "
+        "(a run whose deepest bottom-out goes 5 mm or more past full travel counts one)",
     )
-    rim_strikes: float = Field(1.0, ge=0, description="rim strikes per minute")
+    rim_strikes: float = Field(
+        1.0, ge=0, description="rim strikes per minute, each weighed by its depth"
+    )
     front_grip: float = Field(
         1.0, ge=0, description="share of the grip asked of the front tyre that was not there"
     )

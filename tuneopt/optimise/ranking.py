@@ -12,7 +12,7 @@ import optuna
 from optuna.trial import FrozenTrial, TrialState
 
 from tuneopt.optimise.edges import edge_flags, static_warnings
-from tuneopt.optimise.evaluate import Evaluator
+from tuneopt.optimise.evaluate import Evaluator, Outcome, paired_interval
 from tuneopt.optimise.space import SearchSpace
 from tuneopt.optimise.validation import (
     DEFAULT_VALIDATION,
@@ -30,7 +30,7 @@ TERM_WORDS = {
     "unloaded_time": ("time with a wheel unloaded", "shorter", "longer"),
     "bottom_outs": ("bottom-outs", "fewer", "more"),
     "bottom_out_depth": ("depth of its deepest bottom-out", "less", "more"),
-    "bottom_out_risk": ("realisations with a bottom-out", "fewer", "more"),
+    "bottom_out_risk": ("firm bottom-outs on a run", "fewer", "more"),
     "rim_strikes": ("rim strikes", "fewer", "more"),
     "front_grip": ("grip asked of the front tyre and not there", "less", "more"),
     "rear_grip": ("grip asked of the rear tyre and not there", "less", "more"),
@@ -54,7 +54,10 @@ class RankedSetup:
     range or a sag on its window's edge, by setting. ``warnings``: the static check's about this
     setup. ``steps``: the score change one robustness step down and up of every setting on the
     search's first realisations, or why there is none ("end of range", "outside the sag
-    window", "failed"); ``robustness`` is the largest rise among the steps that ride."""
+    window", "failed"); ``robustness`` is the largest rise among the steps that ride.
+    ``step_effects``: for each step that rides, the 95 % interval of its score change (paired
+    over the same realisations), whether that holds 0 (``within_noise``), and each metric's
+    change (step − setup, in the metric's SI unit)."""
 
     rank: int
     trial: int
@@ -75,6 +78,7 @@ class RankedSetup:
     flags: dict[str, str] = field(default_factory=dict)
     warnings: list[str] = field(default_factory=list)
     steps: dict[str, dict[str, float | str]] = field(default_factory=dict)
+    step_effects: dict[str, dict[str, dict[str, Any]]] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -195,6 +199,7 @@ def _with_robustness(
         worst = 0.0
         sens: dict[str, float] = {}
         steps: dict[str, dict[str, float | str]] = {}
+        effects: dict[str, dict[str, dict[str, Any]]] = {}
         for (_, name, side, _), o in mine[1:]:
             entry = steps.setdefault(name, {})
             if o is None:
@@ -210,8 +215,25 @@ def _with_robustness(
             entry[side] = delta
             worst = max(worst, delta)
             sens[name] = max(sens.get(name, 0.0), abs(delta))
-        out.append(_replace(e, robustness=worst, sensitivity=sens, steps=steps))
+            effects.setdefault(name, {})[side] = _step_effect(o, own)
+        out.append(
+            _replace(e, robustness=worst, sensitivity=sens, steps=steps, step_effects=effects)
+        )
     return out
+
+
+def _step_effect(step: Outcome, own: Outcome) -> dict[str, Any]:
+    """A step's score change with its paired 95 % interval, and its metrics' changes."""
+    n = min(len(step.scores), len(own.scores))
+    mean, low, high = paired_interval(np.subtract(step.scores[:n], own.scores[:n]))
+    return {
+        "score": mean,
+        "low": low,
+        "high": high,
+        "within_noise": bool(low <= 0.0 <= high),
+        "realisations": n,
+        "metrics": {k: v - own.metrics[k] for k, v in step.metrics.items() if k in own.metrics},
+    }
 
 
 def _replace(e: RankedSetup, **changes: object) -> RankedSetup:

@@ -10,10 +10,10 @@ trails in our simulations (common practice, no source):
 | front_load_variation | std/mean of the front contact-patch load | 0.5 |
 | rear_load_variation | the same at the rear | 0.5 |
 | unloaded_time | mean of front and rear unloaded share of time | 0.1 |
-| bottom_outs | bottom-outs per minute, front plus rear | 1 /min |
-| bottom_out_depth | deepest bottom-out past full travel, front plus rear | 5 mm |
-| bottom_out_risk | 1 if either end bottomed out in this realisation, else 0 | 1 |
-| rim_strikes | rim strikes per minute, front plus rear | 1 /min |
+| bottom_outs | bottom-outs per minute, front plus rear, each weighed by its depth (†) | 1 /min |
+| bottom_out_depth | deepest excursion past full travel, front plus rear | 5 mm |
+| bottom_out_risk | how firmly the harder-hit end bottomed out in this realisation (†) | 1 |
+| rim_strikes | rim strikes per minute, front plus rear, each weighed by its depth (†) | 1 /min |
 | front_grip | share of the force asked of the front tyre that it could not give (*) | 0.05 |
 | rear_grip | the same for the rear tyre | 0.05 |
 | pack_down | ride height lost over bumps, front plus rear (losses only) (**) | 5 mm |
@@ -28,6 +28,13 @@ integral of what was asked; capacity mu(F_z) F_z through the relaxation-length l
 travel, each end counted only when positive. (***) an end compressed past 60 % of its travel
 hands its stored energy back to the frame and the rider as it extends: too-fast rebound.
 
+(†) Every excursion past full travel counts min(1, depth / 5 mm), past the rim-strike
+deflection min(1, depth / 2 mm) (``tuneopt.sim._common.BOTTOM_OUT_FULL_DEPTH`` and
+``RIM_STRIKE_FULL_DEPTH``); the risk is min(1, deepest excursion of either end / 5 mm). A hit
+that barely touches the stop costs a little, a firm one a whole unit: two similar setups then
+differ by a little where one just reaches the stop, not by a whole event, which is what made
+these terms the noisiest of the score when they were counts.
+
 ``score_terms`` takes the metrics of ONE course realisation (``CourseMetrics`` fields by name,
 each (B,)); a study averages the scores of its realisations, so the mean of
 ``bottom_out_risk`` is the share of realisations in which a setup bottomed out.
@@ -41,6 +48,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tuneopt.model import Objective
+from tuneopt.sim import BOTTOM_OUT_FULL_DEPTH
 
 __all__ = ["SCALES", "TERMS", "score_terms", "total_score"]
 
@@ -67,15 +75,15 @@ def score_terms(metrics: Mapping[str, NDArray[np.float64]]) -> dict[str, NDArray
     """The score's terms before weighting, each (B,), from one realisation's course metrics
     (``CourseMetrics`` fields by name)."""
     m = {k: np.asarray(v, dtype=float) for k, v in metrics.items()}
-    bottom_outs = m["front_bottom_outs_per_min"] + m["rear_bottom_outs_per_min"]
+    deepest = np.maximum(m["front_bottom_out_deepest"], m["rear_bottom_out_deepest"])
     raw = {
         "front_load_variation": m["front_load_variation"],
         "rear_load_variation": m["rear_load_variation"],
         "unloaded_time": 0.5 * (m["front_unloaded_share"] + m["rear_unloaded_share"]),
-        "bottom_outs": bottom_outs,
-        "bottom_out_depth": m["front_bottom_out_depth_max"] + m["rear_bottom_out_depth_max"],
-        "bottom_out_risk": np.where(np.isnan(bottom_outs), np.nan, (bottom_outs > 0) * 1.0),
-        "rim_strikes": m["front_rim_strikes_per_min"] + m["rear_rim_strikes_per_min"],
+        "bottom_outs": m["front_bottom_out_hits_per_min"] + m["rear_bottom_out_hits_per_min"],
+        "bottom_out_depth": m["front_bottom_out_deepest"] + m["rear_bottom_out_deepest"],
+        "bottom_out_risk": np.minimum(deepest / BOTTOM_OUT_FULL_DEPTH, 1.0),
+        "rim_strikes": m["front_rim_hits_per_min"] + m["rear_rim_hits_per_min"],
         "front_grip": 0.5 * (m["front_grip_unmet_braking"] + m["front_grip_unmet_cornering"]),
         "rear_grip": 0.5 * (m["rear_grip_unmet_braking"] + m["rear_grip_unmet_cornering"]),
         "pack_down": np.maximum(m["front_pack_down"], 0.0) + np.maximum(m["rear_pack_down"], 0.0),

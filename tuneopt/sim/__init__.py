@@ -4,6 +4,7 @@ Each simulator takes plain parameter objects with a leading batch axis B (one ro
 one ``RoadInput``, and returns a frozen result with named (B,) metric arrays.
 """
 
+from tuneopt.sim._common import BOTTOM_OUT_FULL_DEPTH, RIM_STRIKE_FULL_DEPTH
 from tuneopt.sim.halfcar import (
     HalfCarResult,
     HalfCarTraces,
@@ -36,6 +37,8 @@ from tuneopt.sim.quartercar import (
 from tuneopt.sim.road import RoadInput, distance_derivative, road_input_from_wheel_inputs
 
 __all__ = [
+    "BOTTOM_OUT_FULL_DEPTH",
+    "RIM_STRIKE_FULL_DEPTH",
     "FailureReason",
     "GripPhase",
     "HalfCarParams",

@@ -35,6 +35,14 @@ RIM_STIFFNESS_FACTOR = 10.0
 # micrometres are what first makes counts differ between step sizes.
 BOTTOM_OUT_MIN_DEPTH = 2e-3
 RIM_STRIKE_MIN_DEPTH = 1e-3
+# Hits weighed by their depth, for the score: every excursion past full travel (or past the
+# rim-strike deflection) counts min(1, peak depth / full depth), so a graze counts almost nothing
+# and a hit this deep or deeper counts once. Counts that grow smoothly with depth let two
+# similar setups differ by a little where one just touches the stop, not by a whole event
+# (common practice, no source: a bottom-out into the bumper's first few millimetres is what a
+# tuner aims for on the biggest hit of a run; a rim needs only a millimetre or two to dent).
+BOTTOM_OUT_FULL_DEPTH = 5e-3
+RIM_STRIKE_FULL_DEPTH = 2e-3
 # A tyre counts as unloaded below this fraction of its static load (common practice, no source).
 UNLOADED_FRACTION = 0.1
 # Phases for the grip balance (common practice, no source) [m/s^2].
@@ -97,6 +105,14 @@ class WheelAcc(Layout):
     N_FREE = auto()
     N_TOPOUT = auto()
     IN_TOPOUT = auto()
+    IN_HIT = auto()  # an excursion past full travel is open (any depth)
+    DEEPEST = auto()  # deepest excursion past full travel [m]
+    HIT_MAX = auto()  # its deepest point so far [m]
+    HIT_SUM = auto()  # the excursions so far, each weighed min(1, depth / BOTTOM_OUT_FULL_DEPTH)
+    IN_RIM_HIT = auto()  # the same for the rim
+    RIM_HIT_MAX = auto()
+    RIM_HIT_SUM = auto()
+    RIM_DEEPEST = auto()  # deepest excursion past the rim-strike deflection [m]
 
 
 W_FIELDS = len(WheelAcc)
@@ -215,6 +231,33 @@ def accumulate_wheel(
     elif rim > RIM_STRIKE_MIN_DEPTH:
         acc[off + WheelAcc.IN_RIM] = 1.0
         acc[off + WheelAcc.N_RIM] += 1.0
+    # the same hits weighed by depth, from the first micrometre
+    if depth > 0.0:
+        if depth > acc[off + WheelAcc.DEEPEST]:
+            acc[off + WheelAcc.DEEPEST] = depth
+        if acc[off + WheelAcc.IN_HIT] > 0.0:
+            if depth > acc[off + WheelAcc.HIT_MAX]:
+                acc[off + WheelAcc.HIT_MAX] = depth
+        else:
+            acc[off + WheelAcc.IN_HIT] = 1.0
+            acc[off + WheelAcc.HIT_MAX] = depth
+    elif acc[off + WheelAcc.IN_HIT] > 0.0:
+        acc[off + WheelAcc.IN_HIT] = 0.0
+        acc[off + WheelAcc.HIT_SUM] += min(1.0, acc[off + WheelAcc.HIT_MAX] / BOTTOM_OUT_FULL_DEPTH)
+    if rim > 0.0:
+        if rim > acc[off + WheelAcc.RIM_DEEPEST]:
+            acc[off + WheelAcc.RIM_DEEPEST] = rim
+        if acc[off + WheelAcc.IN_RIM_HIT] > 0.0:
+            if rim > acc[off + WheelAcc.RIM_HIT_MAX]:
+                acc[off + WheelAcc.RIM_HIT_MAX] = rim
+        else:
+            acc[off + WheelAcc.IN_RIM_HIT] = 1.0
+            acc[off + WheelAcc.RIM_HIT_MAX] = rim
+    elif acc[off + WheelAcc.IN_RIM_HIT] > 0.0:
+        acc[off + WheelAcc.IN_RIM_HIT] = 0.0
+        acc[off + WheelAcc.RIM_HIT_SUM] += min(
+            1.0, acc[off + WheelAcc.RIM_HIT_MAX] / RIM_STRIKE_FULL_DEPTH
+        )
     # top-out: full extension reached while extending fast; over once the end compresses again
     if acc[off + WheelAcc.IN_TOPOUT] > 0.0:
         if travel > 0.0:
@@ -264,12 +307,20 @@ def accumulate_wheel(
 
 @njit(cache=True)
 def close_wheel(acc, off):
-    """Close a bottom-out event still open at the end of the run."""
+    """Close the bottom-out and rim hits still open at the end of the run."""
     if acc[off + WheelAcc.IN_BOTTOM] > 0.0:
         acc[off + WheelAcc.IN_BOTTOM] = 0.0
         acc[off + WheelAcc.BOTTOM_SUM] += acc[off + WheelAcc.EVENT_MAX]
         if acc[off + WheelAcc.EVENT_MAX] > acc[off + WheelAcc.BOTTOM_MAX]:
             acc[off + WheelAcc.BOTTOM_MAX] = acc[off + WheelAcc.EVENT_MAX]
+    if acc[off + WheelAcc.IN_HIT] > 0.0:
+        acc[off + WheelAcc.IN_HIT] = 0.0
+        acc[off + WheelAcc.HIT_SUM] += min(1.0, acc[off + WheelAcc.HIT_MAX] / BOTTOM_OUT_FULL_DEPTH)
+    if acc[off + WheelAcc.IN_RIM_HIT] > 0.0:
+        acc[off + WheelAcc.IN_RIM_HIT] = 0.0
+        acc[off + WheelAcc.RIM_HIT_SUM] += min(
+            1.0, acc[off + WheelAcc.RIM_HIT_MAX] / RIM_STRIKE_FULL_DEPTH
+        )
 
 
 @njit(cache=True, inline="always")

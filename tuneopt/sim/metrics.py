@@ -66,6 +66,10 @@ class WheelMetrics:
     bottom_outs_per_min: bottom-outs past BOTTOM_OUT_MIN_DEPTH per minute [1/min];
     bottom_out_depth_max / bottom_out_depth_mean: deepest and mean peak penetration past full
     travel over the bottom-outs [m] (0 without any); rim_strikes_per_min [1/min];
+    bottom_out_hits_per_min / rim_hits_per_min: every excursion past full travel (past the
+    rim-strike deflection) per minute, each weighed by its depth, min(1, depth /
+    BOTTOM_OUT_FULL_DEPTH or RIM_STRIKE_FULL_DEPTH) [1/min]; bottom_out_deepest / rim_deepest:
+    the deepest such excursion, of any depth [m] (0 without any);
     topouts_per_min: top-out strikes per minute, the end reaching full extension while
     extending faster than TOPOUT_MIN_SPEED [1/min];
     travel_median, travel_p95, travel_max: vertical wheel travel [m] (0 = fully extended);
@@ -85,6 +89,10 @@ class WheelMetrics:
     bottom_out_depth_max: FloatArray
     bottom_out_depth_mean: FloatArray
     rim_strikes_per_min: FloatArray
+    bottom_out_hits_per_min: FloatArray
+    bottom_out_deepest: FloatArray
+    rim_hits_per_min: FloatArray
+    rim_deepest: FloatArray
     topouts_per_min: FloatArray
     travel_median: FloatArray
     travel_p95: FloatArray
@@ -202,6 +210,10 @@ def wheel_metrics(
             bottom_out_depth_max=acc[:, off + c.WheelAcc.BOTTOM_MAX].copy(),
             bottom_out_depth_mean=np.where(nb > 0, acc[:, off + c.WheelAcc.BOTTOM_SUM] / nb, 0.0),
             rim_strikes_per_min=acc[:, off + c.WheelAcc.N_RIM] / minutes,
+            bottom_out_hits_per_min=acc[:, off + c.WheelAcc.HIT_SUM] / minutes,
+            bottom_out_deepest=acc[:, off + c.WheelAcc.DEEPEST].copy(),
+            rim_hits_per_min=acc[:, off + c.WheelAcc.RIM_HIT_SUM] / minutes,
+            rim_deepest=acc[:, off + c.WheelAcc.RIM_DEEPEST].copy(),
             topouts_per_min=acc[:, off + c.WheelAcc.N_TOPOUT] / minutes,
             travel_median=_quantile_from_hist(hist, 0.5, low, hist_width),
             travel_p95=_quantile_from_hist(hist, 0.95, low, hist_width),

@@ -75,6 +75,8 @@ _MEAN_FIELDS = (
     "unloaded_share",
     "bottom_outs_per_min",
     "rim_strikes_per_min",
+    "bottom_out_hits_per_min",
+    "rim_hits_per_min",
     "topouts_per_min",
     "travel_p95",
     "pack_down",
@@ -90,8 +92,11 @@ class CourseMetrics:
     rim_strikes_per_min [1/min], topouts_per_min (top-out strikes) [1/min], travel_p95 [m],
     pack_down (ride height lost outside braking and cornering) [m]; travel_max [m] and
     bottom_out_depth_max (deepest bottom-out past full travel, 0 without any) [m] are the
-    maxima over the segments. *_grip_unmet_braking / _cornering: the share of the force the
-    braking or cornering phases asked of that tyre that its grip capacity (load sensitivity and
+    maxima over the segments. bottom_out_hits_per_min and rim_hits_per_min (every excursion
+    past the stop or the rim, weighed by its depth) [1/min] are mix-weighted means;
+    bottom_out_deepest and rim_deepest (the deepest excursion of any depth) [m] are maxima.
+    *_grip_unmet_braking / _cornering: the share of the force the braking or cornering phases
+    asked of that tyre that its grip capacity (load sensitivity and
     relaxation length included) could not give [-], averaged with the mix weights over the
     segments that have such a phase (0 when none has). kick_speed: the mean peak extension speed
     of an end as it rebounds from a deep compression [m/s], mix-weighted over the segments that
@@ -112,6 +117,14 @@ class CourseMetrics:
     rear_topouts_per_min: FloatArray
     front_bottom_out_depth_max: FloatArray
     rear_bottom_out_depth_max: FloatArray
+    front_bottom_out_hits_per_min: FloatArray
+    rear_bottom_out_hits_per_min: FloatArray
+    front_rim_hits_per_min: FloatArray
+    rear_rim_hits_per_min: FloatArray
+    front_bottom_out_deepest: FloatArray
+    rear_bottom_out_deepest: FloatArray
+    front_rim_deepest: FloatArray
+    rear_rim_deepest: FloatArray
     front_travel_p95: FloatArray
     rear_travel_p95: FloatArray
     front_pack_down: FloatArray
@@ -162,7 +175,7 @@ def ride_course(params: HalfCarParams, course: PreparedCourse) -> CourseMetrics:
     for end in ("front", "rear"):
         for name in _MEAN_FIELDS:
             agg[f"{end}_{name}"] = _weighted([getattr(getattr(r, end), name) for r in results], w)
-        for name in ("travel_max", "bottom_out_depth_max"):
+        for name in ("travel_max", "bottom_out_depth_max", "bottom_out_deepest", "rim_deepest"):
             agg[f"{end}_{name}"] = np.max(
                 np.stack([getattr(getattr(r, end), name) for r in results]), axis=0
             )
