@@ -1,4 +1,10 @@
-"""A study's optuna storage on Redis: one journal under its own key prefix, removed on purpose.
+"""A study's optuna storage on Redis: one JSON journal under its own key prefix, removed on purpose.
+
+The journal is optuna's own format, one JSON object per operation, kept here as the items of
+one Redis list (``<prefix>:journal``). Nothing else is written: optuna's Redis backend also saves
+a pickled snapshot of the whole study now and then, which every process that opens the study
+would unpickle; this backend offers no snapshot, so the storage never writes or reads one (it
+replays the JSON log instead, read in batches).
 
 Journal storage never expires its keys and ``delete_study`` frees nothing, so every study gets
 a prefix of its own and :func:`delete_study_keys` removes exactly that prefix's keys.
@@ -6,38 +12,77 @@ a prefix of its own and :func:`delete_study_keys` removes exactly that prefix's 
 
 from __future__ import annotations
 
+import json
 import re
-import warnings
+from collections.abc import Iterator
 from typing import Any
 
-from optuna.exceptions import ExperimentalWarning
 from optuna.storages import JournalStorage
-from optuna.storages.journal import JournalRedisBackend
+from optuna.storages.journal import BaseJournalBackend
+from redis import Redis
 
-__all__ = ["delete_study_keys", "redis_storage"]
+__all__ = ["JOURNAL_KEY", "RedisJsonJournal", "delete_study_keys", "expire_study_keys",
+           "redis_storage"]  # fmt: skip
 
 _GLOB = re.compile(r"([*?\[\]\\])")
+JOURNAL_KEY = "journal"
+# log entries read per round trip when a process replays a study
+_READ_BATCH = 2000
+
+
+class RedisJsonJournal(BaseJournalBackend):
+    """optuna's journal as JSON strings in one Redis list: appends are one RPUSH (atomic, so the
+    log numbers of concurrent writers never clash), reads are LRANGE in batches."""
+
+    def __init__(self, url: str, prefix: str) -> None:
+        if not prefix or prefix.endswith(":"):
+            raise ValueError("a study needs a non-empty key prefix that does not end in ':'")
+        self._url = url
+        self._key = f"{prefix}:{JOURNAL_KEY}"
+        self._redis = Redis.from_url(url)
+
+    def __getstate__(self) -> dict[str, Any]:  # a storage sent to another process reconnects
+        return {"_url": self._url, "_key": self._key}
+
+    def __setstate__(self, state: dict[str, Any]) -> None:
+        self.__dict__.update(state)
+        self._redis = Redis.from_url(self._url)
+
+    def read_logs(self, log_number_from: int) -> Iterator[dict[str, Any]]:
+        start = log_number_from
+        while True:
+            batch: list[bytes] = self._redis.lrange(  # type: ignore[assignment]
+                self._key, start, start + _READ_BATCH - 1
+            )
+            for item in batch:
+                yield json.loads(item)
+            if len(batch) < _READ_BATCH:
+                return
+            start += len(batch)
+
+    def append_logs(self, logs: list[dict[str, Any]]) -> None:
+        # optuna's own encoding (NaN written as in its file journal: a metric may have none)
+        if logs:
+            self._redis.rpush(self._key, *(json.dumps(log) for log in logs))
 
 
 def redis_storage(url: str, prefix: str) -> JournalStorage:
     """The journal storage of the study kept under ``prefix`` on the Redis at ``url``."""
-    if not prefix or ":" in prefix[-1:]:
-        raise ValueError("a study needs a non-empty key prefix that does not end in ':'")
-    with warnings.catch_warnings():
-        # the Redis journal backend is marked experimental; its interface is two methods we use
-        warnings.simplefilter("ignore", ExperimentalWarning)
-        backend = JournalRedisBackend(url, prefix=prefix)
-    return JournalStorage(backend)
+    return JournalStorage(RedisJsonJournal(url, prefix))
+
+
+def _keys(redis: Any, prefix: str) -> Iterator[Any]:
+    if not prefix:
+        raise ValueError("refusing to touch keys with an empty prefix")
+    pattern = _GLOB.sub(r"\\\1", prefix) + ":*"
+    yield from redis.scan_iter(match=pattern, count=500)
 
 
 def delete_study_keys(redis: Any, prefix: str) -> int:
-    """Delete the journal keys written under ``prefix`` (logs, counter, snapshot)."""
-    if not prefix:
-        raise ValueError("refusing to delete keys with an empty prefix")
-    pattern = _GLOB.sub(r"\\\1", prefix) + ":*"
+    """Delete the keys written under ``prefix`` (the journal, the ask lock)."""
     removed = 0
     batch: list[Any] = []
-    for key in redis.scan_iter(match=pattern, count=500):
+    for key in _keys(redis, prefix):
         batch.append(key)
         if len(batch) >= 500:
             removed += int(redis.delete(*batch))
@@ -45,3 +90,10 @@ def delete_study_keys(redis: Any, prefix: str) -> int:
     if batch:
         removed += int(redis.delete(*batch))
     return removed
+
+
+def expire_study_keys(redis: Any, prefix: str, seconds: int) -> None:
+    """Let the keys written under ``prefix`` expire after ``seconds`` (a study kept for a
+    while after its job ended)."""
+    for key in _keys(redis, prefix):
+        redis.expire(key, seconds)
