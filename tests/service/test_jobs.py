@@ -17,6 +17,8 @@ import pytest
 from fastapi.testclient import TestClient
 from optuna.trial import TrialState
 from redis import Redis
+from rq.job import Job
+from rq.serializers import JSONSerializer
 
 from tests.conftest import write_toml
 from tests.figures import record
@@ -369,10 +371,17 @@ def test_stopping_worker_hands_its_shard_back_to_the_queue(
     tasks._stopping.clear()
     status = client.get(f"/jobs/{job_id}").json()
     assert status["state"] == "running" and status["progress"]["finished"] == 4
-    assert any("ShardInterrupted" in e for e in status["errors"])
+    # a graceful hand-back is an event, not an error, and costs the shard none of its retries
+    assert status["errors"] == []
+    assert any("handed back after 4 trials" in e for e in status["events"]), status["events"]
+    shard = Job.fetch(tasks.rq_id(job_id, "shard-0"), connection=Redis.from_url(
+        settings.redis_url.get_secret_value()), serializer=JSONSerializer)  # fmt: skip
+    assert shard.get_status() == "queued" and shard.retries_left == settings.shard_retries
     _work(settings)  # another worker takes the shard up and finishes the job
     status = client.get(f"/jobs/{job_id}").json()
     assert status["state"] == "done" and status["progress"]["finished"] == 24
+    assert status["errors"] == []
+    assert any("taken up again" in e for e in status["events"]), status["events"]
 
 
 def test_shards_that_fail_for_good_still_end_the_job_with_their_errors(

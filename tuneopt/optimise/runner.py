@@ -184,7 +184,10 @@ def reap_stale_trials(
                 continue
         elif not str(owner).startswith(owner_prefix):
             continue
-        study._storage.set_trial_user_attr(t._trial_id, "reaped", True)
+        try:
+            study._storage.set_trial_user_attr(t._trial_id, "reaped", True)
+        except optuna.exceptions.UpdateFinishedTrialError:
+            continue  # its owner, alive after all (a paused worker), told it meanwhile
         study.tell(t.number, state=TrialState.FAIL, skip_if_finished=True)
         attrs = {"baseline": True} if t.user_attrs.get("baseline") else None
         study.enqueue_trial(dict(t.params), user_attrs=attrs)
@@ -234,7 +237,12 @@ def ask_batch(
     batch = []
     for _ in range(size):
         trial = study.ask(distributions)
-        trial.set_user_attr("owner", owner)
+        try:
+            trial.set_user_attr("owner", owner)
+        except optuna.exceptions.UpdateFinishedTrialError:
+            # reaped as untagged while this process stood still (a paused worker): its point
+            # is queued again for whoever asks next
+            continue
         batch.append(trial)
     return batch
 

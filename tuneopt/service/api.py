@@ -75,6 +75,7 @@ class JobStatus(BaseModel):
     cancel_requested: bool
     progress: ProgressView
     errors: list[str]
+    events: list[str]
     links: dict[str, str]
 
 
@@ -111,6 +112,7 @@ def _status(record: JobRecord) -> JobStatus:
             eta_seconds=record.eta_seconds(time.time()),
         ),
         errors=record.errors,
+        events=record.events,
         links={"self": base, "result": f"{base}/result", "report": f"{base}/report"},
     )
 

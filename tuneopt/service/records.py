@@ -62,6 +62,7 @@ class JobRecord:
     cancel_requested: bool = False
     deleted: bool = False
     errors: list[str] = field(default_factory=list)
+    events: list[str] = field(default_factory=list)
 
     @property
     def budget(self) -> int | None:
@@ -94,7 +95,7 @@ local c = tonumber(redis.call('HGET', KEYS[1], 'finished') or '0')
 if tonumber(ARGV[1]) > c then redis.call('HSET', KEYS[1], 'finished', ARGV[1]) end
 return 1
 """
-_ERROR = """
+_KEEP_LAST_20 = """
 if redis.call('EXISTS', KEYS[1]) == 0 then return 0 end
 redis.call('RPUSH', KEYS[2], ARGV[1])
 redis.call('LTRIM', KEYS[2], -20, -1)
@@ -137,6 +138,9 @@ class JobStore:
 
     def _errors_key(self, job_id: str) -> str:
         return f"{self.key(job_id)}:errors"
+
+    def _events_key(self, job_id: str) -> str:
+        return f"{self.key(job_id)}:events"
 
     def _owner_key(self, job_id: str, shard: int) -> str:
         return f"{self.key(job_id)}:owner:{shard}"
@@ -191,6 +195,7 @@ class JobStore:
                 if now - updated < _RATE_FRESH:
                     rate += per_minute
         errors: list[str] = self.redis.lrange(self._errors_key(job_id), 0, -1)  # type: ignore[assignment]
+        events: list[str] = self.redis.lrange(self._events_key(job_id), 0, -1)  # type: ignore[assignment]
         state = JobState(raw["state"])
         started, ended = _float(raw.get("started")), _float(raw.get("ended"))
         finished = int(raw.get("finished", "0"))
@@ -211,6 +216,7 @@ class JobStore:
             cancel_requested=raw.get("cancel") == "1",
             deleted=raw.get("deleted") == "1",
             errors=errors,
+            events=events,
         )
 
     def scenario(self, job_id: str) -> dict[str, Any]:
@@ -291,9 +297,16 @@ class JobStore:
         self.redis.hdel(self.key(job_id), f"rate:{shard}")
 
     def add_error(self, job_id: str, message: str) -> None:
-        """Keep the job's last 20 errors (not for a job that is gone)."""
+        """Keep the job's last 20 errors: real failures (not for a job that is gone)."""
         self.redis.eval(
-            _ERROR, 2, self.key(job_id), self._errors_key(job_id), message[:2000]
+            _KEEP_LAST_20, 2, self.key(job_id), self._errors_key(job_id), message[:2000]
+        )
+
+    def add_event(self, job_id: str, message: str) -> None:
+        """Keep the job's last 20 events: what happened to it that is not a failure (a shard
+        handed back by a stopping worker, a shard taken over from a lost one)."""
+        self.redis.eval(
+            _KEEP_LAST_20, 2, self.key(job_id), self._events_key(job_id), message[:2000]
         )
 
     # shard owners: who ran a shard last, so that its retry can reap what it left running
@@ -315,6 +328,7 @@ class JobStore:
         request, submission = self.redis.hmget(self.key(job_id), ["request", "submission"])
         shards = int(json.loads(request).get("shards", 0)) if request else 0
         keys = [self.key(job_id), self._result_key(job_id), self._errors_key(job_id)]
+        keys.append(self._events_key(job_id))
         keys += [self._owner_key(job_id, k) for k in range(shards)]
         with self.redis.pipeline() as pipe:
             if submission:

@@ -39,6 +39,7 @@ from tuneopt.optimise import (
 )
 from tuneopt.optimise.redis_storage import delete_study_keys, redis_storage
 from tuneopt.optimise.runner import count_finished, shard_owner
+from tuneopt.service.logs import event
 from tuneopt.service.records import JobState, JobStore, is_job_id
 from tuneopt.service.settings import Settings
 
@@ -255,7 +256,13 @@ def run_shard_job(job_id: str, shard: int) -> int:
     owner = shard_owner(shard)
     previous = store.swap_owner(job_id, shard, owner)
     if previous is not None:
-        reap_stale_trials(study, previous)
+        reaped = reap_stale_trials(study, previous)
+        message = (
+            f"shard {shard} taken up again after {previous}; the {reaped} trials it left "
+            "running are queued again"
+        )
+        store.add_event(job_id, message)
+        event(log, "shard.resumed", message, job=job_id, shard=shard, reaped=reaped)
     evaluator = Evaluator(scenario, plan.seed, int(record.request["realisations"]))
 
     def report(p: Progress) -> None:
@@ -272,21 +279,10 @@ def run_shard_job(job_id: str, shard: int) -> int:
             on_batch=report,
             ask_lock=lambda: _ask_lock(store, job_id),
         )
-        if not store.exists(job_id):  # purged while this shard ran: what its last batch
-            delete_study_keys(store.redis, store.study_prefix(job_id))  # wrote goes too
-            return done
-        if (
-            _stopping.is_set()
-            and not store.is_cancel_requested(job_id)
-            and (plan.deadline is None or time.time() < plan.deadline)
-            and count_finished(study) < (plan.trials or 0)
-        ):
-            raise ShardInterrupted(
-                f"worker stopping after {done} trials; the shard is queued again"
-            )
-        return done
     except Exception as exc:
         store.add_error(job_id, f"shard {shard}: {type(exc).__name__}: {exc}")
+        event(log, "shard.failed", f"shard {shard} failed: {type(exc).__name__}: {exc}",
+              job=job_id, shard=shard, level=logging.ERROR)  # fmt: skip
         try:  # this attempt is over: its in-flight trials go back to the queue of points
             reap_stale_trials(study, owner)
         except Exception:  # noqa: BLE001 (the retry reaps them when Redis is back)
@@ -294,6 +290,24 @@ def run_shard_job(job_id: str, shard: int) -> int:
         raise
     finally:
         store.clear_rate(job_id, shard)
+    if not store.exists(job_id):  # purged while this shard ran: what its last batch
+        delete_study_keys(store.redis, store.study_prefix(job_id))  # wrote goes too
+        return done
+    if (
+        _stopping.is_set()
+        and not store.is_cancel_requested(job_id)
+        and (plan.deadline is None or time.time() < plan.deadline)
+        and count_finished(study) < (plan.trials or 0)
+    ):
+        # a worker asked to stop hands its shard back: an event, not a failure (rq queues the
+        # shard again and the worker does not count it against the shard's retries)
+        message = f"shard {shard} handed back after {done} trials: its worker is stopping"
+        store.add_event(job_id, message)
+        event(log, "shard.handed_back", message, job=job_id, shard=shard, trials=done)
+        raise ShardInterrupted(message)
+    event(log, "shard.ended", f"shard {shard} ended after {done} trials", job=job_id,
+          shard=shard, trials=done)  # fmt: skip
+    return done
 
 
 def finalise_job(job_id: str) -> str:

@@ -46,6 +46,20 @@ class ShardWorker(SimpleWorker):
         tasks.stop_shards()
         super().handle_warm_shutdown_request()
 
+    def handle_job_failure(
+        self, job: Job, queue: Queue, started_job_registry: Any = None, exc_string: str = ""
+    ) -> None:
+        if _handed_back(exc_string):
+            # a shard handed back by this stopping worker goes back on the queue without
+            # spending one of its retries (those are for failures)
+            job.retries_left = (job.retries_left or 0) + 1
+        super().handle_job_failure(job, queue, started_job_registry, exc_string)
+
+    def handle_exception(self, job: Job, *exc_info: Any) -> None:
+        if exc_info and exc_info[0] is not None and issubclass(exc_info[0], tasks.ShardInterrupted):
+            return  # an event, logged by the shard: not an error with a traceback
+        super().handle_exception(job, *exc_info)
+
     def get_heartbeat_ttl(self, job: Job) -> int:
         return self.beat_ttl
 
@@ -67,6 +81,12 @@ class ShardWorker(SimpleWorker):
                 self.maintain_heartbeats(job)
             except Exception as exc:  # noqa: BLE001 (Redis away for a moment: try again)
                 log.warning("heartbeat of %s failed: %s", job.id, exc)
+
+
+def _handed_back(exc_string: str) -> bool:
+    """Whether a job's failure text ends with the shard being handed back (ShardInterrupted)."""
+    lines = exc_string.strip().splitlines()
+    return bool(lines) and lines[-1].startswith(f"{tasks.__name__}.ShardInterrupted:")
 
 
 def make_worker(settings: Settings, name: str | None = None) -> ShardWorker:
