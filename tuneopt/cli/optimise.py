@@ -185,6 +185,7 @@ def run(args: argparse.Namespace) -> int:
                 args.workers,
                 baseline,
                 validation=args.validation or DEFAULT_VALIDATION,
+                source=Path(args.scenario),
             )
         except OSError as exc:  # a parent that is a file, no permission, disk full
             raise InputError.single("--out", f"cannot write {args.out}: {exc.strerror}") from None

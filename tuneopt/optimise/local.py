@@ -67,8 +67,10 @@ def start_run(
     workers: int = 1,
     baseline: Setup | None = None,
     validation: int = DEFAULT_VALIDATION,
+    source: Path | None = None,
 ) -> LocalRun:
-    """Prepare a new run in ``out`` (refuses a folder that already holds a study)."""
+    """Prepare a new run in ``out`` (refuses a folder that already holds a study); ``source``,
+    the scenario file it was read from, is recorded so that a test day can write its successor."""
     if (out / JOURNAL).exists():
         raise InputError.single(
             "--out", f"{out} already holds a study; resume it with --resume or pick a new folder"
@@ -84,6 +86,8 @@ def start_run(
         "workers": workers,
         "validation": validation,
     }
+    if source is not None:
+        settings["scenario_file"] = str(source.resolve())
     (out / SETTINGS).write_text(json.dumps(settings, indent=2))
     return LocalRun(out, scenario, plan, realisations, workers, validation)
 

@@ -172,7 +172,9 @@ spring rates N/m, damping N·s/m, volumes m³, angles degrees.</p>
 {% if r.exports %}
 <h3>Files</h3>
 <p class="note">Next to this report, in the run folder:</p>
-<ul id="exports">{% for e in r.exports %}<li>{{ e }}</li>{% endfor %}</ul>
+<ul id="exports">{% for e in r.exports %}<li>
+{% if e.endswith(".html") %}<a href="{{ e }}">{{ e }}</a>{% else %}{{ e }}{% endif %}</li>
+{% endfor %}</ul>
 {% endif %}
 </section>
 {% endblock %}

@@ -449,5 +449,12 @@ def write_page(folder: Path, report: RunReport) -> Path:
 
 
 def write_run_report(run_dir: Path, ranks: Sequence[int] = (1,), exports: bool = True) -> Path:
-    """Write ``report.html`` (and the exports) into ``run_dir``; return the page's path."""
-    return write_page(run_dir, build_run_report(run_dir, ranks, exports))
+    """Write ``report.html`` (and the exports) into ``run_dir``, with ``sheet.html`` (the setup
+    sheets) beside it; return the page's path."""
+    from dataclasses import replace
+
+    from tuneopt.report.setup_sheet import write_study_sheets
+
+    report = build_run_report(run_dir, ranks, exports)
+    pages = write_study_sheets(run_dir)
+    return write_page(run_dir, replace(report, exports=[*pages, *report.exports]))
