@@ -191,7 +191,8 @@ def _header(
                 )
             else:
                 setup = value
-    raise InputError([*problems, problem(len(rows), "no column line and no data after the header")])
+    last = max(i for i, r in enumerate(rows) if r.strip()) + 1
+    raise InputError([*problems, problem(last, "no column line and no data after the header")])
 
 
 def _column_names(text: str, line: int) -> tuple[tuple[str, ...], list[FieldProblem]]:
