@@ -23,6 +23,12 @@ def register(sub: Any) -> None:
     p = sub.add_parser("check", help="static check of a scenario: sag, rates, frequencies")
     p.add_argument("scenario", help="scenario file (.toml or .json)")
     p.add_argument("--json", action="store_true", help="print the check as JSON")
+    p.add_argument(
+        "--measured-sag",
+        metavar="FRONT_MM,REAR_MM",
+        help="sag read with a tape (stroke, mm; - for an end not measured): compared with the "
+        "model's, with what the difference says about the spring data",
+    )
     p.set_defaults(func=run)
 
 
@@ -41,11 +47,21 @@ def run(args: argparse.Namespace) -> int:
         check = static_check(scenario)
     except InputError as exc:  # an impossible setup: name the file, as load_scenario does
         raise InputError(exc.problems, args.scenario) from None
+    sag = None
+    if args.measured_sag is not None:
+        from tuneopt.cli._measured_sag import measured_sag, sag_lines
+
+        sag = measured_sag(scenario, args.measured_sag)
     if args.json:
-        json.dump(as_dict(check), sys.stdout, indent=2)
+        data = as_dict(check)
+        if sag is not None:
+            data["measured_sag"] = [dataclasses.asdict(c) for c in sag]
+        json.dump(data, sys.stdout, indent=2)
         print()
     else:
         _print_table(scenario.name, check)
+        if sag is not None:
+            print("\n".join(sag_lines(sag)))
     return 1 if check.errors else 0
 
 
