@@ -211,3 +211,24 @@ def _attr_values(html: str, tag: str, attr: str) -> list[str]:
     import re
 
     return re.findall(rf'<{tag}\b[^>]*\b{attr}="([^"]*)"', html)
+
+
+def test_every_shipped_scenario_gives_a_loadable_successor(
+    scenario_path: Path, tmp_path: Path
+) -> None:
+    """A base file, a measured damper table beside the scenario, coil or air: the written file
+    is the same scenario read back, with only the setup (and the table's path) changed."""
+    scenario = load_scenario(scenario_path)
+    fork = scenario.setup.fork.model_copy(update={"lsc": 0})
+    chosen = scenario.setup.model_copy(update={"fork": fork})
+    settings = {"scenario_file": str(scenario_path), "scenario": scenario.model_dump(mode="json")}
+    out = tmp_path / "elsewhere" / "next.toml"
+    write_successor(settings, scenario, chosen, out, "chosen.toml", list(CAUTIONS))
+    written = load_scenario(out)
+    assert written.setup == chosen
+    before, after = (s.model_dump(exclude={"setup"}) for s in (scenario, written))
+    for data in (before, after):
+        if data["shock"]["damper"].get("measured"):
+            data["shock"]["damper"]["measured"]["source"] = "table"
+    assert after == before
+    assert "\nbase =" not in out.read_text()  # the base file is merged in

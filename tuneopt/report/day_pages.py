@@ -48,7 +48,7 @@ TEST_DAY = (
 <h2>Baseline to set before riding</h2>
 <dl class="dial">{% for d in p.baseline %}
 <dt>{{ d.label }}</dt><dd data-key="{{ d.key }}">{{ d.value }}{% if d.now %}
-<span class="was">(now {{ d.now }})</span>{% endif %}</dd>{% endfor %}
+ <span class="was">(now {{ d.now }})</span>{% endif %}</dd>{% endfor %}
 </dl>
 <h3>Sag to check with a tape</h3>
 <ul class="facts" id="sag">{% for s in p.sag %}<li>{{ s }}</li>{% endfor %}</ul>
@@ -105,7 +105,7 @@ SHEET = (
 <h3>{{ end.title }}</h3>
 <dl class="dial">{% for d in end.settings %}
 <dt>{{ d.label }}</dt><dd data-key="{{ d.key }}">{{ d.value }}{% if d.now %}
-<span class="was">(now {{ d.now }})</span>{% endif %}</dd>{% endfor %}
+ <span class="was">(now {{ d.now }})</span>{% endif %}</dd>{% endfor %}
 </dl>
 {% if end.sag %}<p class="sag">Sag to check with a tape: {{ end.sag }}</p>{% endif %}
 </div>
@@ -133,6 +133,8 @@ def render_day_page(name: str, title: str, cautions: list[str], **context: Any) 
         trim_blocks=True,
         lstrip_blocks=True,
     )
-    return env.get_template(name).render(
-        style=STYLE + DAY_STYLE, title=title, cautions=cautions, **context
-    )
+    from markupsafe import Markup
+
+    # our own constant style: not escaped (autoescape would turn its quotes into entities)
+    style = Markup(STYLE + DAY_STYLE)  # noqa: S704
+    return env.get_template(name).render(style=style, title=title, cautions=cautions, **context)

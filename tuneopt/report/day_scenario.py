@@ -173,7 +173,8 @@ def _tables_moved(data: dict[str, Any], old_dir: Path, new_dir: Path) -> None:
         damper = (data.get(end) or {}).get("damper")
         if isinstance(damper, dict) and isinstance(damper.get("measured_table"), str):
             table = (old_dir / damper["measured_table"]).resolve()
-            damper["measured_table"] = os.path.relpath(table, new_dir.resolve())
+            near = os.path.relpath(table, new_dir.resolve())
+            damper["measured_table"] = str(table) if near.startswith("..") else near
 
 
 def write_successor(

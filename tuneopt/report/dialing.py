@@ -162,6 +162,8 @@ def _unit_for(name: str, units: Mapping[str, str] | None) -> str:
     if units and name in units:
         return units[name]
     field = _field(name)
+    if name == "fork.rate":
+        return "N/mm"  # as the search space shows a fork's coil
     return _DEFAULT_UNITS["tyre" if field == "tyre_pressure" else field]
 
 
@@ -198,7 +200,7 @@ def toml_setting(name: str, value: float, units: Mapping[str, str] | None = None
     unit = _unit_for(name, units)
     si = "N/m" if field == "rate" else "Pa"
     shown = convert(value, si, unit)
-    text = f"{shown:.6f}".rstrip("0").rstrip(".")
+    text = f"{shown:.10g}"
     return f"{text} {unit}"
 
 

@@ -127,21 +127,20 @@ def _metric_lines(best: dict[str, Any], effect: dict[str, Any] | None) -> list[s
 def _prediction(
     delta: float, scale: float, effect: dict[str, Any] | None
 ) -> tuple[str, bool | None]:
-    word = "better" if delta < 0 else "worse"
-    text = (
-        f"score {delta:+.3f} ({delta / scale:+.1%} of #1's; lower is better): predicted to ride "
-        f"{word}"
-    )
+    """The score change of a step with its noise, and whether it is within noise (None: the
+    study kept no noise figure)."""
+    text = f"score {delta:+.3f} ({delta / scale:+.1%} of #1's; lower is better)"
+    verdict = f"predicted to ride {'better' if delta < 0 else 'worse'}"
     if effect is None:
-        return text + "; this study kept no noise figure for its steps", None
+        return f"{text}: {verdict}; this study kept no noise figure for its steps", None
     n = effect.get("realisations", 0)
     low, high = effect.get("low"), effect.get("high")
     if low is None or high is None:
-        return text + f"; noise unknown (paired over {n} realisation)", True
-    text += f"; 95 % interval {low:+.3f} to {high:+.3f} over {n} paired realisations"
+        return f"{text}; noise unknown (one realisation): treat it as within noise", True
+    text += f", 95 % interval {low:+.3f} to {high:+.3f} over {n} paired realisations"
     if effect.get("within_noise"):
-        return text + ": within noise, the study cannot tell it from the baseline", True
-    return text, False
+        return f"{text}: within noise, the study cannot tell it from the baseline", True
+    return f"{text}: {verdict}", False
 
 
 def _trial(
