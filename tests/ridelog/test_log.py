@@ -227,6 +227,7 @@ def test_a_bad_ridden_setup_names_the_setup(tmp_path: Path, content: str | None,
 def test_a_missing_or_binary_log_file(tmp_path: Path) -> None:
     with pytest.raises(InputError, match="no such file"):
         read_ride_log(tmp_path / "nope.csv", scenario=trail())
-    (tmp_path / "junk.csv").write_bytes(b"\xff\xfe\x00\x89PNG")
-    with pytest.raises(InputError, match="not a UTF-8 text file"):
+    (tmp_path / "junk.csv").write_bytes(b"# tuneopt-ride-log 1\n# units: \xff\xfe\x00\x89PNG")
+    with pytest.raises(InputError, match="not a UTF-8 text file") as info:
         read_ride_log(tmp_path / "junk.csv", scenario=trail())
+    assert info.value.problems[0].location == "line 2"

@@ -83,7 +83,7 @@ def check_clock(
     step = float(np.median(steps))
     problems: list[FieldProblem] = []
     rate = 1.0 / step
-    if not MIN_RATE_HZ <= rate <= MAX_RATE_HZ:
+    if not MIN_RATE_HZ * (1 - 1e-6) <= rate <= MAX_RATE_HZ * (1 + 1e-6):  # rounding
         problems.append(
             problem(
                 int(lines[1]),

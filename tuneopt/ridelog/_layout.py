@@ -9,6 +9,7 @@ from __future__ import annotations
 import math
 import re
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 from numpy.typing import NDArray
@@ -114,6 +115,12 @@ def _units(value: str, line: int) -> tuple[dict[str, str], list[FieldProblem]]:
     return out, problems
 
 
+@lru_cache(maxsize=256)
+def _unit_factor(unit: str, si: str) -> float:
+    """One ``unit`` in ``si`` (the unit library is slow to ask; logs repeat a few units)."""
+    return parse_quantity(f"1 {unit}", si)
+
+
 def _factor(column: str, unit: str, line: int) -> tuple[float, FieldProblem | None]:
     si, what = COLUMNS[column]
     if not _UNIT.fullmatch(unit):
@@ -121,7 +128,7 @@ def _factor(column: str, unit: str, line: int) -> tuple[float, FieldProblem | No
             line, f"units: {column}={shown(unit)} is not a unit (write e.g. mm, s, km/h)"
         )
     try:
-        factor = parse_quantity(f"1 {unit}", si)
+        factor = _unit_factor(unit, si)
     except ValueError as exc:
         return math.nan, problem(line, f"units: {column} ({what}): {exc}")
     if not factor > 0:
@@ -218,6 +225,32 @@ def _column_names(text: str, line: int) -> tuple[tuple[str, ...], list[FieldProb
     return names, problems
 
 
+def _line_problems(raw: str, n_line: int, names: tuple[str, ...]) -> list[FieldProblem]:
+    """Why a data line could not be read (it did not match the plain form of the layout)."""
+    width = len(names)
+    if raw.startswith("#"):
+        return [problem(n_line, "comment lines belong in the header, before the columns")]
+    parts = raw.split(",")
+    if len(parts) != width:
+        hint = ""
+        if ";" in raw:
+            hint = "; separate values with commas (this line has semicolons)"
+        elif len(parts) > width:
+            hint = "; write decimals with a point: a comma separates values"
+        return [problem(n_line, f"expected {width} values ({','.join(names)}), got {len(parts)}"
+                        + hint)]  # fmt: skip
+    for name, cell in zip(names, parts, strict=True):
+        cell = cell.strip()
+        if cell.lower() in _MISSING:
+            if name == "time":
+                return [problem(n_line, "the time is missing", name)]
+            continue
+        if not _NUMBER.fullmatch(cell):
+            return [problem(n_line, f"{shown(cell)} is not a number", name)]
+    # only whitespace beyond spaces and tabs around the cells: read it as the plain form
+    return [problem(n_line, "has characters around its values other than spaces and tabs")]
+
+
 def read_columns(text: str) -> Columns:
     """The log's header and cells. Raises InputError with every problem found, by line."""
     text = text.removeprefix("\ufeff")  # spreadsheets save "CSV UTF-8" with a byte-order mark
@@ -252,59 +285,36 @@ def read_columns(text: str) -> Columns:
     lines: list[int] = []
     cells: list[list[float]] = []
     decimals = -1  # none seen written without an exponent
+    t_col = names.index("time")
+    fast = re.compile(",".join([rf"[ \t]*({_NUMBER.pattern}|(?i:nan)|)[ \t]*"] * width))
     for i in range(start + 1, len(rows)):
         raw = rows[i].strip()
         if not raw:
             continue
-        n_line = i + 1
-        if raw.startswith("#"):
-            problems.append(
-                problem(n_line, "comment lines belong in the header, before the columns")
-            )
-            continue
-        parts = raw.split(",")
-        if len(parts) != width:
-            hint = ""
-            if ";" in raw:
-                hint = "; separate values with commas (this line has semicolons)"
-            elif len(parts) > width:
-                hint = "; write decimals with a point: a comma separates values"
-            problems.append(
-                problem(
-                    n_line, f"expected {width} values ({','.join(names)}), got {len(parts)}{hint}"
-                )
-            )
-            if len(problems) > MAX_REPORTED:
-                break
-            continue
-        row: list[float] = []
-        for name, cell in zip(names, parts, strict=True):
-            cell = cell.strip()
-            if cell.lower() in _MISSING:
-                if name == "time":
-                    problems.append(problem(n_line, "the time is missing", name))
-                    break
-                row.append(math.nan)
-                continue
-            if not _NUMBER.fullmatch(cell):
-                problems.append(problem(n_line, f"{shown(cell)} is not a number", name))
-                break
-            value = float(cell) * factors[name]
-            if not math.isfinite(value):
-                problems.append(problem(n_line, f"{shown(cell)} is not a finite number", name))
-                break
-            if name == "time" and "e" not in cell.lower():
+        m = fast.fullmatch(raw)
+        if m is not None and _NUMBER.fullmatch(m.group(t_col + 1)):
+            groups = m.groups()
+            cells.append([float(g) if g else math.nan for g in groups])
+            lines.append(i + 1)
+            cell = groups[t_col]
+            if "e" not in cell.lower():
                 point = cell.find(".")
                 decimals = max(decimals, len(cell) - point - 1 if point >= 0 else 0)
-            row.append(value)
-        else:
-            lines.append(n_line)
-            cells.append(row)
+            continue
+        problems += _line_problems(raw, i + 1, names)
         if len(problems) > MAX_REPORTED:
             break
     if problems:
         raise InputError(capped(problems))
     data = np.array(cells, dtype=float).reshape(len(cells), width)
+    with np.errstate(over="ignore"):
+        data *= np.array([factors[n] for n in names])
+    for row, col in zip(*np.nonzero(np.isinf(data)), strict=True):
+        problems.append(problem(lines[row], "is not a finite number", names[col]))
+        if len(problems) > MAX_REPORTED:
+            break
+    if problems:
+        raise InputError(capped(problems))
     return Columns(
         names=names,
         values={name: data[:, j].copy() for j, name in enumerate(names)},

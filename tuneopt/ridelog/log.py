@@ -199,8 +199,15 @@ def _read_text(path: Path, limit: int, where: str, source: str) -> str:
         )
     try:
         return data.decode("utf-8")
-    except UnicodeDecodeError:
-        raise InputError.single(where, "not a UTF-8 text file", source) from None
+    except UnicodeDecodeError as exc:
+        if where:  # a file named by a field: the field says where
+            raise InputError.single(where, "not a UTF-8 text file", source) from None
+        line = data.count(b"\n", 0, exc.start) + 1
+        raise InputError.single(
+            f"line {line}",
+            f"not a UTF-8 text file (byte 0x{data[exc.start]:02x} cannot be read as text)",
+            source,
+        ) from None
 
 
 def read_ride_log(path: str | Path, *, scenario: Scenario) -> RideLog:
