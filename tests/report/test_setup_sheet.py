@@ -132,3 +132,17 @@ def test_a_folder_without_a_study_is_refused(
     assert "no run.json" in capsys.readouterr().err
     assert main(["testday", str(tmp_path)]) == 2
 
+
+
+def test_report_command_writes_the_sheet_and_links_the_plan(
+    dry_run: Path, tmp_path: Path
+) -> None:
+    import shutil
+
+    run = tmp_path / "run"
+    shutil.copytree(dry_run, run, ignore=shutil.ignore_patterns("*.html", "exports"))
+    assert main(["testday", str(run)]) == 0
+    assert main(["report", str(run), "--no-exports"]) == 0
+    assert (run / "sheet.html").exists()
+    report = (run / "report.html").read_text(encoding="utf-8")
+    assert '<a href="sheet.html">' in report and '<a href="testday.html">' in report

@@ -36,5 +36,9 @@ def run(args: argparse.Namespace) -> int:
     _, scenario, result, units = read_study(args.study_dir)
     sheets = build_setup_sheets(scenario, result, args.rank, units)
     print("\n".join(setup_sheet_lines(sheets)))
-    print(f"\nsheet: {write_setup_sheets(out, sheets)}")
+    try:
+        path = write_setup_sheets(out, sheets)
+    except OSError as exc:  # a folder without write permission, a full disk
+        raise InputError.single("--out", f"cannot write into {out}: {exc.strerror}") from None
+    print(f"\nsheet: {path}")
     return 0

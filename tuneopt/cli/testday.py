@@ -32,8 +32,21 @@ def run(args: argparse.Namespace) -> int:
     if out.exists() and not out.is_dir():
         raise InputError.single("--out", f"{out} is a file, not a folder")
     settings, scenario, result, units = read_study(args.study_dir)
-    if args.chosen is not None:
-        return _bring_back(args, out, settings, scenario, result)
+    try:
+        if args.chosen is not None:
+            return _bring_back(args, out, settings, scenario, result)
+        return _plan(args, out, scenario, result, units)
+    except OSError as exc:  # a folder without write permission, a full disk
+        raise InputError.single("--out", f"cannot write into {out}: {exc.strerror}") from None
+
+
+def _plan(
+    args: argparse.Namespace,
+    out: Path,
+    scenario: Any,
+    result: dict[str, Any],
+    units: dict[str, str],
+) -> int:
     from tuneopt.optimise.space import build_space
     from tuneopt.report.day_pages import render_day_page
     from tuneopt.report.day_scenario import SETTINGS_FILE, day_settings_text
