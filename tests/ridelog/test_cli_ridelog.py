@@ -7,13 +7,15 @@ import json
 import math
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from tests.conftest import SCENARIOS
 from tests.report.page import read_page, table_by_first_cell
-from tests.ridelog.signals import sine_log, write
+from tests.ridelog.signals import sine_log, times, write
 from tuneopt.cli import main
 from tuneopt.optimise.result import CAUTIONS
+from tuneopt.ridelog.writer import format_ride_log
 
 TRAIL = str(SCENARIOS / "trail_air.toml")
 
@@ -83,3 +85,17 @@ def test_an_out_folder_that_is_a_file(tmp_path: Path, capsys: pytest.CaptureFixt
     (tmp_path / "taken").write_text("")
     assert main(["ridelog", str(log), "--scenario", TRAIL, "--out", str(tmp_path / "taken")]) == 2
     assert "--out: cannot make the folder" in capsys.readouterr().err
+
+
+def test_a_bike_that_never_moved_is_said_plainly(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    t = times(6.0)
+    log = write(tmp_path, format_ride_log(t, np.full_like(t, 0.03), np.full_like(t, 0.045)))
+    assert main(["ridelog", str(log), "--scenario", TRAIL, "--out", str(tmp_path / "o")]) == 0
+    printed = capsys.readouterr().out
+    assert "Fork: never moved faster than 5 mm/s" in printed
+    assert "correlation of -" in printed  # no correlation of ends that never moved
+    data = json.loads((tmp_path / "o" / "ride_log.json").read_text())
+    assert data["fork"]["compression"]["median"] is None
+    assert data["balance"]["correlation"] is None

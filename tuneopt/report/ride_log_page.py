@@ -17,7 +17,7 @@ from tuneopt.report._svg import figure_svg, new_figure
 from tuneopt.report._templates import BASE, CAUTIONS, STYLE
 from tuneopt.ridelog.log import RideLog
 from tuneopt.ridelog.phases import PHASES, phase_labels
-from tuneopt.ridelog.speeds import travel_speed
+from tuneopt.ridelog.speeds import STILL_SPEED, travel_speed
 from tuneopt.ridelog.summary import HISTOGRAM_STEP, LAST_TENTH, RideLogSummary
 from tuneopt.ridelog.words import end_lines, overview_lines
 
@@ -153,7 +153,11 @@ def draw_speed_curves(s: RideLogSummary) -> str:
         ax.set_xlabel(f"{e.end} travel speed [m/s]")
         ax.set_xlim(left=0)
         ax.grid(alpha=0.3)
-        ax.legend(loc="lower right", fontsize=8)
+        if ax.get_legend_handles_labels()[0]:
+            ax.legend(loc="lower right", fontsize=8)
+        else:
+            ax.text(0.5, 0.5, f"no travel speeds above {STILL_SPEED * 1e3:g} mm/s",
+                    ha="center", transform=ax.transAxes)  # fmt: skip
     axes[0].set_ylabel("share of the time at or below [%]")
     fig.tight_layout()
     return figure_svg(fig, "Cumulative travel speeds per end")

@@ -90,7 +90,7 @@ def _units(value: str, line: int) -> tuple[dict[str, str], list[FieldProblem]]:
         if not pair:
             continue
         name, sep, unit = pair.partition("=")
-        name = name.strip()
+        name = name.strip().lower()
         if not sep or not unit.strip():
             problems.append(
                 problem(

@@ -7,6 +7,7 @@ import dataclasses
 import math
 from typing import Any
 
+from tuneopt.ridelog.speeds import STILL_SPEED
 from tuneopt.ridelog.summary import EndSummary, RideLogSummary
 
 __all__ = ["end_lines", "overview_lines", "summary_data", "summary_lines"]
@@ -42,6 +43,12 @@ def end_lines(e: EndSummary) -> list[str]:
         f"{_mm(e.mean)} ({e.percent(e.mean):.0f} %).",
     ]
     c, r = e.compression, e.rebound
+    if c.share == 0 and r.share == 0:
+        out.append(
+            f"{name}: never moved faster than {STILL_SPEED * 1e3:g} mm/s: no compression or "
+            "rebound speeds."
+        )
+        return out
     out.append(
         f"{name}: compression speeds median {_speed(c.median)}, 95th percentile "
         f"{_speed(c.p95)}, fastest {_speed(c.fastest)} ({_pct(c.share)} of the time "
