@@ -231,3 +231,23 @@ def test_a_missing_or_binary_log_file(tmp_path: Path) -> None:
     with pytest.raises(InputError, match="not a UTF-8 text file") as info:
         read_ride_log(tmp_path / "junk.csv", scenario=trail())
     assert info.value.problems[0].location == "line 2"
+
+
+@pytest.mark.parametrize(
+    ("rate", "fmt", "unit"),
+    [
+        (300.0, "{:.3f}", "s"),  # whole milliseconds: steps of 3, 3 and 4 ms
+        (128.0, "{:.4f}", "s"),
+        (1000.0, "{:.0f}", "ms"),
+        (200.0, "{:.6e}", "s"),  # written with an exponent: no resolution known
+    ],
+)
+def test_clocks_written_to_their_resolution_read(rate: float, fmt: str, unit: str) -> None:
+    n = int(6 * rate)
+    scale = 1e3 if unit == "ms" else 1.0
+    rows = [f"{fmt.format(i / rate * scale)},{40 + 5 * math.sin(i / 9):.2f},"
+            f"{30 + 5 * math.sin(i / 7):.2f}" for i in range(n)]  # fmt: skip
+    log = parse_ride_log(_log(f"time={unit}, fork_travel=mm, rear_travel=mm", COLS, rows),
+                         scenario=trail())  # fmt: skip
+    assert log.sample_rate_hz == pytest.approx(rate, rel=1e-3)
+    assert log.time_s.size == n
