@@ -148,9 +148,9 @@ def test_api_key_missing_or_wrong_is_refused(client: TestClient) -> None:
         (method.upper(), path.replace("{job_id}", "a" * 32))
         for path, methods in spec["paths"].items()
         for method in methods
-        if path != "/health"
+        if path not in ("/health", "/metrics")
     ]
-    assert len(routes) >= 7  # every documented route but the health check
+    assert len(routes) >= 7  # every documented route but the health check and the metrics
     for key in (None, "wrong", ""):
         headers = {"X-API-Key": key} if key is not None else {}
         for method, path in routes:
@@ -161,7 +161,9 @@ def test_api_key_missing_or_wrong_is_refused(client: TestClient) -> None:
             assert "key" in body["detail"]
             TALLY.add("refused")
     TALLY.add("routes", len(routes))
-    assert client.get("/health").status_code == 200  # the health check needs no key
+    # the health check and the metrics (counts only, no job's data) need no key
+    assert client.get("/health").status_code == 200
+    assert client.get("/metrics").status_code == 200
 
 
 def test_without_a_configured_key_anyone_may_ask(settings: Settings) -> None:
@@ -171,8 +173,17 @@ def test_without_a_configured_key_anyone_may_ask(settings: Settings) -> None:
 
 
 def test_health_reports_redis_and_workers(client: TestClient) -> None:
-    body = client.get("/health").json()
-    assert body == {"redis": "ok", "workers": 0, "queued": 0}
+    response = client.get("/health")
+    assert response.status_code == 200
+    assert response.json() == {"status": "ok", "reason": None, "redis": "ok", "workers": 0,
+                               "queued": 0, "running": 0}  # fmt: skip
+    # work waits and no worker is alive: degraded, with the reason
+    assert client.post("/jobs", json={"scenario": small_scenario(), "trials": 4}).status_code == 202
+    response = client.get("/health")
+    assert response.status_code == 503
+    body = response.json()
+    assert body["status"] == "degraded" and body["queued"] == 1 and body["workers"] == 0
+    assert "no worker has sent a heartbeat" in body["reason"]
 
 
 def test_openapi_documents_the_routes(client: TestClient) -> None:

@@ -7,11 +7,10 @@ import json
 from pathlib import Path
 
 import pytest
-import yaml
 
 from tests.conftest import write_toml
 from tests.service.conftest import after_first_report, small_scenario
-from tuneopt.cli import build_parser, main
+from tuneopt.cli import main
 from tuneopt.service.settings import Settings
 from tuneopt.service.worker import make_worker
 
@@ -78,24 +77,3 @@ def test_client_errors_are_clear(
     monkeypatch.delenv("TUNEOPT_API_KEY")
     assert main(["submit", str(scenario), "--api", "http://127.0.0.1:9"]) == 1
     assert "cannot reach the job service" in capsys.readouterr().err
-
-
-def test_compose_file_runs_the_real_entry_points() -> None:
-    compose = yaml.safe_load((ROOT / "docker-compose.yml").read_text())
-    services = compose["services"]
-    redis = " ".join(services["redis"]["command"])
-    for setting in (
-        "--appendonly yes",
-        "--appendfsync always",
-        "--maxmemory-policy noeviction",
-        "--requirepass",
-    ):
-        assert setting in redis
-    assert "ports" not in services["redis"]  # only the api and the workers reach it
-    parser = build_parser()
-    for name, expected in (("api", "serve"), ("worker", "worker")):
-        command = services[name]["command"][-1]
-        tail = command.split("exec tuneopt ", 1)[1].split()
-        assert tail[0] == expected
-        args = parser.parse_args(tail)  # the command exists with these options
-        assert args.command == expected

@@ -3,13 +3,17 @@
 from __future__ import annotations
 
 import os
-import shlex
+import secrets
 import socket
+import subprocess
+import time
 from pathlib import Path
 
 import pytest
 import yaml
+from redis import AuthenticationError, Redis, RedisError
 
+from tests.service.conftest import _free_port
 from tuneopt.cli import build_parser
 from tuneopt.cli import serve as serve_command
 from tuneopt.cli import worker as worker_command
@@ -49,34 +53,72 @@ def _compose() -> dict:  # type: ignore[type-arg]
     return yaml.safe_load((ROOT / "docker-compose.yml").read_text())
 
 
-def test_compose_redis_keeps_what_it_acknowledged_and_stays_private() -> None:
-    redis = _compose()["services"]["redis"]
-    args = redis["command"]
-    flags = dict(zip(args[1::2], args[2::2], strict=True))
-    assert args[0] == "redis-server"
-    assert flags["--appendonly"] == "yes"
-    assert flags["--appendfsync"] == "always"  # nothing acknowledged is lost, even to a crash
-    assert flags["--maxmemory-policy"] == "noeviction"
-    assert "TUNEOPT_REDIS_PASSWORD" in flags["--requirepass"]
-    assert "ports" not in redis  # reachable only on the private network
+def _redis_script() -> list[str]:
+    """The redis service's command as the container runs it (compose's ``$$`` is a ``$``)."""
+    return [part.replace("$$", "$") for part in _compose()["services"]["redis"]["command"]]
+
+
+def test_compose_redis_keeps_what_it_acknowledged_and_stays_private(tmp_path: Path) -> None:
+    """The compose file's own redis command, run here on a free loopback port: the password
+    comes from the environment and shows on no command line; the server asks for it, fsyncs
+    every write and never evicts."""
+    redis_service = _compose()["services"]["redis"]
+    assert "ports" not in redis_service  # reachable only on the private network
     assert _compose()["networks"]["backend"]["internal"] is True
+    assert "TUNEOPT_REDIS_PASSWORD" in redis_service["environment"]
+    assert "REDISCLI_AUTH" in " ".join(redis_service["healthcheck"]["test"])
+    password = secrets.token_hex(16)
+    port = _free_port()
+    env = {**os.environ, "TUNEOPT_REDIS_PASSWORD": password, "TMPDIR": str(tmp_path)}
+    extra = ["--port", str(port), "--bind", "127.0.0.1", "--dir", str(tmp_path)]
+    server = subprocess.Popen([*_redis_script(), *extra], env=env, stdout=subprocess.DEVNULL)
+    try:
+        client = Redis(host="127.0.0.1", port=port, password=password)
+        for _ in range(100):
+            try:
+                client.ping()
+                break
+            except RedisError:
+                time.sleep(0.05)
+        cmdline = Path(f"/proc/{server.pid}/cmdline").read_bytes()
+        assert b"redis-server" in cmdline and password.encode() not in cmdline
+        with pytest.raises(AuthenticationError):
+            Redis(host="127.0.0.1", port=port).ping()
+        config = {k: v for item in ("appendonly", "appendfsync", "save", "maxmemory-policy")
+                  for k, v in client.config_get(item).items()}  # fmt: skip
+        assert config == {"appendonly": "yes", "appendfsync": "always", "save": "",
+                          "maxmemory-policy": "noeviction"}  # fmt: skip
+        assert oct((tmp_path / "auth.conf").stat().st_mode & 0o777) == "0o600"
+    finally:
+        server.terminate()
+        server.wait(timeout=10)
 
 
-def test_compose_runs_the_projects_own_commands_with_known_settings() -> None:
-    services = _compose()["services"]
+def test_compose_builds_one_image_and_runs_the_projects_own_commands() -> None:
+    compose = _compose()
+    services = compose["services"]
     parser = build_parser()
     expected = {"api": serve_command.run, "worker": worker_command.run}
+    known = {f"TUNEOPT_{field.upper()}" for field in Settings.model_fields}
     for name, func in expected.items():
         service = services[name]
-        script = service["command"][-1]
-        command = shlex.split(script.split("exec ", 1)[1])
-        assert command[0] == "tuneopt"
+        assert service["build"] == "." and service["image"] == "tuneopt-service:latest"
+        command = service["command"]
+        assert command[0] == "tuneopt" and "pip" not in " ".join(command)  # installed at build
         args = parser.parse_args(command[1:])
         assert args.func is func
-        known = {f"TUNEOPT_{field.upper()}" for field in Settings.model_fields}
         names = {k for k in service["environment"] if k.startswith("TUNEOPT_")}
         assert names <= known, names - known
+        assert "TUNEOPT_RESULTS_DIR" not in names  # nothing is shared through a folder
+        assert not [v for v in service.get("volumes", []) if "results" in v]
     assert "redis:6379" in services["worker"]["environment"]["TUNEOPT_REDIS_URL"]
+    assert "TUNEOPT_REDIS_PASSWORD" in services["worker"]["environment"]["TUNEOPT_REDIS_URL"]
+    dockerfile = (ROOT / "Dockerfile").read_text()
+    assert "pip install ." in dockerfile and "USER tuneopt" in dockerfile
+    copied = [w for line in dockerfile.splitlines() if line.startswith("COPY ")
+              for w in line.split()[1:-1]]  # fmt: skip
+    assert copied == ["pyproject.toml", "README.md", "tuneopt"]
+    assert all((ROOT / source).exists() for source in copied)
 
 
 def test_workers_and_shards_of_a_restarted_process_get_new_names(settings: Settings) -> None:

@@ -27,6 +27,11 @@ def run(args: argparse.Namespace) -> int:
 
     if not 0 < args.port < 65536:
         raise InputError.single("--port", "must be between 1 and 65535")
+    from tuneopt.service.logs import configure, uvicorn_log_config
+
     settings = load_settings()
-    uvicorn.run(create_app(settings), host=args.host, port=args.port, log_level="info")
+    configure()  # one JSON line per event
+    uvicorn.run(
+        create_app(settings), host=args.host, port=args.port, log_config=uvicorn_log_config()
+    )
     return 0

@@ -20,13 +20,12 @@ def register(sub: Any) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    import logging
-
+    from tuneopt.service.logs import configure
     from tuneopt.service.settings import load_settings
     from tuneopt.service.worker import make_worker
 
     settings = load_settings()
-    logging.basicConfig(level=logging.INFO, format="%(asctime)s %(name)s %(message)s")
+    configure()  # one JSON line per event, rq's own lines included
     worker = make_worker(settings, name=args.name)
     worker.work(burst=args.burst, with_scheduler=False)
     return 0

@@ -113,6 +113,7 @@ class Progress:
     best_score: float | None
     trials_per_minute: float
     eta_seconds: float | None
+    done: int = 0  # trials this shard finished so far
 
 
 def _distributions(space: SearchSpace) -> dict[str, BaseDistribution]:
@@ -355,4 +356,4 @@ def _progress(
     if plan.deadline is not None:
         left = max(plan.deadline - now, 0.0)
         eta = left if eta is None else min(eta, left)
-    return Progress(finished, plan.trials, min(feasible) if feasible else None, rate, eta)
+    return Progress(finished, plan.trials, min(feasible) if feasible else None, rate, eta, done)

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import logging
 import secrets
 import time
 from datetime import UTC, datetime
@@ -18,19 +19,23 @@ from fastapi.responses import FileResponse
 from fastapi.security import APIKeyHeader
 from pydantic import BaseModel
 from redis import Redis, WatchError
-from rq import Queue, Worker
+from rq import Queue
 from rq.serializers import JSONSerializer
 
 from tuneopt.model import Scenario
 from tuneopt.model.errors import FieldProblem, InputError
 from tuneopt.service import tasks
 from tuneopt.service.limits import BodyLimit
+from tuneopt.service.logs import event
+from tuneopt.service.monitoring import monitoring_router
 from tuneopt.service.problems import Problem, ProblemError, install_handlers
 from tuneopt.service.records import JobRecord, JobState, JobStore, is_job_id, new_job_id
 from tuneopt.service.requests import JobRequest, parse_scenario_file, validate_job
 from tuneopt.service.settings import Settings
 
 __all__ = ["JobList", "JobStatus", "create_app"]
+
+log = logging.getLogger(__name__)
 
 _KEY_HEADER = "X-API-Key"
 _key_header = APIKeyHeader(name=_KEY_HEADER, auto_error=False)
@@ -81,12 +86,6 @@ class JobStatus(BaseModel):
 
 class JobList(BaseModel):
     jobs: list[JobStatus]
-
-
-class Health(BaseModel):
-    redis: str
-    workers: int
-    queued: int
 
 
 def _time(value: float | None) -> datetime | None:
@@ -252,7 +251,7 @@ def create_app(settings: Settings) -> FastAPI:
         data, strict = await _read_body(request)
         job = validate_job(data, settings, strict=strict)
         scenario = job.scenario.model_dump(mode="json")
-        job_id = new_job_id()
+        job_id, made_now = new_job_id(), True
         seen = store.submission_key(idempotency_key) if idempotency_key else None
         fingerprint = (
             hashlib.sha256(json.dumps([scenario, job.options()], sort_keys=True).encode())
@@ -271,7 +270,7 @@ def create_app(settings: Settings) -> FastAPI:
                         made_before = _repeated(pipe.get(seen), fingerprint)
                         if made_before is not None:
                             pipe.unwatch()
-                            job_id = made_before
+                            job_id, made_now = made_before, False
                             break
                     pipe.multi()
                     store.create(job_id, scenario, job.options(), job.scenario.name, pipe=pipe)
@@ -284,6 +283,9 @@ def create_app(settings: Settings) -> FastAPI:
                     break
                 except WatchError:
                     continue
+        if made_now:
+            event(log, "job.submitted", f"job queued: {job.trials} trials, {job.shards} shards",
+                  job=job_id, trials=job.trials, shards=job.shards)  # fmt: skip
         response.headers["Location"] = f"/jobs/{job_id}"
         response.headers["Retry-After"] = "5"
         return _status(load(job_id))
@@ -370,6 +372,7 @@ def create_app(settings: Settings) -> FastAPI:
         if not store.request_cancel(job_id):
             ended = load(job_id).state.value
             raise ProblemError(409, f"the job has ended ({ended}); nothing to cancel")
+        event(log, "job.cancel_requested", "cancel asked for", job=job_id)
         return _status(load(job_id))
 
     @app.delete(
@@ -392,19 +395,14 @@ def create_app(settings: Settings) -> FastAPI:
             if tasks.parts_pending(queue, job_id, int(record.request.get("shards", 0))):
                 return Response(status_code=202)
         elif store.request_delete(job_id):
+            event(log, "job.delete_requested", "delete asked for: the job is stopped first",
+                  job=job_id)  # fmt: skip
             return Response(status_code=202)
         tasks.purge_job(store, settings.results_dir, job_id)
+        event(log, "job.purged", "job deleted with everything it left", job=job_id)
         return Response(status_code=204)
 
-    @app.get("/health", response_model=Health, summary="Redis and worker presence")
-    def health() -> Health:
-        redis.ping()
-        return Health(
-            redis="ok",
-            workers=len(Worker.all(queue=queue)),
-            queued=queue.count,
-        )
-
+    app.include_router(monitoring_router(settings, store, queue, redis))
     return app
 
 

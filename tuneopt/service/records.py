@@ -99,6 +99,8 @@ _KEEP_LAST_20 = """
 if redis.call('EXISTS', KEYS[1]) == 0 then return 0 end
 redis.call('RPUSH', KEYS[2], ARGV[1])
 redis.call('LTRIM', KEYS[2], -20, -1)
+local ttl = redis.call('PTTL', KEYS[1])
+if ttl > 0 then redis.call('PEXPIRE', KEYS[2], ttl) end
 return 1
 """
 
@@ -113,6 +115,17 @@ return 0
 
 def _float(value: str | None) -> float | None:
     return float(value) if value not in (None, "") else None
+
+
+def _fresh_rate(raw: dict[str, str], now: float) -> float:
+    """A job's pace: the trials per minute of its shards that reported lately."""
+    rate = 0.0
+    for name, value in raw.items():
+        if name.startswith("rate:"):
+            per_minute, updated = (float(v) for v in value.split("|"))
+            if now - updated < _RATE_FRESH:
+                rate += per_minute
+    return rate
 
 
 class JobStore:
@@ -187,13 +200,7 @@ class JobStore:
         raw: dict[str, str] = self.redis.hgetall(self.key(job_id))  # type: ignore[assignment]
         if "id" not in raw or "state" not in raw:  # gone, or only a stray write left
             return None
-        now = time.time()
-        rate = 0.0
-        for name, value in raw.items():
-            if name.startswith("rate:"):
-                per_minute, updated = (float(v) for v in value.split("|"))
-                if now - updated < _RATE_FRESH:
-                    rate += per_minute
+        rate = _fresh_rate(raw, time.time())
         errors: list[str] = self.redis.lrange(self._errors_key(job_id), 0, -1)  # type: ignore[assignment]
         events: list[str] = self.redis.lrange(self._events_key(job_id), 0, -1)  # type: ignore[assignment]
         state = JobState(raw["state"])
@@ -228,7 +235,27 @@ class JobStore:
     def list(self, limit: int) -> list[JobRecord]:
         ids: list[str] = self.redis.zrevrange(self.index_key, 0, limit - 1)  # type: ignore[assignment]
         records = [self.get(i) for i in ids]
+        gone = [i for i, r in zip(ids, records, strict=True) if r is None and not self.exists(i)]
+        if gone:  # expired: the index forgets them too
+            self.redis.zrem(self.index_key, *gone)
         return [r for r in records if r is not None and not r.deleted]
+
+    def job_keys(self, job_id: str, shards: int) -> list[str]:
+        """Every key of a job's own (its study journal aside)."""
+        keys = [self.key(job_id), self._result_key(job_id), self._errors_key(job_id)]
+        keys.append(self._events_key(job_id))
+        keys += [self._owner_key(job_id, k) for k in range(shards)]
+        return keys
+
+    def expire(self, job_id: str, seconds: int) -> None:
+        """Let an ended job's keys expire after ``seconds``, all at once (a list of errors
+        written later takes the record's time to live: see ``add_error``)."""
+        request = self.redis.hget(self.key(job_id), "request")
+        shards = int(json.loads(str(request)).get("shards", 0)) if request else 0
+        with self.redis.pipeline() as pipe:
+            for key in self.job_keys(job_id, shards):
+                pipe.expire(key, seconds)
+            pipe.execute()
 
     def set_fields(self, job_id: str, **fields: Any) -> None:
         """Set fields of a job that exists (a purged job stays purged)."""
@@ -309,6 +336,38 @@ class JobStore:
             _KEEP_LAST_20, 2, self.key(job_id), self._events_key(job_id), message[:2000]
         )
 
+    # service-wide counters and the census the metrics are read from
+    @property
+    def stats_key(self) -> str:
+        return f"{self.prefix}:stats"
+
+    def bump(self, name: str, by: int = 1) -> None:
+        """Add to one of the service's counters (trials, shard_retries, ...)."""
+        self.redis.hincrby(self.stats_key, name, by)
+
+    def stats(self) -> dict[str, int]:
+        raw: dict[str, str] = self.redis.hgetall(self.stats_key)  # type: ignore[assignment]
+        return {k: int(v) for k, v in raw.items()}
+
+    def census(self, now: float) -> tuple[dict[JobState, int], float]:
+        """Jobs kept, by state, and the trials per minute of the shards reporting lately."""
+        ids: list[str] = self.redis.zrange(self.index_key, 0, -1)  # type: ignore[assignment]
+        counts: dict[JobState, int] = {}
+        rate = 0.0
+        for start in range(0, len(ids), 500):
+            with self.redis.pipeline(transaction=False) as pipe:
+                for job_id in ids[start : start + 500]:
+                    pipe.hgetall(self.key(job_id))
+                records: list[dict[str, str]] = pipe.execute()
+            for raw in records:
+                if "state" not in raw or raw.get("deleted") == "1":
+                    continue  # expired (list() forgets it) or being deleted
+                state = JobState(raw["state"])
+                counts[state] = counts.get(state, 0) + 1
+                if not state.is_final:
+                    rate += _fresh_rate(raw, now)
+        return counts, rate
+
     # shard owners: who ran a shard last, so that its retry can reap what it left running
     def swap_owner(self, job_id: str, shard: int, owner: str) -> str | None:
         previous = self.redis.getset(self._owner_key(job_id, shard), owner)
@@ -327,9 +386,7 @@ class JobStore:
         transaction."""
         request, submission = self.redis.hmget(self.key(job_id), ["request", "submission"])
         shards = int(json.loads(request).get("shards", 0)) if request else 0
-        keys = [self.key(job_id), self._result_key(job_id), self._errors_key(job_id)]
-        keys.append(self._events_key(job_id))
-        keys += [self._owner_key(job_id, k) for k in range(shards)]
+        keys = self.job_keys(job_id, shards)
         with self.redis.pipeline() as pipe:
             if submission:
                 pipe.eval(_FORGET_SUBMISSION, 1, str(submission), job_id)

@@ -59,6 +59,26 @@ class Settings(BaseSettings):
     )
     top: int = Field(default=5, ge=1, le=50, description="ranked setups in a result")
 
+    # retention
+    retention_days: float = Field(
+        default=28.0,
+        gt=0,
+        le=3650,
+        description="an ended job, its result and report expire this long after it ended [days]",
+    )
+
+
+    @property
+    def retention_seconds(self) -> int:
+        return max(int(self.retention_days * 86400), 1)
+
+    @property
+    def worker_ttl(self) -> int:
+        """How long a worker's registration outlives its last heartbeat [s]; ``/health`` counts
+        a worker as alive while its last heartbeat is at most this old (an idle worker beats
+        every ``worker_ttl - 15`` s, a busy one every ``heartbeat_seconds``)."""
+        return max(self.heartbeat_ttl, 20)
+
 
 def load_settings(environ: Mapping[str, str] | None = None) -> Settings:
     """Read the settings from the environment once; a misspelt or invalid ``TUNEOPT_`` variable

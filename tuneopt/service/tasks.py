@@ -37,7 +37,7 @@ from tuneopt.optimise import (
     run_shard,
     write_result,
 )
-from tuneopt.optimise.redis_storage import delete_study_keys, redis_storage
+from tuneopt.optimise.redis_storage import delete_study_keys, expire_study_keys, redis_storage
 from tuneopt.optimise.runner import count_finished, shard_owner
 from tuneopt.service.logs import event
 from tuneopt.service.records import JobState, JobStore, is_job_id
@@ -106,6 +106,12 @@ def _queue() -> Queue:
     return Queue(_current().queue, connection=raw, serializer=JSONSerializer)
 
 
+def _part_ttl() -> int:
+    """How long rq keeps a finished part's own record [s]: a day, or less when the operator's
+    retention is shorter (the job's result is kept in the job's record, not there)."""
+    return min(86400, _current().retention_seconds)
+
+
 def enqueue_start(queue: Queue, job_id: str, retries: int, pipeline: Pipeline | None = None) -> Job:
     """Queue the start of a job: called by the API in the transaction (``pipeline``, which the
     caller executes) that writes the job's record."""
@@ -116,8 +122,8 @@ def enqueue_start(queue: Queue, job_id: str, retries: int, pipeline: Pipeline | 
         retry=Retry(max=retries) if retries else None,
         on_failure=Callback("tuneopt.service.tasks.job_failed"),
         job_timeout=600,
-        result_ttl=86400,
-        failure_ttl=7 * 86400,
+        result_ttl=_part_ttl(),
+        failure_ttl=_current().retention_seconds,
         pipeline=pipeline,
     )
 
@@ -201,6 +207,8 @@ def start_job(job_id: str) -> str:
     if record.started is None:
         store.set_fields(job_id, started=repr(now), deadline=repr(deadline))
     store.move(job_id, JobState.RUNNING)
+    event(log, "job.started", f"study made; {record.request['shards']} shards queued",
+          job=job_id, shards=record.request["shards"])  # fmt: skip
 
     queue = _queue()
     run_seconds = float(record.request["run_seconds"])
@@ -217,8 +225,8 @@ def start_job(job_id: str) -> str:
                 job_id=part,
                 retry=Retry(max=settings.shard_retries) if settings.shard_retries else None,
                 job_timeout=int(run_seconds) + 900,
-                result_ttl=86400,
-                failure_ttl=7 * 86400,
+                result_ttl=_part_ttl(),
+                failure_ttl=settings.retention_seconds,
             )
         )
     final = rq_id(job_id, "final")
@@ -231,8 +239,8 @@ def start_job(job_id: str) -> str:
             retry=Retry(max=2),
             on_failure=Callback("tuneopt.service.tasks.job_failed"),
             job_timeout=int(run_seconds) + 3600,
-            result_ttl=86400,
-            failure_ttl=7 * 86400,
+            result_ttl=_part_ttl(),
+            failure_ttl=settings.retention_seconds,
         )
     return "started"
 
@@ -262,11 +270,19 @@ def run_shard_job(job_id: str, shard: int) -> int:
             "running are queued again"
         )
         store.add_event(job_id, message)
+        store.bump("shard_retries")
         event(log, "shard.resumed", message, job=job_id, shard=shard, reaped=reaped)
     evaluator = Evaluator(scenario, plan.seed, int(record.request["realisations"]))
 
+    told = 0
+
     def report(p: Progress) -> None:
+        nonlocal told
         store.record_progress(job_id, shard, p.finished, p.best_score, p.trials_per_minute)
+        store.bump("trials", p.done - told)
+        told = p.done
+        event(log, "shard.batch", f"shard {shard}: {p.finished} trials finished in the study",
+              job=job_id, shard=shard, finished=p.finished, trials=p.done)  # fmt: skip
 
     try:
         done = run_shard(
@@ -303,6 +319,7 @@ def run_shard_job(job_id: str, shard: int) -> int:
         # shard again and the worker does not count it against the shard's retries)
         message = f"shard {shard} handed back after {done} trials: its worker is stopping"
         store.add_event(job_id, message)
+        store.bump("shard_handbacks")
         event(log, "shard.handed_back", message, job=job_id, shard=shard, trials=done)
         raise ShardInterrupted(message)
     event(log, "shard.ended", f"shard {shard} ended after {done} trials", job=job_id,
@@ -323,6 +340,7 @@ def finalise_job(job_id: str) -> str:
     if record.deleted:  # nothing to rank for anyone
         return _end(store, job_id, JobState.CANCELLED)
     store.move(job_id, JobState.FINISHING)
+    event(log, "job.finalising", "every shard has ended: ranking", job=job_id)
     scenario = _load(store, job_id)
     space = build_space(scenario)
     study = _study(store, job_id)
@@ -428,9 +446,17 @@ def _end(store: JobStore, job_id: str, state: JobState, **fields: Any) -> str:
     """Move the job to its final state; a job deleted while it was live is purged here, by the
     part that ended it."""
     moved = store.move(job_id, state, **fields)
+    if moved:
+        store.bump("jobs_ended")
+        event(log, "job.ended", f"job ended {state.value}", job=job_id, state=state.value,
+              **fields)  # fmt: skip
     if store.is_deleted(job_id):
         purge_job(store, _current().results_dir, job_id)
         return "deleted"
+    if moved:  # kept for the operator's retention time, then gone by itself
+        keep = _current().retention_seconds
+        store.expire(job_id, keep)
+        expire_study_keys(store.redis, store.study_prefix(job_id), keep)
     if not moved:  # another part ended it first
         record = store.get(job_id)
         return record.state.value if record is not None else "gone"
@@ -474,6 +500,9 @@ def job_failed(job: Job, connection: Any, exc_type: Any, value: Any, tb: Any) ->
         return
     redis = Redis.from_url(_current().redis_url.get_secret_value(), decode_responses=True)
     store = _store(redis)
-    store.add_error(job_id, f"{job.id}: {getattr(exc_type, '__name__', exc_type)}: {value}")
+    message = f"{job.id}: {getattr(exc_type, '__name__', exc_type)}: {value}"
+    store.add_error(job_id, message)
+    event(log, "job.part_failed", message, job=job_id, level=logging.ERROR,
+          retries_left=job.retries_left or 0)  # fmt: skip
     if not job.retries_left:
         _end(store, job_id, JobState.FAILED)

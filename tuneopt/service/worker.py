@@ -100,7 +100,7 @@ def make_worker(settings: Settings, name: str | None = None) -> ShardWorker:
         # a restarted container keeps its host name and PID 1: the random part keeps the new
         # worker from clashing with the name the dead one left registered in Redis
         name=name or f"{socket.gethostname()}-{os.getpid()}-{secrets.token_hex(3)}",
-        worker_ttl=max(settings.heartbeat_ttl, 20),
+        worker_ttl=settings.worker_ttl,
         maintenance_interval=settings.maintenance_seconds,
         heartbeat_seconds=settings.heartbeat_seconds,
         heartbeat_ttl=settings.heartbeat_ttl,
