@@ -199,7 +199,7 @@ def _surely_broken_logs(draw: st.DrawFn) -> bytes:
     return b"\n".join(lines)
 
 
-@fuzz(100)
+@fuzz(100, share=0.1)
 @given(raw=_surely_broken_logs())
 def test_the_command_exits_with_2_naming_a_line_or_field(
     raw: bytes,
