@@ -132,10 +132,15 @@ def test_compare_two_finished_runs(
     finished: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
     assert main(["compare", str(finished), str(finished), "--out", str(tmp_path)]) == 0
+    out = capsys.readouterr().out
     data = json.loads((tmp_path / "compare.json").read_text())
-    assert data["differences"] == {}
+    assert data["differences"] == {} and data["rows"] == []
     assert data["scores"]["a_on_a"] == pytest.approx(data["scores"]["b_on_b"])
     assert data["scores"]["a_on_b"] == pytest.approx(data["scores"]["a_on_a"])
+    # the page is written next to the data, and both paths are printed
+    assert f"report: {tmp_path / 'compare.html'}" in out
+    assert "Both winners chose the same settings." in (tmp_path / "compare.html").read_text()
+    assert "fork.pressure" not in out  # trade labels, not internal keys
 
 
 def test_wet_variant_extends_the_dry_scenario() -> None:

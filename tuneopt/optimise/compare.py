@@ -1,12 +1,26 @@
 """Two studies side by side (the same bike on a dry and a wet mix, say): the winners, each
-winner re-scored on the other study's course, the settings that differ and, for each, the
-physical term that drives it.
+winner scored on the other study's course with its interval, and which of the settings that
+differ between them differ beyond noise, and why.
 
-Why a setting differs: on B's course, B's winner is ridden again with that one setting at A's
-winner's value, on the same realisations (paired); the score term that grows most is what B's
-course holds against A's value. The same on A's course with B's value. Each reason is the
-change of one weighted term in score points, so "front grip +0.12" reads as "on the wet course
-the dry fork rebound leaves 0.12 points more of the grip asked of the front tyre unmet"."""
+Two searches over noisy courses rarely pick the same clicks even where the clicks do not
+matter, so a setting is marked as different only when the difference holds on terrain neither
+search used: each study's validation realisations (``validation_realisations`` in its
+result.json; seeds from tuneopt.optimise.validation), the same figures its own ranking is
+stated from. On each course, that course's winner is ridden again with the other winner's value
+of one setting, on the same realisations (paired). The setting differs beyond noise when, on
+either course, the paired interval of that swap's score change lies above zero: the course
+holds against the other value. The intervals hold together at 95 % over all the swaps ridden
+(Bonferroni): with a dozen swaps, single 95 % intervals would call one or two differences real
+by chance alone. When no single swap differs but one winner scores worse than the other beyond
+noise on the other's course (its own 95 % interval), the differing settings matter only
+together and are marked so. A swap whose interval lies below zero says the other value does
+better even on this course: the search there did not settle that setting ("better on both").
+Each reason names the weighted score term that grew most, in the report's words
+(``TERM_NAMES``).
+
+Tyre pressures always take part: searched, they are settings like the others; not searched, the
+scenario's pressures are shown and swapped like any setting.
+"""
 
 from __future__ import annotations
 
@@ -15,41 +29,208 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from tuneopt.model import InputError, Scenario, Setup, setup_problems
-from tuneopt.optimise.evaluate import Evaluator, Outcome
+from tuneopt.optimise.evaluate import Evaluator, Outcome, paired_interval
 from tuneopt.optimise.local import load_run
 from tuneopt.optimise.ranking import TERM_WORDS
-from tuneopt.optimise.space import build_space
+from tuneopt.optimise.space import Parameter, build_space
+from tuneopt.optimise.validation import validation_seeds
 
 # Plain names of the score's terms, as the trade-off sentences say them.
 TERM_NAMES = {term: words[0] for term, words in TERM_WORDS.items()}
+TYRE_PRESSURES = ("front_tyre_pressure", "rear_tyre_pressure")
 
-__all__ = ["Comparison", "compare_runs"]
+__all__ = ["TERM_NAMES", "Comparison", "Paired", "SettingDifference", "Swap", "compare_runs"]
+
+
+@dataclass(frozen=True)
+class Paired:
+    """Per-realisation score differences (other − own) on one course: mean and 95 % t interval
+    in score points; ``base`` is the own setup's mean score (for relative figures)."""
+
+    mean: float
+    low: float
+    high: float
+    base: float
+    realisations: int
+
+    @property
+    def above(self) -> bool:
+        """Worse than the own setup beyond noise."""
+        return self.low > 0
+
+    @property
+    def below(self) -> bool:
+        """Better than the own setup beyond noise."""
+        return self.high < 0
+
+    def relative(self, value: float) -> float:
+        return value / self.base if self.base else float("nan")
+
+    def as_dict(self) -> dict[str, float | int]:
+        return {
+            "mean": self.mean,
+            "low": self.low,
+            "high": self.high,
+            "base": self.base,
+            "realisations": self.realisations,
+        }
+
+
+def paired(
+    other: tuple[float, ...], own: tuple[float, ...], confidence: float = 0.95
+) -> Paired | None:
+    """Other against own on the same realisations; None when they did not ride the same."""
+    if len(other) != len(own) or not own:
+        return None
+    mean, low, high = paired_interval(np.asarray(other) - np.asarray(own), confidence)
+    return Paired(mean, low, high, float(np.mean(own)), len(own))
+
+
+@dataclass(frozen=True)
+class Swap:
+    """On one course, that course's winner with the other winner's value of one setting.
+    ``change`` is None when not scored; ``why_not`` then says why ("unridable: ..." when the
+    swapped setup cannot be ridden at all)."""
+
+    course: str  # "A" or "B"
+    value: str
+    change: Paired | None = None
+    term: str = ""
+    term_change: float = 0.0
+    why_not: str = ""
+
+    @property
+    def unridable(self) -> bool:
+        return self.why_not.startswith("unridable")
+
+
+# verdicts, and whether the setting is marked as different
+VERDICTS = {
+    "beyond noise": True,
+    "better on both": True,
+    "together": True,
+    "within noise": False,
+    "not scored": False,
+}
+
+
+@dataclass(frozen=True)
+class SettingDifference:
+    """A setting whose value differs between the winners, with its verdict and reason."""
+
+    key: str
+    label: str
+    a: str
+    b: str
+    verdict: str
+    swaps: tuple[Swap | None, Swap | None]  # on A's course (B's value), on B's (A's value)
+    sentence: str
+
+    @property
+    def marked(self) -> bool:
+        return VERDICTS[self.verdict]
 
 
 @dataclass(frozen=True)
 class Comparison:
+    """``settings``: each winner's settings as shown (tyre pressures included); ``differences``:
+    the marked settings, "A → B"; ``reasons``: a sentence per differing setting; ``scores``:
+    "a_on_a", "a_on_b", "b_on_b", "b_on_a" means (None: not ridable); ``cross``: "on_a" is B's
+    winner against A's on A's course, "on_b" A's winner against B's on B's course."""
+
     names: tuple[str, str]
     settings: tuple[dict[str, str], dict[str, str]]
-    differences: dict[str, str]  # settings that differ: "A → B"
-    scores: dict[str, float | None]  # "a_on_a", "a_on_b", "b_on_b", "b_on_a"
+    differences: dict[str, str]
+    scores: dict[str, float | None]
     failures: dict[str, str]
-    reasons: dict[str, str] = field(default_factory=dict)  # setting: the term that drives it
+    reasons: dict[str, str] = field(default_factory=dict)
+    labels: dict[str, str] = field(default_factory=dict)
+    rows: tuple[SettingDifference, ...] = ()
+    cross: dict[str, Paired | None] = field(default_factory=dict)
+    realisations: tuple[int, int] = (0, 0)
+    basis: tuple[str, str] = ("validation", "validation")
+    searched: tuple[tuple[str, ...], tuple[str, ...]] = ((), ())
+    summary: tuple[str, ...] = ()
+    dirs: tuple[str, str] = ("", "")
+    metrics: tuple[dict[str, float], dict[str, float]] = ({}, {})
+    confidence: float = 0.95  # of each swap's interval (simultaneous 95 % over all swaps)
+    courses: tuple[str, str] = ("A's course", "B's course")  # "the dry course" and the like
 
     def as_dict(self) -> dict[str, Any]:
         return {
             "names": list(self.names),
+            "dirs": list(self.dirs),
             "settings": list(self.settings),
+            "labels": self.labels,
             "differences": self.differences,
+            "rows": [
+                {
+                    "key": r.key,
+                    "label": r.label,
+                    "a": r.a,
+                    "b": r.b,
+                    "verdict": r.verdict,
+                    "marked": r.marked,
+                    "sentence": r.sentence,
+                    "swaps": [
+                        None
+                        if s is None
+                        else {
+                            "course": s.course,
+                            "value": s.value,
+                            "change": s.change.as_dict() if s.change else None,
+                            "term": s.term,
+                            "term_change": s.term_change,
+                            "why_not": s.why_not,
+                        }
+                        for s in r.swaps
+                    ],
+                }
+                for r in self.rows
+            ],
             "scores": self.scores,
+            "cross": {k: v.as_dict() if v else None for k, v in self.cross.items()},
             "failures": self.failures,
             "reasons": self.reasons,
+            "realisations": list(self.realisations),
+            "basis": list(self.basis),
+            "searched": [list(s) for s in self.searched],
+            "summary": list(self.summary),
+            "swap_confidence": self.confidence,
+            "courses": list(self.courses),
         }
 
 
-def _winner(
-    out: Path,
-) -> tuple[Scenario, Setup, dict[str, str], int, int, dict[str, float]]:
+@dataclass(frozen=True)
+class _Study:
+    scenario: Scenario
+    winner: Setup
+    values: dict[str, float]  # SI, every compared setting
+    shown: dict[str, str]
+    searched: tuple[str, ...]
+    labels: dict[str, str]
+    evaluator: Evaluator
+    basis: str
+    space_values: dict[str, tuple[float, ...]]
+
+
+def _value(setup: Setup, key: str) -> float:
+    end, _, name = key.partition(".")
+    return float(getattr(getattr(setup, end), name) if name else getattr(setup, key))
+
+
+def _with(setup: Setup, key: str, value: float) -> Setup:
+    end, _, name = key.partition(".")
+    if not name:
+        return setup.model_copy(update={key: value})
+    typed = value if name in ("pressure", "rate") else int(round(value))
+    return setup.model_copy(update={end: getattr(setup, end).model_copy(update={name: typed})})
+
+
+def _study(out: Path) -> _Study:
     run = load_run(out)
     try:
         data = json.loads((out / "result.json").read_text())
@@ -61,51 +242,33 @@ def _winner(
         raise InputError.single(str(out), "its study found no feasible setup")
     best = data["ranked"][0]
     space = build_space(run.scenario)
-    return (
-        run.scenario,
-        space.setup(best["indices"]),
-        best["settings"],
-        run.plan.seed,
-        run.realisations,
-        dict(best.get("settings_si", {})),
-    )
-
-
-def _score(evaluator: Evaluator, scenario: Scenario, setup: Setup) -> Outcome:
-    problems = setup_problems(scenario, setup)
-    if problems:
-        return Outcome(None, failure="; ".join(str(p) for p in problems))
-    return evaluator.evaluate([setup])[0]
-
-
-def compare_runs(a: Path, b: Path) -> Comparison:
-    """Compare the winners of two finished local runs (output folders)."""
-    sa, wa, shown_a, seed_a, ra, si_a = _winner(a)
-    sb, wb, shown_b, seed_b, rb, si_b = _winner(b)
-    ev_a, ev_b = Evaluator(sa, seed_a, ra), Evaluator(sb, seed_b, rb)
-    a_on_a, b_on_a = ev_a.evaluate([wa])[0], _score(ev_a, sa, wb)
-    b_on_b, a_on_b = ev_b.evaluate([wb])[0], _score(ev_b, sb, wa)
-    keys = list(dict.fromkeys([*shown_a, *shown_b]))
-    diff = {
-        k: f"{shown_a.get(k, '-')} → {shown_b.get(k, '-')}"
-        for k in keys
-        if shown_a.get(k) != shown_b.get(k)
-    }
-    outcomes = {"a_on_a": a_on_a, "a_on_b": a_on_b, "b_on_b": b_on_b, "b_on_a": b_on_a}
-    shared = [k for k in diff if k in si_a and k in si_b]
-    on_b = _swap_costs(ev_b, sb, wb, {k: si_a[k] for k in shared}, b_on_b)
-    on_a = _swap_costs(ev_a, sa, wa, {k: si_b[k] for k in shared}, a_on_a)
-    reasons = {
-        k: _reason(shown_a[k], shown_b[k], on_a.get(k, "not scored"), on_b.get(k, "not scored"))
-        for k in shared
-    }
-    return Comparison(
-        names=(sa.name, sb.name),
-        settings=(shown_a, shown_b),
-        differences=diff,
-        scores={k: o.score for k, o in outcomes.items()},
-        failures={k: o.failure for k, o in outcomes.items() if not o.ok},
-        reasons=reasons,
+    winner = space.setup(best["indices"])
+    count = int(data.get("validation_realisations") or 0)
+    if count >= 2:
+        seeds = validation_seeds(run.plan.seed, count)
+        evaluator = Evaluator(run.scenario, seeds=seeds, keep_courses=False)
+        basis = "validation"
+    else:
+        evaluator = Evaluator(run.scenario, run.plan.seed, run.realisations, keep_courses=False)
+        basis = "search"
+    shown = dict(best["settings"])
+    values = {k: float(v) for k, v in best.get("settings_si", {}).items()}
+    labels = {p.name: p.label for p in space.parameters} | dict(data.get("labels", {}))
+    for key in TYRE_PRESSURES:
+        if key not in values:
+            values[key] = _value(winner, key)
+            shown[key] = Parameter(key, (), "bar").shown(values[key])
+        labels.setdefault(key, key.replace("_", " "))
+    return _Study(
+        scenario=run.scenario,
+        winner=winner,
+        values=values,
+        shown=shown,
+        searched=space.names,
+        labels=labels,
+        evaluator=evaluator,
+        basis=basis,
+        space_values={p.name: p.values for p in space.parameters},
     )
 
 
@@ -114,65 +277,142 @@ def _weighted(o: Outcome, scenario: Scenario) -> dict[str, float]:
     return {k: weights.get(k, 0.0) * v for k, v in o.terms.items()}
 
 
-Cost = tuple[float, str, float] | None | str
+Ridden = dict[str, "Outcome | str"]
 
 
-def _swap_costs(
-    ev: Evaluator, scenario: Scenario, winner: Setup, others: dict[str, float], own: Outcome
-) -> dict[str, Cost]:
-    """For each setting: (score change, the term that grew most, its change) when the winner
-    takes the other winner's value of that one setting on its own course; None when that is
-    not ridable; a string saying why it was not scored (the other value lies outside this
-    course's search range). Settings missing here were not scored at all."""
-    if not others:
-        return {}
-    if not own.ok:
-        return {k: "this course's winner itself is not ridable here" for k in others}
-    space = build_space(scenario, winner)
-    base = space.indices(winner)
-    out: dict[str, Cost] = {}
-    names = []
-    for k in others:
-        if k not in space.names:
+def _ride(own: _Study, other: _Study, keys: list[str]) -> tuple[Outcome, Outcome, Ridden]:
+    """On ``own``'s course: its winner, the other winner, and its winner with each of the
+    other's values of ``keys``, all on the same realisations. Each swap gives its outcome, or
+    why it was not ridden."""
+    swaps: Ridden = {}
+    ridden: list[tuple[str, Setup]] = []
+    for key in keys:
+        value = other.values[key]
+        grid = own.space_values.get(key)
+        if grid is not None and not min(grid) - 1e-9 <= value <= max(grid) + 1e-9:
+            swaps[key] = "outside this course's search range"
             continue
-        values = space[k].values
-        if not min(values) - 1e-9 <= others[k] <= max(values) + 1e-9:
-            out[k] = "outside this course's search range"
+        swapped = _with(own.winner, key, value)
+        problems = setup_problems(own.scenario, swapped)
+        if problems:
+            swaps[key] = (
+                "outside the bike's limits (" + "; ".join(p.message for p in problems) + ")"
+            )
             continue
-        names.append(k)
-    setups = [space.setup({**base, k: space[k].index_of(others[k])}) for k in names]
-    outcomes = ev.evaluate([winner, *setups])
-    ref = outcomes[0]
-    if not ref.ok:
-        return {k: "this course's winner itself is not ridable here" for k in others}
-    ref_terms = _weighted(ref, scenario)
-    for k, o in zip(names, outcomes[1:], strict=True):
-        if not o.ok:
-            out[k] = None
-            continue
-        terms = _weighted(o, scenario)
-        deltas = {t: terms[t] - ref_terms.get(t, 0.0) for t in terms}
-        worst = max(deltas, key=lambda t: deltas[t])
-        out[k] = (float(o.score) - float(ref.score), worst, deltas[worst])  # type: ignore[arg-type]
-    return out
+        ridden.append((key, swapped))
+    problems = setup_problems(own.scenario, other.winner)
+    setups = [own.winner] + ([] if problems else [other.winner])
+    outcomes = own.evaluator.evaluate([*setups, *(s for _, s in ridden)])
+    if problems:
+        why = "; ".join(p.message for p in problems)
+        outcomes.insert(1, Outcome(None, failure=f"outside this bike's limits ({why})"))
+    for (key, _), o in zip(ridden, outcomes[2:], strict=True):
+        swaps[key] = o if outcomes[0].ok else "this course's winner is not ridable"
+    return outcomes[0], outcomes[1], swaps
 
 
-def _reason(value_a: str, value_b: str, on_a: Cost, on_b: Cost) -> str:
-    parts = []
-    for course, other_value, cost in (("B's", value_a, on_b), ("A's", value_b, on_a)):
-        if cost is None:
-            parts.append(f"on {course} course {other_value} leaves the winner unridable")
-            continue
-        if isinstance(cost, str):
-            parts.append(f"on {course} course {other_value} was not scored ({cost})")
-            continue
-        total, term, delta = cost
-        if total <= 0:
-            parts.append(f"on {course} course {other_value} would not cost anything "
-                         f"({total:+.3f} points)")  # fmt: skip
-            continue
-        parts.append(
-            f"on {course} course {other_value} costs {total:+.3f} points; the term that grows "
-            f"most is {TERM_NAMES.get(term, term)} ({delta:+.3f})"
+def _swap(
+    course: str, value: str, ridden: Outcome | str, own: Outcome, scenario: Scenario,
+    confidence: float,
+) -> Swap:  # fmt: skip
+    if isinstance(ridden, str):
+        return Swap(course, value, why_not=ridden)
+    if not ridden.ok:
+        return Swap(course, value, why_not=f"unridable: {ridden.failure}")
+    ref = _weighted(own, scenario)
+    terms = _weighted(ridden, scenario)
+    deltas = {t: terms[t] - ref.get(t, 0.0) for t in terms}
+    worst = max(deltas, key=lambda t: deltas[t])
+    return Swap(
+        course,
+        value,
+        change=paired(ridden.scores, own.scores, confidence),
+        term=TERM_NAMES.get(worst, worst),
+        term_change=deltas[worst],
+    )
+
+
+def _verdict(swaps: tuple[Swap | None, Swap | None]) -> str:
+    """See the module's doc: "better on both" when one value wins on both courses beyond
+    noise (or wins on the course whose winner does not have it)."""
+    on_a, on_b = (s.change if s is not None else None for s in swaps)
+    scored = [c for c in (on_a, on_b) if c is not None]
+    if any(c.below for c in scored):
+        return "better on both"
+    if any(c.above for c in scored) or any(s is not None and s.unridable for s in swaps):
+        return "beyond noise"
+    return "within noise" if scored else "not scored"
+
+
+def _together(verdicts: dict[str, str], cross: dict[str, Paired | None]) -> dict[str, str]:
+    """No setting marked on its own, but a winner worse beyond noise on the other's course:
+    the settings within noise matter together."""
+    whole = any(p is not None and p.above for p in cross.values())
+    if not whole or any(VERDICTS[v] for v in verdicts.values()):
+        return verdicts
+    return {k: "together" if v == "within noise" else v for k, v in verdicts.items()}
+
+
+def compare_runs(a: Path, b: Path) -> Comparison:
+    """Compare the winners of two finished local runs (output folders)."""
+    from tuneopt.optimise.compare_sentences import course_names, row_sentence, summary
+
+    sa, sb = _study(a), _study(b)
+    names = (sa.scenario.name, sb.scenario.name)
+    keys = list(dict.fromkeys([*sa.shown, *sb.shown]))
+    differing = [
+        k for k in keys if k in sa.values and k in sb.values and sa.shown[k] != sb.shown[k]
+    ]
+    a_on_a, b_on_a, raw_a = _ride(sa, sb, differing)
+    b_on_b, a_on_b, raw_b = _ride(sb, sa, differing)
+    # simultaneous 95 % intervals over every swap ridden (Bonferroni)
+    tests = sum(isinstance(o, Outcome) and o.ok for o in (*raw_a.values(), *raw_b.values()))
+    confidence = 1.0 - 0.05 / max(tests, 1)
+    outcomes = {"a_on_a": a_on_a, "a_on_b": a_on_b, "b_on_b": b_on_b, "b_on_a": b_on_a}
+    cross = {
+        "on_a": paired(b_on_a.scores, a_on_a.scores) if a_on_a.ok and b_on_a.ok else None,
+        "on_b": paired(a_on_b.scores, b_on_b.scores) if b_on_b.ok and a_on_b.ok else None,
+    }
+    courses = course_names(sa.scenario, sb.scenario)
+    labels = {k: sa.labels.get(k) or sb.labels.get(k, k) for k in keys}
+    swaps = {
+        key: (
+            _swap("A", sb.shown[key], raw_a[key], a_on_a, sa.scenario, confidence),
+            _swap("B", sa.shown[key], raw_b[key], b_on_b, sb.scenario, confidence),
         )
-    return "; ".join(parts)
+        for key in differing
+    }
+    verdicts = _together({key: _verdict(swaps[key]) for key in differing}, cross)
+    differences = [
+        SettingDifference(
+            key,
+            labels[key],
+            sa.shown[key],
+            sb.shown[key],
+            verdicts[key],
+            swaps[key],
+            row_sentence(
+                labels[key], sa.shown[key], sb.shown[key], verdicts[key], swaps[key], courses
+            ),
+        )  # fmt: skip
+        for key in differing
+    ]
+    return Comparison(
+        names=names,
+        settings=(sa.shown, sb.shown),
+        differences={r.key: f"{r.a} → {r.b}" for r in differences if r.marked},
+        scores={k: o.score for k, o in outcomes.items()},
+        failures={k: o.failure for k, o in outcomes.items() if not o.ok},
+        reasons={r.key: r.sentence for r in differences},
+        labels=labels,
+        rows=tuple(differences),
+        cross=cross,
+        realisations=(sa.evaluator.realisations, sb.evaluator.realisations),
+        basis=(sa.basis, sb.basis),
+        searched=(sa.searched, sb.searched),
+        summary=tuple(summary(sa, sb, courses, differences, cross, outcomes, confidence)),
+        dirs=(str(a), str(b)),
+        metrics=(a_on_a.metrics, b_on_b.metrics),
+        confidence=confidence,
+        courses=courses,
+    )

@@ -181,62 +181,14 @@ spring rates N/m, damping N·s/m, volumes m³, angles degrees.</p>
 """
 )
 
-COMPARE = (
-    """{% extends "base" %}{% block body %}
-<header>
-<h1>{{ title }}</h1>
-<p class="lead">A: {{ c.names[0] }} ({{ c.dirs[0] }})<br>B: {{ c.names[1] }} ({{ c.dirs[1] }})
-</p>
-</header>
-
-<section id="winners">
-<h2>Winners side by side</h2>
-<table id="compare-settings">
-<tr><th>setting</th><th>winner of A</th><th>winner of B</th></tr>
-{% for row in c.setting_rows %}
-<tr class="{{ 'changed' if row.differs else '' }}" data-key="{{ row.key }}"><td>{{ row.label }}</td>
-<td class="num">{{ row.a }}</td><td class="num">{{ row.b }}</td></tr>
-{% endfor %}
-</table>
-<p class="note">Highlighted: settings that differ between the two winners.</p>
-</section>
-"""
-    + CAUTIONS
-    + """
-<section id="cross-scores">
-<h2>Each winner on the other course</h2>
-<table id="score-matrix">
-<tr><th></th><th>on A's course</th><th>on B's course</th></tr>
-{% for row in c.score_rows %}
-<tr><th>{{ row.label }}</th><td class="num">{{ row.on_a }}</td><td class="num">{{ row.on_b }}</td>
-</tr>{% endfor %}
-</table>
-<p class="note">Scores are lower-is-better and comparable only within a column (each course
-has its own scale).</p>
-{% if c.sentences %}<ul>{% for s in c.sentences %}<li>{{ s }}</li>{% endfor %}</ul>{% endif %}
-<figure>{{ c.figure }}<figcaption>Both winners scored on both courses.</figcaption></figure>
-</section>
-
-<section id="compare-metrics">
-<h2>Winners' metrics on their own course</h2>
-<table>
-<tr><th>metric</th><th>winner of A on A</th><th>winner of B on B</th></tr>
-{% for m in c.metric_rows %}
-<tr><td>{{ m.label }}</td><td class="num">{{ m.a }}</td><td class="num">{{ m.b }}</td></tr>
-{% endfor %}
-</table>
-</section>
-{% endblock %}
-"""
-)
-
 
 def render(name: str, **context: object) -> str:
-    """Render template ``name`` ("run" or "compare") with the shared style."""
+    """Render template ``name`` ("run") with the shared style. The comparison page has its
+    own template (tuneopt.report.comparison) on the same base and style."""
     import jinja2
 
     env = jinja2.Environment(
-        loader=jinja2.DictLoader({"base": BASE, "run": RUN, "compare": COMPARE}),
+        loader=jinja2.DictLoader({"base": BASE, "run": RUN}),
         autoescape=True,
         undefined=jinja2.StrictUndefined,
         trim_blocks=True,

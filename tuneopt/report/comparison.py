@@ -1,10 +1,10 @@
-"""The comparison report of two runs (the same bike on a dry and a wet mix, say): the winners'
-settings side by side with the differences marked, each winner scored on both courses, and the
-winners' metrics from their own result.json."""
+"""The comparison page of two runs (the same bike on a dry and a wet mix, say): what the
+comparison found, the winners' settings side by side with only the differences beyond noise
+marked, each winner scored on both courses with its interval, why each setting differs, and
+the winners' metrics. One self-contained HTML file; its layout lives here."""
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -12,20 +12,96 @@ from typing import Any
 import numpy as np
 from markupsafe import Markup
 
-from tuneopt.optimise.compare import Comparison, compare_runs
+from tuneopt.optimise.compare import Comparison, Paired, compare_runs
 from tuneopt.report._svg import figure_svg, new_figure
-from tuneopt.report._templates import render
+from tuneopt.report._templates import BASE, CAUTIONS, STYLE
 from tuneopt.report.run_report import HEADLINE_METRICS
 
 __all__ = [
+    "COMPARISON_FILE",
     "CompareRow",
     "ScoreMatrix",
     "compare_setting_rows",
     "comparison_page",
     "draw_score_matrix",
+    "render_comparison",
     "score_matrix",
     "write_comparison",
+    "write_comparison_page",
 ]
+
+COMPARISON_FILE = "compare.html"
+
+NOTES = {
+    "beyond noise": "differs beyond noise",
+    "better on both": "one value better on both courses",
+    "together": "matters together with the others",
+    "within noise": "within noise",
+    "not scored": "not scored",
+}
+
+PAGE = (
+    """{% extends "base" %}{% block body %}
+<header>
+<h1>{{ title }}</h1>
+<p class="lead">A: {{ c.names[0] }} ({{ c.dirs[0] }})<br>B: {{ c.names[1] }} ({{ c.dirs[1] }})
+<br>{{ c.basis_line }}</p>
+</header>
+
+<section id="findings">
+<h2>What differs, and does it matter</h2>
+<ul id="compare-summary">{% for s in c.summary %}<li>{{ s }}</li>{% endfor %}</ul>
+</section>
+
+<section id="winners">
+<h2>Winners side by side</h2>
+<table id="compare-settings">
+<tr><th>setting</th><th>winner of A</th><th>winner of B</th><th>difference</th></tr>
+{% for row in c.setting_rows %}
+<tr class="{{ 'changed' if row.differs else '' }}" data-key="{{ row.key }}"><td>{{ row.label }}</td>
+<td class="num">{{ row.a }}</td><td class="num">{{ row.b }}</td><td>{{ row.note }}</td></tr>
+{% endfor %}
+</table>
+<p class="note">Highlighted: settings whose difference holds beyond noise on terrain neither
+search used. Tyre pressures not searched are shown as the scenarios set them.</p>
+</section>
+"""
+    + CAUTIONS
+    + """
+<section id="cross-scores">
+<h2>Each winner on both courses</h2>
+<table id="score-matrix">
+<tr><th></th><th>on {{ c.courses[0] }}</th><th>on {{ c.courses[1] }}</th></tr>
+{% for row in c.score_rows %}
+<tr><th>{{ row.label }}</th><td class="num">{{ row.on_a }}</td><td class="num">{{ row.on_b }}</td>
+</tr>{% endfor %}
+</table>
+<p class="note">Mean scores over the realisations named above, lower is better; comparable only
+within a column (each course has its own scale). In brackets: against that course's own winner,
+paired on the same realisations, with its 95 % interval.</p>
+<figure>{{ c.figure }}<figcaption>Both winners scored on both courses; the bars of the
+other course's winner carry the paired 95 % interval.</figcaption></figure>
+</section>
+
+<section id="why">
+<h2>Why each setting differs</h2>
+<p class="note">On each course, that course's winner ridden again with the other winner's value
+of one setting, on the same realisations.</p>
+<ul id="compare-reasons">{% for s in c.reasons %}<li>{{ s }}</li>{% endfor %}</ul>
+</section>
+
+<section id="compare-metrics">
+<h2>Winners' metrics on their own course</h2>
+<table>
+<tr><th>metric</th><th>winner of A on A</th><th>winner of B on B</th></tr>
+{% for m in c.metric_rows %}
+<tr><td>{{ m.label }}</td><td class="num">{{ m.a }}</td><td class="num">{{ m.b }}</td></tr>
+{% endfor %}
+</table>
+</section>
+{% endblock %}
+"""
+)
 
 
 @dataclass(frozen=True)
@@ -34,22 +110,27 @@ class CompareRow:
     label: str
     a: str
     b: str
-    differs: bool
+    differs: bool  # marked: the difference holds beyond noise
+    note: str = ""
 
 
 def compare_setting_rows(c: Comparison, labels: dict[str, str]) -> list[CompareRow]:
-    """Every setting of either winner, marked where the two differ."""
+    """Every setting of either winner; marked only where the difference matters."""
     keys = list(dict.fromkeys([*c.settings[0], *c.settings[1]]))
-    return [
-        CompareRow(
-            k,
-            labels.get(k, k),
-            c.settings[0].get(k, "-"),
-            c.settings[1].get(k, "-"),
-            k in c.differences,
-        )
-        for k in keys
-    ]
+    verdicts = {r.key: r.verdict for r in c.rows}
+    rows = []
+    for k in keys:
+        a, b = c.settings[0].get(k, "-"), c.settings[1].get(k, "-")
+        if k in verdicts:
+            note = NOTES[verdicts[k]]
+        elif a == b:
+            note = "same"
+        else:
+            note = "in one study only"
+        if k not in c.searched[0] and k not in c.searched[1] and c.searched != ((), ()):
+            note += " (not searched)"
+        rows.append(CompareRow(k, labels.get(k, k), a, b, k in c.differences, note))
+    return rows
 
 
 @dataclass(frozen=True)
@@ -74,97 +155,126 @@ def score_matrix(c: Comparison) -> ScoreMatrix:
     return ScoreMatrix(s, (float(cost_a), float(cost_b)))
 
 
-def draw_score_matrix(m: ScoreMatrix, names: tuple[str, str]) -> Any:
+def draw_score_matrix(
+    m: ScoreMatrix, courses: tuple[str, str], cross: dict[str, Paired | None] | None = None
+) -> Any:
     fig = new_figure(7, 3.4)
     ax = fig.subplots()
     x = np.arange(2)
+    cross = cross or {}
     for w, (label, colour) in enumerate(
         (("winner of A", "tab:blue"), ("winner of B", "tab:orange"))
     ):
         values = np.array(m.scores[w])
-        bars = ax.bar(x + (w - 0.5) * 0.38, np.nan_to_num(values), 0.38, color=colour, label=label)
+        # the other course's winner carries its paired interval: on course k != w
+        errors = np.zeros((2, 2))
+        other = cross.get("on_b" if w == 0 else "on_a")
+        k = 1 - w
+        if other is not None and np.isfinite(values[k]):
+            errors[:, k] = [values[k] - (m.scores[k][k] + other.low),
+                            (m.scores[k][k] + other.high) - values[k]]  # fmt: skip
+        bars = ax.bar(
+            x + (w - 0.5) * 0.38, np.nan_to_num(values), 0.38, color=colour, label=label,
+            yerr=np.clip(np.nan_to_num(errors), 0, None), capsize=3,
+        )  # fmt: skip
         ax.bar_label(
             bars,
             labels=[f"{v:.3f}" if np.isfinite(v) else "not ridable" for v in values],
             fontsize="small",
         )
-    ax.set_xticks(x, [f"A's course\n{names[0]}", f"B's course\n{names[1]}"], fontsize="small")
+    ax.set_xticks(x, [f"on {courses[0]}", f"on {courses[1]}"], fontsize="small")
     ax.set_ylabel("score [-] (lower is better)")
     ax.grid(True, axis="y", lw=0.3)
     ax.legend(loc="lower right", fontsize="small")
-    fig.subplots_adjust(left=0.11, right=0.98, top=0.95, bottom=0.2)
+    fig.subplots_adjust(left=0.11, right=0.98, top=0.95, bottom=0.14)
     return fig
 
 
-def _fmt_score(v: float) -> str:
-    return f"{v:.3f}" if np.isfinite(v) else "not ridable"
+def _cell(value: float, p: Paired | None) -> str:
+    if not np.isfinite(value):
+        return "not ridable"
+    if p is None:
+        return f"{value:.3f}"
+    return (
+        f"{value:.3f} ({100 * p.relative(p.mean):+.1f} %; {100 * p.relative(p.low):+.1f} to "
+        f"{100 * p.relative(p.high):+.1f} %)"
+    )
 
 
-def comparison_page(a: Path, b: Path) -> str:
-    """The comparison page of run folders ``a`` and ``b`` (re-scores each winner on the other
-    course)."""
-    c = compare_runs(a, b)
-    ra = json.loads((a / "result.json").read_text())
-    rb = json.loads((b / "result.json").read_text())
-    labels = {**rb.get("labels", {}), **ra.get("labels", {})}
+def _basis_line(c: Comparison) -> str:
+    parts = []
+    for name, n, basis in zip("AB", c.realisations, c.basis, strict=True):
+        where = (
+            "fresh realisations its search never used"
+            if basis == "validation"
+            else ("its search's own realisations (no validation)")
+        )
+        parts.append(f"{name}'s course: {n} {where}")
+    return "Scored on " + "; ".join(parts) + "."
+
+
+def render_comparison(c: Comparison) -> str:
+    """The comparison page of ``c`` as HTML."""
+    import jinja2
+
+    from tuneopt.optimise.result import CAUTIONS as CAUTION_TEXT
+
     m = score_matrix(c)
+    courses = c.courses
     score_rows = [
-        {
-            "label": "winner of A",
-            "on_a": _fmt_score(m.scores[0][0]),
-            "on_b": _fmt_score(m.scores[0][1]),
-        },
-        {
-            "label": "winner of B",
-            "on_a": _fmt_score(m.scores[1][0]),
-            "on_b": _fmt_score(m.scores[1][1]),
-        },
-    ]
-    sentences = []
-    if not c.differences:
-        sentences.append("Both runs chose the same settings.")
-    for k, course in enumerate(("A's", "B's")):
-        if np.isfinite(m.own_cost[k]) and c.differences:
-            other = "B" if k == 0 else "A"
-            cost = m.own_cost[k]
-            way = "higher (worse)" if cost > 0 else "lower (better)"
-            sentences.append(
-                f"On {course} course the winner of {other} scores {abs(cost):.1%} {way} than "
-                f"that course's own winner."
-            )
-    for key, why in c.failures.items():
-        sentences.append(f"{key.replace('_', ' ')}: {why}")
-    for key, why in c.reasons.items():
-        sentences.append(f"Why {labels.get(key, key)} differs: {why}.")
-    wa, wb = ra["ranked"][0]["metrics"], rb["ranked"][0]["metrics"]
+        {"label": "winner of A", "on_a": _cell(m.scores[0][0], None),
+         "on_b": _cell(m.scores[0][1], c.cross.get("on_b"))},
+        {"label": "winner of B", "on_a": _cell(m.scores[1][0], c.cross.get("on_a")),
+         "on_b": _cell(m.scores[1][1], None)},
+    ]  # fmt: skip
     metric_rows = []
     for key, label, scale, fmt in HEADLINE_METRICS:
-        va, vb = wa.get(key), wb.get(key)
+        va, vb = c.metrics[0].get(key), c.metrics[1].get(key)
         metric_rows.append(
             {
                 "label": label,
-                "a": "-" if va is None else fmt.format(va * scale),
-                "b": "-" if vb is None else fmt.format(vb * scale),
+                "a": "-" if va is None or not np.isfinite(va) else fmt.format(va * scale),
+                "b": "-" if vb is None or not np.isfinite(vb) else fmt.format(vb * scale),
             }
         )
-    figure = Markup(figure_svg(draw_score_matrix(m, c.names), "Scores on both courses"))
+    figure = Markup(figure_svg(draw_score_matrix(m, courses, c.cross), "Scores on both courses"))
     context = {
         "names": c.names,
-        "dirs": (str(a), str(b)),
-        "setting_rows": compare_setting_rows(c, labels),
+        "dirs": c.dirs,
+        "courses": courses,
+        "basis_line": _basis_line(c),
+        "summary": list(c.summary),
+        "setting_rows": compare_setting_rows(c, c.labels),
         "score_rows": score_rows,
-        "sentences": sentences,
+        "reasons": [r.sentence for r in c.rows],
         "metric_rows": metric_rows,
         "figure": figure,
     }
-    from tuneopt.optimise.result import CAUTIONS
+    env = jinja2.Environment(
+        loader=jinja2.DictLoader({"base": BASE, "compare": PAGE}),
+        autoescape=True,
+        undefined=jinja2.StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+    )
+    return env.get_template("compare").render(
+        style=STYLE, title="Comparison of two runs", c=context, cautions=list(CAUTION_TEXT)
+    )
 
-    return render("compare", title="Comparison of two runs", c=context, cautions=list(CAUTIONS))
+
+def comparison_page(a: Path, b: Path) -> str:
+    """The comparison page of run folders ``a`` and ``b`` (rides both winners on both
+    courses)."""
+    return render_comparison(compare_runs(a, b))
+
+
+def write_comparison_page(c: Comparison, out: Path) -> Path:
+    """Write the page of ``c`` to the file ``out``."""
+    out.parent.mkdir(parents=True, exist_ok=True)
+    out.write_text(render_comparison(c), encoding="utf-8")
+    return out
 
 
 def write_comparison(a: Path, b: Path, out: Path) -> Path:
     """Write the comparison page of runs ``a`` and ``b`` to the file ``out``."""
-    page = comparison_page(a, b)
-    out.parent.mkdir(parents=True, exist_ok=True)
-    out.write_text(page, encoding="utf-8")
-    return out
+    return write_comparison_page(compare_runs(a, b), out)
