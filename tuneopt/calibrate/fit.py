@@ -1,0 +1,254 @@
+"""Fit a course to a logged ride: the mix whose simulated travel and suspension-speed
+distributions, for the setup that was ridden, come closest to the log's.
+
+The objective is the sum over both ends of the unit-free distances of tuneopt.calibrate.distance
+(travel by the full travel, suspension speed by the log's mean absolute speed), plus, when the
+log carries the riding speed, the Wasserstein distance of the riding-speed distributions over
+the log's mean speed. Every candidate course is built from the same seeds (common random
+numbers, docs/references.md): two candidates differ only in their parameters, not in luckier
+terrain, so the objective is a smooth function of the parameters wherever the features' count
+does not change. The seeds are the fit's own; a log made by the simulator for a check is made
+from seeds the fit never sees.
+
+The search is scipy.optimize.differential_evolution over the bounded knobs of
+tuneopt.calibrate.space, with the start course among its first population, then a short
+Nelder-Mead polish from the best point found, within the evaluation budget.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+from numpy.typing import NDArray
+from scipy.optimize import differential_evolution, minimize
+
+from tuneopt.calibrate.distance import (
+    EndDistance,
+    RideSamples,
+    distance,
+    end_distance,
+    ride_samples,
+)
+from tuneopt.calibrate.record import TravelRecord
+from tuneopt.calibrate.space import FitSpace
+from tuneopt.calibrate.synthetic import SimulatedRide, join_rides, prepare_spec, ride_prepared
+from tuneopt.model import InputError, Scenario, Setup
+from tuneopt.model.course import CourseSpec
+from tuneopt.ridelog.convert import fork_full_travel, rear_full_travel
+from tuneopt.sim.build import halfcar_params
+
+__all__ = ["FitProblem", "FitResult", "RideDistance", "fit_course", "FAILED_SCORE"]
+
+FloatArray = NDArray[np.float64]
+
+FAILED_SCORE = 100.0  # a course that cannot be built or ridden: far worse than any fit
+
+
+@dataclass(frozen=True)
+class RideDistance:
+    """Log against one simulated course: per end, and the objective's total."""
+
+    front: EndDistance
+    rear: EndDistance
+    riding_speed_w1: float | None  # [m/s], None when the log has no speed
+    total: float
+
+    def end(self, which: str) -> EndDistance:
+        return self.front if which == "front" else self.rear
+
+
+class FitProblem:
+    """The log's samples, the ridden setup and the fit's seeds; evaluates candidate courses.
+
+    scenario: the scenario whose bike rode the log; setup: the ridden setup; log: the ride
+    record; seeds: course seeds of the fit's own (common to every candidate); sample_rate_hz:
+    the simulation is sampled like the log.
+    """
+
+    def __init__(
+        self, scenario: Scenario, setup: Setup, log: TravelRecord, seeds: Sequence[int]
+    ) -> None:
+        if not seeds:
+            raise ValueError("the fit needs at least one course seed")
+        self.scenario = scenario
+        self.setup = setup
+        self.seeds = tuple(int(s) for s in seeds)
+        self.rate = float(log.sample_rate_hz)
+        self.log = ride_samples(log)
+        for which, end in (("front", self.log.front), ("rear", self.log.rear)):
+            if end.travel.size < 2 or end.speed.size < 2:
+                raise InputError.single(
+                    f"log.{which}", "too few usable travel samples to compare distributions"
+                )
+        self.params = halfcar_params(scenario, [setup])
+        self.full_travel = {"front": fork_full_travel(scenario), "rear": rear_full_travel(scenario)}
+        self.evaluations = 0
+
+    def ride(self, spec: CourseSpec) -> SimulatedRide:
+        """The ridden setup over ``spec`` built from every fit seed, one record."""
+        parts = [
+            ride_prepared(
+                self.scenario, self.params, prepare_spec(self.scenario, spec, seed), self.rate
+            )
+            for seed in self.seeds
+        ]
+        return join_rides(parts)
+
+    def compare(self, sim: RideSamples, *, with_ks: bool = True) -> RideDistance:
+        ends = {
+            w: end_distance(self.log.end(w), sim.end(w), self.full_travel[w], with_ks=with_ks)
+            for w in ("front", "rear")
+        }
+        total = ends["front"].score + ends["rear"].score
+        speed_w1 = None
+        if self.log.riding_speed is not None and sim.riding_speed is not None:
+            speed_w1 = distance(self.log.riding_speed, sim.riding_speed)
+            total += speed_w1 / float(np.mean(self.log.riding_speed))
+        return RideDistance(ends["front"], ends["rear"], speed_w1, total)
+
+    def evaluate(
+        self, spec: CourseSpec, *, with_ks: bool = True
+    ) -> tuple[float, RideSamples | None, RideDistance | None]:
+        """The objective for ``spec`` with the simulated samples and distances (FAILED_SCORE
+        and None when the course cannot be built or the bike ran away on it)."""
+        self.evaluations += 1
+        try:
+            ride = self.ride(spec)
+        except InputError:
+            return FAILED_SCORE, None, None
+        if ride.failed or ride.time_s.size < 2:
+            return FAILED_SCORE, None, None
+        samples = ride_samples(ride)
+        result = self.compare(samples, with_ks=with_ks)
+        if not math.isfinite(result.total):
+            return FAILED_SCORE, samples, None
+        return result.total, samples, result
+
+
+@dataclass(frozen=True)
+class FitResult:
+    """start/fitted: the courses; x: the fitted search point; before/after: distances and the
+    simulated samples for the start and the fitted course; log: the log's samples;
+    evaluations: candidate courses ridden; history: best objective after each evaluation."""
+
+    space: FitSpace
+    start: CourseSpec
+    fitted: CourseSpec
+    x: FloatArray
+    before: RideDistance
+    after: RideDistance
+    before_samples: RideSamples
+    after_samples: RideSamples
+    log: RideSamples
+    seeds: tuple[int, ...]
+    evaluations: int
+    history: tuple[float, ...] = field(default=())
+
+
+def fit_course(
+    problem: FitProblem,
+    space: FitSpace,
+    *,
+    budget: int = 200,
+    seed: int = 0,
+    method: str = "auto",
+    progress: Callable[[int, float], None] | None = None,
+) -> FitResult:
+    """Minimise the distance over ``space`` with at most about ``budget`` candidate courses.
+
+    Differential evolution (a population of 5 per knob, at least 8) spends about four fifths
+    of the budget, a Nelder-Mead polish from its best point the rest. ``seed`` seeds the
+    optimiser only (the courses' seeds are the problem's). Raises InputError when the start
+    course itself cannot be ridden."""
+    if budget < 10:
+        raise ValueError(f"budget must be at least 10 courses, got {budget}")
+    if method not in ("auto", "evolution", "simplex"):
+        raise ValueError(f"method must be 'auto', 'evolution' or 'simplex', got {method!r}")
+    start_score, start_samples, start_distance = problem.evaluate(space.start)
+    if start_samples is None or start_distance is None:
+        raise InputError.single(
+            "course", "the scenario's course cannot be built or ridden with the logged setup"
+        )
+    best: dict[str, object] = {"f": start_score, "x": space.x0.copy()}
+    history: list[float] = [start_score]
+    cache: dict[tuple[float, ...], float] = {}
+
+    def objective(x: FloatArray) -> float:
+        key = tuple(np.round(np.asarray(x, dtype=float), 9))
+        if key in cache:
+            return cache[key]
+        if len(history) >= budget:
+            return FAILED_SCORE  # over budget: no more courses ridden
+        score, _, _ = problem.evaluate(space.course(x), with_ks=False)
+        cache[key] = score
+        if score < float(best["f"]):  # type: ignore[arg-type]
+            best["f"], best["x"] = score, np.asarray(x, dtype=float).copy()
+        history.append(float(best["f"]))  # type: ignore[arg-type]
+        if progress is not None:
+            progress(len(history), float(best["f"]))  # type: ignore[arg-type]
+        return score
+
+    dims = len(space.knobs)
+    popsize = max(8, 5 * dims)
+    if method == "auto":
+        method = "evolution" if budget >= 4 * popsize else "simplex"
+    lows = np.array([k.low for k in space.knobs])
+    highs = np.array([k.high for k in space.knobs])
+    if dims and method == "evolution":
+        de_budget = int(0.8 * budget)
+        maxiter = max(1, de_budget // popsize - 1)
+        rng = np.random.default_rng(seed)
+        # Latin hypercube population with the start course as its first member
+        cells = (np.argsort(rng.random((popsize, dims)), axis=0) + rng.random((popsize, dims)))
+        init = lows + (highs - lows) * cells / popsize
+        init[0] = np.clip(space.x0, lows, highs)
+        differential_evolution(
+            objective,
+            space.bounds,
+            maxiter=maxiter,
+            init=init,
+            polish=False,
+            seed=seed,
+            tol=0.0,
+            atol=0.0,
+            mutation=(0.5, 1.0),
+            recombination=0.7,
+        )
+    left = budget - len(history)
+    if dims and left > 2:
+        x_best = np.asarray(best["x"])
+        span = highs - lows
+        step = 0.1 if method == "evolution" else 0.25  # a simplex alone starts wider
+        simplex = [x_best] + [
+            np.clip(x_best + np.eye(dims)[i] * step * span[i], lows, highs) for i in range(dims)
+        ]
+        minimize(
+            objective,
+            x_best,
+            method="Nelder-Mead",
+            bounds=space.bounds,
+            options={"maxfev": left, "initial_simplex": np.array(simplex), "xatol": 1e-3,
+                     "fatol": 1e-4},
+        )
+    x = np.asarray(best["x"], dtype=float)
+    fitted = space.course(x)
+    _, after_samples, after = problem.evaluate(fitted)
+    if after_samples is None or after is None:  # the best point was ridden: cannot happen
+        raise RuntimeError("the fitted course could not be ridden again")
+    return FitResult(
+        space=space,
+        start=space.start,
+        fitted=fitted,
+        x=x,
+        before=start_distance,
+        after=after,
+        before_samples=start_samples,
+        after_samples=after_samples,
+        log=problem.log,
+        seeds=problem.seeds,
+        evaluations=problem.evaluations,
+        history=tuple(history),
+    )

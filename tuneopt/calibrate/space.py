@@ -1,0 +1,169 @@
+"""The course parameters a calibration may move, their bounds, and the course they make.
+
+Each parameter is one number of the ``[course]`` mix, searched on a scale where equal steps
+mean equal relative changes:
+
+- roughness: log base 4 of Gd(n0) against the entry's starting value (one step is one ISO 8608
+  class, whose geometric means are a factor 4 apart, docs/references.md);
+- feature_height: natural log of the tallest feature's height against the starting value (every
+  feature of the type, big hits included, scales with it: tuneopt.terrain.TerrainType);
+- speed: natural log of the riding speed on the straights against the starting value;
+- share: natural log of the entry's share against the first entry's (the shares are then
+  normalised to add up to 1), for every entry but the first.
+
+Bounds keep every value inside what the course schema accepts (tuneopt.model.course).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tuneopt.model.course import MAX_GD, MAX_SPEED, MIN_SPEED, CourseSpec, MixEntry
+from tuneopt.terrain import iso_8608_class_mean, terrain_type
+
+__all__ = ["KINDS", "Knob", "FitSpace", "fit_space", "gd_of", "class_of"]
+
+KINDS = ("roughness", "feature_height", "speed", "share")
+
+ROUGHNESS_STEPS = 1.5  # ISO 8608 classes either side of the start
+HEIGHT_RANGE = (0.5, 1.6)  # factor on the tallest feature
+SPEED_RANGE = (0.65, 1.5)  # factor on the riding speed
+SHARE_RATIO = 1.5  # natural log of the largest share ratio against the first entry
+MIN_GD = 8e-6  # [m^3] lower limit of ISO 8608 class A
+MAX_HEIGHT = 3.0  # [m] the schema's limit
+
+
+def gd_of(entry: MixEntry) -> float:
+    """The entry's Gd(n0) [m^3]: its own roughness, else its terrain type's."""
+    if isinstance(entry.roughness, str):
+        return iso_8608_class_mean(entry.roughness)
+    if entry.roughness is not None:
+        return float(entry.roughness)
+    return terrain_type(entry.terrain).roughness.gd_n0
+
+
+def class_of(gd: float) -> str:
+    """The ISO 8608 class whose limits (half and twice its geometric mean) hold ``gd``."""
+    index = int(np.clip(math.floor(math.log(gd / 16e-6, 4) + 0.5), 0, 7))
+    return "ABCDEFGH"[index]
+
+
+def height_of(entry: MixEntry) -> float:
+    return (
+        entry.feature_height
+        if entry.feature_height is not None
+        else terrain_type(entry.terrain).tallest_feature
+    )
+
+
+def speed_of(entry: MixEntry, surface: str) -> float:
+    return (
+        entry.speed
+        if entry.speed is not None
+        else terrain_type(entry.terrain).straight_speed(surface)
+    )
+
+
+@dataclass(frozen=True)
+class Knob:
+    """One searched number: ``kind`` of mix entry ``entry``, between ``low`` and ``high`` on its
+    search scale (see the module doc), starting at 0 (the start course), except share knobs,
+    which start at the log ratio of the start shares."""
+
+    entry: int
+    kind: str
+    low: float
+    high: float
+    start: float = 0.0
+
+    @property
+    def label(self) -> str:
+        return f"course.mix[{self.entry}].{self.kind}"
+
+
+@dataclass(frozen=True)
+class FitSpace:
+    """The knobs over a start course."""
+
+    start: CourseSpec
+    knobs: tuple[Knob, ...]
+
+    @property
+    def bounds(self) -> list[tuple[float, float]]:
+        return [(k.low, k.high) for k in self.knobs]
+
+    @property
+    def x0(self) -> NDArray[np.float64]:
+        return np.array([k.start for k in self.knobs])
+
+    def course(self, x: Sequence[float] | NDArray[np.float64]) -> CourseSpec:
+        """The course at search point ``x`` (values rounded to what a scenario file shows)."""
+        spec = self.start
+        n = len(spec.mix)
+        gd = [gd_of(e) for e in spec.mix]
+        height = [height_of(e) for e in spec.mix]
+        speed = [speed_of(e, spec.surface) for e in spec.mix]
+        log_share = [math.log(e.share / spec.mix[0].share) for e in spec.mix]
+        touched: dict[int, set[str]] = {i: set() for i in range(n)}
+        for knob, value in zip(self.knobs, x, strict=True):
+            v = float(np.clip(value, knob.low, knob.high))
+            i = knob.entry
+            touched[i].add(knob.kind)
+            if knob.kind == "roughness":
+                gd[i] = float(np.clip(gd[i] * 4.0**v, MIN_GD, MAX_GD))
+            elif knob.kind == "feature_height":
+                height[i] = min(height[i] * math.exp(v), MAX_HEIGHT)
+            elif knob.kind == "speed":
+                speed[i] = float(np.clip(speed[i] * math.exp(v), MIN_SPEED, MAX_SPEED))
+            else:
+                log_share[i] = v
+        weights = np.exp(np.array(log_share))
+        shares = weights / weights.sum()
+        entries = []
+        for i, e in enumerate(spec.mix):
+            update: dict[str, object] = {"share": round(float(shares[i]), 4)}
+            if "roughness" in touched[i]:
+                update["roughness"] = float(f"{gd[i]:.3g}")
+            if "feature_height" in touched[i]:
+                update["feature_height"] = round(height[i], 4)
+            if "speed" in touched[i]:
+                update["speed"] = round(speed[i], 2)
+            entries.append(e.model_copy(update=update))
+        total = sum(e.share for e in entries)
+        entries = [e.model_copy(update={"share": e.share / total}) for e in entries]
+        return spec.model_copy(update={"mix": tuple(entries)})
+
+
+def fit_space(start: CourseSpec, kinds: Sequence[str] = KINDS) -> FitSpace:
+    """Knobs of the given kinds for every entry of ``start`` (shares only with two or more
+    entries). Raises ValueError for an unknown kind."""
+    unknown = [k for k in kinds if k not in KINDS]
+    if unknown:
+        raise ValueError(f"unknown parameter kind(s) {unknown}; known: {', '.join(KINDS)}")
+    knobs: list[Knob] = []
+    for i, entry in enumerate(start.mix):
+        if "roughness" in kinds:
+            gd = gd_of(entry)
+            low = max(-ROUGHNESS_STEPS, math.log(MIN_GD / gd, 4))
+            high = min(ROUGHNESS_STEPS, math.log(MAX_GD / gd, 4))
+            knobs.append(Knob(i, "roughness", low, high))
+        if "feature_height" in kinds and terrain_type(entry.terrain).tallest_feature > 0:
+            h = height_of(entry)
+            high = min(math.log(HEIGHT_RANGE[1]), math.log(MAX_HEIGHT / h))
+            knobs.append(Knob(i, "feature_height", math.log(HEIGHT_RANGE[0]), high))
+        if "speed" in kinds:
+            v = speed_of(entry, start.surface)
+            low = max(math.log(SPEED_RANGE[0]), math.log(MIN_SPEED / v))
+            high = min(math.log(SPEED_RANGE[1]), math.log(MAX_SPEED / v))
+            knobs.append(Knob(i, "speed", low, high))
+        if "share" in kinds and i > 0:
+            ratio = math.log(entry.share / start.mix[0].share)
+            knobs.append(
+                Knob(i, "share", min(-SHARE_RATIO, ratio), max(SHARE_RATIO, ratio), ratio)
+            )
+    return FitSpace(start=start, knobs=tuple(knobs))
