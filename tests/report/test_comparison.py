@@ -188,7 +188,7 @@ def test_dry_against_wet_page(
     scores = table_by_first_cell(page.tables["score-matrix"][1:])
     assert float(scores["winner of A"][0]) == pytest.approx(dry_wet.scores["a_on_a"], abs=5e-4)
     assert "%" in scores["winner of A"][1] and "%" in scores["winner of B"][0]
-    assert page.figures == ["Scores on both courses"]
+    assert page.figures == ["What each difference costs"]
     assert "http:" not in html and "https:" not in html
     visible = " ".join(
         [*page.list_items["compare-summary"], *page.list_items["compare-reasons"]]

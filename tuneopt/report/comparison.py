@@ -23,7 +23,7 @@ __all__ = [
     "ScoreMatrix",
     "compare_setting_rows",
     "comparison_page",
-    "draw_score_matrix",
+    "draw_costs",
     "render_comparison",
     "score_matrix",
     "write_comparison",
@@ -79,14 +79,17 @@ search used. Tyre pressures not searched are shown as the scenarios set them.</p
 <p class="note">Mean scores over the realisations named above, lower is better; comparable only
 within a column (each course has its own scale). In brackets: against that course's own winner,
 paired on the same realisations, with its 95 % interval.</p>
-<figure>{{ c.figure }}<figcaption>Both winners scored on both courses; the bars of the
-other course's winner carry the paired 95 % interval.</figcaption></figure>
 </section>
 
 <section id="why">
 <h2>Why each setting differs</h2>
 <p class="note">On each course, that course's winner ridden again with the other winner's value
 of one setting, on the same realisations.</p>
+<figure>{{ c.figure }}<figcaption>Score change on each course against that course's own winner,
+with its interval: the other winner as a whole (95 %), and each differing setting swapped alone
+(intervals holding together at 95 % over all swaps). A point whose interval stays right of zero
+is a difference beyond noise; left of zero, the other value does better even there.
+</figcaption></figure>
 <ul id="compare-reasons">{% for s in c.reasons %}<li>{{ s }}</li>{% endfor %}</ul>
 </section>
 
@@ -155,38 +158,41 @@ def score_matrix(c: Comparison) -> ScoreMatrix:
     return ScoreMatrix(s, (float(cost_a), float(cost_b)))
 
 
-def draw_score_matrix(
-    m: ScoreMatrix, courses: tuple[str, str], cross: dict[str, Paired | None] | None = None
-) -> Any:
-    fig = new_figure(7, 3.4)
+def draw_costs(c: Comparison) -> Any:
+    """What each difference costs: for the whole other winner and for each differing setting
+    swapped alone, the score change on each course against that course's own winner [%], with
+    its interval; a bar clear of zero is a difference beyond noise."""
+    from tuneopt.optimise.compare_sentences import short_label
+
+    rows: list[tuple[str, Paired | None, Paired | None]] = [
+        ("the other winner", c.cross.get("on_a"), c.cross.get("on_b"))
+    ]
+    for r in c.rows:
+        on_a, on_b = (s.change if s is not None else None for s in r.swaps)
+        rows.append((f"{short_label(r.label)} {r.a} / {r.b}", on_a, on_b))
+    fig = new_figure(7, 1.2 + 0.42 * len(rows))
     ax = fig.subplots()
-    x = np.arange(2)
-    cross = cross or {}
-    for w, (label, colour) in enumerate(
-        (("winner of A", "tab:blue"), ("winner of B", "tab:orange"))
+    y = np.arange(len(rows))[::-1].astype(float)
+    for k, (course, colour, offset) in enumerate(
+        ((c.courses[0], "tab:blue", 0.15), (c.courses[1], "tab:orange", -0.15))
     ):
-        values = np.array(m.scores[w])
-        # the other course's winner carries its paired interval: on course k != w
-        errors = np.zeros((2, 2))
-        other = cross.get("on_b" if w == 0 else "on_a")
-        k = 1 - w
-        if other is not None and np.isfinite(values[k]):
-            errors[:, k] = [values[k] - (m.scores[k][k] + other.low),
-                            (m.scores[k][k] + other.high) - values[k]]  # fmt: skip
-        bars = ax.bar(
-            x + (w - 0.5) * 0.38, np.nan_to_num(values), 0.38, color=colour, label=label,
-            yerr=np.clip(np.nan_to_num(errors), 0, None), capsize=3,
-        )  # fmt: skip
-        ax.bar_label(
-            bars,
-            labels=[f"{v:.3f}" if np.isfinite(v) else "not ridable" for v in values],
-            fontsize="small",
-        )
-    ax.set_xticks(x, [f"on {courses[0]}", f"on {courses[1]}"], fontsize="small")
-    ax.set_ylabel("score [-] (lower is better)")
-    ax.grid(True, axis="y", lw=0.3)
-    ax.legend(loc="lower right", fontsize="small")
-    fig.subplots_adjust(left=0.11, right=0.98, top=0.95, bottom=0.14)
+        for yi, (_, on_a, on_b) in zip(y, rows, strict=True):
+            p = on_b if k else on_a
+            if p is None:
+                continue
+            mid, low, high = (100 * p.relative(v) for v in (p.mean, p.low, p.high))
+            ax.errorbar(
+                mid, yi + offset, xerr=[[mid - low], [high - mid]], fmt="o", color=colour,
+                capsize=3, ms=4, label=f"on {course}" if yi == y[0] else None,
+            )  # fmt: skip
+    ax.axvline(0.0, color="black", lw=0.8)
+    ax.set_yticks(y, [r[0] for r in rows], fontsize="small")
+    ax.set_xlabel("score change against that course's own winner [%] (right: worse)")
+    ax.grid(True, axis="x", lw=0.3)
+    handles, labels = ax.get_legend_handles_labels()
+    if handles:
+        ax.legend(loc="best", fontsize="small")
+    fig.subplots_adjust(left=0.36, right=0.98, top=0.97, bottom=0.62 / (1.2 + 0.42 * len(rows)))
     return fig
 
 
@@ -237,7 +243,7 @@ def render_comparison(c: Comparison) -> str:
                 "b": "-" if vb is None or not np.isfinite(vb) else fmt.format(vb * scale),
             }
         )
-    figure = Markup(figure_svg(draw_score_matrix(m, courses, c.cross), "Scores on both courses"))
+    figure = Markup(figure_svg(draw_costs(c), "What each difference costs"))
     context = {
         "names": c.names,
         "dirs": c.dirs,
