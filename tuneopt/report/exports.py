@@ -3,6 +3,7 @@ setup, the current one first), and each ridden setup's traces as CSV."""
 
 from __future__ import annotations
 
+import json
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -66,13 +67,25 @@ def traces_frame(ride: SetupRide) -> pd.DataFrame:
     return pd.concat(parts, ignore_index=True)
 
 
+def _plain(value: Any) -> Any:
+    """numpy scalars as Python numbers for json."""
+    if hasattr(value, "item"):
+        return value.item()
+    raise TypeError(f"cannot write {type(value).__name__} to JSON")
+
+
 def write_exports(folder: Path, result: dict[str, Any], rides: Sequence[SetupRide]) -> list[Path]:
     """Write ranked_setups.csv/.json and traces_<setup>.csv into ``folder``; return the paths."""
     folder.mkdir(parents=True, exist_ok=True)
     table = ranked_frame(result)
     paths = [folder / "ranked_setups.csv", folder / "ranked_setups.json"]
     table.to_csv(paths[0], index=False)
-    table.to_json(paths[1], orient="records", indent=2, double_precision=15)
+    # json, not pandas' writer: pandas rounds to a number of decimals, which leaves a few
+    # significant digits of the smallest metrics (millimetres written in metres)
+    records = table.astype(object).where(table.notna(), None).to_dict(orient="records")
+    paths[1].write_text(
+        json.dumps(records, indent=2, allow_nan=False, default=_plain), encoding="utf-8"
+    )
     for ride in rides:
         path = folder / f"traces_{file_tag(ride.label)}.csv"
         traces_frame(ride).to_csv(path, index=False)
