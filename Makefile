@@ -5,7 +5,7 @@ BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 DEMO ?= scenarios/trail_air.toml
 
-.PHONY: demo test lint typecheck unit bench clean reliability
+.PHONY: demo test lint typecheck unit bench clean reliability system
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -27,7 +27,11 @@ typecheck: $(STAMP)
 unit: $(STAMP)
 	$(BIN)/python -m pytest -q
 
-test: lint typecheck unit
+# redis-server and chromium: installed when missing (Debian, as root), else named
+system:
+	sh tools/system-packages.sh
+
+test: system lint typecheck unit
 
 # The reliability and security suites at full size (bad input through files, the command line and
 # the API; schema-driven API fuzzing; load; faults), each test recording what it measured;
@@ -39,7 +43,7 @@ LOAD_JOBS ?= 200
 LOAD_READS ?= 3000
 FAULT_ROUNDS ?= 3
 FIGURES ?= out/figures
-reliability: $(STAMP)
+reliability: $(STAMP) system
 	rm -rf $(FIGURES) && mkdir -p $(FIGURES)
 	TUNEOPT_FIGURES=$(FIGURES)/figures.jsonl TUNEOPT_FUZZ_EXAMPLES=$(FUZZ_EXAMPLES) \
 	TUNEOPT_API_FUZZ_EXAMPLES=$(API_FUZZ_EXAMPLES) TUNEOPT_LOAD_JOBS=$(LOAD_JOBS) \
