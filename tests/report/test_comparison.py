@@ -204,3 +204,55 @@ def test_a_run_against_itself(dry_run: Path) -> None:
     assert not c.differences and not c.rows and not c.reasons
     assert c.summary[0] == "Both winners chose the same settings."
     assert c.cross["on_a"] is not None and c.cross["on_a"].mean == 0.0
+
+
+@pytest.fixture(scope="module")
+def dry_tyres_run(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The dry report study with tyre pressures searched too (6 fresh realisations)."""
+    from tests.conftest import write_toml
+    from tests.report.conftest import report_data
+    from tuneopt.cli import main
+
+    data = report_data("dry")
+    data["search"] = {"tyre_pressures": True}
+    folder = tmp_path_factory.mktemp("dry_tyres")
+    path = folder / "scenario.toml"
+    path.write_text(write_toml(data))
+    out = folder / "run"
+    argv = [
+        "optimise", str(path), "--out", str(out), "--trials", "12", "--batch", "6",
+        "--realisations", "1", "--validation", "6", "--top", "2",
+    ]  # fmt: skip
+    assert main(argv) == 0
+    return out
+
+
+def test_tyre_pressures_searched_in_one_study(dry_tyres_run: Path, wet_run: Path) -> None:
+    """Searched on the dry course, set on the wet one: both rows are there, in bar, labelled
+    in trade words, and a differing pressure is swapped like any setting (on the wet course,
+    whose search never moved it, it still rides within the tyre's limits)."""
+    c = compare_runs(dry_tyres_run, wet_run)
+    assert c.searched[0][-2:] == ("front_tyre_pressure", "rear_tyre_pressure")
+    assert "front_tyre_pressure" not in c.searched[1]
+    for key in ("front_tyre_pressure", "rear_tyre_pressure"):
+        assert c.settings[0][key].endswith(" bar") and c.settings[1][key].endswith(" bar")
+        assert c.labels[key] == key.replace("_", " ")
+    assert not any("Tyre pressures were not searched" in s for s in c.summary)
+    # a dry tyre pressure swapped into the wet winner, whose search never moved it
+    import dataclasses
+
+    from tuneopt.optimise.compare import _ride, _study, _swap
+
+    wet, dry = _study(wet_run), _study(dry_tyres_run)
+    key, value = "front_tyre_pressure", 1.3e5
+    dry = dataclasses.replace(dry, values={**dry.values, key: value})
+    own, _, raw = _ride(wet, dry, [key])
+    swap = _swap("B", "1.30 bar", raw[key], own, wet.scenario, 0.95)
+    assert swap.change is not None and swap.change.realisations == wet.evaluator.realisations
+    base, ridden = wet.evaluator.evaluate([wet.winner, _with(wet.winner, key, value)])
+    assert ridden.ok and swap.change.mean == pytest.approx(
+        np.mean(np.subtract(ridden.scores, base.scores))
+    )
+    rows = compare_setting_rows(c, c.labels)
+    notes = {r.key: r.note for r in rows}
+    assert "(not searched)" not in notes["front_tyre_pressure"]
