@@ -27,7 +27,7 @@ from tuneopt.model import scenario_from_data
 from tuneopt.optimise import Evaluator, StudyPlan, build_space, run_local, start_run
 from tuneopt.optimise.redis_storage import redis_storage
 from tuneopt.optimise.runner import ask_batch
-from tuneopt.service import tasks
+from tuneopt.service import finalise, tasks
 from tuneopt.service.api import create_app
 from tuneopt.service.records import JobState, JobStore
 from tuneopt.service.settings import Settings
@@ -60,9 +60,7 @@ def test_submitted_job_runs_to_a_ranked_result_equal_to_a_local_run(
     assert result["stopped"] == "budget"
     assert result["trials"]["finished"] == 12
     assert result["ranked"] and result["cautions"]
-    folder = settings.results_dir / job_id
-    assert json.loads((folder / "result.json").read_text()) == result
-    assert (folder / "ranked.csv").is_file()
+    assert not settings.results_dir.exists()  # kept in Redis only: no folder to share
 
     # the same seed and budget on this machine's runner gives the same ranked setups
     scenario = scenario_from_data(small_scenario())
@@ -73,23 +71,24 @@ def test_submitted_job_runs_to_a_ranked_result_equal_to_a_local_run(
         [r["score"] for r in result["ranked"]], rel=1e-9
     )
 
-    # the finaliser wrote the HTML report beside the result; the API serves that file, and
-    # says clearly when it is gone
+    # the finaliser kept the HTML report beside the result, compressed; the API serves it,
+    # and says clearly when it is gone
     served = client.get(f"/jobs/{job_id}/report")
     assert served.status_code == 200 and served.headers["content-type"].startswith("text/html")
-    assert served.text == (folder / "report.html").read_text(encoding="utf-8")
+    raw = Redis.from_url(settings.redis_url.get_secret_value())
+    packed = raw.get(f"tuneopt:job:{job_id}:report")
+    assert packed is not None and served.text == zlib.decompress(packed).decode()
     assert scenario_from_data(small_scenario()).name in served.text
-    (folder / "report.html").unlink()
+    raw.delete(f"tuneopt:job:{job_id}:report")
     missing = client.get(f"/jobs/{job_id}/report")
     assert missing.status_code == 409 and "without a report" in missing.json()["detail"]
 
     listed = client.get("/jobs").json()["jobs"]
     assert [j["id"] for j in listed] == [job_id]
 
-    # an ended job is purged: record, study journal and files
+    # an ended job is purged: record, result, report and study journal
     assert client.delete(f"/jobs/{job_id}").status_code == 204
     assert client.get(f"/jobs/{job_id}").status_code == 404
-    assert not folder.exists()
     redis = Redis.from_url(settings.redis_url.get_secret_value())
     assert not list(redis.scan_iter(match=f"tuneopt:study:{job_id}*"))
     assert not list(redis.scan_iter(match=f"tuneopt:job:{job_id}*"))
@@ -395,6 +394,7 @@ def test_shards_that_fail_for_good_still_end_the_job_with_their_errors(
         raise RuntimeError("simulator out of memory")
 
     monkeypatch.setattr(tasks, "run_shard", broken)
+    monkeypatch.setattr(finalise, "run_shard", broken)
     _work(once)
     status = client.get(f"/jobs/{job_id}").json()
     assert status["state"] == "failed", status

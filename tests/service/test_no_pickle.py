@@ -17,7 +17,7 @@ from redis import Redis
 from tests.service.conftest import after_first_report, small_scenario
 from tests.service.redis_scan import is_pickle, layers, pickles_and_unreadable
 from tuneopt.optimise.redis_storage import JOURNAL_KEY, redis_storage
-from tuneopt.service import tasks
+from tuneopt.service import finalise, tasks
 from tuneopt.service.settings import Settings
 from tuneopt.service.worker import make_worker
 
@@ -102,6 +102,7 @@ def test_no_key_a_finished_a_running_and_a_failed_job_leave_holds_a_pickle(
         raise RuntimeError("simulator out of memory")
 
     monkeypatch.setattr(tasks, "run_shard", broken)
+    monkeypatch.setattr(finalise, "run_shard", broken)
     _work(settings.model_copy(update={"shard_retries": 0}))
     assert client.get(f"/jobs/{failing}").json()["state"] == "failed"
     assert client.get(f"/jobs/{running}").json()["state"] == "cancelled"

@@ -23,7 +23,7 @@ def test_retention_is_set_in_days_with_a_default_of_four_weeks() -> None:
 def test_an_ended_job_and_everything_it_left_expire(
     settings: Settings, redis_client: Redis
 ) -> None:
-    short = settings.model_copy(update={"retention_days": 4 / 86400})  # 4 s
+    short = settings.model_copy(update={"retention_days": 6 / 86400})  # 6 s
     with TestClient(create_app(short)) as client:
         assert short.api_key is not None
         client.headers["X-API-Key"] = short.api_key.get_secret_value()
@@ -36,7 +36,8 @@ def test_an_ended_job_and_everything_it_left_expire(
         mine = [k for k in redis_client.scan_iter() if ended in k]
         assert len(mine) >= 6, mine  # record, result, events, owners, journal, rq parts
         ttls = {k: redis_client.ttl(k) for k in mine}
-        assert all(0 < t <= 4 for t in ttls.values()), ttls  # every key: none kept for ever
+        # every key expires (-2: already gone on a slow machine); none is kept for ever (-1)
+        assert all(t == -2 or 0 <= t <= 6 for t in ttls.values()), ttls
         assert redis_client.ttl(f"tuneopt:job:{waiting}") == -1
 
         deadline = time.monotonic() + 30

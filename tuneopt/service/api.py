@@ -11,11 +11,12 @@ import json
 import logging
 import secrets
 import time
+import zlib
 from datetime import UTC, datetime
 from typing import Annotated, Any
 
 from fastapi import Depends, FastAPI, Header, Request, Response
-from fastapi.responses import FileResponse
+from fastapi.responses import HTMLResponse
 from fastapi.security import APIKeyHeader
 from pydantic import BaseModel
 from redis import Redis, WatchError
@@ -157,7 +158,6 @@ def _serve_docs(app: FastAPI) -> None:
     """The interactive API page at /docs, its script and style served by the API itself (the
     default page loads them from an outside network and stays blank offline)."""
     from fastapi.openapi.docs import get_swagger_ui_html
-    from fastapi.responses import HTMLResponse
     from fastapi.staticfiles import StaticFiles
     from swagger_ui_bundle import swagger_ui_path
 
@@ -344,20 +344,20 @@ def create_app(settings: Settings) -> FastAPI:
     @app.get(
         "/jobs/{job_id}/report",
         dependencies=guarded,
-        response_class=FileResponse,
+        response_class=HTMLResponse,
         summary="The job's HTML report once the job has ended with ranked setups",
     )
-    def get_report(job_id: str) -> FileResponse:
+    def get_report(job_id: str) -> HTMLResponse:
         record = load(job_id)
-        path = tasks.result_folder(settings.results_dir, job_id) / "report.html"
-        if not path.is_file():
+        packed = store.get_report(job_id)
+        if packed is None:
             raise ProblemError(
                 409,
                 f"the job is {record.state.value}; it has no report yet"
                 if not record.state.is_final
                 else f"the job ended {record.state.value} without a report",
             )
-        return FileResponse(path, media_type="text/html")
+        return HTMLResponse(zlib.decompress(packed).decode("utf-8"))
 
     @app.post(
         "/jobs/{job_id}/cancel",

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 from enum import StrEnum
 from typing import Any
 
-from redis import Redis, WatchError
+from redis import ConnectionPool, Redis, WatchError
 from redis.client import Pipeline
 
 __all__ = ["JobRecord", "JobState", "JobStore", "is_job_id", "new_job_id"]
@@ -134,6 +134,7 @@ class JobStore:
     def __init__(self, redis: Redis, prefix: str = "tuneopt"):
         self.redis = redis
         self.prefix = prefix
+        self._raw_client: Redis | None = None
 
     # keys
     def key(self, job_id: str) -> str:
@@ -148,6 +149,9 @@ class JobStore:
 
     def _result_key(self, job_id: str) -> str:
         return f"{self.key(job_id)}:result"
+
+    def _report_key(self, job_id: str) -> str:
+        return f"{self.key(job_id)}:report"
 
     def _errors_key(self, job_id: str) -> str:
         return f"{self.key(job_id)}:errors"
@@ -226,6 +230,11 @@ class JobStore:
             events=events,
         )
 
+    def request(self, job_id: str) -> dict[str, Any]:
+        """The job's options as submitted ({} when the record is gone)."""
+        text = self.redis.hget(self.key(job_id), "request")
+        return {} if text is None else dict(json.loads(str(text)))
+
     def scenario(self, job_id: str) -> dict[str, Any]:
         text = self.redis.hget(self.key(job_id), "scenario")
         if text is None:
@@ -240,12 +249,16 @@ class JobStore:
             self.redis.zrem(self.index_key, *gone)
         return [r for r in records if r is not None and not r.deleted]
 
-    def job_keys(self, job_id: str, shards: int) -> list[str]:
+    def job_keys(self, job_id: str, shards: int) -> tuple[str, ...]:
         """Every key of a job's own (its study journal aside)."""
-        keys = [self.key(job_id), self._result_key(job_id), self._errors_key(job_id)]
-        keys.append(self._events_key(job_id))
-        keys += [self._owner_key(job_id, k) for k in range(shards)]
-        return keys
+        return (
+            self.key(job_id),
+            self._result_key(job_id),
+            self._report_key(job_id),
+            self._errors_key(job_id),
+            self._events_key(job_id),
+            *(self._owner_key(job_id, k) for k in range(shards)),
+        )
 
     def expire(self, job_id: str, seconds: int) -> None:
         """Let an ended job's keys expire after ``seconds``, all at once (a list of errors
@@ -380,6 +393,25 @@ class JobStore:
     def get_result(self, job_id: str) -> dict[str, Any] | None:
         text = self.redis.get(self._result_key(job_id))
         return None if text is None else json.loads(str(text))
+
+    def set_report(self, job_id: str, packed: bytes) -> None:
+        """The job's HTML report, zlib-compressed bytes."""
+        self._raw().set(self._report_key(job_id), packed)
+
+    def get_report(self, job_id: str) -> bytes | None:
+        """The job's HTML report (zlib-compressed), or None."""
+        packed = self._raw().get(self._report_key(job_id))
+        return None if packed is None else bytes(packed)  # type: ignore[arg-type]
+
+    def _raw(self) -> Redis:
+        """A client on the same server that returns bytes (this store's decodes text)."""
+        if self._raw_client is None:
+            pool = self.redis.connection_pool
+            kwargs = {**pool.connection_kwargs, "decode_responses": False}
+            self._raw_client = Redis(
+                connection_pool=ConnectionPool(connection_class=pool.connection_class, **kwargs)
+            )
+        return self._raw_client
 
     def purge(self, job_id: str) -> None:
         """The job's record, result, errors, shard owners and Idempotency-Key, in one

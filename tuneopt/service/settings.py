@@ -29,7 +29,11 @@ class Settings(BaseSettings):
     redis_url: SecretStr = Field(
         default=SecretStr("redis://127.0.0.1:6379/0"), description="Redis holding queue and studies"
     )
-    results_dir: Path = Field(default=Path("results"), description="one folder per job")
+    results_dir: Path = Field(
+        default=Path("results"),
+        description="where earlier versions kept a folder per job; results and reports now "
+        "live in Redis, and deleting a job still removes its old folder here",
+    )
     api_key: SecretStr | None = Field(default=None, description="required when set")
     queue: str = Field(default="tuneopt", pattern=r"^[a-z][a-z0-9_-]{0,40}$")
     key_prefix: str = Field(default="tuneopt", pattern=r"^[a-z][a-z0-9_-]{0,40}$")
@@ -58,6 +62,9 @@ class Settings(BaseSettings):
         default=False, description="keep a finished job's study journal until the job is purged"
     )
     top: int = Field(default=5, ge=1, le=50, description="ranked setups in a result")
+    max_report_bytes: int = Field(
+        default=4_000_000, ge=10_000, description="a job's HTML report, compressed, in Redis [B]"
+    )
 
     # retention
     retention_days: float = Field(

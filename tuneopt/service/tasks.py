@@ -22,6 +22,7 @@ from redis.exceptions import LockError
 from rq import Queue, Retry
 from rq.exceptions import NoSuchJobError
 from rq.job import Callback, Dependency, Job, JobStatus
+from rq.results import Result
 from rq.serializers import JSONSerializer
 
 from tuneopt.model import InputError, Scenario, scenario_from_data
@@ -31,11 +32,8 @@ from tuneopt.optimise import (
     StudyPlan,
     build_space,
     create_study,
-    rank_study,
     reap_stale_trials,
-    result_data,
     run_shard,
-    write_result,
 )
 from tuneopt.optimise.redis_storage import delete_study_keys, expire_study_keys, redis_storage
 from tuneopt.optimise.runner import count_finished, shard_owner
@@ -49,7 +47,6 @@ __all__ = [
     "ShardInterrupted",
     "configure",
     "enqueue_start",
-    "finalise_job",
     "job_failed",
     "parts_pending",
     "purge_job",
@@ -232,7 +229,7 @@ def start_job(job_id: str) -> str:
     final = rq_id(job_id, "final")
     if not Job.exists(final, connection=queue.connection):
         queue.enqueue(
-            "tuneopt.service.tasks.finalise_job",
+            "tuneopt.service.finalise.finalise_job",
             args=(job_id,),
             job_id=final,
             depends_on=Dependency(jobs=shards, allow_failure=True),
@@ -327,121 +324,6 @@ def run_shard_job(job_id: str, shard: int) -> int:
     return done
 
 
-def finalise_job(job_id: str) -> str:
-    """Rank the study once every shard has ended; write the result to Redis and to files."""
-    if not is_job_id(job_id):
-        raise ValueError("not a job id")
-    settings = _current()
-    redis = _connection()
-    store = _store(redis)
-    record = store.get(job_id)
-    if record is None or record.state.is_final:
-        return "gone"
-    if record.deleted:  # nothing to rank for anyone
-        return _end(store, job_id, JobState.CANCELLED)
-    store.move(job_id, JobState.FINISHING)
-    event(log, "job.finalising", "every shard has ended: ranking", job=job_id)
-    scenario = _load(store, job_id)
-    space = build_space(scenario)
-    study = _study(store, job_id)
-    reap_stale_trials(study)  # every shard has ended: nothing left RUNNING has an owner
-    request = record.request
-    evaluator = Evaluator(scenario, int(request["seed"]), int(request["realisations"]))
-    deadline = record.deadline or 0.0
-    budget = record.budget
-    topped_up = 0
-    if (
-        budget is not None
-        and not store.is_cancel_requested(job_id)
-        and time.time() < deadline
-        and count_finished(study) < budget
-    ):
-        # shards ended short of the budget (one failed for good, or counted a trial that its
-        # dead owner never tagged as running): finish the budget here, as one more shard
-        plan = _plan(job_id, request, deadline)
-        try:
-            topped_up = run_shard(
-                study,
-                plan,
-                space,
-                evaluator,
-                int(request["shards"]),
-                should_stop=lambda: store.is_cancel_requested(job_id),
-                ask_lock=lambda: _ask_lock(store, job_id),
-            )
-        except Exception as exc:  # rank what finished rather than lose it
-            store.add_error(job_id, f"finaliser: {type(exc).__name__}: {exc}")
-            reap_stale_trials(study)
-    ranking = rank_study(study, space, evaluator, top=settings.top)
-    cancelled = store.is_cancel_requested(job_id)
-    if cancelled:
-        stopped = "cancelled"
-    elif budget is not None and ranking.finished >= budget:
-        stopped = "budget"
-    elif time.time() >= deadline:
-        stopped = "deadline"
-    else:
-        stopped = "shards failed"
-    owners = sorted({str(t.user_attrs.get("owner", "")) for t in study.get_trials(deepcopy=False)})
-    info = {
-        "job": job_id,
-        "scenario": scenario.name,
-        "study": job_id,
-        "seed": record.request["seed"],
-        "sampler": record.request["sampler"],
-        "realisations": record.request["realisations"],
-        "validation_realisations": ranking.validation_realisations,
-        "budget": budget,
-        "stopped": stopped,
-        "shards": record.request["shards"],
-        "finished_by_finaliser": topped_up,
-        "workers": [o for o in owners if o],
-        "simulated_seconds_per_setup": evaluator.simulated_seconds,
-        "parameters": [p.name for p in space.parameters],
-        "labels": {p.name: p.label for p in space.parameters},
-    }
-    data = result_data(ranking, info)
-    out = result_folder(settings.results_dir, job_id)
-    out.mkdir(parents=True, exist_ok=True)
-    write_result(out, ranking, info)
-    store.set_result(job_id, data)
-    _write_report(store, job_id, out, scenario, data, study)
-    if cancelled:
-        state = JobState.CANCELLED
-    elif ranking.ranked:
-        state = JobState.DONE
-    else:
-        state = JobState.FAILED
-        store.add_error(job_id, f"no feasible setup finished (stopped: {stopped})")
-    outcome = _end(store, job_id, state, finished=ranking.finished)
-    if not settings.keep_studies:  # the result holds what the study was for
-        delete_study_keys(redis, store.study_prefix(job_id))
-    return outcome
-
-
-def _write_report(
-    store: JobStore, job_id: str, out: Path, scenario: Scenario, data: dict[str, Any], study: Any
-) -> None:
-    """The HTML report beside the result; a report that fails is an error on the job, not a
-    lost result."""
-    if not data.get("ranked"):
-        return
-    from tuneopt.report.run_report import report_of, trial_metrics, write_page
-
-    try:
-        report = report_of(
-            scenario,
-            data,
-            int(data["seed"]),
-            int(data["realisations"]),
-            trial_metrics(study),
-            export_dir=out / "exports",
-        )
-        write_page(out, report)
-    except Exception as exc:  # noqa: BLE001  the result is written already
-        store.add_error(job_id, f"report: {type(exc).__name__}: {exc}")
-
-
 def _end(store: JobStore, job_id: str, state: JobState, **fields: Any) -> str:
     """Move the job to its final state; a job deleted while it was live is purged here, by the
     part that ended it."""
@@ -479,11 +361,29 @@ def parts_pending(queue: Queue, job_id: str, shards: int) -> bool:
 
 
 def purge_job(store: JobStore, results_dir: Path, job_id: str) -> None:
-    """Everything a job left: its study journal, files, result, errors and record. The record
-    goes last: while it stands, a purge cut short can be asked for again."""
+    """Everything a job left: its study journal, result, report, errors and record (and the
+    folder an earlier version kept for it). The record goes last: while it stands, a purge cut
+    short can be asked for again."""
     delete_study_keys(store.redis, store.study_prefix(job_id))
     shutil.rmtree(result_folder(results_dir, job_id), ignore_errors=True)
+    _forget_parts(job_id, int(store.request(job_id).get("shards", 0)))
     store.purge(job_id)
+
+
+def _forget_parts(job_id: str, shards: int) -> None:
+    """rq's records of the job's parts that have ended (the part running this, if any, expires
+    with rq's result time instead: deleting it under rq's feet would leave a stray record)."""
+    queue = _queue()
+    ended = {JobStatus.FINISHED, JobStatus.FAILED, JobStatus.CANCELED, JobStatus.STOPPED}
+    for part in ["start", *(f"shard-{k}" for k in range(shards)), "final"]:
+        try:
+            job = Job.fetch(rq_id(job_id, part), connection=queue.connection,
+                            serializer=JSONSerializer)  # fmt: skip
+        except NoSuchJobError:
+            continue
+        if job.get_status(refresh=False) in ended:
+            Result.delete_all(job)
+            job.delete(delete_dependents=False)
 
 
 def result_folder(results_dir: Path, job_id: str) -> Path:
@@ -506,3 +406,12 @@ def job_failed(job: Job, connection: Any, exc_type: Any, value: Any, tb: Any) ->
           retries_left=job.retries_left or 0)  # fmt: skip
     if not job.retries_left:
         _end(store, job_id, JobState.FAILED)
+
+
+def __getattr__(name: str) -> Any:
+    # parts queued by an earlier version name the finaliser here
+    if name == "finalise_job":
+        from tuneopt.service.finalise import finalise_job
+
+        return finalise_job
+    raise AttributeError(name)
