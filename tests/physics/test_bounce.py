@@ -117,3 +117,32 @@ def test_the_test_clicks_move_the_model_and_are_checked() -> None:
     with pytest.raises(InputError) as err:
         bounce_setting(scenario, "shock", compression=13)
     assert err.value.problems[0].location == "--compression-clicks"
+
+
+@pytest.mark.parametrize(("name", "end"), [("trail_air", "fork"), ("enduro_coil", "shock")])
+def test_what_it_writes_makes_the_model_match_the_test(name: str, end: str) -> None:
+    """Write the printed low-speed values into the scenario and read the same record again:
+    the model's mean low-speed coefficient at the test's clicks is then the measured one
+    (scale 1). enduro_coil's shock has a dyno table for compression, which stays as it is."""
+    import tomllib
+
+    from tests.conftest import scenario_data
+    from tuneopt.model import scenario_from_data
+
+    data = scenario_data(name)
+    scenario = load_scenario(SCENARIOS / f"{name}.toml")
+    check = static_check(scenario)
+    s = check.front if end == "fork" else check.rear
+    decay = free_decay(*_linear(0.27, s.frequency))
+    first = read_bounce(scenario, end, decay)
+    assert first.write_scale is not None
+    for where, text in first.writes:
+        if not text.startswith(("{", '"')):
+            assert "dyno" in text
+            continue
+        _, _, direction, key = where.split(".")
+        value = tomllib.loads(f"v = {text}")["v"]
+        data[end]["damper"][direction][key] = value
+    again = read_bounce(scenario_from_data(data, base_dir=SCENARIOS), end, decay)
+    assert again.scale == pytest.approx(1.0, abs=0.01)
+    assert again.shaft_damping == pytest.approx(first.shaft_damping)

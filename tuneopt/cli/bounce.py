@@ -163,6 +163,22 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
+def _write_head(r: Any) -> str:
+    if r.write_scale is None:
+        return "Nothing to write: the test and the scenario's dyno table disagree:"
+    if abs(r.write_scale - r.scale) < 1e-9:
+        return (
+            f"What to write into the scenario (both low-speed curves scaled by {r.scale:.2f}; "
+            "the split between compression and rebound and the open-to-closed span stay as "
+            "the scenario has them):"
+        )
+    return (
+        f"What to write into the scenario (the curve not measured on a dyno scaled by "
+        f"{r.write_scale:.2f}, so that with the dyno table the mean matches the test; its "
+        "open-to-closed span stays as the scenario has it):"
+    )
+
+
 def report_lines(r: Any, swings: int, signal: str, name: str) -> list[str]:
     """What the terminal shows: the measurement, the model beside it, what to write, caveats."""
     from tuneopt.optimise.result import CAUTIONS
@@ -182,9 +198,7 @@ def report_lines(r: Any, swings: int, signal: str, name: str) -> list[str]:
         f"{(r.model_compression + r.model_rebound) / 2:.0f}, damping ratio {r.model_zeta:.3f}",
         f"  the test measured {r.scale:.2f} × the scenario's low-speed damping",
         "",
-        "What to write into the scenario (both low-speed curves scaled by "
-        f"{r.scale:.2f}; the split between compression and rebound and the open-to-closed "
-        "span stay as the scenario has them):",
+        _write_head(r),
     ]
     for where, value in r.writes:
         if not value.startswith(("{", '"')):  # a note, not a value

@@ -43,8 +43,10 @@ def critical_damping(stiffness: float, mass: float) -> float:
 @dataclass(frozen=True)
 class BounceReading:
     """One end's bounce test against the model. Coefficients [N s/m] at the damper shaft
-    unless named for the wheel; ``scale`` = measured mean / model mean; ``writes``: field path
-    and TOML value to write, or a note where the scenario holds a dyno table; ``speed``: the
+    unless named for the wheel; ``scale`` = measured mean / model mean; ``write_scale``: the
+    factor on the parametric low-speed curves written (the whole difference falls on them when
+    the other direction is a dyno table); ``writes``: field path and TOML value to write, or a
+    note; ``speed``: the
     largest shaft speed of the swings read [m/s] and ``knees`` the curves' knee velocities
     (a faster swing reaches the high-speed circuit)."""
 
@@ -62,6 +64,7 @@ class BounceReading:
     model_rebound: float
     model_zeta: float
     scale: float
+    write_scale: float | None  # applied to the curves written (differs with a dyno table)
     clicks: dict[str, int]
     speed: float
     knees: dict[str, float]
@@ -102,25 +105,43 @@ def _toml(value: float) -> str:
     return f'"{value:.0f} N*s/m"'
 
 
-def _writes(scenario: Scenario, end: str, scale: float) -> list[tuple[str, str]]:
+def _writes(
+    scenario: Scenario, end: str, measured_mean: float, model: dict[str, float]
+) -> tuple[float | None, list[tuple[str, str]]]:
+    """The factor for the parametric low-speed curves and what to write. A direction measured
+    on a dyno keeps its table, so the parametric one takes the whole difference:
+    (c_dyno + f·c_curve)/2 = measured mean. None when no factor above zero does."""
     damper = getattr(scenario, end).damper
     measured = {a.direction for a in damper.measured_adjusters()}
+    fitted = sum(v for d, v in model.items() if d not in measured)
+    fixed = sum(v for d, v in model.items() if d in measured)
+    factor = (2 * measured_mean - fixed) / fitted if fitted > 0 else None
+    if factor is not None and factor <= 0:
+        factor = None
     out = []
     for direction in ("compression", "rebound"):
-        where = f"{end}.damper.{direction}.low_speed"
         if direction in measured:
             note = "measured on a dyno: keep the table; the bounce test only checks it"
             out.append((f"{end}.damper.{direction}", note))
             continue
+        if factor is None:
+            note = (
+                "no value: the dyno table of the other direction alone damps more than the "
+                "test measured; check the table and the test"
+            )
+            out.append((f"{end}.damper.{direction}", note))
+            continue
+        where = f"{end}.damper.{direction}.low_speed"
         value = getattr(damper, direction).low_speed
         if isinstance(value, Coefficient):
             text = (
-                f"{{ open = {_toml(value.open * scale)}, closed = {_toml(value.closed * scale)} }}"
+                f"{{ open = {_toml(value.open * factor)}, "
+                f"closed = {_toml(value.closed * factor)} }}"
             )
         else:
-            text = _toml(float(value) * scale)
+            text = _toml(float(value) * factor)
         out.append((where, text))
-    return out
+    return factor, out
 
 
 def read_bounce(
@@ -157,6 +178,7 @@ def read_bounce(
         if isinstance(c, BilinearCurve)
     }  # fmt: skip
     scale = c_shaft / model_mean
+    factor, writes = _writes(scenario, end, c_shaft, {"compression": c_comp, "rebound": c_reb})
     clicks = {
         n: int(getattr(setting, n)) for n in ("lsc", "lsr") if getattr(setting, n) is not None
     }
@@ -178,5 +200,6 @@ def read_bounce(
         clicks=clicks,
         speed=speed,
         knees=knees,
-        writes=_writes(scenario, end, scale),
+        write_scale=factor,
+        writes=writes,
     )
