@@ -92,7 +92,7 @@ def noise_level(x: ArrayLike) -> float:
     if d2.size == 0:
         return 0.0
     mad = float(np.median(np.abs(d2 - np.median(d2))))
-    return mad / 0.6745 / np.sqrt(6.0)
+    return float(mad / 0.6745 / np.sqrt(6.0))
 
 
 def _check(t: FloatArray, x: FloatArray, names: tuple[str, str]) -> None:
