@@ -48,6 +48,7 @@ import warnings
 from collections.abc import Sequence
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
+from typing import Any
 
 import optuna
 from optuna.exceptions import ExperimentalWarning
@@ -71,10 +72,10 @@ class TimedEvaluator(Evaluator):
         super().__init__(scenario, seed=seed, realisations=realisations)
         self.spans: list[tuple[float, float]] = []
 
-    def evaluate(self, setups: Sequence[Setup]) -> list[Outcome]:
+    def evaluate(self, setups: Sequence[Setup], **racing: Any) -> list[Outcome]:
         started = time.perf_counter()
         try:
-            return super().evaluate(setups)
+            return super().evaluate(setups, **racing)
         finally:
             self.spans.append((started, time.perf_counter()))
 

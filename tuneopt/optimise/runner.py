@@ -18,7 +18,8 @@ import os
 import secrets
 import socket
 import time
-from collections.abc import Callable
+import warnings
+from collections.abc import Callable, Sequence
 from contextlib import AbstractContextManager, nullcontext
 from dataclasses import dataclass
 from typing import Any
@@ -57,9 +58,31 @@ optuna.logging.set_verbosity(optuna.logging.WARNING)
 INFEASIBLE_PENALTY = 100.0
 
 SAMPLERS = ("tpe", "cmaes", "nsga2", "random", "gp")
+# TPE's own cost grows with the trials it has seen: it fits its density estimators to all of
+# them at every ask (measured 6 ms a trial at 200 trials and 43 ms at 3,000, most of a long
+# run's wall time). Past this many finished trials the "tpe" sampler hands over to CMA-ES,
+# warm-started from the trials so far (optuna's source_trials: the mean and spread of the best
+# of them), whose cost per trial stays flat; the two reached the same best after 1,000 trials
+# (docs/samplers.md). Measured: benchmarks/bench_handover.py.
+TPE_HANDOVER = 1000
 
 
-def make_sampler(kind: str, seed: int, batch_size: int) -> optuna.samplers.BaseSampler:
+def make_sampler(
+    kind: str,
+    seed: int,
+    batch_size: int,
+    *,
+    finished: int = 0,
+    history: Sequence[FrozenTrial] = (),
+) -> optuna.samplers.BaseSampler:
+    """The sampler for one batch. Past TPE_HANDOVER ``finished`` trials, "tpe" hands over to
+    CMA-ES warm-started from ``history`` (the study's completed trials)."""
+    if kind == "tpe" and finished >= TPE_HANDOVER and history:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", optuna.exceptions.ExperimentalWarning)
+            return optuna.samplers.CmaEsSampler(
+                seed=seed, with_margin=True, source_trials=list(history)
+            )
     if kind == "tpe":
         return optuna.samplers.TPESampler(
             seed=seed,
@@ -232,8 +255,15 @@ def ask_batch(
     owner: str,
 ) -> list[optuna.Trial]:
     """Ask ``size`` trials with a sampler seeded from (study seed, shard, finished trials)."""
+    history: Sequence[FrozenTrial] = ()
+    if plan.sampler == "tpe" and finished >= TPE_HANDOVER:
+        history = study.get_trials(deepcopy=False, states=(TrialState.COMPLETE,))
     study.sampler = make_sampler(
-        plan.sampler, (plan.seed * 1_000_003 + shard * 10_007 + finished) % 2**32, size
+        plan.sampler,
+        (plan.seed * 1_000_003 + shard * 10_007 + finished) % 2**32,
+        size,
+        finished=finished,
+        history=history,
     )
     batch = []
     for _ in range(size):
