@@ -17,6 +17,8 @@ from scipy import stats
 
 from tests.report.page import read_page, table_by_first_cell
 from tuneopt.optimise.compare import (
+    SMALL,
+    VERDICTS,
     Comparison,
     Paired,
     Swap,
@@ -95,13 +97,25 @@ def test_verdicts() -> None:
     assert _verdict((gains, costs)) == "better on both"  # the other value wins on A as well
     assert _verdict((Swap("A", "1", why_not="unridable: sag"), within)) == "beyond noise"
     assert _verdict((Swap("A", "1", why_not="outside"), None)) == "not scored"
+    # beyond noise, but 0.2 % of a score of 10: too little to matter, not marked
+    tiny = _swap(0.01, 0.03)
+    assert tiny.change is not None and tiny.change.above and tiny.change.small
+    assert _verdict((tiny, within)) == "small" and not VERDICTS["small"]
     worse = Paired(0.3, 0.1, 0.5, 10.0, 24)
     same = Paired(0.0, -0.1, 0.1, 10.0, 24)
     v = {"fork.lsc": "within noise", "shock.lsr": "within noise"}
     assert set(_together(v, {"on_a": worse, "on_b": same}).values()) == {"together"}
     assert _together(v, {"on_a": same, "on_b": same}) == v
+    slightly = Paired(0.03, 0.01, 0.05, 10.0, 24)  # beyond noise, 0.3 % of the score
+    assert _together(v, {"on_a": slightly, "on_b": same}) == v
     mixed = {"fork.lsc": "beyond noise", "shock.lsr": "within noise"}
     assert _together(mixed, {"on_a": worse, "on_b": worse}) == mixed
+
+
+def test_too_small_to_matter_is_the_reports_flat_share() -> None:
+    from tuneopt.report.fresh_terrain import FLAT
+
+    assert SMALL == FLAT
 
 
 @pytest.fixture(scope="module")
@@ -137,6 +151,9 @@ def test_marks_and_verdicts_agree(dry_wet: Comparison) -> None:
     assert c.confidence == pytest.approx(1 - 0.05 / max(swaps, 1))
     for r in c.rows:
         assert r.marked == (r.verdict in ("beyond noise", "better on both", "together"))
+        for swap in r.swaps:
+            if r.verdict == "within noise" and swap is not None and swap.change is not None:
+                assert swap.change.low <= 0 <= swap.change.high
     # tyre pressures take part even when not searched
     assert {"front_tyre_pressure", "rear_tyre_pressure"} <= set(c.settings[0])
 

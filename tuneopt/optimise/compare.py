@@ -15,6 +15,9 @@ by chance alone. When no single swap differs but one winner scores worse than th
 noise on the other's course (its own 95 % interval), the differing settings matter only
 together and are marked so. A swap whose interval lies below zero says the other value does
 better even on this course: the search there did not settle that setting ("better on both").
+With common realisations the intervals can be very narrow, so a difference beyond noise must
+also reach half a per cent of the course's score to count (``SMALL``, the share under which the
+run report calls a setting flat); below it the setting is said to differ too little to matter.
 Each reason names the weighted score term that grew most, in the report's words
 (``TERM_NAMES``).
 
@@ -41,6 +44,9 @@ from tuneopt.optimise.validation import validation_seeds
 # Plain names of the score's terms, as the trade-off sentences say them.
 TERM_NAMES = {term: words[0] for term, words in TERM_WORDS.items()}
 TYRE_PRESSURES = ("front_tyre_pressure", "rear_tyre_pressure")
+# A score change under this share of the own winner's score is too small to matter, even when
+# it is beyond noise: the share the run report calls a flat setting (report.fresh_terrain.FLAT).
+SMALL = 0.005
 
 __all__ = ["TERM_NAMES", "Comparison", "Paired", "SettingDifference", "Swap", "compare_runs"]
 
@@ -65,6 +71,21 @@ class Paired:
     def below(self) -> bool:
         """Better than the own setup beyond noise."""
         return self.high < 0
+
+    @property
+    def small(self) -> bool:
+        """A change under ``SMALL`` of the own setup's score."""
+        return abs(self.mean) < SMALL * abs(self.base)
+
+    @property
+    def worse(self) -> bool:
+        """Worse beyond noise, by enough to matter."""
+        return self.above and not self.small
+
+    @property
+    def better(self) -> bool:
+        """Better beyond noise, by enough to matter."""
+        return self.below and not self.small
 
     def relative(self, value: float) -> float:
         return value / self.base if self.base else float("nan")
@@ -112,6 +133,7 @@ VERDICTS = {
     "beyond noise": True,
     "better on both": True,
     "together": True,
+    "small": False,
     "within noise": False,
     "not scored": False,
 }
@@ -337,20 +359,22 @@ def _verdict(swaps: tuple[Swap | None, Swap | None]) -> str:
     noise (or wins on the course whose winner does not have it)."""
     on_a, on_b = (s.change if s is not None else None for s in swaps)
     scored = [c for c in (on_a, on_b) if c is not None]
-    if any(c.below for c in scored):
+    if any(c.better for c in scored):
         return "better on both"
-    if any(c.above for c in scored) or any(s is not None and s.unridable for s in swaps):
+    if any(c.worse for c in scored) or any(s is not None and s.unridable for s in swaps):
         return "beyond noise"
+    if any(c.above or c.below for c in scored):
+        return "small"
     return "within noise" if scored else "not scored"
 
 
 def _together(verdicts: dict[str, str], cross: dict[str, Paired | None]) -> dict[str, str]:
     """No setting marked on its own, but a winner worse beyond noise on the other's course:
-    the settings within noise matter together."""
-    whole = any(p is not None and p.above for p in cross.values())
+    the settings within noise (or too small to matter alone) matter together."""
+    whole = any(p is not None and p.worse for p in cross.values())
     if not whole or any(VERDICTS[v] for v in verdicts.values()):
         return verdicts
-    return {k: "together" if v == "within noise" else v for k, v in verdicts.items()}
+    return {k: "together" if v in ("within noise", "small") else v for k, v in verdicts.items()}
 
 
 def compare_runs(a: Path, b: Path) -> Comparison:

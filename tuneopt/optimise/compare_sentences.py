@@ -7,6 +7,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from tuneopt.model import Scenario
+from tuneopt.optimise.compare import SMALL
 
 if TYPE_CHECKING:
     from tuneopt.optimise.compare import Paired, SettingDifference, Swap, _Study
@@ -43,10 +44,12 @@ def _swap_detail(s: Swap, courses: tuple[str, str]) -> str:
     if s.change is None:
         return f"on {course} {s.value} was not scored ({s.why_not})"
     c = s.change
-    if c.above:
+    if c.worse:
         return f"on {course} {s.value} costs {_interval(c)}, most of it in {s.term}"
-    if c.below:
+    if c.better:
         return f"on {course} {s.value} does better ({_interval(c)})"
+    if c.above or c.below:
+        return f"on {course} {s.value} changes the score by only {_interval(c)}"
     return f"on {course} {s.value} makes no difference beyond noise ({_interval(c)})"
 
 
@@ -61,8 +64,8 @@ def row_sentence(
     head = f"{short_label(label)} {a} → {b}"
     on_a, on_b = (s.change if s is not None else None for s in swaps)
     if verdict == "better on both":
-        b_wins_on_a = on_a is not None and on_a.below
-        a_wins_on_b = on_b is not None and on_b.below
+        b_wins_on_a = on_a is not None and on_a.better
+        a_wins_on_b = on_b is not None and on_b.better
         if b_wins_on_a and a_wins_on_b:
             lead = "each winner does better with the other's value: neither search settled it"
         else:
@@ -71,7 +74,7 @@ def row_sentence(
                 if b_wins_on_a
                 else (a, courses[0], courses[1], on_a)
             )
-            both = cost is not None and cost.above
+            both = cost is not None and cost.worse
             lead = (
                 f"{value} does better on both courses"
                 if both
@@ -81,6 +84,8 @@ def row_sentence(
         lead = {
             "beyond noise": "differs beyond noise",
             "within noise": "differs within noise: either value does on both courses",
+            "small": f"differs by under {SMALL:.1%} of the score on either course: too little "
+            "to matter",
             "together": "matters only together with the other differing settings",
             "not scored": "could not be scored",
         }[verdict]
@@ -93,6 +98,8 @@ def cross_sentence(course: str, own: str, other: str, p: Paired | None, failure:
     if p is None:
         return f"On {course} the winner of {other} cannot be ridden: {failure}."
     how = "worse beyond noise" if p.above else "better beyond noise" if p.below else "within noise"
+    if (p.above or p.below) and p.small:
+        how += f", but by under {SMALL:.1%} of the score"
     return (
         f"On {course} the winner of {other} scores {_interval(p)} against the winner of {own}, "
         f"over {p.realisations} realisations neither search used: {how}."
@@ -115,13 +122,14 @@ def summary(
     """The sentences a comparison leads with."""
     out = []
     by = {v: [r for r in rows if r.verdict == v] for v in
-          ("beyond noise", "better on both", "together", "within noise", "not scored")}  # fmt: skip
+          ("beyond noise", "better on both", "together", "small", "within noise",
+           "not scored")}  # fmt: skip
     if not rows:
         out.append("Both winners chose the same settings.")
     elif not any(r.marked for r in rows):
         out.append(
-            f"None of the {len(rows)} settings that differ between the winners differs beyond "
-            "noise: on both courses either winner's value does as well."
+            f"None of the {len(rows)} settings that differ between the winners differs by "
+            "enough to matter: on both courses either winner's value does as well."
         )
     if by["beyond noise"]:
         out.append(
@@ -134,6 +142,11 @@ def summary(
         out.append(
             "No setting matters alone, but the winners differ beyond noise as wholes: "
             f"{_listed(by['together'])} matter together."
+        )
+    if by["small"]:
+        out.append(
+            f"Beyond noise but by under {SMALL:.1%} of the score, too little to matter: "
+            f"{_listed(by['small'])}."
         )
     if by["within noise"] and any(r.marked for r in rows):
         out.append(

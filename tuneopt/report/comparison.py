@@ -36,6 +36,7 @@ NOTES = {
     "beyond noise": "differs beyond noise",
     "better on both": "one value better on both courses",
     "together": "matters together with the others",
+    "small": "too small to matter",
     "within noise": "within noise",
     "not scored": "not scored",
 }
@@ -63,7 +64,8 @@ PAGE = (
 {% endfor %}
 </table>
 <p class="note">Highlighted: settings whose difference holds beyond noise on terrain neither
-search used. Tyre pressures not searched are shown as the scenarios set them.</p>
+search used and moves the score by half a per cent or more. Tyre pressures not searched are
+shown as the scenarios set them.</p>
 </section>
 """
     + CAUTIONS
