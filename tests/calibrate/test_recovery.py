@@ -4,21 +4,22 @@ course from seeds the fit never sees, and the fit must find that course again.
 What a log can tell, and so what is asserted (measured figures in docs/calibration.md):
 
 - The riding speed of each terrain type: the log's speed channel is a mixture of the types'
-  speeds weighted by time, and the suspension speeds scale with it. Asserted within 10 %.
+  speeds weighted by time, and the suspension speeds scale with it. Asserted within 5 %
+  (largest error seen over five pairs of unseen seeds: 1.6 %).
 - The feature height of a type whose features set the travel (the roots): the deep end of the
-  travel distribution is made by the tallest features. Asserted within 15 %.
-- The shares of the mix: the mixture weights of both distributions. Asserted within 0.15.
+  travel distribution is made by the tallest features. Asserted within 20 % (seen: 12 %).
+- The shares of the mix: the mixture weights of both distributions. Asserted within 0.15
+  (seen: 0.095).
 - Roughness (ISO 8608 Gd(n0)) only weakly: on these types the discrete features, not the
-  background, make most of the travel (docs/references.md, issue notes), so one class either
-  way changes the distributions little. Asserted within one class (a factor 4).
+  background, make most of the travel (docs/references.md), so the fit trades roughness
+  against feature size. Asserted within one class, a factor 4 (seen: 0.84 of a class).
 - Not identifiable, not asserted: the feature height of smooth_hardpack, whose only features
   are G-outs laid once per 160 m: an 80 m stretch holds one or none, so most realisations
   have nothing whose height the log could show.
 
-The tolerances are about three times the spread seen over three pairs of unseen seeds, so that
-a fit that works passes and one that does not (wrong axis, wrong speed, no features) fails.
-The known course's own distance on the fit's seeds is the floor a perfect fit reaches: the
-remaining difference is terrain that differs from one realisation to the next.
+The errors come from terrain that differs from one realisation to the next (the log's seeds
+against the fit's), not from the search: the fitted course is always at least as close to the
+log as the known course's own numbers are, ridden as the search rides them.
 """
 
 from __future__ import annotations
@@ -38,8 +39,8 @@ from tuneopt.model import Scenario, Setup, load_scenario
 from tuneopt.model.course import CourseSpec
 from tuneopt.ridelog import parse_ride_log
 
-SPEED_TOLERANCE = 0.10
-HEIGHT_TOLERANCE = 0.15
+SPEED_TOLERANCE = 0.05
+HEIGHT_TOLERANCE = 0.20
 SHARE_TOLERANCE = 0.15
 ROUGHNESS_CLASSES = 1.0
 
@@ -63,9 +64,9 @@ def test_a_known_course_is_fitted_back(
 ) -> None:
     problem, result = clean_fit
     _assert_recovered(result.fitted, known)
-    floor, _, _ = problem.evaluate(known)
+    floor, _, _ = problem.evaluate(result.space.as_searched(known))
     print(f"start {result.before.total:.3f}, fitted {result.after.total:.3f}, known {floor:.3f}")
-    assert result.after.total <= 1.25 * floor
+    assert result.after.total <= 1.05 * floor
     assert result.after.total <= 0.5 * result.before.total
     assert result.evaluations <= BUDGET + 2  # the start and the fitted course ridden again
     # the report's goodness per end: Kolmogorov-Smirnov between 0 and 1, better than before

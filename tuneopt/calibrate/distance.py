@@ -20,6 +20,7 @@ speed by the log's mean absolute suspension speed at that end.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -33,7 +34,9 @@ __all__ = [
     "EndSamples",
     "RideSamples",
     "EndDistance",
+    "combine",
     "ride_samples",
+    "weighted_quantiles",
     "suspension_speed",
     "end_distance",
     "MAX_SAMPLES_COMPARED",
@@ -108,6 +111,52 @@ def ride_samples(record: TravelRecord) -> RideSamples:
         v = v[np.isfinite(v)]
         riding = v if v.size else None
     return RideSamples(front=ends[0], rear=ends[1], riding_speed=riding)
+
+
+def weighted_quantiles(values: FloatArray, weights: FloatArray, n: int) -> FloatArray:
+    """``n`` evenly spaced quantiles of samples ``values`` carrying ``weights`` (each sample's
+    share of the time): the sorted values at the midpoints of their cumulative weights,
+    linear in between. With equal weights they are the plain quantiles of ``_thinned``."""
+    order = np.argsort(values, kind="stable")
+    ordered = values[order]
+    w = weights[order]
+    cumulative = (np.cumsum(w) - 0.5 * w) / w.sum()
+    q = (np.arange(n) + 0.5) / n
+    return np.interp(q, cumulative, ordered)
+
+
+def combine(parts: Sequence[RideSamples], weights: Sequence[float]) -> RideSamples:
+    """One set of samples from several records, each sample of part i counting ``weights[i]``
+    (per sample, so that a part's share of the time is its weight times its sample count).
+    The result holds MAX_SAMPLES_COMPARED quantiles per channel (fewer when there are fewer
+    samples and the weights are all equal)."""
+    if not parts or len(parts) != len(weights):
+        raise ValueError("need one weight per part and at least one part")
+
+    def channel(get: Callable[[RideSamples], FloatArray | None]) -> FloatArray | None:
+        arrays = [get(p) for p in parts]
+        if any(a is None for a in arrays):
+            return None
+        values = np.concatenate([a for a in arrays if a is not None])
+        if values.size == 0:
+            return values
+        w = np.concatenate(
+            [np.full(a.size, float(wt)) for a, wt in zip(arrays, weights, strict=True)
+             if a is not None]
+        )  # fmt: skip
+        if values.size <= MAX_SAMPLES_COMPARED and np.all(w == w[0]):
+            return values
+        return weighted_quantiles(values, w, MAX_SAMPLES_COMPARED)
+
+    def end(which: str) -> EndSamples:
+        travel = channel(lambda p: p.end(which).travel)
+        speed = channel(lambda p: p.end(which).speed)
+        assert travel is not None and speed is not None
+        return EndSamples(travel=travel, speed=speed)
+
+    return RideSamples(
+        front=end("front"), rear=end("rear"), riding_speed=channel(lambda p: p.riding_speed)
+    )
 
 
 def _thinned(values: FloatArray) -> FloatArray:

@@ -28,19 +28,29 @@ from scipy.optimize import differential_evolution, minimize
 from tuneopt.calibrate.distance import (
     EndDistance,
     RideSamples,
+    combine,
     distance,
     end_distance,
     ride_samples,
 )
 from tuneopt.calibrate.record import TravelRecord
 from tuneopt.calibrate.space import FitSpace
-from tuneopt.calibrate.synthetic import SimulatedRide, join_rides, prepare_spec, ride_prepared
+from tuneopt.calibrate.synthetic import prepare_spec, ride_segments
 from tuneopt.model import InputError, Scenario, Setup
 from tuneopt.model.course import CourseSpec
 from tuneopt.ridelog.convert import fork_full_travel, rear_full_travel
 from tuneopt.sim.build import halfcar_params
 
-__all__ = ["FitProblem", "FitResult", "RideDistance", "fit_course", "FAILED_SCORE"]
+__all__ = [
+    "FAILED_SCORE",
+    "STEP_SHARE",
+    "FitProblem",
+    "FitResult",
+    "KnobCheck",
+    "RideDistance",
+    "fit_course",
+    "knob_checks",
+]
 
 FloatArray = NDArray[np.float64]
 
@@ -87,15 +97,22 @@ class FitProblem:
         self.full_travel = {"front": fork_full_travel(scenario), "rear": rear_full_travel(scenario)}
         self.evaluations = 0
 
-    def ride(self, spec: CourseSpec) -> SimulatedRide:
-        """The ridden setup over ``spec`` built from every fit seed, one record."""
-        parts = [
-            ride_prepared(
-                self.scenario, self.params, prepare_spec(self.scenario, spec, seed), self.rate
-            )
-            for seed in self.seeds
-        ]
-        return join_rides(parts)
+    def ride(self, spec: CourseSpec) -> RideSamples | None:
+        """The ridden setup over ``spec`` built from every fit seed: the samples of all its
+        segments, each weighted by its entry's share over its length (so that an entry's share
+        of the time is what its share of the course gives, whatever length it was ridden
+        over). None when the bike ran away on a segment."""
+        parts: list[RideSamples] = []
+        weights: list[float] = []
+        for seed in self.seeds:
+            prepared = prepare_spec(self.scenario, spec, seed)
+            rides = ride_segments(self.scenario, self.params, prepared, self.rate)
+            if any(r.failed for r in rides):
+                return None
+            for i, ride in enumerate(rides):
+                parts.append(ride_samples(ride))
+                weights.append(spec.mix[i].share / spec.entry_length(i))
+        return combine(parts, weights)
 
     def compare(self, sim: RideSamples, *, with_ks: bool = True) -> RideDistance:
         ends = {
@@ -116,12 +133,11 @@ class FitProblem:
         and None when the course cannot be built or the bike ran away on it)."""
         self.evaluations += 1
         try:
-            ride = self.ride(spec)
+            samples = self.ride(spec)
         except InputError:
             return FAILED_SCORE, None, None
-        if ride.failed or ride.time_s.size < 2:
+        if samples is None or samples.front.travel.size < 2:
             return FAILED_SCORE, None, None
-        samples = ride_samples(ride)
         result = self.compare(samples, with_ks=with_ks)
         if not math.isfinite(result.total):
             return FAILED_SCORE, samples, None
@@ -155,19 +171,22 @@ def fit_course(
     budget: int = 200,
     seed: int = 0,
     method: str = "auto",
+    population: int = 5,
     progress: Callable[[int, float], None] | None = None,
 ) -> FitResult:
     """Minimise the distance over ``space`` with at most about ``budget`` candidate courses.
 
-    Differential evolution (a population of 5 per knob, at least 8) spends about four fifths
-    of the budget, a Nelder-Mead polish from its best point the rest. ``seed`` seeds the
+    Differential evolution (a population of ``population`` per knob, at least 8) spends about
+    four fifths of the budget, a Nelder-Mead polish from its best point the rest; with
+    ``method`` "auto" a budget under four populations goes to Nelder-Mead alone ("simplex"),
+    started from the scenario's course. ``seed`` seeds the
     optimiser only (the courses' seeds are the problem's). Raises InputError when the start
     course itself cannot be ridden."""
     if budget < 10:
         raise ValueError(f"budget must be at least 10 courses, got {budget}")
     if method not in ("auto", "evolution", "simplex"):
         raise ValueError(f"method must be 'auto', 'evolution' or 'simplex', got {method!r}")
-    start_score, start_samples, start_distance = problem.evaluate(space.start)
+    start_score, start_samples, start_distance = problem.evaluate(space.simulated(space.x0))
     if start_samples is None or start_distance is None:
         raise InputError.single(
             "course", "the scenario's course cannot be built or ridden with the logged setup"
@@ -182,7 +201,7 @@ def fit_course(
             return cache[key]
         if len(history) >= budget:
             return FAILED_SCORE  # over budget: no more courses ridden
-        score, _, _ = problem.evaluate(space.course(x), with_ks=False)
+        score, _, _ = problem.evaluate(space.simulated(x), with_ks=False)
         cache[key] = score
         if score < float(best["f"]):  # type: ignore[arg-type]
             best["f"], best["x"] = score, np.asarray(x, dtype=float).copy()
@@ -192,7 +211,7 @@ def fit_course(
         return score
 
     dims = len(space.knobs)
-    popsize = max(8, 5 * dims)
+    popsize = max(8, population * dims)
     if method == "auto":
         method = "evolution" if budget >= 4 * popsize else "simplex"
     lows = np.array([k.low for k in space.knobs])
@@ -235,7 +254,7 @@ def fit_course(
         )
     x = np.asarray(best["x"], dtype=float)
     fitted = space.course(x)
-    _, after_samples, after = problem.evaluate(fitted)
+    _, after_samples, after = problem.evaluate(space.simulated(x))
     if after_samples is None or after is None:  # the best point was ridden: cannot happen
         raise RuntimeError("the fitted course could not be ridden again")
     return FitResult(
@@ -252,3 +271,40 @@ def fit_course(
         evaluations=problem.evaluations,
         history=tuple(history),
     )
+
+
+@dataclass(frozen=True)
+class KnobCheck:
+    """How firmly the log pins one fitted number: the objective at the fitted point and one
+    step (STEP_SHARE of the knob's range) either way; ``rise`` is the smaller of the two
+    increases over the fitted objective, as a share of it (a knob the log cannot see has a
+    rise near 0)."""
+
+    label: str
+    fitted: float
+    down: float
+    up: float
+    rise: float
+
+
+STEP_SHARE = 0.1
+
+
+def knob_checks(problem: FitProblem, result: FitResult) -> tuple[KnobCheck, ...]:
+    """One step either way of every knob from the fitted point (two courses per knob)."""
+    out = []
+    base = result.after.total
+    for i, knob in enumerate(result.space.knobs):
+        step = STEP_SHARE * (knob.high - knob.low)
+        scores = []
+        for sign in (-1.0, 1.0):
+            x = result.x.copy()
+            x[i] = float(np.clip(x[i] + sign * step, knob.low, knob.high))
+            if x[i] == result.x[i]:  # at a bound: that side is not a step
+                scores.append(math.inf)
+                continue
+            score, _, _ = problem.evaluate(result.space.simulated(x), with_ks=False)
+            scores.append(score)
+        rise = (min(scores) - base) / base if base > 0 else math.inf
+        out.append(KnobCheck(knob.label, float(result.x[i]), scores[0], scores[1], rise))
+    return tuple(out)

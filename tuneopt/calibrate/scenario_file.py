@@ -24,10 +24,10 @@ def course_table(spec: CourseSpec) -> dict[str, Any]:
     for e in spec.mix:
         entry: dict[str, Any] = {"terrain": e.terrain, "share": round(e.share, 4)}
         if e.speed is not None:
-            entry["speed"] = f"{e.speed:.3g} m/s"
+            entry["speed"] = f"{e.speed:.2f} m/s"
         if e.roughness is not None:
             entry["roughness"] = e.roughness if isinstance(e.roughness, str) else float(
-                f"{e.roughness:.3g}"
+                f"{e.roughness:.4g}"
             )
         if e.feature_height is not None:
             entry["feature_height"] = f"{e.feature_height * 1000:.0f} mm"

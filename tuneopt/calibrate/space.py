@@ -12,6 +12,13 @@ mean equal relative changes:
   normalised to add up to 1), for every entry but the first.
 
 Bounds keep every value inside what the course schema accepts (tuneopt.model.course).
+
+The shares do not change what is ridden during the search: every candidate rides each entry
+over the same fixed length (``FitSpace.lengths``: the entry's own length if it sets one, else
+an equal part of the course, at least what the type needs), and the shares weigh the entries'
+samples by time. Changing a share would otherwise change a segment's length and with it where
+every feature lies: a new terrain realisation for every candidate, which common random numbers
+are there to avoid.
 """
 
 from __future__ import annotations
@@ -25,8 +32,19 @@ from numpy.typing import NDArray
 
 from tuneopt.model.course import MAX_GD, MAX_SPEED, MIN_SPEED, CourseSpec, MixEntry
 from tuneopt.terrain import iso_8608_class_mean, terrain_type
+from tuneopt.terrain.course import LEAD_IN, TAPER
 
-__all__ = ["KINDS", "Knob", "FitSpace", "fit_space", "gd_of", "class_of"]
+__all__ = [
+    "KINDS",
+    "FitSpace",
+    "Knob",
+    "class_of",
+    "fit_space",
+    "gd_of",
+    "height_of",
+    "search_lengths",
+    "speed_of",
+]
 
 KINDS = ("roughness", "feature_height", "speed", "share")
 
@@ -88,10 +106,12 @@ class Knob:
 
 @dataclass(frozen=True)
 class FitSpace:
-    """The knobs over a start course."""
+    """The knobs over a start course; lengths [m]: what each entry is ridden over in the
+    search (see the module doc)."""
 
     start: CourseSpec
     knobs: tuple[Knob, ...]
+    lengths: tuple[float, ...]
 
     @property
     def bounds(self) -> list[tuple[float, float]]:
@@ -128,7 +148,7 @@ class FitSpace:
         for i, e in enumerate(spec.mix):
             update: dict[str, object] = {"share": round(float(shares[i]), 4)}
             if "roughness" in touched[i]:
-                update["roughness"] = float(f"{gd[i]:.3g}")
+                update["roughness"] = float(f"{gd[i]:.4g}")
             if "feature_height" in touched[i]:
                 update["feature_height"] = round(height[i], 4)
             if "speed" in touched[i]:
@@ -137,6 +157,35 @@ class FitSpace:
         total = sum(e.share for e in entries)
         entries = [e.model_copy(update={"share": e.share / total}) for e in entries]
         return spec.model_copy(update={"mix": tuple(entries)})
+
+
+    def simulated(self, x: Sequence[float] | NDArray[np.float64]) -> CourseSpec:
+        """The course ridden for search point ``x``: ``course(x)`` with every entry over its
+        fixed search length (the shares then only weigh the entries)."""
+        return self.as_searched(self.course(x))
+
+    def as_searched(self, spec: CourseSpec) -> CourseSpec:
+        """``spec`` (a course with the start course's entries) with every entry over its search
+        length: how the search rides it."""
+        mix = tuple(
+            e.model_copy(update={"length": length})
+            for e, length in zip(spec.mix, self.lengths, strict=True)
+        )
+        return spec.model_copy(update={"mix": mix})
+
+
+def search_lengths(start: CourseSpec) -> tuple[float, ...]:
+    """Each entry's own length, else an equal part of the course, at least what its type
+    needs (its features and the lead-in)."""
+    n = len(start.mix)
+    out = []
+    for e in start.mix:
+        if e.length is not None:
+            out.append(e.length)
+            continue
+        needed = max(terrain_type(e.terrain).min_length, LEAD_IN + TAPER + 1.0)
+        out.append(max(start.length / n, needed))
+    return tuple(out)
 
 
 def fit_space(start: CourseSpec, kinds: Sequence[str] = KINDS) -> FitSpace:
@@ -166,4 +215,4 @@ def fit_space(start: CourseSpec, kinds: Sequence[str] = KINDS) -> FitSpace:
             knobs.append(
                 Knob(i, "share", min(-SHARE_RATIO, ratio), max(SHARE_RATIO, ratio), ratio)
             )
-    return FitSpace(start=start, knobs=tuple(knobs))
+    return FitSpace(start=start, knobs=tuple(knobs), lengths=search_lengths(start))

@@ -41,6 +41,7 @@ __all__ = [
     "ride_log_text",
     "ride_params",
     "ride_prepared",
+    "ride_segments",
     "simulate_ride",
     "with_faults",
 ]
@@ -99,51 +100,55 @@ def _resample(t_src: NDArray[np.floating], values: NDArray[np.floating], t_out: 
     return np.asarray(np.interp(t_out, t_src, values), dtype=np.float64)
 
 
+def ride_segments(
+    scenario: Scenario,
+    params: HalfCarParams,
+    prepared: PreparedCourse,
+    sample_rate_hz: float,
+) -> list[SimulatedRide]:
+    """Ride every segment of ``prepared`` (road inputs already built) with the one setup in
+    ``params``; one record per segment, each from time 0. A failed segment ends the list with
+    a record marked failed."""
+    if not (math.isfinite(sample_rate_hz) and sample_rate_hz > 0):
+        raise ValueError(f"sample_rate_hz must be > 0, got {sample_rate_hz}")
+    step = 1.0 / sample_rate_hz
+    out: list[SimulatedRide] = []
+    for road in prepared.roads:
+        every = max(1, int(math.floor(1.0 / (sample_rate_hz * road.dt) + 1e-9)))
+        result = simulate_halfcar(params, road, trace_every=every)
+        traces = result.traces
+        assert traces is not None
+        t_out = np.arange(0.0, road.duration + 1e-12, step)
+        if bool(result.failed[0]):
+            empty = np.zeros(0)
+            out.append(SimulatedRide(empty, empty, empty, empty, empty, None, sample_rate_hz,
+                                     failed=True))  # fmt: skip
+            break
+        t_road = np.arange(road.samples) * road.dt
+        vertical = _resample(traces.time, traces.front_travel[0], t_out)
+        fork = np.asarray(fork_travel_from_vertical(scenario, vertical), dtype=float)
+        out.append(
+            SimulatedRide(
+                time_s=t_out,
+                fork_travel_m=fork,
+                rear_travel_m=_resample(traces.time, traces.rear_travel[0], t_out),
+                speed_mps=_resample(t_road, road.speed, t_out),
+                accel_long_mps2=-_resample(t_road, road.decel, t_out),
+                setup_file=None,
+                sample_rate_hz=float(sample_rate_hz),
+            )
+        )
+    return out
+
+
 def ride_prepared(
     scenario: Scenario,
     params: HalfCarParams,
     prepared: PreparedCourse,
     sample_rate_hz: float,
 ) -> SimulatedRide:
-    """Ride ``prepared`` (road inputs already built) with the one setup in ``params``."""
-    if not (math.isfinite(sample_rate_hz) and sample_rate_hz > 0):
-        raise ValueError(f"sample_rate_hz must be > 0, got {sample_rate_hz}")
-    step = 1.0 / sample_rate_hz
-    times: list[FloatArray] = []
-    fork_travel: list[FloatArray] = []
-    rear_travel: list[FloatArray] = []
-    speeds: list[FloatArray] = []
-    accels: list[FloatArray] = []
-    start = 0.0
-    failed = False
-    for road in prepared.roads:
-        every = max(1, int(math.floor(1.0 / (sample_rate_hz * road.dt) + 1e-9)))
-        result = simulate_halfcar(params, road, trace_every=every)
-        traces = result.traces
-        assert traces is not None
-        if bool(result.failed[0]):
-            failed = True
-            break
-        t_out = np.arange(0.0, road.duration + 1e-12, step)
-        t_road = np.arange(road.samples) * road.dt
-        vertical = _resample(traces.time, traces.front_travel[0], t_out)
-        fork_travel.append(np.asarray(fork_travel_from_vertical(scenario, vertical), dtype=float))
-        rear_travel.append(_resample(traces.time, traces.rear_travel[0], t_out))
-        speeds.append(_resample(t_road, road.speed, t_out))
-        accels.append(-_resample(t_road, road.decel, t_out))
-        times.append(start + t_out)
-        start = float(times[-1][-1]) + step
-    empty = np.zeros(0)
-    return SimulatedRide(
-        time_s=np.concatenate(times) if times else empty,
-        fork_travel_m=np.concatenate(fork_travel) if times else empty,
-        rear_travel_m=np.concatenate(rear_travel) if times else empty,
-        speed_mps=np.concatenate(speeds) if times else empty,
-        accel_long_mps2=np.concatenate(accels) if times else empty,
-        setup_file=None,
-        sample_rate_hz=float(sample_rate_hz),
-        failed=failed,
-    )
+    """Ride ``prepared`` with the one setup in ``params``: the segments one after the other."""
+    return join_rides(ride_segments(scenario, params, prepared, sample_rate_hz))
 
 
 def prepare_spec(scenario: Scenario, spec: CourseSpec, seed: int) -> PreparedCourse:
