@@ -84,8 +84,8 @@ def row_sentence(
         lead = {
             "beyond noise": "differs beyond noise",
             "within noise": "differs within noise: either value does on both courses",
-            "small": f"differs by under {SMALL:.1%} of the score on either course: too little "
-            "to matter",
+            "small": f"differs by under {100 * SMALL:.1f} % of the score on either course: "
+            "too little to matter",
             "together": "matters only together with the other differing settings",
             "not scored": "could not be scored",
         }[verdict]
@@ -99,7 +99,7 @@ def cross_sentence(course: str, own: str, other: str, p: Paired | None, failure:
         return f"On {course} the winner of {other} cannot be ridden: {failure}."
     how = "worse beyond noise" if p.above else "better beyond noise" if p.below else "within noise"
     if (p.above or p.below) and p.small:
-        how += f", but by under {SMALL:.1%} of the score"
+        how += f", but by under {100 * SMALL:.1f} % of the score"
     return (
         f"On {course} the winner of {other} scores {_interval(p)} against the winner of {own}, "
         f"over {p.realisations} realisations neither search used: {how}."
@@ -145,7 +145,7 @@ def summary(
         )
     if by["small"]:
         out.append(
-            f"Beyond noise but by under {SMALL:.1%} of the score, too little to matter: "
+            f"Beyond noise but by under {100 * SMALL:.1f} % of the score, too little to matter: "
             f"{_listed(by['small'])}."
         )
     if by["within noise"] and any(r.marked for r in rows):
