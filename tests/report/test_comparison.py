@@ -273,3 +273,22 @@ def test_tyre_pressures_searched_in_one_study(dry_tyres_run: Path, wet_run: Path
     rows = compare_setting_rows(c, c.labels)
     notes = {r.key: r.note for r in rows}
     assert "(not searched)" not in notes["front_tyre_pressure"]
+
+
+def test_a_team_compares_wet_and_dry(
+    dry_run: Path, wet_run: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    """The team's day: two finished studies in, the terminal's summary in trade words, the
+    page and the data written where it says, with the cautions."""
+    from tuneopt.cli import main
+
+    out = tmp_path / "wet-vs-dry"
+    assert main(["compare", str(dry_run), str(wet_run), "--out", str(out)]) == 0
+    printed = capsys.readouterr().out
+    data = json.loads((out / "compare.json").read_text())
+    assert f"report: {out / 'compare.html'}" in printed
+    assert "on the dry course" in printed and "on the wet course" in printed
+    assert all(" ".join(c.split()[:4]) in " ".join(printed.split()) for c in CAUTIONS)
+    assert not INTERNAL_KEY.search(" ".join(data["summary"]))
+    page = read_page((out / "compare.html").read_text(encoding="utf-8"))
+    assert page.list_items["compare-summary"] == data["summary"]

@@ -56,7 +56,7 @@ def run(args: argparse.Namespace) -> int:
     from rich.table import Table
 
     from tuneopt.optimise.compare import compare_runs
-    from tuneopt.optimise.result import CAUTIONS
+    from tuneopt.optimise.result import CAUTIONS, json_safe
     from tuneopt.report.comparison import (
         COMPARISON_FILE,
         compare_setting_rows,
@@ -113,9 +113,3 @@ def run(args: argparse.Namespace) -> int:
     print(f"data: {args.out / 'compare.json'}")
     print(f"report: {page}")
     return 0
-
-
-def json_safe(value: Any) -> Any:
-    from tuneopt.optimise.result import json_safe as safe
-
-    return safe(value)
