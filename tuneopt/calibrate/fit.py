@@ -55,6 +55,7 @@ __all__ = [
 FloatArray = NDArray[np.float64]
 
 FAILED_SCORE = 100.0  # a course that cannot be built or ridden: far worse than any fit
+MIN_MEAN_SPEED = 1.0  # [m/s] a log whose mean riding speed is below this has no speed term
 
 
 @dataclass(frozen=True)
@@ -87,7 +88,9 @@ class FitProblem:
         self.setup = setup
         self.seeds = tuple(int(s) for s in seeds)
         self.rate = float(log.sample_rate_hz)
-        self.log = ride_samples(log)
+        # the log's distributions as at most MAX_SAMPLES_COMPARED quantiles each: an hour's
+        # log is then sorted once, not at every candidate
+        self.log = combine([ride_samples(log)], [1.0])
         for which, end in (("front", self.log.front), ("rear", self.log.rear)):
             if end.travel.size < 2 or end.speed.size < 2:
                 raise InputError.single(
@@ -121,7 +124,11 @@ class FitProblem:
         }
         total = ends["front"].score + ends["rear"].score
         speed_w1 = None
-        if self.log.riding_speed is not None and sim.riding_speed is not None:
+        if (
+            self.log.riding_speed is not None
+            and sim.riding_speed is not None
+            and float(np.mean(self.log.riding_speed)) > MIN_MEAN_SPEED
+        ):
             speed_w1 = distance(self.log.riding_speed, sim.riding_speed)
             total += speed_w1 / float(np.mean(self.log.riding_speed))
         return RideDistance(ends["front"], ends["rear"], speed_w1, total)

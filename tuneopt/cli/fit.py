@@ -160,7 +160,7 @@ def run(args: argparse.Namespace) -> int:
         print(line)
     for r in rows:
         mark = "" if r.firm else "  (the log barely tells)"
-        print(f"  {r.terrain:16s} {r.quantity:24s} {r.start:>26s} -> {r.fitted}{mark}")
+        print(f"  {r.terrain:16s} {r.quantity:44s} {r.start:>26s} -> {r.fitted}{mark}")
 
     header = [
         f"Written by tuneopt fit: {args.scenario} with its [course] fitted to the ride log",
