@@ -4,24 +4,30 @@ from __future__ import annotations
 
 from typing import Any
 
+from tests.report.results import entry, run_result
 from tuneopt.report.fresh_terrain import FLAT, flat_settings, fresh_terrain_lines
+from tuneopt.report.run_data import RunResult
 
 
-def _result(validation: dict[str, Any], steps: dict[str, Any]) -> dict[str, Any]:
-    return {
-        "labels": {"fork.lsc": "fork LSC", "fork.pressure": "fork pressure"},
-        "baseline": {"validation": {"realisations": 20, "bottom_out_risk": 0.1}},
-        "ranked": [
-            {
-                "score": 8.0,
-                "search_score": 7.8,
-                "validation": validation,
-                "flags": {"fork.pressure": "fork pressure at the low end of its range"},
-                "warnings": ["fork sag 34 % is above the usual 15-25 %"],
-                "steps": steps,
-            }
-        ],
-    }
+def _result(
+    validation: dict[str, Any], steps: dict[str, Any], settings: dict[str, str] | None = None
+) -> RunResult:
+    best = entry(
+        1,
+        score=8.0,
+        search_score=7.8,
+        validation=validation,
+        flags={"fork.pressure": "fork pressure at the low end of its range"},
+        warnings=["fork sag 34 % is above the usual 15-25 %"],
+        steps=steps,
+        settings=settings or {"fork.lsc": "5"},
+    )
+    baseline = entry(
+        0, validation={"realisations": 20, "bottom_out_risk": 0.1}, settings={"fork.lsc": "4"}
+    )
+    return run_result(
+        [best], baseline, labels={"fork.lsc": "fork LSC", "fork.pressure": "fork pressure"}
+    )
 
 
 def test_a_gain_beyond_noise_is_stated_with_its_interval() -> None:
@@ -63,8 +69,7 @@ def test_flat_settings_are_those_both_steps_barely_move() -> None:
 
 
 def test_a_winner_that_is_the_current_setup_says_so() -> None:
-    result = _result({"realisations": 20, "gain": 0.0, "gain_low": 0.0, "gain_high": 0.0,
-                      "wins": 0.0, "within_noise": True, "bottom_out_risk": 0.0}, {})  # fmt: skip
-    result["ranked"][0]["settings"] = {"fork.lsc": "4"}
-    result["baseline"]["settings"] = {"fork.lsc": "4"}
+    val = {"realisations": 20, "gain": 0.0, "gain_low": 0.0, "gain_high": 0.0, "wins": 0.0,
+           "within_noise": True, "bottom_out_risk": 0.0}  # fmt: skip
+    result = _result(val, {}, settings={"fork.lsc": "4"})
     assert "setup #1 is the current setup" in fresh_terrain_lines(result)[0]

@@ -44,14 +44,6 @@ def ride(label: str, *segments: SegmentTrace, **kw: float) -> SetupRide:
     return SetupRide(label=label, segments=tuple(segments), failure="", **values)  # type: ignore[arg-type]
 
 
-def test_thresholds_are_the_simulators() -> None:
-    from tuneopt.sim import _common
-
-    assert rp.BRAKING_THRESHOLD == _common.BRAKING_THRESHOLD
-    assert rp.CORNERING_THRESHOLD == _common.CORNERING_THRESHOLD
-    assert rp.UNLOADED_FRACTION == _common.UNLOADED_FRACTION
-
-
 def test_runs_match_a_plain_loop() -> None:
     rng = np.random.default_rng(5)
     for _ in range(50):

@@ -18,8 +18,9 @@ from tuneopt.optimise import build_space
 from tuneopt.optimise.evaluate import Evaluator
 from tuneopt.optimise.local import load_run
 from tuneopt.optimise.result import CAUTIONS
+from tuneopt.report import render_run_report, report_of
 from tuneopt.report.rides import ride_setups
-from tuneopt.report.run_report import flatten_inputs, render_run_report, report_of
+from tuneopt.report.run_page import flatten_inputs
 from tuneopt.sim.ride import prepare_course
 from tuneopt.terrain import build_course
 
@@ -214,4 +215,4 @@ def test_a_run_without_a_ridable_setup_still_has_a_page(
     assert page.figures == []
     assert page.list_items["cautions"] == list(CAUTIONS)
     assert table_by_first_cell(page.tables["static-table"][1:])["sag [% of stroke]"]
-    assert report.recommendation == [] and report.headline == ""
+    assert report.page.recommendation == () and report.page.headline == ""

@@ -9,6 +9,8 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
+from tests.report.results import entry, run_result
+from tuneopt.report.run_data import RunResult
 from tuneopt.report.tradeoff_plot import CANDIDATE_AXES, choose_axes, tradeoff_data
 
 
@@ -25,8 +27,8 @@ def metrics(rng: np.random.Generator, bottoming: bool = True) -> dict[str, float
     }
 
 
-def result_with(entries: list[dict[str, Any]]) -> dict[str, Any]:
-    return {"baseline": entries[0], "ranked": entries[1:]}
+def result_with(entries: list[dict[str, Any]]) -> RunResult:
+    return run_result([entry(**e) for e in entries[1:]], entry(**entries[0]))
 
 
 def test_non_dominated_set_matches_its_definition() -> None:

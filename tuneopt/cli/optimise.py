@@ -10,10 +10,8 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from tuneopt.model import InputError, load_scenario
+from tuneopt.model import InputError, Setup, load_scenario, setup_problems
 from tuneopt.model.loading import problems_from_validation
-from tuneopt.model.scenario import setup_problems
-from tuneopt.model.setup import Setup
 
 
 def register(sub: Any) -> None:
@@ -147,12 +145,10 @@ def _stop_on_sigterm() -> None:
 def run(args: argparse.Namespace) -> int:
     from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 
-    from tuneopt.optimise import StudyPlan, load_run, run_local, start_run
+    from tuneopt.optimise import SAMPLERS, StudyPlan, load_run, run_local, start_run
     from tuneopt.optimise.evaluate import DEFAULT_REALISATIONS
-    from tuneopt.optimise.runner import SAMPLERS
     from tuneopt.optimise.validation import DEFAULT_VALIDATION
-    from tuneopt.report.ranked_table import print_ranking
-    from tuneopt.report.run_report import write_run_report
+    from tuneopt.report import print_ranking, write_run_report
 
     _arguments(args)
     _stop_on_sigterm()

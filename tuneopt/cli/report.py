@@ -35,7 +35,7 @@ def run(args: argparse.Namespace) -> int:
             raise InputError.single("run_dir", "give RUN_DIR or --compare DIR_A DIR_B, not both")
         if args.out is None:
             raise InputError.single("--out", "the comparison report needs a file to write")
-        from tuneopt.report.comparison import write_comparison
+        from tuneopt.report import write_comparison
 
         path = write_comparison(args.compare[0], args.compare[1], args.out)
     else:
@@ -43,7 +43,7 @@ def run(args: argparse.Namespace) -> int:
             raise InputError.single("run_dir", "give RUN_DIR or --compare DIR_A DIR_B")
         if args.out is not None:
             raise InputError.single("--out", "a run's report is written into its folder")
-        from tuneopt.report.run_report import write_run_report
+        from tuneopt.report import write_run_report
 
         path = write_run_report(args.run_dir, args.rank or (1,), not args.no_exports)
     print(f"report: {path}")

@@ -30,7 +30,7 @@ def register(sub: Any) -> None:
 def run(args: argparse.Namespace) -> int:
     from tuneopt.model import InputError, load_scenario
     from tuneopt.optimise.result import CAUTIONS
-    from tuneopt.report.ride_log_page import write_ride_log_page
+    from tuneopt.report import write_ride_log_page
     from tuneopt.ridelog import load_ridden_setup, read_ride_log
     from tuneopt.ridelog.summary import summarise_ride_log
     from tuneopt.ridelog.words import summary_data, summary_lines

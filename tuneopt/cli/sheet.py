@@ -23,9 +23,9 @@ def register(sub: Any) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from tuneopt.model import InputError
-    from tuneopt.report.day_scenario import read_study
-    from tuneopt.report.setup_sheet import (
+    from tuneopt.report import (
         build_setup_sheets,
+        read_study,
         setup_sheet_lines,
         write_setup_sheets,
     )

@@ -146,7 +146,7 @@ def _wait(api: str, job: str) -> dict[str, Any]:
 
 
 def _show_result(api: str, job: str, as_json: bool) -> None:
-    from tuneopt.report.ranked_table import print_ranking
+    from tuneopt.report import print_ranking
 
     data = _request(api, "GET", f"/jobs/{job}/result")
     if as_json:

@@ -73,7 +73,7 @@ def write_course(
     ``.front_tyre.outer_radius`` / ``.rear_tyre.outer_radius`` [m]. Raises InputError on bad
     input.
     """
-    from tuneopt.report.terrain_plot import draw_segment_plot, segment_plot_data
+    from tuneopt.report import draw_segment_plot, segment_plot_data
     from tuneopt.terrain import build_course, wheel_inputs
 
     stream = stream if stream is not None else sys.stdout

@@ -26,7 +26,7 @@ def register(sub: Any) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from tuneopt.model import InputError
-    from tuneopt.report.day_scenario import read_study
+    from tuneopt.report import read_study
 
     out = args.out or args.study_dir
     if out.exists() and not out.is_dir():
@@ -48,10 +48,14 @@ def _plan(
     units: dict[str, str],
 ) -> int:
     from tuneopt.optimise.space import build_space
-    from tuneopt.report.day_pages import render_day_page
-    from tuneopt.report.day_scenario import SETTINGS_FILE, day_settings_text
-    from tuneopt.report.setup_sheet import PLAN_FILE
-    from tuneopt.report.test_day import build_test_day, test_day_lines
+    from tuneopt.report import (
+        PLAN_FILE,
+        SETTINGS_FILE,
+        build_test_day,
+        day_settings_text,
+        render_day_page,
+        test_day_lines,
+    )
 
     plan = build_test_day(scenario, result, units)
     print("\n".join(test_day_lines(plan)))
@@ -82,8 +86,7 @@ def _bring_back(
     scenario: Any,
     result: dict[str, Any],
 ) -> int:
-    from tuneopt.report.day_scenario import read_chosen, successor_path, write_successor
-    from tuneopt.report.test_day import dialed_rows
+    from tuneopt.report import dialed_rows, read_chosen, successor_path, write_successor
 
     chosen = read_chosen(args.chosen)
     cautions = list(result.get("cautions") or [])

@@ -1,5 +1,6 @@
 """Input and output schemas: rider, bike, suspension hardware, tyres, setup, scenario."""
 
+from tuneopt.model._quantity import convert
 from tuneopt.model.bike import Bike
 from tuneopt.model.damper import (
     Adjuster,
@@ -47,6 +48,7 @@ __all__ = [
     "Shock",
     "Spring",
     "Tyre",
+    "convert",
     "load_scenario",
     "scenario_from_data",
     "setup_problems",

@@ -122,8 +122,8 @@ step (a small number means the setup is forgiving of a click or a pump reading).
 
 <section id="tradeoffs">
 <h2>Trade-offs</h2>
-{% if r.figures.tradeoff %}
-<figure>{{ r.figures.tradeoff }}
+{% if figures.tradeoff %}
+<figure>{{ figures.tradeoff }}
 <figcaption>{{ r.tradeoff_caption }}</figcaption></figure>
 {% else %}<p class="note">No trials to plot.</p>{% endif %}
 </section>
@@ -132,19 +132,19 @@ step (a small number means the setup is forgiving of a click or a pump reading).
 <section id="rides" class="page">
 <h2>On the trail: {{ r.ride_labels | join(" against ") }}</h2>
 <p class="note">{{ r.ride_note }}</p>
-<figure id="tyre-loads">{{ r.figures.tyre_loads }}
+<figure id="tyre-loads">{{ figures.tyre_loads }}
 <figcaption>Tyre load over a representative stretch (the window whose load variation is the
 median of the segment's). Shaded: time a tyre carries under {{ r.unloaded_percent }} % of its
 static load.</figcaption></figure>
-<figure id="travel">{{ r.figures.travel }}
+<figure id="travel">{{ figures.travel }}
 <figcaption>Where in its travel each wheel spends its time over the whole course. The red zone
 is past full travel (the bottom-out bumper).</figcaption></figure>
-{% if r.figures.braking %}
-<figure id="braking">{{ r.figures.braking }}
+{% if figures.braking %}
+<figure id="braking">{{ figures.braking }}
 <figcaption>Pitch and fork dive through the course's longest braking zone (shaded).
 </figcaption></figure>
 {% endif %}
-<figure id="load-split">{{ r.figures.load_split }}
+<figure id="load-split">{{ figures.load_split }}
 <figcaption>The front tyre's share of the summed tyre loads, over the whole ride and in the
 braking and cornering phases (time in each phase below its name).</figcaption></figure>
 </section>
@@ -169,10 +169,10 @@ braking and cornering phases (time in each phase below its name).</figcaption></
 spring rates N/m, damping N·s/m, volumes m³, angles degrees.</p>
 <dl class="inputs">{% for k, v in r.inputs %}<div><dt>{{ k }}</dt><dd>{{ v }}</dd></div>
 {% endfor %}</dl>
-{% if r.exports %}
+{% if files %}
 <h3>Files</h3>
 <p class="note">Next to this report, in the run folder:</p>
-<ul id="exports">{% for e in r.exports %}<li>
+<ul id="exports">{% for e in files %}<li>
 {% if e.endswith(".html") %}<a href="{{ e }}">{{ e }}</a>{% else %}{{ e }}{% endif %}</li>
 {% endfor %}</ul>
 {% endif %}

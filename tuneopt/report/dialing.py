@@ -13,8 +13,7 @@ import re
 from collections.abc import Mapping
 from typing import Any
 
-from tuneopt.model import AirSpring, Scenario
-from tuneopt.model._quantity import convert
+from tuneopt.model import AirSpring, Scenario, convert
 
 __all__ = [
     "KIND_ORDER",

@@ -11,6 +11,7 @@ from typing import Any
 import pandas as pd
 
 from tuneopt.report.rides import SetupRide
+from tuneopt.report.run_data import RunResult
 
 __all__ = ["file_tag", "ranked_frame", "traces_frame", "write_exports"]
 
@@ -20,24 +21,23 @@ def file_tag(label: str) -> str:
     return "current" if label == "now" else "rank" + label.lstrip("#")
 
 
-def ranked_frame(result: dict[str, Any]) -> pd.DataFrame:
+def ranked_frame(result: RunResult) -> pd.DataFrame:
     """Every reported setup as a row: rank (0 = current), score, robustness, settings in trade
     units and SI, metrics (SI), relative change against the current setup, sag [%]."""
-    entries = ([result["baseline"]] if result.get("baseline") else []) + list(result["ranked"])
     rows = []
-    for e in entries:
+    for e in result.entries:
         row: dict[str, Any] = {
-            "rank": e["rank"],
-            "trial": e["trial"],
-            "score": e["score"],
-            "robustness": e.get("robustness"),
+            "rank": e.rank,
+            "trial": e.trial,
+            "score": e.score,
+            "robustness": e.robustness,
         }
-        row.update({f"setting:{k}": v for k, v in e["settings"].items()})
-        row.update({f"setting_si:{k}": v for k, v in e["settings_si"].items()})
-        row.update({f"metric:{k}": v for k, v in e["metrics"].items()})
-        row.update({f"change:{k}": v for k, v in e.get("change_vs_baseline", {}).items()})
-        row.update({f"sag_percent:{k}": v for k, v in e.get("sag", {}).items()})
-        row["tradeoff"] = e.get("tradeoff", "")
+        row.update({f"setting:{k}": v for k, v in e.settings.items()})
+        row.update({f"setting_si:{k}": v for k, v in e.settings_si.items()})
+        row.update({f"metric:{k}": v for k, v in e.metrics.items()})
+        row.update({f"change:{k}": v for k, v in e.change_vs_baseline.items()})
+        row.update({f"sag_percent:{k}": v for k, v in e.sag.items()})
+        row["tradeoff"] = e.tradeoff
         rows.append(row)
     return pd.DataFrame(rows)
 
@@ -74,7 +74,7 @@ def _plain(value: Any) -> Any:
     raise TypeError(f"cannot write {type(value).__name__} to JSON")
 
 
-def write_exports(folder: Path, result: dict[str, Any], rides: Sequence[SetupRide]) -> list[Path]:
+def write_exports(folder: Path, result: RunResult, rides: Sequence[SetupRide]) -> list[Path]:
     """Write ranked_setups.csv/.json and traces_<setup>.csv into ``folder``; return the paths."""
     folder.mkdir(parents=True, exist_ok=True)
     table = ranked_frame(result)

@@ -7,7 +7,7 @@ the edge of what was searched, and the static check's warnings about the recomme
 
 from __future__ import annotations
 
-from typing import Any
+from tuneopt.report.run_data import RunResult
 
 __all__ = ["FLAT", "flat_settings", "fresh_terrain_lines", "setting_notes"]
 
@@ -20,36 +20,37 @@ def _pct(v: float) -> str:
     return f"{100 * v:.1f} %"
 
 
-def fresh_terrain_lines(result: dict[str, Any]) -> list[str]:
+def fresh_terrain_lines(result: RunResult) -> list[str]:
     """Sentences on the winner against the current setup on fresh terrain, its bottom-out risk,
     its flags and its static warnings (empty when there is no winner)."""
-    if not result.get("ranked"):
+    if not result.ranked:
         return []
-    best = result["ranked"][0]
-    val = best.get("validation") or {}
+    best = result.ranked[0]
+    val = best.validation
     lines: list[str] = []
-    n = val.get("realisations")
-    now = (result.get("baseline") or {}).get("settings")
-    if best.get("baseline") or (now is not None and best.get("settings") == now):
+    n = val.realisations
+    now = result.baseline.settings if result.baseline else None
+    if best.baseline or (now is not None and best.settings == now):
         lines.append(
             "The search found no setup better than the current one on fresh terrain: setup #1 "
             "is the current setup."
         )
-    elif n and "gain" in val:
-        wins = round(val["wins"] * n)
-        if val["within_noise"]:
+    elif n and val.gain is not None:
+        gain = val.gain
+        wins = round(gain.wins * n)
+        if gain.within_noise:
             lines.append(
                 f"On {n} terrain realisations the search never saw, setup #1 and the current "
-                f"setup are within noise of each other: #1 is {_pct(val['gain'])} better on "
-                f"average, 95 % interval {_pct(val['gain_low'])} to {_pct(val['gain_high'])}, "
+                f"setup are within noise of each other: #1 is {_pct(gain.gain)} better on "
+                f"average, 95 % interval {_pct(gain.low)} to {_pct(gain.high)}, "
                 f"and scores better on {wins} of {n}. Changing the setup is not shown to help."
             )
         else:
-            word = "better" if val["gain"] > 0 else "worse"
+            word = "better" if gain.gain > 0 else "worse"
             lines.append(
                 f"On {n} terrain realisations the search never saw, setup #1 scores "
-                f"{_pct(abs(val['gain']))} {word} than the current setup (95 % interval "
-                f"{_pct(val['gain_low'])} to {_pct(val['gain_high'])} better) and scores "
+                f"{_pct(abs(gain.gain))} {word} than the current setup (95 % interval "
+                f"{_pct(gain.low)} to {_pct(gain.high)} better) and scores "
                 f"better on {wins} of {n}."
             )
     elif n:
@@ -62,44 +63,41 @@ def fresh_terrain_lines(result: dict[str, Any]) -> list[str]:
             "Setup #1 was not re-scored on fresh terrain: its score is the search's own and "
             "flatters it (the best of many tries on the same terrain)."
         )
-    base_val = (result.get("baseline") or {}).get("validation") or {}
-    if n and "bottom_out_risk" in val:
-        own = round(val["bottom_out_risk"] * n)
+    base_risk = result.baseline.validation.bottom_out_risk if result.baseline else None
+    if n and val.bottom_out_risk is not None:
+        own = round(val.bottom_out_risk * n)
         text = f"Setup #1 bottomed out on {own} of {n} fresh realisations"
-        if "bottom_out_risk" in base_val:
-            text += f"; the current setup on {round(base_val['bottom_out_risk'] * n)} of {n}"
+        if base_risk is not None:
+            text += f"; the current setup on {round(base_risk * n)} of {n}"
         lines.append(text + ".")
     flat = flat_settings(result)
-    labels = result.get("labels", {})
     if flat:
-        parts = [f"{labels.get(k, k)} ({100 * v:.1f} %)" for k, v in flat.items()]
+        parts = [f"{result.label(k)} ({100 * v:.1f} %)" for k, v in flat.items()]
         lines.append(
             "These settings barely matter on this course (one step either way moves the score "
             f"by less than {100 * FLAT:.1f} %, largest change shown): " + ", ".join(parts) + "."
         )
-    for name, sides in best.get("steps", {}).items():
+    for name, sides in best.steps.items():
         for side, value in sides.items():
             if value in ("outside the sag window", "failed"):
                 what = "leaves the sag window" if value != "failed" else "could not be ridden"
-                lines.append(
-                    f"One step {side} on {labels.get(name, name)} {what}: set it exactly."
-                )
-    for note in best.get("flags", {}).values():
+                lines.append(f"One step {side} on {result.label(name)} {what}: set it exactly.")
+    for note in best.flags.values():
         lines.append(f"Edge: {note}.")
-    for warning in best.get("warnings", []):
+    for warning in best.warnings:
         lines.append(f"Static check on setup #1: {warning}")
     return lines
 
 
-def flat_settings(result: dict[str, Any]) -> dict[str, float]:
+def flat_settings(result: RunResult) -> dict[str, float]:
     """Settings of the winner whose robustness steps both move the score by less than FLAT of
     it, with the larger relative change (steps without a number, at a range end, count as 0)."""
-    if not result.get("ranked"):
+    if not result.ranked:
         return {}
-    best = result["ranked"][0]
-    score = abs(float(best.get("search_score") or best["score"])) or 1.0
+    best = result.ranked[0]
+    score = abs(float(best.search_score or best.score)) or 1.0
     out: dict[str, float] = {}
-    for name, sides in best.get("steps", {}).items():
+    for name, sides in best.steps.items():
         deltas = [abs(v) for v in sides.values() if isinstance(v, int | float)]
         if len(deltas) < len(sides) and any(
             v != "end of range" for v in sides.values() if isinstance(v, str)
@@ -110,8 +108,8 @@ def flat_settings(result: dict[str, Any]) -> dict[str, float]:
     return out
 
 
-def setting_notes(result: dict[str, Any]) -> dict[str, str]:
+def setting_notes(result: RunResult) -> dict[str, str]:
     """The winner's edge flags by setting key (sag flags under "fork.sag"/"shock.sag")."""
-    if not result.get("ranked"):
+    if not result.ranked:
         return {}
-    return dict(result["ranked"][0].get("flags", {}))
+    return dict(result.ranked[0].flags)

@@ -6,6 +6,7 @@ across a row to see how one setting moves between the candidates.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import Any
 
 from rich.console import Console
@@ -13,6 +14,7 @@ from rich.markup import escape
 from rich.table import Table
 
 from tuneopt.report.fresh_terrain import fresh_terrain_lines
+from tuneopt.report.run_data import RunResult, SetupEntry, read_result
 
 __all__ = ["print_ranking", "ranking_columns"]
 
@@ -43,62 +45,64 @@ SHOWN_METRICS = (
 )
 
 
-def ranking_columns(data: dict[str, Any]) -> tuple[list[str], list[list[str]]]:
+def ranking_columns(result: RunResult) -> tuple[list[str], list[list[str]]]:
     """Column headers and rows of display strings (pure, testable)."""
-    entries = ([data["baseline"]] if data.get("baseline") else []) + list(data["ranked"])
-    headers = ["", *("now" if e["rank"] == 0 else f"#{e['rank']}" for e in entries)]
+    entries = result.entries
+    headers = ["", *(e.label for e in entries)]
     rows: list[list[str]] = []
-    names = list(entries[0]["settings"]) if entries else []
-    labels = data.get("labels", {})
+    names = list(entries[0].settings) if entries else []
     for name in names:
-        rows.append([labels.get(name, name), *(e["settings"][name] for e in entries)])
-    rows.append(["score (lower is better)", *(f"{e['score']:.3f}" for e in entries)])
+        rows.append([result.label(name), *(e.settings[name] for e in entries)])
+    rows.append(["score (lower is better)", *(f"{e.score:.3f}" for e in entries)])
 
-    def vs_now(e: dict[str, Any]) -> str:
-        change = e.get("change_vs_baseline", {}).get("score")
-        return "" if e["rank"] == 0 or change is None else f"{change:+.1%}"
+    def vs_now(e: SetupEntry) -> str:
+        change = e.change_vs_baseline.get("score")
+        return "" if e.rank == 0 or change is None else f"{change:+.1%}"
 
     rows.append(["score vs now", *(vs_now(e) for e in entries)])
     rows.append(
         [
             "score rise one step either side",
-            *("" if e.get("robustness") is None else f"+{e['robustness']:.3f}" for e in entries),
+            *("" if e.robustness is None else f"+{e.robustness:.3f}" for e in entries),
         ]
     )
     for key, label, fmt in SHOWN_METRICS:
         scale = 1e3 if "[mm]" in label else 1.0
         cells = []
         for e in entries:
-            value = e["metrics"].get(key)
+            value = e.metrics.get(key)
             cells.append("" if value is None else fmt.format(value * scale))
         rows.append([label, *cells])
     rows.append(
         [
             "sag fork / shock [%]",
-            *(f"{e['sag'].get('fork', 0):.0f} / {e['sag'].get('shock', 0):.0f}" for e in entries),
+            *(f"{e.sag.get('fork', 0):.0f} / {e.sag.get('shock', 0):.0f}" for e in entries),
         ]
     )
     return headers, rows
 
 
-def print_ranking(data: dict[str, Any], console: Console | None = None) -> None:
+def print_ranking(data: RunResult | Mapping[str, Any], console: Console | None = None) -> None:
+    """The ranked setups, their trade-offs, the trial counts, what fresh terrain says and the
+    cautions, on the terminal. ``data``: result.json's data or a ``RunResult``."""
+    result = read_result(data)
     console = console or Console(width=max(Console().width, 120))
-    headers, rows = ranking_columns(data)
-    table = Table(title=f"Ranked setups: {data.get('scenario', '')}")
+    headers, rows = ranking_columns(result)
+    table = Table(title=f"Ranked setups: {result.scenario}")
     for i, h in enumerate(headers):
         table.add_column(h, justify="left" if i == 0 else "right")
     for row in rows:
         table.add_row(*(escape(cell) for cell in row))
     console.print(table)
-    for e in data["ranked"][1:]:
-        if e.get("tradeoff"):
-            console.print(f"  {e['tradeoff']}")
-    t = data["trials"]
+    for e in result.ranked[1:]:
+        if e.tradeoff:
+            console.print(f"  {e.tradeoff}")
+    t = result.trials
     console.print(
-        f"{t['finished']} trials finished ({t['infeasible']} outside the sag windows, "
-        f"{t['failed']} failed)."
+        f"{t.finished} trials finished ({t.infeasible} outside the sag windows, "
+        f"{t.failed} failed)."
     )
-    for line in fresh_terrain_lines(data):
+    for line in fresh_terrain_lines(result):
         console.print(escape(line))
-    for c in data["cautions"]:
+    for c in result.cautions:
         console.print(f"[dim]- {c}[/]")

@@ -18,11 +18,9 @@ from numpy.typing import NDArray
 
 from tuneopt.report.rides import SetupRide
 from tuneopt.report.terrain_plot import spans
+from tuneopt.sim import BRAKING_THRESHOLD, CORNERING_THRESHOLD, UNLOADED_FRACTION
 
 __all__ = [
-    "BRAKING_THRESHOLD",
-    "CORNERING_THRESHOLD",
-    "UNLOADED_FRACTION",
     "BrakingPlotData",
     "LoadSplit",
     "TravelHistogram",
@@ -41,11 +39,6 @@ __all__ = [
 ]
 
 FloatArray = NDArray[np.float64]
-
-# The simulator's own phase and unloading thresholds (tests hold them equal).
-BRAKING_THRESHOLD = 0.5  # [m/s^2]
-CORNERING_THRESHOLD = 1.0  # [m/s^2]
-UNLOADED_FRACTION = 0.1  # of the static tyre load [-]
 
 COLOURS = ("0.35", "tab:blue", "tab:orange", "tab:green", "tab:purple", "tab:brown")
 

@@ -14,9 +14,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tuneopt.model import Scenario, Setup
-from tuneopt.sim import simulate_halfcar
-from tuneopt.sim.build import halfcar_params
-from tuneopt.sim.ride import prepare_scenario_course
+from tuneopt.sim import halfcar_params, prepare_scenario_course, simulate_halfcar
 
 __all__ = ["SegmentTrace", "SetupRide", "ride_setups"]
 

@@ -7,14 +7,15 @@ Numbers first (``tradeoff_data``), drawing second (``draw_tradeoff``).
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 
-from tuneopt.optimise.ranking import pareto_front
+from tuneopt.optimise import pareto_front
+from tuneopt.report.run_data import RunResult
 
 __all__ = [
     "AXES",
@@ -50,7 +51,7 @@ AXES = CANDIDATE_AXES[:3]
 
 
 def axis_values(
-    metrics: dict[str, float | None],
+    metrics: Mapping[str, float | None],
     axes: tuple[tuple[str, tuple[str, ...], float], ...] = AXES,
 ) -> FloatArray | None:
     """A setup's position on ``axes``, or None when a metric is missing."""
@@ -64,7 +65,7 @@ def axis_values(
 
 
 def choose_axes(
-    trial_metrics: Sequence[dict[str, float | None]],
+    trial_metrics: Sequence[Mapping[str, float | None]],
 ) -> tuple[tuple[str, tuple[str, ...], float], ...]:
     """The first three candidate axes on which the trials differ (a flat axis, such as
     bottom-outs on a course where nothing bottoms out, shows nothing); the first three
@@ -92,7 +93,7 @@ class TradeoffData:
 
 
 def tradeoff_data(
-    trial_metrics: Sequence[dict[str, float | None]], result: dict[str, Any]
+    trial_metrics: Sequence[Mapping[str, float | None]], result: RunResult
 ) -> TradeoffData:
     """Collect the trade-off picture from the trials' metrics and result.json's data."""
     axes = choose_axes(trial_metrics)
@@ -101,12 +102,11 @@ def tradeoff_data(
     front = np.zeros(points.shape[0], dtype=bool)
     if points.shape[0]:
         front[pareto_front(points)] = True
-    entries = ([result["baseline"]] if result.get("baseline") else []) + list(result["ranked"])
     marks = []
-    for e in entries:
-        pos = axis_values(e["metrics"], axes)
+    for e in result.entries:
+        pos = axis_values(e.metrics, axes)
         if pos is not None:
-            marks.append(("now" if e["rank"] == 0 else f"#{e['rank']}", pos))
+            marks.append((e.label, pos))
     labels = (axes[0][0], axes[1][0], axes[2][0])
     return TradeoffData(labels, points, front, tuple(marks))
 

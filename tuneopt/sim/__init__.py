@@ -4,7 +4,14 @@ Each simulator takes plain parameter objects with a leading batch axis B (one ro
 one ``RoadInput``, and returns a frozen result with named (B,) metric arrays.
 """
 
-from tuneopt.sim._common import BOTTOM_OUT_FULL_DEPTH, RIM_STRIKE_FULL_DEPTH
+from tuneopt.sim._common import (
+    BOTTOM_OUT_FULL_DEPTH,
+    BRAKING_THRESHOLD,
+    CORNERING_THRESHOLD,
+    RIM_STRIKE_FULL_DEPTH,
+    UNLOADED_FRACTION,
+)
+from tuneopt.sim.build import halfcar_params
 from tuneopt.sim.halfcar import (
     HalfCarResult,
     HalfCarTraces,
@@ -34,11 +41,15 @@ from tuneopt.sim.quartercar import (
     simulate_quartercar,
     simulate_quartercar_reference,
 )
+from tuneopt.sim.ride import prepare_scenario_course
 from tuneopt.sim.road import RoadInput, distance_derivative, road_input_from_wheel_inputs
 
 __all__ = [
     "BOTTOM_OUT_FULL_DEPTH",
+    "BRAKING_THRESHOLD",
+    "CORNERING_THRESHOLD",
     "RIM_STRIKE_FULL_DEPTH",
+    "UNLOADED_FRACTION",
     "FailureReason",
     "GripPhase",
     "HalfCarParams",
@@ -55,6 +66,8 @@ __all__ = [
     "WheelEnd",
     "WheelMetrics",
     "distance_derivative",
+    "halfcar_params",
+    "prepare_scenario_course",
     "road_input_from_wheel_inputs",
     "simulate_halfcar",
     "simulate_halfcar_reference",
