@@ -20,7 +20,7 @@ course were easy.
 
 from __future__ import annotations
 
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -124,6 +124,7 @@ class Evaluator:
         *,
         seeds: Sequence[int] | None = None,
         keep_courses: bool = True,
+        checkpoint: Callable[[], None] | None = None,
     ):
         if scenario.course is None:
             raise InputError.single("course", "missing: the optimiser needs a terrain mix")
@@ -141,9 +142,7 @@ class Evaluator:
         # kept, every batch rides them; an evaluator used once (the validation's) builds each
         # when it rides it and lets it go, so 24 long realisations never sit in memory at once
         self._kept: tuple[PreparedCourse, ...] | None = (
-            tuple(prepare_scenario_course(scenario, s, dt) for s in self.seeds)
-            if keep_courses
-            else None
+            tuple(_built(scenario, self.seeds, dt, checkpoint)) if keep_courses else None
         )
         self.windows = sag_windows(scenario)
 
@@ -201,10 +200,12 @@ class Evaluator:
         *,
         race: RacePolicy | None = None,
         reference: Sequence[float] | None = None,
+        checkpoint: Callable[[], None] | None = None,
     ) -> list[Outcome]:
         """Score ``setups`` on every realisation, or race them (``race``) against each other
         and against ``reference``, the per-realisation scores of the study's best setup so far
-        (over all of this evaluator's realisations)."""
+        (over all of this evaluator's realisations). ``checkpoint`` is called before each
+        realisation is ridden; it may raise to stop the evaluation there."""
         if reference is not None and len(reference) != self.realisations:
             reference = None  # a leader scored on other realisations cannot be paired
         statics = [self._static(s) for s in setups]
@@ -223,6 +224,8 @@ class Evaluator:
             rows = np.flatnonzero(active)
             if rows.size == 0:
                 break
+            if checkpoint is not None:
+                checkpoint()
             picked = [feasible[j] for j in rows]
             params = halfcar_params(
                 self.scenario,
@@ -333,6 +336,17 @@ class Evaluator:
             if ridden.any():
                 out[j] = float(np.mean(row[ridden] - difficulty[ridden]))
         return out
+
+
+def _built(
+    scenario: Scenario, seeds: Sequence[int], dt: float, checkpoint: Callable[[], None] | None
+) -> Iterator[PreparedCourse]:
+    """The realisations, built in turn; ``checkpoint`` is called before each (it may raise to
+    stop there: a long course takes seconds per realisation)."""
+    for seed in seeds:
+        if checkpoint is not None:
+            checkpoint()
+        yield prepare_scenario_course(scenario, seed, dt)
 
 
 def _mean(sums: dict[str, float], count: int) -> dict[str, float]:

@@ -33,6 +33,7 @@ from tuneopt.optimise.evaluate import Evaluator, Outcome, RacePolicy
 from tuneopt.optimise.space import SearchSpace
 
 __all__ = [
+    "BatchStopped",
     "INFEASIBLE_PENALTY",
     "UNTAGGED_AFTER",
     "ask_batch",
@@ -188,6 +189,24 @@ def shard_owner(shard: int) -> str:
     return f"{socket.gethostname()}:{os.getpid()}:{_PROCESS_TOKEN}:{shard}"
 
 
+class BatchStopped(Exception):
+    """Raised between two pieces of a batch when the shard must stop (a stop request or the
+    deadline): the batch's trials not yet told are queued again."""
+
+
+def _requeue(study: optuna.Study, trial_id: int, number: int, params: dict[str, Any],
+             baseline: bool) -> bool:  # fmt: skip
+    """Fail a trial that will not be told (marked ``reaped``: it does not count as finished)
+    and enqueue its point again; False when it was told meanwhile (nothing to do)."""
+    try:
+        study._storage.set_trial_user_attr(trial_id, "reaped", True)
+    except optuna.exceptions.UpdateFinishedTrialError:
+        return False  # its owner, alive after all (a paused worker), told it meanwhile
+    study.tell(number, state=TrialState.FAIL, skip_if_finished=True)
+    study.enqueue_trial(dict(params), user_attrs={"baseline": True} if baseline else None)
+    return True
+
+
 def reap_stale_trials(
     study: optuna.Study, owner_prefix: str = "", untagged_after: float = UNTAGGED_AFTER
 ) -> int:
@@ -208,14 +227,8 @@ def reap_stale_trials(
                 continue
         elif not str(owner).startswith(owner_prefix):
             continue
-        try:
-            study._storage.set_trial_user_attr(t._trial_id, "reaped", True)
-        except optuna.exceptions.UpdateFinishedTrialError:
-            continue  # its owner, alive after all (a paused worker), told it meanwhile
-        study.tell(t.number, state=TrialState.FAIL, skip_if_finished=True)
-        attrs = {"baseline": True} if t.user_attrs.get("baseline") else None
-        study.enqueue_trial(dict(t.params), user_attrs=attrs)
-        reaped += 1
+        if _requeue(study, t._trial_id, t.number, t.params, bool(t.user_attrs.get("baseline"))):
+            reaped += 1
     return reaped
 
 
@@ -285,10 +298,15 @@ def scenario_points(
     each other and against ``reference`` (the leader's per-realisation scores) with ``race``."""
 
     def evaluate(
-        points: list[dict[str, int]], reference: list[float] | None = None
+        points: list[dict[str, int]],
+        reference: list[float] | None = None,
+        checkpoint: Callable[[], None] | None = None,
     ) -> list[Outcome]:
         return evaluator.evaluate(
-            [space.setup(p) for p in points], race=race, reference=reference
+            [space.setup(p) for p in points],
+            race=race,
+            reference=reference,
+            checkpoint=checkpoint,
         )
 
     return evaluate
@@ -318,14 +336,20 @@ def run_shard(
     on_batch: Callable[[Progress], None] | None = None,
     clock: Callable[[], float] = time.time,
     ask_lock: Callable[[], AbstractContextManager[Any]] | None = None,
+    piece_steps: int | None = None,
 ) -> int:
     """Ask, evaluate and tell batches until the budget, the deadline or ``should_stop()``.
 
     ``space`` is a scenario's search space (then ``evaluate`` is its Evaluator), or plain
     optuna distributions with a function scoring a list of points. ``ask_lock`` makes a lock
     that the shards of one study share: counting the trials and asking the next batch happen
-    under it, so shards asking at the same moment never ask past the budget. Returns the number
-    of trials this shard finished."""
+    under it, so shards asking at the same moment never ask past the budget.
+
+    ``piece_steps`` (simulated time steps x setups) makes stops act within a batch: the batch
+    is evaluated in pieces of about that cost (sub-batches of setups, one terrain realisation
+    at a time), with ``should_stop()`` and the deadline checked between pieces; the trials a
+    stop leaves untold are queued again. Without it, a batch runs to its end (local runs).
+    Returns the number of trials this shard finished."""
     owner = shard_owner(shard)
     realisations = 0
     if isinstance(space, SearchSpace):
@@ -337,6 +361,12 @@ def run_shard(
         dists = space
         assert not isinstance(evaluate, Evaluator)
         evaluate_points = evaluate
+    per_piece = _setups_per_piece(evaluate, piece_steps)
+
+    def checkpoint() -> None:
+        if should_stop() or (plan.deadline is not None and clock() >= plan.deadline):
+            raise BatchStopped
+
     started, done = clock(), 0
     while True:
         if should_stop():
@@ -357,16 +387,48 @@ def run_shard(
         if not batch:
             break
         points = [{k: int(v) for k, v in t.params.items()} for t in batch]
-        if realisations:
-            outcomes = evaluate_points(points, leader_scores(trials, realisations))
-        else:
-            outcomes = evaluate_points(points)
-        for trial, outcome in zip(batch, outcomes, strict=True):
-            _tell(study, trial, outcome)
-        done += len(batch)
-        if on_batch is not None:
+        reference = leader_scores(trials, realisations) if realisations else None
+        told = 0
+        try:
+            for lo in range(0, len(batch), per_piece or len(batch)):
+                hi = min(lo + (per_piece or len(batch)), len(batch))
+                if not per_piece:
+                    outcomes = (
+                        evaluate_points(points, reference) if realisations
+                        else evaluate_points(points)
+                    )  # fmt: skip
+                elif realisations:
+                    outcomes = evaluate_points(points[lo:hi], reference, checkpoint)
+                else:
+                    checkpoint()
+                    outcomes = evaluate_points(points[lo:hi])
+                for trial, outcome in zip(batch[lo:hi], outcomes, strict=True):
+                    _tell(study, trial, outcome)
+                told = hi
+        except BatchStopped:
+            for t in batch[told:]:
+                _requeue(study, t._trial_id, t.number, t.params,
+                         bool(t.user_attrs.get("baseline")))  # fmt: skip
+            log.info("shard %d stopped within a batch: %d of %d trials told, the rest queued "
+                     "again", shard, told, len(batch))  # fmt: skip
+        done += told
+        if on_batch is not None and told:
             on_batch(_progress(study, plan, started, done, clock()))
+        if told < len(batch):
+            break
     return done
+
+
+def _setups_per_piece(
+    evaluate: Evaluator | Callable[..., list[Outcome]], piece_steps: int | None
+) -> int:
+    """How many setups ride one realisation between two stop checks (0: no pieces)."""
+    if piece_steps is None:
+        return 0
+    if not isinstance(evaluate, Evaluator):
+        return 1
+    steps = evaluate.simulated_seconds / evaluate.realisations / evaluate.dt
+    return max(1, int(piece_steps // max(steps, 1.0)))
 
 
 def _progress(

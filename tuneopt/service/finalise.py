@@ -42,7 +42,7 @@ class _Job:
     scenario: Scenario
     space: SearchSpace
     study: optuna.Study
-    evaluator: Evaluator
+    evaluator: Evaluator | None  # None: ranked without simulating (a cancelled job)
 
 
 def finalise_job(job_id: str) -> str:
@@ -58,14 +58,18 @@ def finalise_job(job_id: str) -> str:
         return tasks._end(store, job_id, JobState.CANCELLED)
     store.move(job_id, JobState.FINISHING)
     event(log, "job.finalising", "every shard has ended: ranking", job=job_id)
-    job = _load(store, job_id, record)
-    topped_up = _finish_budget(store, job)
     cancelled = store.is_cancel_requested(job_id)
+    # a cancelled job is ranked at once by the search's own scores: its client asked for the
+    # simulation to stop, and the fresh-terrain ranking, the robustness checks and the report's
+    # rides cost as much simulation as many batches on a long course
+    job = _load(store, job_id, record, simulate=not cancelled)
+    topped_up = _finish_budget(store, job)
     ranking = rank_study(job.study, job.space, job.evaluator, top=settings.top)
     stopped = _why_stopped(job.record, ranking.finished, cancelled)
     data = result_data(ranking, _info(job, ranking.validation_realisations, stopped, topped_up))
     store.set_result(job_id, data)
-    _keep_report(store, job, data, settings.max_report_bytes)
+    if job.evaluator is not None:
+        _keep_report(store, job, data, settings.max_report_bytes)
     if cancelled:
         state = JobState.CANCELLED
     elif ranking.ranked:
@@ -79,12 +83,16 @@ def finalise_job(job_id: str) -> str:
     return outcome
 
 
-def _load(store: JobStore, job_id: str, record: JobRecord) -> _Job:
+def _load(store: JobStore, job_id: str, record: JobRecord, simulate: bool) -> _Job:
     scenario = tasks._load(store, job_id)
     study = tasks._study(store, job_id)
     reap_stale_trials(study)  # every shard has ended: nothing left RUNNING has an owner
     request = record.request
-    evaluator = Evaluator(scenario, int(request["seed"]), int(request["realisations"]))
+    evaluator = (
+        Evaluator(scenario, int(request["seed"]), int(request["realisations"]))
+        if simulate
+        else None
+    )
     return _Job(job_id, record, scenario, build_space(scenario), study, evaluator)
 
 
@@ -96,6 +104,7 @@ def _finish_budget(store: JobStore, job: _Job) -> int:
     deadline = record.deadline or 0.0
     if (
         budget is None
+        or job.evaluator is None
         or store.is_cancel_requested(job.id)
         or time.time() >= deadline
         or count_finished(job.study) >= budget
@@ -111,6 +120,7 @@ def _finish_budget(store: JobStore, job: _Job) -> int:
             int(record.request["shards"]),
             should_stop=lambda: store.is_cancel_requested(job.id),
             ask_lock=lambda: tasks._ask_lock(store, job.id),
+            piece_steps=tasks._current().piece_steps,
         )
     except Exception as exc:  # rank what finished rather than lose it
         store.add_error(job.id, f"finaliser: {type(exc).__name__}: {exc}")
@@ -145,7 +155,9 @@ def _info(job: _Job, validation: int, stopped: str, topped_up: int) -> dict[str,
         "shards": request["shards"],
         "finished_by_finaliser": topped_up,
         "workers": [o for o in owners if o],
-        "simulated_seconds_per_setup": job.evaluator.simulated_seconds,
+        "simulated_seconds_per_setup": (
+            job.evaluator.simulated_seconds if job.evaluator is not None else None
+        ),
         "parameters": [p.name for p in job.space.parameters],
         "labels": {p.name: p.label for p in job.space.parameters},
     }

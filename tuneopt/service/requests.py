@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import inspect
 import json
 import tomllib
 from typing import Any, Literal
@@ -9,11 +10,13 @@ from typing import Any, Literal
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from tuneopt.model import InputError, Scenario, scenario_from_data
+from tuneopt.model.course import CourseSpec
 from tuneopt.model.errors import FieldProblem
 from tuneopt.model.loading import problems_from_validation
-from tuneopt.optimise.evaluate import DEFAULT_REALISATIONS
+from tuneopt.optimise.evaluate import DEFAULT_REALISATIONS, Evaluator
 from tuneopt.optimise.space import build_space
 from tuneopt.service.settings import Settings
+from tuneopt.terrain import terrain_type
 
 __all__ = ["JobRequest", "ValidJob", "parse_scenario_file", "validate_job"]
 
@@ -110,6 +113,7 @@ def validate_job(data: Any, settings: Settings, strict: bool = True) -> ValidJob
                     f"{settings.max_course_length:g} m per job",
                 )
             )
+        problems += _cost_problems(course, request.realisations, settings.max_samples_per_setup)
     trials = request.trials if request.trials is not None else min(200, settings.max_trials)
     if trials > settings.max_trials:
         problems.append(
@@ -153,6 +157,48 @@ def validate_job(data: Any, settings: Settings, strict: bool = True) -> ValidJob
         batch_size=request.batch_size,
         realisations=request.realisations,
     )
+
+
+# the simulator's time step [s]: the evaluator's own default, read once
+_STEP = float(inspect.signature(Evaluator).parameters["dt"].default)
+
+
+def samples_per_setup(course: CourseSpec, realisations: int) -> tuple[float, float]:
+    """What one setup costs over all its realisations: terrain profile samples (length /
+    spacing) and simulated time steps (length / riding speed / time step; at least that, for
+    braking and corners ride slower than the straights)."""
+    profile = steps = 0.0
+    for i, entry in enumerate(course.mix):
+        length = course.entry_length(i)
+        speed = entry.speed or terrain_type(entry.terrain).straight_speed(course.surface)
+        profile += length / course.spacing
+        steps += length / speed / _STEP
+    return profile * realisations, steps * realisations
+
+
+def _cost_problems(course: CourseSpec, realisations: int, limit: int) -> list[FieldProblem]:
+    """The fields that make one setup cost more than the operator's limit, each named."""
+    profile, steps = samples_per_setup(course, realisations)
+    worst = max(profile, steps)
+    if worst <= limit:
+        return []
+    why = (
+        f"one setup would need {worst / 1e6:.1f} million simulated samples "
+        f"({profile / 1e6:.1f} million terrain samples: course length / spacing x "
+        f"realisations; {steps / 1e6:.1f} million time steps: course length / speed / "
+        f"{_STEP * 1e3:g} ms x realisations), above this service's limit of "
+        f"{limit / 1e6:g} million per setup"
+    )
+    fields = ["scenario.course.length"]
+    fields.append("scenario.course.spacing" if profile >= steps else "scenario.course.mix.speed")
+    fields.append("realisations")
+    fixes = {
+        "scenario.course.length": "a shorter course lowers it",
+        "scenario.course.spacing": "a coarser spacing (up to 5 mm) lowers it",
+        "scenario.course.mix.speed": "a faster riding speed lowers it",
+        "realisations": f"fewer realisations ({realisations} asked) lower it",
+    }
+    return [FieldProblem(f, f"{why}; {fixes[f]}") for f in fields]
 
 
 def _under(prefix: str, location: str) -> str:

@@ -44,12 +44,26 @@ class Settings(BaseSettings):
     max_run_seconds: float = Field(default=8 * 3600.0, gt=0, description="wall-clock per job [s]")
     max_shards: int = Field(default=8, ge=1)
     default_shards: int = Field(default=2, ge=1)
+    max_samples_per_setup: int = Field(
+        default=16_000_000,
+        ge=10_000,
+        description="what one setup may cost over all its realisations: terrain samples "
+        "(course length / spacing) or time steps (course length / speed / 1 ms), whichever is "
+        "more",
+    )
     max_body_bytes: int = Field(default=1_000_000, ge=1024)
     max_jobs_listed: int = Field(default=100, ge=1)
 
     # workers
     batch_size: int = Field(default=16, ge=1)
     realisations: int = Field(default=DEFAULT_REALISATIONS, ge=1, le=32)
+    piece_steps: int = Field(
+        default=2_000_000,
+        ge=10_000,
+        description="simulated time steps x setups between two stop checks of a shard (about "
+        "a second of work): cancel, delete, the deadline and a stopping worker act within a "
+        "piece",
+    )
     shard_retries: int = Field(default=3, ge=0)
     heartbeat_seconds: float = Field(
         default=10.0, gt=0, description="how often a busy worker says it is alive [s]"

@@ -36,7 +36,7 @@ from tuneopt.optimise import (
     run_shard,
 )
 from tuneopt.optimise.redis_storage import delete_study_keys, expire_study_keys, redis_storage
-from tuneopt.optimise.runner import count_finished, shard_owner
+from tuneopt.optimise.runner import BatchStopped, count_finished, shard_owner
 from tuneopt.service.logs import event
 from tuneopt.service.records import JobState, JobStore, is_job_id
 from tuneopt.service.settings import Settings
@@ -255,8 +255,22 @@ def run_shard_job(job_id: str, shard: int) -> int:
         return 0
     scenario = _load(store, job_id)
     space = build_space(scenario)
-    assert record.deadline is not None  # set by start_job before any shard is queued
-    plan = _plan(job_id, record.request, record.deadline)
+    deadline = record.deadline
+    assert deadline is not None  # set by start_job before any shard is queued
+    plan = _plan(job_id, record.request, deadline)
+
+    def stop_requested() -> bool:
+        return _stopping.is_set() or store.should_stop(job_id)
+
+    def checkpoint() -> None:
+        if stop_requested() or time.time() >= deadline:
+            raise BatchStopped
+
+    try:  # a long course takes seconds per realisation to build: stops act between them
+        evaluator = Evaluator(scenario, plan.seed, int(record.request["realisations"]),
+                              checkpoint=checkpoint)  # fmt: skip
+    except BatchStopped:
+        evaluator = None
     study = _study(store, job_id)
     owner = shard_owner(shard)
     previous = store.swap_owner(job_id, shard, owner)
@@ -269,7 +283,6 @@ def run_shard_job(job_id: str, shard: int) -> int:
         store.add_event(job_id, message)
         store.bump("shard_retries")
         event(log, "shard.resumed", message, job=job_id, shard=shard, reaped=reaped)
-    evaluator = Evaluator(scenario, plan.seed, int(record.request["realisations"]))
 
     told = 0
 
@@ -282,15 +295,16 @@ def run_shard_job(job_id: str, shard: int) -> int:
               job=job_id, shard=shard, finished=p.finished, trials=p.done)  # fmt: skip
 
     try:
-        done = run_shard(
+        done = 0 if evaluator is None else run_shard(
             study,
             plan,
             space,
             evaluator,
             shard,
-            should_stop=lambda: _stopping.is_set() or store.should_stop(job_id),
+            should_stop=stop_requested,
             on_batch=report,
             ask_lock=lambda: _ask_lock(store, job_id),
+            piece_steps=_current().piece_steps,
         )
     except Exception as exc:
         store.add_error(job_id, f"shard {shard}: {type(exc).__name__}: {exc}")
