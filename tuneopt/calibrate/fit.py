@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from numpy.typing import NDArray
@@ -33,9 +33,10 @@ from tuneopt.calibrate.distance import (
     end_distance,
     ride_samples,
 )
+from tuneopt.calibrate.noise import added_noise, second_difference_noise
 from tuneopt.calibrate.record import TravelRecord
 from tuneopt.calibrate.space import FitSpace
-from tuneopt.calibrate.synthetic import prepare_spec, ride_segments
+from tuneopt.calibrate.synthetic import SimulatedRide, prepare_spec, ride_segments
 from tuneopt.model import InputError, Scenario, Setup
 from tuneopt.model.course import CourseSpec
 from tuneopt.ridelog.convert import fork_full_travel, rear_full_travel
@@ -55,6 +56,7 @@ __all__ = [
 FloatArray = NDArray[np.float64]
 
 FAILED_SCORE = 100.0  # a course that cannot be built or ridden: far worse than any fit
+NOISE_STREAM = 8608  # seeds the simulated sensor noise's stream (any fixed number)
 MIN_MEAN_SPEED = 1.0  # [m/s] a log whose mean riding speed is below this has no speed term
 
 
@@ -96,6 +98,10 @@ class FitProblem:
                 raise InputError.single(
                     f"log.{which}", "too few usable travel samples to compare distributions"
                 )
+        self.log_noise = {
+            "front": second_difference_noise(np.asarray(log.fork_travel_m, dtype=float)),
+            "rear": second_difference_noise(np.asarray(log.rear_travel_m, dtype=float)),
+        }
         self.params = halfcar_params(scenario, [setup])
         self.full_travel = {"front": fork_full_travel(scenario), "rear": rear_full_travel(scenario)}
         self.evaluations = 0
@@ -104,17 +110,36 @@ class FitProblem:
         """The ridden setup over ``spec`` built from every fit seed: the samples of all its
         segments, each weighted by its entry's share over its length (so that an entry's share
         of the time is what its share of the course gives, whatever length it was ridden
-        over). None when the bike ran away on a segment."""
-        parts: list[RideSamples] = []
-        weights: list[float] = []
+        over), with the log's sensor noise added (tuneopt.calibrate.noise; the same draws for
+        every candidate). None when the bike ran away on a segment."""
+        rides: list[tuple[int, int, SimulatedRide]] = []
         for seed in self.seeds:
             prepared = prepare_spec(self.scenario, spec, seed)
-            rides = ride_segments(self.scenario, self.params, prepared, self.rate)
-            if any(r.failed for r in rides):
+            segments = ride_segments(self.scenario, self.params, prepared, self.rate)
+            if any(r.failed for r in segments):
                 return None
-            for i, ride in enumerate(rides):
-                parts.append(ride_samples(ride))
-                weights.append(spec.mix[i].share / spec.entry_length(i))
+            rides += [(seed, i, r) for i, r in enumerate(segments)]
+        # the log's sensor noise beyond what the simulation reads on the same estimator
+        noise = {
+            end: added_noise(
+                self.log_noise[end],
+                second_difference_noise(np.concatenate([getattr(r, channel) for _, _, r in rides])),
+            )
+            for end, channel in (("front", "fork_travel_m"), ("rear", "rear_travel_m"))
+        }
+        parts: list[RideSamples] = []
+        weights: list[float] = []
+        for seed, i, ride in rides:
+            if noise["front"] > 0 or noise["rear"] > 0:
+                rng = np.random.default_rng(np.random.SeedSequence((NOISE_STREAM, seed, i)))
+                n = ride.time_s.size
+                ride = replace(
+                    ride,
+                    fork_travel_m=ride.fork_travel_m + rng.normal(0.0, noise["front"], n),
+                    rear_travel_m=ride.rear_travel_m + rng.normal(0.0, noise["rear"], n),
+                )
+            parts.append(ride_samples(ride))
+            weights.append(spec.mix[i].share / spec.entry_length(i))
         return combine(parts, weights)
 
     def compare(self, sim: RideSamples, *, with_ks: bool = True) -> RideDistance:
