@@ -21,7 +21,7 @@ from tests.service.conftest import problem, small_scenario
 from tuneopt.model import scenario_from_data
 from tuneopt.optimise import build_space, evaluate
 from tuneopt.optimise.redis_storage import redis_storage
-from tuneopt.service import finalise
+from tuneopt.service import finalise, tasks
 from tuneopt.service.api import create_app
 from tuneopt.service.settings import Settings
 from tuneopt.service.worker import make_worker
@@ -68,15 +68,15 @@ def test_a_setup_that_costs_more_than_the_limit_is_refused_naming_the_fields(
         assert fits.status_code == 202, fits.text
 
 
-@pytest.mark.parametrize("stop", ["cancel", "deadline"])
+@pytest.mark.parametrize("stop", ["cancel", "delete", "deadline"])
 def test_a_stop_acts_within_the_bound_in_the_middle_of_a_long_batch(
     settings: Settings, redis_client: Redis, monkeypatch: pytest.MonkeyPatch, stop: str
 ) -> None:
     """One batch of 24 setups that all ride 1.2 km at walking pace (1.2 million time steps
     each) is a long simulation; the stop comes a second or more into it. Cancel: the job ends
-    within the bound. Deadline: the shard stops and the finaliser starts within the bound (its
-    ranking on fresh terrain, replaced here by the search's own ranking to keep the test short,
-    is stated apart in docs/service.md)."""
+    within the bound. Delete: the job is purged within the bound. Deadline: the shard stops and
+    the finaliser starts within the bound (its ranking on fresh terrain, replaced here by the
+    search's own ranking to keep the test short, is stated apart in docs/service.md)."""
     long = settings.model_copy(update={"max_course_length": 3000.0, "piece_steps": 1_500_000})
     scenario = _slow_course("1200 m")
     body: dict[str, Any] = {"scenario": scenario, "trials": 48, "shards": 1,
@@ -100,6 +100,14 @@ def test_a_stop_acts_within_the_bound_in_the_middle_of_a_long_batch(
         return real_ride(*args, **kwargs)
 
     monkeypatch.setattr(evaluate, "ride_course", ride)
+    purged_at: list[float] = []
+    real_purge = tasks.purge_job
+
+    def purge(*args: Any, **kwargs: Any) -> None:
+        real_purge(*args, **kwargs)
+        purged_at.append(time.time())
+
+    monkeypatch.setattr(tasks, "purge_job", purge)
     with _client(long) as client:
         job_id = client.post("/jobs", json=body).json()["id"]
         worker = make_worker(long, name=f"stop-{time.monotonic_ns()}")
@@ -117,19 +125,35 @@ def test_a_stop_acts_within_the_bound_in_the_middle_of_a_long_batch(
             if not riding.wait(timeout=300):  # the batch's first piece is being simulated
                 return
             time.sleep(1.0)
-            assert client.post(f"/jobs/{job_id}/cancel").status_code == 202
+            if stop == "cancel":
+                assert client.post(f"/jobs/{job_id}/cancel").status_code == 202
+            else:
+                assert client.delete(f"/jobs/{job_id}").status_code == 202
             stopped_at.append(time.time())
 
         helper = threading.Thread(target=cancel_once_simulating, daemon=True)
-        if stop == "cancel":
+        if stop != "deadline":
             helper.start()
         worker.work(burst=True)
-        if stop == "cancel":
+        if stop != "deadline":
             helper.join(timeout=10)
         else:
             deadline = client.get(f"/jobs/{job_id}").json()["deadline"]
             stopped_at.append(datetime.fromisoformat(deadline).timestamp())
         assert stopped_at, "the batch never started"
+        if stop == "delete":
+            assert client.get(f"/jobs/{job_id}").status_code == 404
+            assert purged_at, "the deleted job was never purged"
+            took = purged_at[0] - stopped_at[0]
+            assert took < STOP_BOUND + MARGIN, f"purged {took:.1f} s after the delete"
+            assert [k for k in redis_client.scan_iter() if job_id in k and "final" not in k] == []
+            record(
+                "a delete in the middle of a long batch (24 setups x 1.2 million time steps)",
+                f"the job was purged {took:.1f} s after the delete (bound stated: "
+                f"{STOP_BOUND:.0f} s)",
+                "pytest tests/service/test_stops.py -k delete",
+            )
+            return
         status = client.get(f"/jobs/{job_id}").json()
         result = client.get(f"/jobs/{job_id}/result").json()
     if stop == "cancel":
