@@ -94,35 +94,43 @@ def parse_quantity(value: Any, si_unit: str, *, bare_unit: str | None = None) ->
     return number
 
 
-def _quantity(si_unit: str, description: str, bare_unit: str | None = None) -> Any:
+def _parsed(si_unit: str, bare_unit: str | None = None) -> BeforeValidator:
+    """The validator that reads a number or a string with a unit into ``si_unit``."""
+
     def validate(value: Any) -> float:
         return parse_quantity(value, si_unit, bare_unit=bare_unit)
 
-    return Annotated[
-        float,
-        BeforeValidator(validate),
-        WithJsonSchema(
-            {
-                "anyOf": [{"type": "number"}, {"type": "string"}],
-                "description": f"{description}; a number in {bare_unit or si_unit} or a string "
-                "with a unit",
-            }
-        ),
-    ]
+    return BeforeValidator(validate)
 
 
-Length = _quantity("m", "length [m]")
-Mass = _quantity("kg", "mass [kg]")
-Pressure = _quantity("Pa", "gauge pressure [Pa]")
-Stiffness = _quantity("N/m", "stiffness [N/m]")
-Damping = _quantity("N*s/m", "damping coefficient [N s/m]")
-Velocity = _quantity("m/s", "velocity [m/s]")
-Acceleration = _quantity("m/s**2", "acceleration [m/s^2]")
-Force = _quantity("N", "force [N]")
-Volume = _quantity("m**3", "volume [m^3]")
-Inertia = _quantity("kg*m**2", "moment of inertia [kg m^2]")
-Angle = _quantity("deg", "angle [deg]", bare_unit="deg")
+def _schema(si_unit: str, description: str, bare_unit: str | None = None) -> WithJsonSchema:
+    return WithJsonSchema(
+        {
+            "anyOf": [{"type": "number"}, {"type": "string"}],
+            "description": f"{description}; a number in {bare_unit or si_unit} or a string "
+            "with a unit",
+        }
+    )
 
+
+# Each a float to the type checker; pydantic reads the metadata.
+Length = Annotated[float, _parsed("m"), _schema("m", "length [m]")]
+Mass = Annotated[float, _parsed("kg"), _schema("kg", "mass [kg]")]
+Pressure = Annotated[float, _parsed("Pa"), _schema("Pa", "gauge pressure [Pa]")]
+Stiffness = Annotated[float, _parsed("N/m"), _schema("N/m", "stiffness [N/m]")]
+Damping = Annotated[float, _parsed("N*s/m"), _schema("N*s/m", "damping coefficient [N s/m]")]
+Velocity = Annotated[float, _parsed("m/s"), _schema("m/s", "velocity [m/s]")]
+Acceleration = Annotated[
+    float, _parsed("m/s**2"), _schema("m/s**2", "acceleration [m/s^2]")
+]
+Force = Annotated[float, _parsed("N"), _schema("N", "force [N]")]
+Volume = Annotated[float, _parsed("m**3"), _schema("m**3", "volume [m^3]")]
+Inertia = Annotated[
+    float, _parsed("kg*m**2"), _schema("kg*m**2", "moment of inertia [kg m^2]")
+]
+Angle = Annotated[
+    float, _parsed("deg", bare_unit="deg"), _schema("deg", "angle [deg]", bare_unit="deg")
+]
 
 def convert(value: float, from_unit: str, to_unit: str) -> float:
     """Convert a number between units (for showing trade units next to SI)."""

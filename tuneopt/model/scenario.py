@@ -8,6 +8,7 @@ from tuneopt.model._base import Strict
 from tuneopt.model._quantity import convert
 from tuneopt.model.bike import Bike
 from tuneopt.model.course import CourseSpec
+from tuneopt.model.damper import Adjuster, AdjusterName
 from tuneopt.model.errors import FieldProblem
 from tuneopt.model.objective import Objective, Search
 from tuneopt.model.rider import Rider
@@ -48,7 +49,7 @@ def _psi(pascal: float) -> float:
 
 
 def _end_problems(
-    where: str, spring: Spring, damper_adjusters: dict, s: EndSetup
+    where: str, spring: Spring, damper_adjusters: dict[AdjusterName, Adjuster], s: EndSetup
 ) -> list[FieldProblem]:
     out: list[FieldProblem] = []
 
@@ -91,7 +92,7 @@ def _end_problems(
                 )
     for name in ("lsc", "hsc", "lsr", "hsr"):
         value = getattr(s, name)
-        adj = damper_adjusters.get(name)
+        adj = damper_adjusters.get(AdjusterName(name))
         if adj is None and value is not None:
             bad(name, "this damper has no such adjuster")
         elif adj is not None and value is None:

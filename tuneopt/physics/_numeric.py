@@ -59,23 +59,27 @@ class Pchip:
         h10 = t * (1 - t) ** 2
         h01 = t**2 * (3 - 2 * t)
         h11 = t**2 * (t - 1)
-        return h00 * y0 + h10 * h * d0 + h01 * y1 + h11 * h * d1
+        value: FloatArray = h00 * y0 + h10 * h * d0 + h01 * y1 + h11 * h * d1
+        return value
 
     def derivative(self, xq: ArrayLike, order: int = 1) -> FloatArray:
         i, h, t = self._parts(xq)
         y0, y1, d0, d1 = self.y[i], self.y[i + 1], self.d[i], self.d[i + 1]
+        slope: FloatArray
         if order == 1:
-            return (
+            slope = (
                 (6 * t**2 - 6 * t) / h * y0
                 + (3 * t**2 - 4 * t + 1) * d0
                 + (6 * t - 6 * t**2) / h * y1
                 + (3 * t**2 - 2 * t) * d1
             )
+            return slope
         if order == 2:
-            return (
+            slope = (
                 (12 * t - 6) / h**2 * y0
                 + (6 * t - 4) / h * d0
                 + (6 - 12 * t) / h**2 * y1
                 + (6 * t - 2) / h * d1
             )
+            return slope
         raise ValueError("order must be 1 or 2")

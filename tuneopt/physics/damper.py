@@ -62,7 +62,8 @@ class MeasuredDirection:
         v = np.concatenate([[0.0], self.velocity])
         f = np.concatenate([[0.0], self.force])
         out = np.interp(speed, v, f)
-        return np.where(speed > v[-1], f[-1] * speed / v[-1], out)
+        magnitude: FloatArray = np.where(speed > v[-1], f[-1] * speed / v[-1], out)
+        return magnitude
 
 
 @dataclass(frozen=True)

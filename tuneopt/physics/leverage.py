@@ -65,16 +65,16 @@ class LeverageCurve:
         return float(self.stroke[-1])
 
     def stroke_at(self, x_w: ArrayLike) -> FloatArray:
-        return np.interp(np.asarray(x_w, dtype=float), self.wheel, self.stroke)
+        return np.interp(np.asarray(x_w, dtype=np.float64), self.wheel, self.stroke)
 
     def wheel_at(self, stroke: ArrayLike) -> FloatArray:
-        return np.interp(np.asarray(stroke, dtype=float), self.stroke, self.wheel)
+        return np.interp(np.asarray(stroke, dtype=np.float64), self.stroke, self.wheel)
 
     def ratio_at(self, x_w: ArrayLike) -> FloatArray:
-        return np.interp(np.asarray(x_w, dtype=float), self.wheel, self.ratio)
+        return np.interp(np.asarray(x_w, dtype=np.float64), self.wheel, self.ratio)
 
     def ratio_slope_at(self, x_w: ArrayLike) -> FloatArray:
-        return np.interp(np.asarray(x_w, dtype=float), self.wheel, self.ratio_slope)
+        return np.interp(np.asarray(x_w, dtype=np.float64), self.wheel, self.ratio_slope)
 
     def wheel_force(self, shock_force: ArrayLike, x_w: ArrayLike) -> FloatArray:
         """Vertical force at the wheel [N] from the shock force at wheel travel x_w."""

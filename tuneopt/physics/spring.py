@@ -121,7 +121,8 @@ class EndStops:
         bumper = self.bumper_stiffness * into**2 / (2 * self.bumper_length)
         beyond = np.clip(x - self.travel, 0.0, None)
         top = np.clip(-x, 0.0, None)
-        return bumper + self.stop_stiffness * beyond - self.stop_stiffness * top
+        force: FloatArray = bumper + self.stop_stiffness * beyond - self.stop_stiffness * top
+        return force
 
 
 def rebase_air_spring(

@@ -20,7 +20,9 @@ FloatArray = NDArray[np.float64]
 
 def membrane_stiffness(pressure: ArrayLike, outer_radius: float, width: float) -> FloatArray:
     """k_t ≈ 2π·p·√(R·w/2) [N/m] for gauge pressure p [Pa] (estimate, see module doc)."""
-    return 2 * np.pi * np.asarray(pressure, dtype=float) * np.sqrt(outer_radius * width / 2)
+    p = np.asarray(pressure, dtype=float)
+    k: FloatArray = 2 * np.pi * p * np.sqrt(outer_radius * width / 2)
+    return k
 
 
 def measured_stiffness(
@@ -28,17 +30,18 @@ def measured_stiffness(
 ) -> FloatArray:
     """Interpolate measured (pressure, stiffness) points; a single point scales with pressure
     (the membrane term dominates); outside the points, extrapolate proportionally."""
-    p = np.asarray(pressure, dtype=float)
-    pp = np.asarray(points_pressure, dtype=float)
-    kk = np.asarray(points_stiffness, dtype=float)
+    p = np.asarray(pressure, dtype=np.float64)
+    pp = np.asarray(points_pressure, dtype=np.float64)
+    kk = np.asarray(points_stiffness, dtype=np.float64)
     if pp.size == 1:
-        return kk[0] * p / pp[0]
+        scaled: FloatArray = kk[0] * p / pp[0]
+        return scaled
     inside = np.interp(p, pp, kk)
     return np.where(p < pp[0], kk[0] * p / pp[0], np.where(p > pp[-1], kk[-1] * p / pp[-1], inside))
 
 
 def tyre_force(deflection: ArrayLike, stiffness: ArrayLike) -> FloatArray:
     """Vertical tyre force [N]: k·δ for δ > 0, zero when the tyre leaves the ground."""
-    return np.asarray(stiffness, dtype=float) * np.clip(
-        np.asarray(deflection, dtype=float), 0, None
+    return np.asarray(stiffness, dtype=np.float64) * np.clip(
+        np.asarray(deflection, dtype=np.float64), 0, None
     )

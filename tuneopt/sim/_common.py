@@ -16,6 +16,7 @@ from typing import Any
 import numba
 import numpy as np
 from numba import njit
+from numpy.typing import NDArray
 
 from tuneopt.physics.statics import GRAVITY as GRAVITY  # one value of g everywhere
 from tuneopt.sim.grip import grip_capacity
@@ -55,6 +56,8 @@ TOPOUT_MIN_SPEED = 0.5
 HIST_BINS = 2048
 HIST_LOW = 0.02
 HIST_HIGH = 1.3
+
+FloatArray = NDArray[np.float64]
 
 class Layout(IntEnum):
     """Fields of a packed row: numbered 0, 1, 2, ... in the order written, so that no two share
@@ -140,7 +143,7 @@ def kernel_threads(batch: int) -> Iterator[None]:
         numba.set_num_threads(threads)
 
 
-def init_wheel_acc(acc: np.ndarray, off: int) -> None:
+def init_wheel_acc(acc: FloatArray, off: int) -> None:
     """Set the starting values that are not zero (runs in numpy before the kernel)."""
     acc[:, off + WheelAcc.S_MAX] = -np.inf
     acc[:, off + WheelAcc.FIRST_SHORT_BRAKE] = -1.0
@@ -149,7 +152,7 @@ def init_wheel_acc(acc: np.ndarray, off: int) -> None:
 
 
 @njit(cache=True, inline="always")
-def table_value(row, x0, inv_dx, x):
+def table_value(row: FloatArray, x0: float, inv_dx: float, x: float) -> float:
     """Linear interpolation on a uniform grid (start x0, 1/spacing inv_dx), extrapolated with the
     end slopes; NaN for NaN (no early exit: the clamps send NaN to the first interval and f
     carries it)."""
@@ -159,11 +162,12 @@ def table_value(row, x0, inv_dx, x):
     v = v if v < top else top
     i = int(v)
     f = u - i
-    return row[i] + f * (row[i + 1] - row[i])
+    value: float = row[i] + f * (row[i + 1] - row[i])
+    return value
 
 
 @njit(cache=True, inline="always")
-def end_runaway(travel, tyre_defl, full_travel):
+def end_runaway(travel: float, tyre_defl: float, full_travel: float) -> bool:
     """An end's travel [m] or its tyre's deflection [m] beyond the runaway limits."""
     return (
         travel > full_travel + RUNAWAY_TRAVEL
@@ -173,7 +177,7 @@ def end_runaway(travel, tyre_defl, full_travel):
 
 
 @njit(cache=True, inline="always")
-def tyre_force(defl, defl_rate, k, c, rim_defl):
+def tyre_force(defl: float, defl_rate: float, k: float, c: float, rim_defl: float) -> float:
     """One-sided tyre: k*d + c*d' while in contact, never pulling; rim strike past rim_defl."""
     if defl <= 0.0:
         return 0.0
@@ -184,7 +188,7 @@ def tyre_force(defl, defl_rate, k, c, rim_defl):
 
 
 @njit(cache=True, inline="always")
-def sos_step(sos, zi, x):
+def sos_step(sos: FloatArray, zi: FloatArray, x: float) -> float:
     """One sample through second-order sections (transposed direct form II, as scipy)."""
     for j in range(sos.shape[0]):
         y = sos[j, 0] * x + zi[j, 0]
@@ -196,9 +200,11 @@ def sos_step(sos, zi, x):
 
 @njit(cache=True, inline="always")
 def accumulate_wheel(
-    acc, off, hist, k, load, travel, travel_rate, tyre_defl, full_travel, rim_defl, static_load,
-    hist_low, hist_width, braking, cornering, demand, ground_load, mu, pd2, relax,
-):
+    acc: FloatArray, off: int, hist: FloatArray, k: int, load: float, travel: float,
+    travel_rate: float, tyre_defl: float, full_travel: float, rim_defl: float, static_load: float,
+    hist_low: float, hist_width: float, braking: bool, cornering: bool, demand: float,
+    ground_load: float, mu: float, pd2: float, relax: float,
+) -> None:
     """Add one sample of one wheel.
 
     load: tyre force in the bike's plane [N]; travel [m] and travel_rate [m/s] (compression
@@ -306,7 +312,7 @@ def accumulate_wheel(
 
 
 @njit(cache=True)
-def close_wheel(acc, off):
+def close_wheel(acc: FloatArray, off: int) -> None:
     """Close the bottom-out and rim hits still open at the end of the run."""
     if acc[off + WheelAcc.IN_BOTTOM] > 0.0:
         acc[off + WheelAcc.IN_BOTTOM] = 0.0
@@ -324,7 +330,9 @@ def close_wheel(acc, off):
 
 
 @njit(cache=True, inline="always")
-def accumulate_vibration(acc, off, sos, zi, accel):
+def accumulate_vibration(
+    acc: FloatArray, off: int, sos: FloatArray, zi: FloatArray, accel: float
+) -> float:
     """Weight one acceleration sample [m/s^2] and add it; returns the weighted value."""
     aw = sos_step(sos, zi, accel)
     a2 = aw * aw

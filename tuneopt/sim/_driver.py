@@ -17,7 +17,7 @@ FloatArray = NDArray[np.float64]
 
 
 @njit(cache=True, inline="always")
-def road_position(t, dt, n):
+def road_position(t: float, dt: float, n: int) -> tuple[int, float]:
     """Sample index i and fraction f in [i, i + 1] of time t [s] on n samples dt [s] apart
     (held to the first and last interval)."""
     u = t / dt
@@ -30,7 +30,7 @@ def road_position(t, dt, n):
 
 
 @njit(cache=True, inline="always")
-def rk4_stage(st, k, dt):
+def rk4_stage(st: int, k: int, dt: float) -> tuple[int, float, float]:
     """Where RK4 stage st of the step from sample k takes the road and its state: the sample
     j1 the road moves towards, the weight wt of that move, and the step [s] from the state."""
     if st == 0:
@@ -41,14 +41,16 @@ def rk4_stage(st, k, dt):
 
 
 @njit(cache=True, inline="always")
-def rk4_stage_state(tmp, y, kk, st, step, n):
+def rk4_stage_state(
+    tmp: FloatArray, y: FloatArray, kk: FloatArray, st: int, step: float, n: int
+) -> None:
     """The state of stage st: y plus step times the previous stage's rate (n states)."""
     for i in range(n):
         tmp[i] = y[i] + (step * kk[st - 1, i] if st > 0 else 0.0)
 
 
 @njit(cache=True, inline="always")
-def rk4_update(y, kk, dt, n):
+def rk4_update(y: FloatArray, kk: FloatArray, dt: float, n: int) -> None:
     """The RK4 step of the n states y from the four stage rates kk."""
     for i in range(n):
         y[i] += dt / 6.0 * (kk[0, i] + 2.0 * kk[1, i] + 2.0 * kk[2, i] + kk[3, i])

@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import numpy as np
 from numba import njit, prange
+from numpy.typing import NDArray
 
 from tuneopt.sim import _common as c
 from tuneopt.sim import _driver as drv
@@ -26,16 +27,24 @@ from tuneopt.sim._halfcar_rows import (
 )
 from tuneopt.sim._wheel import End
 
+FloatArray = NDArray[np.float64]
+
 
 @njit(cache=True, inline="always")
-def _suspension(p, o, s, sd, spring, damper):
+def _suspension(
+    p: FloatArray, o: int, s: float, sd: float, spring: FloatArray, damper: FloatArray
+) -> float:
     return c.table_value(spring, p[o + End.T0], p[o + End.INV_TD], s) + c.table_value(
         damper, p[o + End.V0], p[o + End.INV_VD], sd
     )
 
 
 @njit(cache=True, inline="always")
-def _rhs(y, zf, zfd, zr, zrd, a, ay, p, sf, df, sr, dr, dy, out):
+def _rhs(
+    y: FloatArray, zf: float, zfd: float, zr: float, zrd: float, a: float, ay: float,
+    p: FloatArray, sf: FloatArray, df: FloatArray, sr: FloatArray, dr: FloatArray, dy: FloatArray,
+    out: FloatArray,
+) -> None:
     lwb = p[Par.L]
     xc = p[Par.X_C]
     xd = p[Par.X_D]
@@ -95,29 +104,37 @@ def _rhs(y, zf, zfd, zr, zrd, a, ay, p, sf, df, sr, dr, dy, out):
 
 
 @njit(cache=True, inline="always")
-def _is_runaway(p, out):
+def _is_runaway(p: FloatArray, out: FloatArray) -> bool:
     if c.end_runaway(out[Out.TRAVEL_F], out[Out.DEFL_F], p[_F + End.TRAVEL]):
         return True
     if c.end_runaway(out[Out.TRAVEL_R], out[Out.DEFL_R], p[_R + End.TRAVEL]):
         return True
     if abs(out[Out.PITCH]) > c.RUNAWAY_ANGLE:
         return True
-    return abs(out[Out.HAND]) > _RUNAWAY_COUPLING or abs(out[Out.FOOT]) > _RUNAWAY_COUPLING
+    coupling: bool = (
+        abs(out[Out.HAND]) > _RUNAWAY_COUPLING or abs(out[Out.FOOT]) > _RUNAWAY_COUPLING
+    )
+    return coupling
 
 
 @njit(cache=True, inline="always")
-def _demand(fx, fy):
+def _demand(fx: float, fy: float) -> float:
     """Force asked along the ground [N] from its braking and lateral parts (friction circle)."""
     if fx == 0.0:
         return abs(fy)
     if fy == 0.0:
         return abs(fx)
-    return np.sqrt(fx * fx + fy * fy)
+    both: float = np.sqrt(fx * fx + fy * fy)
+    return both
 
 
 @njit(cache=True, inline="always")
-def _record(k, y, dy, out, zf, zr, a, ay, mu, relax_f, relax_r, p, acc, hist_f, hist_r, sos, zi,
-            trace, every):
+def _record(
+    k: int, y: FloatArray, dy: FloatArray, out: FloatArray, zf: float, zr: float, a: float,
+    ay: float, mu: float, relax_f: float, relax_r: float, p: FloatArray, acc: FloatArray,
+    hist_f: FloatArray, hist_r: FloatArray, sos: FloatArray, zi: FloatArray, trace: FloatArray,
+    every: int,
+) -> int:
     """Checks, metric accumulation and trace for sample k (derivative and outputs given)."""
     for i in range(_NS):
         if not (np.isfinite(y[i]) and np.isfinite(dy[i])):
@@ -200,8 +217,13 @@ def _record(k, y, dy, out, zf, zr, a, ay, mu, relax_f, relax_r, p, acc, hist_f, 
 
 
 @njit(cache=True)
-def _sample(k, y, zf, zfd, zr, zrd, a, ay, mu, relax_f, relax_r, p, sf, df, sr, dr, dy, out, acc,
-            hist_f, hist_r, sos, zi, trace, every):
+def _sample(
+    k: int, y: FloatArray, zf: float, zfd: float, zr: float, zrd: float, a: float, ay: float,
+    mu: float, relax_f: float, relax_r: float, p: FloatArray, sf: FloatArray, df: FloatArray,
+    sr: FloatArray, dr: FloatArray, dy: FloatArray, out: FloatArray, acc: FloatArray,
+    hist_f: FloatArray, hist_r: FloatArray, sos: FloatArray, zi: FloatArray, trace: FloatArray,
+    every: int,
+) -> int:
     """Derivative and outputs at sample k, then _record. Returns a failure code."""
     _rhs(y, zf, zfd, zr, zrd, a, ay, p, sf, df, sr, dr, dy, out)
     return _record(k, y, dy, out, zf, zr, a, ay, mu, relax_f, relax_r, p, acc, hist_f, hist_r,
@@ -209,7 +231,7 @@ def _sample(k, y, zf, zfd, zr, zrd, a, ay, mu, relax_f, relax_r, p, sf, df, sr, 
 
 
 @njit(cache=True)
-def _initial_state(p, zf0, zr0):
+def _initial_state(p: FloatArray, zf0: float, zr0: float) -> FloatArray:
     """Static equilibrium carried rigidly onto the road's starting heights."""
     y = np.zeros(_NS)
     th = (zf0 - zr0) / p[Par.L]
@@ -223,7 +245,11 @@ def _initial_state(p, zf0, zr0):
 
 
 @njit(cache=True, parallel=True, fastmath=c.FAST)
-def _run(P, tables, road, mu, relax, dt, sos, acc, hist, fail, trace, every):
+def _run(
+    P: FloatArray, tables: tuple[FloatArray, ...], road: tuple[FloatArray, ...], mu: float,
+    relax: tuple[FloatArray, FloatArray], dt: float, sos: FloatArray, acc: FloatArray,
+    hist: FloatArray, fail: NDArray[np.int64], trace: FloatArray, every: int,
+) -> None:
     """RK4 over the batch: P (B, _NP) parameter rows; tables (front spring, front damper, rear
     spring, rear damper), each (B, K); road (front height, its rate, rear height, its rate,
     deceleration, lateral acceleration), each (N,); mu the road's friction coefficient; relax
@@ -279,7 +305,10 @@ def _run(P, tables, road, mu, relax, dt, sos, acc, hist, fail, trace, every):
 
 
 @njit(cache=True)
-def _rhs_at_time(t, y, road, dt, p, tables):
+def _rhs_at_time(
+    t: float, y: FloatArray, road: tuple[FloatArray, ...], dt: float, p: FloatArray,
+    tables: tuple[FloatArray, ...],
+) -> FloatArray:
     """The same equations at any time, the road linear between samples (for solve_ivp);
     road and tables as _run's, the tables one setup's rows."""
     zf, zfd, zr, zrd, dec, lat = road
@@ -295,7 +324,11 @@ def _rhs_at_time(t, y, road, dt, p, tables):
 
 
 @njit(cache=True)
-def _replay(Y, road, mu, relax, p, tables, sos, acc, hist, trace, every):
+def _replay(
+    Y: FloatArray, road: tuple[FloatArray, ...], mu: float, relax: tuple[FloatArray, FloatArray],
+    p: FloatArray, tables: tuple[FloatArray, ...], sos: FloatArray, acc: FloatArray,
+    hist: FloatArray, trace: FloatArray, every: int,
+) -> int:
     """Accumulate metrics from given states Y (N, 12) at the sample times (road, relax as
     _run's, tables one setup's rows)."""
     zf, zfd, zr, zrd, dec, lat = road

@@ -244,7 +244,9 @@ def _timed(fn: Callable[[], Any], repeat: int = 1) -> tuple[Any, float, float]:
     return best
 
 
-def _take(params: Any, idx: slice) -> Any:
+def _take(
+    params: QuarterCarParams | HalfCarParams, idx: slice
+) -> QuarterCarParams | HalfCarParams:
     """The setups idx of a batch (wheel-end arrays sliced along the batch axis)."""
     def cut(wheel: WheelEnd) -> WheelEnd:
         return WheelEnd(wheel.travel_grid, wheel.spring_force[idx], wheel.velocity_grid,

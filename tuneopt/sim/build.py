@@ -13,6 +13,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import NDArray
 
 from tuneopt.model import Scenario, Setup
 from tuneopt.physics import (
@@ -30,6 +31,8 @@ from tuneopt.sim.params import HalfCarParams, QuarterCarParams, RiderBody, Wheel
 
 __all__ = ["TableGrid", "halfcar_params", "quartercar_params", "wheel_end"]
 
+FloatArray = NDArray[np.float64]
+
 
 @dataclass(frozen=True)
 class TableGrid:
@@ -46,7 +49,7 @@ class TableGrid:
 
 def _tables(
     ends: Sequence[SuspensionEnd], sags: Sequence[float], grid: TableGrid
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
     travel = max(e.travel for e in ends)
     z = np.linspace(-grid.below_top, travel + grid.past_bottom, grid.travel_points)
     v = np.linspace(-grid.max_velocity, grid.max_velocity, grid.velocity_points)

@@ -111,7 +111,10 @@ class QuarterCarResult:
 
 
 @njit(cache=True, inline="always")
-def _rhs(y, zr, zrd, p, spring, damper, dy, out):
+def _rhs(
+    y: FloatArray, zr: float, zrd: float, p: FloatArray, spring: FloatArray,
+    damper: FloatArray, dy: FloatArray, out: FloatArray,
+) -> None:
     o = _W
     s = p[o + End.S0] + y[1] - y[0]
     sd = y[3] - y[2]
@@ -132,7 +135,10 @@ def _rhs(y, zr, zrd, p, spring, damper, dy, out):
 
 
 @njit(cache=True, inline="always")
-def _record(k, y, dy, out, p, acc, hist, sos, zi, trace, every):
+def _record(
+    k: int, y: FloatArray, dy: FloatArray, out: FloatArray, p: FloatArray, acc: FloatArray,
+    hist: FloatArray, sos: FloatArray, zi: FloatArray, trace: FloatArray, every: int,
+) -> int:
     """Checks, metric accumulation and trace for sample k (derivative and outputs given)."""
     for i in range(4):
         if not (np.isfinite(y[i]) and np.isfinite(dy[i])):
@@ -156,14 +162,22 @@ def _record(k, y, dy, out, p, acc, hist, sos, zi, trace, every):
 
 
 @njit(cache=True)
-def _sample(k, y, zr, zrd, p, spring, damper, dy, out, acc, hist, sos, zi, trace, every):
+def _sample(
+    k: int, y: FloatArray, zr: float, zrd: float, p: FloatArray, spring: FloatArray,
+    damper: FloatArray, dy: FloatArray, out: FloatArray, acc: FloatArray, hist: FloatArray,
+    sos: FloatArray, zi: FloatArray, trace: FloatArray, every: int,
+) -> int:
     """Derivative and outputs at sample k, then _record. Returns a failure code."""
     _rhs(y, zr, zrd, p, spring, damper, dy, out)
     return _record(k, y, dy, out, p, acc, hist, sos, zi, trace, every)
 
 
 @njit(cache=True, parallel=True, fastmath=c.FAST)
-def _run(P, springs, dampers, zr, zrd, dt, sos, acc, hist, fail, trace, every):
+def _run(
+    P: FloatArray, springs: FloatArray, dampers: FloatArray, zr: FloatArray, zrd: FloatArray,
+    dt: float, sos: FloatArray, acc: FloatArray, hist: FloatArray, fail: NDArray[np.int64],
+    trace: FloatArray, every: int,
+) -> None:
     n = zr.shape[0]
     for b in prange(P.shape[0]):
         if fail[b] != 0:
@@ -208,7 +222,10 @@ def _run(P, springs, dampers, zr, zrd, dt, sos, acc, hist, fail, trace, every):
 
 
 @njit(cache=True)
-def _rhs_at_time(t, y, zr, zrd, dt, p, spring, damper):
+def _rhs_at_time(
+    t: float, y: FloatArray, zr: FloatArray, zrd: FloatArray, dt: float, p: FloatArray,
+    spring: FloatArray, damper: FloatArray,
+) -> FloatArray:
     """The same equations at any time, the road linear between samples (for solve_ivp)."""
     i, f = drv.road_position(t, dt, zr.shape[0])
     dy = np.empty(4)
@@ -219,7 +236,11 @@ def _rhs_at_time(t, y, zr, zrd, dt, p, spring, damper):
 
 
 @njit(cache=True)
-def _replay(Y, zr, zrd, p, spring, damper, sos, acc, hist, trace, every):
+def _replay(
+    Y: FloatArray, zr: FloatArray, zrd: FloatArray, p: FloatArray, spring: FloatArray,
+    damper: FloatArray, sos: FloatArray, acc: FloatArray, hist: FloatArray, trace: FloatArray,
+    every: int,
+) -> int:
     """Accumulate metrics from given states Y (N, 4) at the sample times."""
     dy = np.empty(4)
     out = np.empty(_NOUT)

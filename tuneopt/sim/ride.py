@@ -154,7 +154,8 @@ class CourseMetrics:
 
 
 def _weighted(values: list[FloatArray], weights: FloatArray) -> FloatArray:
-    return np.sum(np.stack(values) * weights[:, None], axis=0)
+    weighted: FloatArray = np.sum(np.stack(values) * weights[:, None], axis=0)
+    return weighted
 
 
 def _weighted_phase(values: list[FloatArray], weights: FloatArray) -> FloatArray:
@@ -164,7 +165,8 @@ def _weighted_phase(values: list[FloatArray], weights: FloatArray) -> FloatArray
     w = weights[:, None] * have
     total = w.sum(axis=0)
     summed = (np.where(have, v, 0.0) * weights[:, None]).sum(axis=0)
-    return np.divide(summed, total, out=np.zeros_like(total), where=total > 0)
+    mean: FloatArray = np.divide(summed, total, out=np.zeros_like(total), where=total > 0)
+    return mean
 
 
 def ride_course(params: HalfCarParams, course: PreparedCourse) -> CourseMetrics:

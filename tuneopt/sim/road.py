@@ -111,7 +111,7 @@ def road_input_from_wheel_inputs(
     t_of_x = np.concatenate(([0.0], np.cumsum(0.5 * (1.0 / speed[1:] + 1.0 / speed[:-1]) * dx)))
     n = int(np.floor(t_of_x[-1] / dt)) + 1
     t = np.arange(n) * dt
-    x_t = np.interp(t, t_of_x, x)
+    x_t: FloatArray = np.interp(t, t_of_x, x)
 
     def at(values: FloatArray) -> FloatArray:
         return np.interp(x_t, x, np.asarray(values, dtype=np.float64))
