@@ -1,6 +1,6 @@
 """Input and output schemas: rider, bike, suspension hardware, tyres, setup, scenario."""
 
-from tuneopt.model._quantity import convert
+from tuneopt.model._quantity import convert, parse_quantity
 from tuneopt.model.bike import Bike
 from tuneopt.model.damper import (
     Adjuster,
@@ -50,6 +50,7 @@ __all__ = [
     "Tyre",
     "convert",
     "load_scenario",
+    "parse_quantity",
     "scenario_from_data",
     "setup_problems",
 ]

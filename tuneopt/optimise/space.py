@@ -19,8 +19,8 @@ from tuneopt.model import (
     InputError,
     Scenario,
     Setup,
+    convert,
 )
-from tuneopt.model._quantity import convert
 
 __all__ = ["Parameter", "SearchSpace", "build_space"]
 

@@ -14,7 +14,7 @@ from functools import lru_cache
 import numpy as np
 from numpy.typing import NDArray
 
-from tuneopt.model._quantity import parse_quantity
+from tuneopt.model import parse_quantity
 from tuneopt.model.errors import FieldProblem, InputError
 
 __all__ = ["FORMAT_LINE", "COLUMNS", "Columns", "read_columns", "problem"]
