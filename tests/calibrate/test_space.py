@@ -77,3 +77,15 @@ def test_search_lengths_are_equal_parts_or_what_a_type_needs() -> None:
 def test_an_unknown_kind_is_refused(start: CourseSpec) -> None:
     with pytest.raises(ValueError, match="unknown parameter kind"):
         fit_space(start, ["grip"])
+
+
+def test_a_share_too_small_for_its_type_is_not_a_course() -> None:
+    """braking_bumps needs 40 m (tuneopt.terrain.library): 0.1 of 200 m is not enough."""
+    spec = CourseSpec.model_validate(
+        {"length": "200 m", "mix": [{"terrain": "root_field", "share": 0.5},
+                                    {"terrain": "braking_bumps", "share": 0.5}]}
+    )  # fmt: skip
+    space = fit_space(spec, ["share"])
+    assert space.feasible([0.0])
+    assert not space.feasible([math.log(0.1 / 0.9)])
+    assert space.feasible([math.log(0.25 / 0.75)])

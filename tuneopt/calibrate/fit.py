@@ -180,7 +180,8 @@ class FitProblem:
 class FitResult:
     """start/fitted: the courses; x: the fitted search point; before/after: distances and the
     simulated samples for the start and the fitted course; log: the log's samples;
-    evaluations: candidate courses ridden; history: best objective after each evaluation."""
+    evaluations: candidate courses ridden; history: best objective after each evaluation;
+    sensor_noise: the noise read from the log, fork and rear [m]."""
 
     space: FitSpace
     start: CourseSpec
@@ -194,6 +195,7 @@ class FitResult:
     seeds: tuple[int, ...]
     evaluations: int
     history: tuple[float, ...] = field(default=())
+    sensor_noise: tuple[float, float] = (0.0, 0.0)
 
 
 def fit_course(
@@ -233,6 +235,9 @@ def fit_course(
             return cache[key]
         if len(history) >= budget:
             return FAILED_SCORE  # over budget: no more courses ridden
+        if not space.feasible(x):
+            cache[key] = FAILED_SCORE  # a share too small for its type: no course to ride
+            return FAILED_SCORE
         score, _, _ = problem.evaluate(space.simulated(x), with_ks=False)
         cache[key] = score
         if score < float(best["f"]):  # type: ignore[arg-type]
@@ -302,6 +307,7 @@ def fit_course(
         seeds=problem.seeds,
         evaluations=problem.evaluations,
         history=tuple(history),
+        sensor_noise=(problem.log_noise["front"], problem.log_noise["rear"]),
     )
 
 
@@ -332,8 +338,8 @@ def knob_checks(problem: FitProblem, result: FitResult) -> tuple[KnobCheck, ...]
         for sign in (-1.0, 1.0):
             x = result.x.copy()
             x[i] = float(np.clip(x[i] + sign * step, knob.low, knob.high))
-            if x[i] == result.x[i]:  # at a bound: that side is not a step
-                scores.append(math.inf)
+            if x[i] == result.x[i] or not result.space.feasible(x):
+                scores.append(math.inf)  # at a bound, or a share too small: not a step
                 continue
             score, _, _ = problem.evaluate(result.space.simulated(x), with_ks=False)
             scores.append(score)

@@ -164,6 +164,16 @@ class FitSpace:
         fixed search length (the shares then only weigh the entries)."""
         return self.as_searched(self.course(x))
 
+    def feasible(self, x: Sequence[float] | NDArray[np.float64]) -> bool:
+        """Whether the course at ``x`` gives every entry at least the length its terrain type
+        needs (entries with their own length always have it): a share too small for its
+        type's features would make a course that cannot be built."""
+        spec = self.course(x)
+        return all(
+            e.length is not None or spec.entry_length(i) >= needed_length(e.terrain)
+            for i, e in enumerate(spec.mix)
+        )
+
     def as_searched(self, spec: CourseSpec) -> CourseSpec:
         """``spec`` (a course with the start course's entries) with every entry over its search
         length: how the search rides it."""
@@ -172,6 +182,11 @@ class FitSpace:
             for e, length in zip(spec.mix, self.lengths, strict=True)
         )
         return spec.model_copy(update={"mix": mix})
+
+
+def needed_length(terrain: str) -> float:
+    """The shortest segment a terrain type can be built on [m]: its features and the lead-in."""
+    return max(terrain_type(terrain).min_length, LEAD_IN + TAPER + 1.0)
 
 
 def search_lengths(start: CourseSpec) -> tuple[float, ...]:
@@ -183,8 +198,7 @@ def search_lengths(start: CourseSpec) -> tuple[float, ...]:
         if e.length is not None:
             out.append(e.length)
             continue
-        needed = max(terrain_type(e.terrain).min_length, LEAD_IN + TAPER + 1.0)
-        out.append(max(start.length / n, needed))
+        out.append(max(start.length / n, needed_length(e.terrain)))
     return tuple(out)
 
 

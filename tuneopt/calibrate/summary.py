@@ -141,6 +141,12 @@ def fit_lines(result: FitResult, rows: list[ParameterRow]) -> list[str]:
             f"riding speed off by {result.before.riding_speed_w1 * 3.6:.1f} -> "
             f"{result.after.riding_speed_w1 * 3.6:.1f} km/h."
         )
+    fork_noise, rear_noise = result.sensor_noise
+    lines.append(
+        f"Sensor noise read from the log: fork {fork_noise * 1e3:.2f} mm, rear "
+        f"{rear_noise * 1e3:.2f} mm; the simulation is given as much as the log has beyond its "
+        "own (a smooth ride reads about 0.2 mm)."
+    )
     loose = [f"{r.terrain} {r.quantity}" for r in rows if not r.firm]
     if loose:
         lines.append(
@@ -198,6 +204,7 @@ def fit_json(result: FitResult, rows: list[ParameterRow]) -> dict[str, Any]:
             }
             for r in rows
         ],
+        "sensor_noise": {"front": result.sensor_noise[0], "rear": result.sensor_noise[1]},
         "evaluations": result.evaluations,
         "seeds": list(result.seeds),
         "history": list(result.history),

@@ -121,6 +121,7 @@ def run(args: argparse.Namespace) -> int:
     from tuneopt.report.fit_page import fit_page, write_fit_page
     from tuneopt.ridelog import read_ride_log
     from tuneopt.ridelog.convert import fork_full_travel, rear_full_travel
+    from tuneopt.terrain import build_course
 
     kinds = _arguments(args)
     scenario = load_scenario(args.scenario)
@@ -153,6 +154,7 @@ def run(args: argparse.Namespace) -> int:
             print(f"  {done} rides, smallest distance {best:.3f}", flush=True)
 
     result = fit_course(problem, space, budget=args.budget, seed=args.seed, progress=progress)
+    build_course(result.fitted, scenario.course.seed)  # InputError if it cannot be built
     checks = knob_checks(problem, result)
     rows = parameter_rows(result, checks)
     lines = fit_lines(result, rows)
@@ -204,5 +206,7 @@ def run(args: argparse.Namespace) -> int:
     except OSError as exc:
         raise InputError.single("--out", f"cannot write into {out}: {exc.strerror}") from None
     print(f"wrote {target}, {page} and {path}")
+    for caution in CAUTIONS:
+        print(f"- {caution}")
     print(f"next: tuneopt optimise {target} --out NEW_DIR")
     return 0

@@ -79,7 +79,8 @@ compression positive, drawn over the log's middle 99 % widened by a fifth.</figc
 <p class="note">One step either way: how much the distance grows when the number moves by a
 tenth of its searched range, from the fitted value (the smaller side). Below
 {{ p.firm }} % the log barely tells the number (italic rows): the fitted value is then no
-better than the scenario's.</p>
+better than the scenario's. A negative value: a step that way came closer still (the search
+stopped short of it within its budget).</p>
 </section>
 
 <section id="search">
