@@ -27,6 +27,7 @@ from tests.reliability.conftest import FULL_SIZE, fuzz
 from tests.reliability.mutations import broken_scenarios, names_a_field
 from tests.service.conftest import problem, small_scenario
 from tuneopt.service.settings import Settings
+from tuneopt.service.uploads import MAX_SIDE_FILES
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -220,6 +221,10 @@ def test_an_oversized_upload_is_refused_before_it_is_read(
 def test_an_upload_of_many_parts_is_refused(client: TestClient, ledger: Ledger) -> None:
     files = [("scenario", ("s.toml", b"x", "text/plain")) for _ in range(3)]
     response = client.post("/jobs", files=files)
+    _answer(response, {}, ledger, "many parts")
+    assert response.status_code == 422  # one scenario file, named as the problem
+    files = [("side", ("t.csv", b"x", "text/csv")) for _ in range(MAX_SIDE_FILES + 1)]
+    response = client.post("/jobs", files=[("scenario", ("s.toml", b"x", "text/plain")), *files])
     _answer(response, {}, ledger, "many parts")
     assert response.status_code == 400
     many = {f"field{i}": "1" for i in range(200)}

@@ -29,10 +29,12 @@ from tuneopt.service import tasks
 from tuneopt.service.limits import BodyLimit
 from tuneopt.service.logs import event
 from tuneopt.service.monitoring import monitoring_router
+from tuneopt.service.pages import pages_router
 from tuneopt.service.problems import Problem, ProblemError, install_handlers
 from tuneopt.service.records import JobRecord, JobState, JobStore, is_job_id, new_job_id
-from tuneopt.service.requests import JobRequest, parse_scenario_file, validate_job
+from tuneopt.service.requests import JobRequest, validate_job
 from tuneopt.service.settings import Settings
+from tuneopt.service.uploads import MAX_SIDE_FILES, UPLOAD_PARTS, scenario_from_form
 
 __all__ = ["JobList", "JobStatus", "create_app"]
 
@@ -143,7 +145,19 @@ def _body_schemas() -> tuple[dict[str, Any], dict[str, Any], dict[str, Any]]:
             "scenario": {
                 "type": "string",
                 "format": "binary",
-                "description": "the scenario file: TOML, or JSON when its name ends in .json",
+                "description": "the scenario file: TOML, or JSON when its name ends in .json; "
+                "or a .zip/.tar.gz of its folder with its side files",
+            },
+            "side": {
+                "type": "array",
+                "items": {"type": "string", "format": "binary"},
+                "maxItems": MAX_SIDE_FILES,
+                "description": "side files the scenario names (its base file, a measured damper "
+                "table), laid next to it",
+            },
+            "scenario_file": {
+                "type": "string",
+                "description": "which scenario of an archive to run, when it holds several",
             },
             **form_fields,
         },
@@ -403,6 +417,7 @@ def create_app(settings: Settings) -> FastAPI:
         return Response(status_code=204)
 
     app.include_router(monitoring_router(settings, store, queue, redis))
+    app.include_router(pages_router(settings, store))
     return app
 
 
@@ -434,15 +449,12 @@ async def _read_body(request: Request) -> tuple[dict[str, Any], bool]:
         return data, True
     if kind == "multipart/form-data":
         fields: dict[str, Any] = {}
-        async with request.form(max_files=1, max_fields=len(_FORM_FIELDS) + 1) as form:
-            upload = form.get("scenario")
-            if upload is None or isinstance(upload, str):
-                raise InputError.single(
-                    "scenario", "missing: upload the scenario file as 'scenario'"
-                )
-            fields["scenario"] = parse_scenario_file(await upload.read(), upload.filename or "")
+        async with request.form(
+            max_files=1 + MAX_SIDE_FILES, max_fields=len(_FORM_FIELDS) + 2
+        ) as form:
+            fields["scenario"] = await scenario_from_form(form)
             for name, value in form.multi_items():
-                if name == "scenario":
+                if name in UPLOAD_PARTS:
                     continue
                 if name not in _FORM_FIELDS:
                     raise InputError.single(name, "unknown field (check the spelling)")

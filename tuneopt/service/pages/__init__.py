@@ -1,0 +1,8 @@
+"""Pages for a browser: log in once with the API key, the jobs list with its progress, a form to
+start a job (a scenario with its side files, trials, a deadline), a job's page with its report,
+its setup sheets and a cancel button. Served by the job API under ``/shop``; see
+docs/shop-pages.md."""
+
+from tuneopt.service.pages.router import BASE, pages_router
+
+__all__ = ["BASE", "pages_router"]
