@@ -33,11 +33,11 @@ import pytest
 from tests.calibrate.conftest import BUDGET, FIT_SEEDS, RATE
 from tuneopt.calibrate import FitProblem, FitResult, LoggerFaults, fit_course, fit_space
 from tuneopt.calibrate.distance import distance, ride_samples
-from tuneopt.calibrate.scenario_file import write_fitted_scenario
 from tuneopt.calibrate.synthetic import SimulatedRide, ride_log_text, simulate_ride, with_faults
 from tuneopt.cli import main
 from tuneopt.model import Scenario, Setup, load_scenario
 from tuneopt.model.course import CourseSpec
+from tuneopt.report.fit_scenario import write_fitted_scenario
 from tuneopt.ridelog import parse_ride_log
 
 SPEED_TOLERANCE = 0.08

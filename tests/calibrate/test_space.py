@@ -8,9 +8,9 @@ import numpy as np
 import pytest
 
 from tests.calibrate.conftest import START_COURSE
-from tuneopt.calibrate.scenario_file import course_table
 from tuneopt.calibrate.space import class_of, fit_space, search_lengths
 from tuneopt.model.course import CourseSpec
+from tuneopt.report.fit_scenario import course_table
 from tuneopt.terrain import terrain_type
 
 

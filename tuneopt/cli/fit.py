@@ -113,12 +113,12 @@ def _ridden_setup(args: argparse.Namespace, log: Any, scenario: Any) -> tuple[An
 
 def run(args: argparse.Namespace) -> int:
     from tuneopt.calibrate.fit import FitProblem, fit_course, knob_checks
-    from tuneopt.calibrate.scenario_file import write_fitted_scenario
     from tuneopt.calibrate.space import fit_space
     from tuneopt.calibrate.summary import fit_json, fit_lines, parameter_rows
     from tuneopt.model import InputError, load_scenario
     from tuneopt.optimise.result import CAUTIONS
     from tuneopt.report.fit_page import fit_page, write_fit_page
+    from tuneopt.report.fit_scenario import write_fitted_scenario
     from tuneopt.ridelog import read_ride_log
     from tuneopt.ridelog.convert import fork_full_travel, rear_full_travel
     from tuneopt.terrain import build_course

@@ -1,6 +1,6 @@
-"""The fitted scenario as a file: the scenario as its file writes it (a base file merged in,
-units as written), with its ``[course]`` replaced by the fitted mix. The text is checked by the
-project's scenario loader before it is written and read back after."""
+"""The fitted scenario as a file (tuneopt fit): the scenario as its file writes it (a base file
+merged in, units as written), with its ``[course]`` replaced by the fitted mix. The text is
+checked by the project's scenario loader before it is written and read back after."""
 
 from __future__ import annotations
 
