@@ -135,6 +135,11 @@ class JobStore:
         self.redis = redis
         self.prefix = prefix
         self._raw_client: Redis | None = None
+        # Lua scripts sent once and run by their hash (redis-py loads them again after a restart)
+        self._set_if_exists = redis.register_script(_SET_IF_EXISTS)
+        self._progress = redis.register_script(_PROGRESS)
+        self._keep_last_20 = redis.register_script(_KEEP_LAST_20)
+        self._forget_submission = redis.register_script(_FORGET_SUBMISSION)
 
     # keys
     def key(self, job_id: str) -> str:
@@ -273,7 +278,7 @@ class JobStore:
     def set_fields(self, job_id: str, **fields: Any) -> None:
         """Set fields of a job that exists (a purged job stays purged)."""
         pairs = [str(x) for k, v in fields.items() for x in (k, v)]
-        self.redis.eval(_SET_IF_EXISTS, 1, self.key(job_id), *pairs)
+        self._set_if_exists(keys=[self.key(job_id)], args=pairs)
 
     def move(self, job_id: str, to: JobState, **fields: Any) -> bool:
         """Set the state unless the job already ended (a final state never changes)."""
@@ -331,23 +336,19 @@ class JobStore:
         pairs = [f"rate:{shard}", f"{per_minute!r}|{time.time()!r}"]
         if best is not None:
             pairs += ["best_score", repr(best)]
-        self.redis.eval(_PROGRESS, 1, self.key(job_id), str(finished), *pairs)
+        self._progress(keys=[self.key(job_id)], args=[str(finished), *pairs])
 
     def clear_rate(self, job_id: str, shard: int) -> None:
         self.redis.hdel(self.key(job_id), f"rate:{shard}")
 
     def add_error(self, job_id: str, message: str) -> None:
         """Keep the job's last 20 errors: real failures (not for a job that is gone)."""
-        self.redis.eval(
-            _KEEP_LAST_20, 2, self.key(job_id), self._errors_key(job_id), message[:2000]
-        )
+        self._keep_last_20(keys=[self.key(job_id), self._errors_key(job_id)], args=[message[:2000]])
 
     def add_event(self, job_id: str, message: str) -> None:
         """Keep the job's last 20 events: what happened to it that is not a failure (a shard
         handed back by a stopping worker, a shard taken over from a lost one)."""
-        self.redis.eval(
-            _KEEP_LAST_20, 2, self.key(job_id), self._events_key(job_id), message[:2000]
-        )
+        self._keep_last_20(keys=[self.key(job_id), self._events_key(job_id)], args=[message[:2000]])
 
     # service-wide counters and the census the metrics are read from
     @property
@@ -421,7 +422,7 @@ class JobStore:
         keys = self.job_keys(job_id, shards)
         with self.redis.pipeline() as pipe:
             if submission:
-                pipe.eval(_FORGET_SUBMISSION, 1, str(submission), job_id)
+                self._forget_submission(keys=[str(submission)], args=[job_id], client=pipe)
             pipe.delete(*keys)
             pipe.zrem(self.index_key, job_id)
             pipe.execute()

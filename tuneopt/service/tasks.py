@@ -103,6 +103,14 @@ def _queue() -> Queue:
     return Queue(_current().queue, connection=raw, serializer=JSONSerializer)
 
 
+# rq's time limits of a job's parts [s]: the start makes the study; a shard runs until the
+# deadline, plus its last piece and its hand-over; the finaliser may finish the budget until the
+# deadline, then ranks on fresh terrain and rides the report's setups
+START_SECONDS = 600
+SHARD_OVERRUN_SECONDS = 900
+FINALISE_SECONDS = 3600
+
+
 def _part_ttl() -> int:
     """How long rq keeps a finished part's own record [s]: a day, or less when the operator's
     retention is shorter (the job's result is kept in the job's record, not there)."""
@@ -118,7 +126,7 @@ def enqueue_start(queue: Queue, job_id: str, retries: int, pipeline: Pipeline | 
         job_id=rq_id(job_id, "start"),
         retry=Retry(max=retries) if retries else None,
         on_failure=Callback("tuneopt.service.tasks.job_failed"),
-        job_timeout=600,
+        job_timeout=START_SECONDS,
         result_ttl=_part_ttl(),
         failure_ttl=_current().retention_seconds,
         pipeline=pipeline,
@@ -221,7 +229,7 @@ def start_job(job_id: str) -> str:
                 args=(job_id, shard),
                 job_id=part,
                 retry=Retry(max=settings.shard_retries) if settings.shard_retries else None,
-                job_timeout=int(run_seconds) + 900,
+                job_timeout=int(run_seconds) + SHARD_OVERRUN_SECONDS,
                 result_ttl=_part_ttl(),
                 failure_ttl=settings.retention_seconds,
             )
@@ -235,7 +243,7 @@ def start_job(job_id: str) -> str:
             depends_on=Dependency(jobs=shards, allow_failure=True),
             retry=Retry(max=2),
             on_failure=Callback("tuneopt.service.tasks.job_failed"),
-            job_timeout=int(run_seconds) + 3600,
+            job_timeout=int(run_seconds) + FINALISE_SECONDS,
             result_ttl=_part_ttl(),
             failure_ttl=settings.retention_seconds,
         )
