@@ -177,3 +177,65 @@ def test_a_stop_acts_within_the_bound_in_the_middle_of_a_long_batch(
         f"{what} {took:.1f} s after the {stop} (bound stated: {STOP_BOUND:.0f} s)",
         f"pytest tests/service/test_stops.py -k '{stop}'",
     )
+
+
+def test_a_stopping_worker_hands_its_shard_back_within_the_bound(
+    settings: Settings, redis_client: Redis, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """A worker asked to stop (its warm shutdown) in the middle of a long batch hands the shard
+    back after the piece it is simulating, as an event, without spending a retry."""
+    monkeypatch.setattr(tasks, "_stopping", threading.Event())  # this test's own flag
+    long = settings.model_copy(update={"max_course_length": 3000.0, "piece_steps": 1_500_000})
+    scenario = _slow_course("1200 m")
+    riding = threading.Event()
+    real_ride = evaluate.ride_course
+
+    def ride(*args: Any, **kwargs: Any) -> Any:
+        riding.set()
+        return real_ride(*args, **kwargs)
+
+    monkeypatch.setattr(evaluate, "ride_course", ride)
+    with _client(long) as client:
+        body = {"scenario": scenario, "trials": 48, "shards": 1, "batch_size": 24,
+                "realisations": 1}  # fmt: skip
+        job_id = client.post("/jobs", json=body).json()["id"]
+        worker = make_worker(long, name=f"stop-{time.monotonic_ns()}")
+        worker.work(burst=True, max_jobs=1)  # the start part
+        model = scenario_from_data(scenario)
+        url = long.redis_url.get_secret_value()
+        study = optuna.load_study(
+            study_name=job_id, storage=redis_storage(url, f"tuneopt:study:{job_id}")
+        )
+        for _ in range(23):
+            study.enqueue_trial(build_space(model).indices(model.setup))
+        asked: list[float] = []
+
+        def stop_worker() -> None:
+            if riding.wait(timeout=300):
+                time.sleep(1.0)
+                tasks.stop_shards()  # what the worker's warm shutdown does
+                asked.append(time.time())
+
+        helper = threading.Thread(target=stop_worker, daemon=True)
+        helper.start()
+        worker.work(burst=True, max_jobs=1)  # the shard: stopped within its first batch
+        returned = time.time()
+        helper.join(timeout=10)
+        assert asked, "the batch never started"
+        status = client.get(f"/jobs/{job_id}").json()
+    took = returned - asked[0]
+    assert took < STOP_BOUND + MARGIN, f"handed back {took:.1f} s after the stop"
+    assert status["state"] == "running" and status["errors"] == []
+    assert any("handed back" in e for e in status["events"]), status["events"]
+    trials = study.get_trials(deepcopy=False)
+    assert sum(t.state == TrialState.COMPLETE for t in trials) < 24
+    assert not [t for t in trials if t.state == TrialState.RUNNING]
+    shard_key = f"rq:job:{tasks.rq_id(job_id, 'shard-0')}"
+    assert redis_client.hget(shard_key, "status") == "queued"  # back on the queue for another
+    assert int(redis_client.hget(shard_key, "retries_left") or -1) == long.shard_retries
+    record(
+        "a worker asked to stop in the middle of a long batch (24 setups x 1.2 million steps)",
+        f"the shard was handed back {took:.1f} s after the stop (bound stated: "
+        f"{STOP_BOUND:.0f} s), as an event, with no retry spent",
+        "pytest tests/service/test_stops.py -k stopping_worker",
+    )
