@@ -2,9 +2,9 @@
 
 The demo bike (scenarios/trail_air.toml, its current setup) is ridden over "the loop as it
 really is": the scenario's four terrain types in other shares, with smaller roots, slower
-rocks with smaller drops and a faster, rougher smooth section than the scenario guesses. Nothing here is a measurement: the
-course, the rider and the numbers are ours. Sensor noise of 0.3 mm and a few short dropouts
-(filled by the reader) make it look like a logger's file.
+rocks with smaller drops and a faster, rougher smooth section than the scenario guesses.
+Nothing here is a measurement: the course, the rider and the numbers are ours. Sensor noise
+of 0.3 mm and a few short dropouts (filled by the reader) make it look like a logger's file.
 
 Run ``python -m tuneopt.calibrate.demo`` to write it again (scenarios/demo_ride_log.csv).
 """
