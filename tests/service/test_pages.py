@@ -384,3 +384,26 @@ def test_a_finished_job_shows_its_report_and_setup_sheets(
     )
     assert browser.get(f"/shop/jobs/{job}/sheet?rank=99").status_code == 409
     assert browser.get(f"/shop/jobs/{job}/result.json").json() == result
+
+
+def test_hostile_job_ids_and_oversized_forms_get_plain_answers(
+    browser: TestClient, shop_settings: Settings
+) -> None:
+    from tests.service.test_api import HOSTILE_IDS
+
+    _log_in(browser, shop_settings)
+    for job_id in HOSTILE_IDS:
+        for suffix in ("", "/report", "/sheet", "/result.json"):
+            answer = browser.get(f"/shop/jobs/{job_id}{suffix}")
+            assert answer.status_code in (303, 307, 404), (job_id, suffix, answer.status_code)
+    for job_id in ("0" * 32, "abc", "A" * 32):  # ours to answer: a page, not JSON
+        answer = browser.get(f"/shop/jobs/{job_id}")
+        assert answer.status_code == 404 and "no such job" in answer.text
+        assert answer.headers["content-type"].startswith("text/html")
+        answer = browser.post(f"/shop/jobs/{job_id}/cancel")
+        assert answer.status_code in (404, 405), (job_id, answer.status_code)
+    # more side files than the service reads: the form again, saying why
+    files = _files("trail_air.toml") + [("side", (f"t{i}.csv", b"x")) for i in range(12)]
+    answer = browser.post("/shop/new", files=files)
+    assert answer.status_code == 400 and "Too many files" in _problems(answer.text)
+    assert _store(shop_settings).list(10) == []

@@ -18,6 +18,7 @@ from typing import Any
 import httpx2
 from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse, JSONResponse, RedirectResponse, Response
+from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from tuneopt.model import InputError, scenario_from_data
 from tuneopt.optimise.evaluate import DEFAULT_REALISATIONS
@@ -76,13 +77,14 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
     def to_login() -> Response:
         return RedirectResponse(f"{BASE}/login", status_code=303)
 
-    def refused(request: Request) -> Response | None:
-        """The answer for a request that may not go on: a form posted from another site, or
-        not logged in (a page sends the browser to the log-in form; an action is refused)."""
+    def refused(request: Request, job_id: str | None = None) -> Response | None:
+        """The answer for a request that may not go on: a form posted from another site, not
+        logged in (a page sends the browser to the log-in form; an action is refused), or a
+        job id that cannot be one."""
         if _foreign(request):
             return _text(403, "this form was sent from another site")
         if signed_in(request):
-            return None
+            return None if job_id is None or is_job_id(job_id) else _text(404, "no such job")
         if request.method == "GET":
             return to_login()
         return _text(401, "not logged in, or the log-in has expired: log in again")
@@ -167,21 +169,15 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
     async def submit(request: Request) -> Response:
         if (no := refused(request)) is not None:
             return no
-        async with request.form(max_files=1 + MAX_SIDE_FILES, max_fields=12) as form:
-            text = {k: v.strip() for k, v in form.multi_items() if isinstance(v, str)}
-            try:
-                run_seconds = deadline_seconds(
-                    text.get("deadline", ""),
-                    datetime.now(UTC),
-                    tz_offset(text.get("tz_offset", "")),
-                )
-            except InputError as exc:
-                return new_form(request, 422, input_problems(exc), text)
-            files = []
-            for name in UPLOAD_PARTS:
-                for part in form.getlist(name):
-                    if not isinstance(part, str) and (part.filename or part.size):
-                        files.append((name, (part.filename or "", await part.read())))
+        try:
+            text, files = await _job_form(request)
+        except StarletteHTTPException as exc:  # too many parts, too large, not a form
+            return new_form(request, exc.status_code, [("form", str(exc.detail))], {})
+        try:
+            offset = tz_offset(text.get("tz_offset", ""))
+            run_seconds = deadline_seconds(text.get("deadline", ""), datetime.now(UTC), offset)
+        except InputError as exc:
+            return new_form(request, 422, input_problems(exc), text)
         fields = {k: text[k] for k in ("trials", "realisations", "scenario_file") if text.get(k)}
         if run_seconds is not None:
             fields["run_seconds"] = repr(run_seconds)
@@ -200,7 +196,7 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
 
     @router.get(BASE + "/jobs/{job_id}")
     async def job(request: Request, job_id: str) -> Response:
-        if (no := refused(request)) is not None:
+        if (no := refused(request, job_id)) is not None:
             return no
         answer = await call(request, "GET", f"/jobs/{job_id}")
         if answer.status_code != 200:
@@ -228,7 +224,7 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
 
     @router.post(BASE + "/jobs/{job_id}/cancel")
     async def cancel(request: Request, job_id: str) -> Response:
-        if (no := refused(request)) is not None:
+        if (no := refused(request, job_id)) is not None:
             return no
         answer = await call(request, "POST", f"/jobs/{job_id}/cancel")
         if answer.status_code not in (202, 409):  # 409: it ended meanwhile; show it
@@ -237,7 +233,7 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
 
     @router.get(BASE + "/jobs/{job_id}/report")
     async def report(request: Request, job_id: str) -> Response:
-        if (no := refused(request)) is not None:
+        if (no := refused(request, job_id)) is not None:
             return no
         answer = await call(request, "GET", f"/jobs/{job_id}/report")
         if answer.status_code != 200:
@@ -246,7 +242,7 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
 
     @router.get(BASE + "/jobs/{job_id}/result.json")
     async def result_file(request: Request, job_id: str) -> Response:
-        if (no := refused(request)) is not None:
+        if (no := refused(request, job_id)) is not None:
             return no
         answer = await call(request, "GET", f"/jobs/{job_id}/result")
         if answer.status_code != 200:
@@ -258,7 +254,7 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
 
     @router.get(BASE + "/jobs/{job_id}/sheet")
     async def sheet(request: Request, job_id: str, rank: int | None = None) -> Response:
-        if (no := refused(request)) is not None:
+        if (no := refused(request, job_id)) is not None:
             return no
         answer = await call(request, "GET", f"/jobs/{job_id}/result")
         if answer.status_code != 200:
@@ -273,6 +269,18 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
         return HTMLResponse(render_setup_sheets(sheets), headers=_headers(_CSP))
 
     return router
+
+
+async def _job_form(request: Request) -> tuple[dict[str, str], list[tuple[str, Any]]]:
+    """The new-job form's text fields, and its files as (part, (name, bytes)) to pass on."""
+    async with request.form(max_files=1 + MAX_SIDE_FILES, max_fields=12) as form:
+        text = {k: v.strip() for k, v in form.multi_items() if isinstance(v, str)}
+        files = []
+        for name in UPLOAD_PARTS:
+            for part in form.getlist(name):
+                if not isinstance(part, str) and (part.filename or part.size):
+                    files.append((name, (part.filename or "", await part.read())))
+    return text, files
 
 
 def _leads(store: JobStore, job_id: str, result: dict[str, Any]) -> list[tuple[int, str]]:

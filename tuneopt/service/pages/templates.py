@@ -93,7 +93,7 @@ runs.{% else %}No job is running.{% endif %} <a href="{{ base }}/new">Start a ne
 <span class="state">{{ j.state_text }}</span></div>
 <div><progress max="{{ j.budget or 1 }}" value="{{ j.finished }}"></progress>
 <span class="trials">{{ j.trials }}</span>
-{% if j.best %}&middot; best score <span class="best">{{ j.best }}</span>{% endif %}
+{% if j.best %}&middot; best search score <span class="best">{{ j.best }}</span>{% endif %}
 {% if j.left %}&middot; <span class="left">{{ j.left }}</span>{% endif %}</div>
 <div class="facts">submitted {{ j.submitted }}
 {% if j.deadline %} &middot; {{ j.deadline }}{% endif %}</div>
@@ -156,7 +156,8 @@ JOB = """{% extends "layout" %}{% block body %}
 <dl class="status">
 <dt>Trials</dt><dd><progress max="{{ j.budget or 1 }}" value="{{ j.finished }}"></progress>
 <span class="trials">{{ j.trials }}</span></dd>
-<dt>Best score</dt><dd>{{ j.best or "none yet" }}{% if j.best %} (lower is better){% endif %}</dd>
+<dt>Best search score</dt><dd>{{ j.best or "none yet" }}{% if j.best %} (lower is better;
+the recommended setups below are scored again on fresh terrain){% endif %}</dd>
 {% if j.left %}<dt>Time left</dt><dd>{{ j.left }}</dd>{% endif %}
 {% if j.pace %}<dt>Pace</dt><dd>{{ j.pace }}</dd>{% endif %}
 <dt>Submitted</dt><dd>{{ j.submitted }}</dd>
