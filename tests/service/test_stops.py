@@ -30,6 +30,9 @@ from tuneopt.service.worker import make_worker
 # loaded test machine), as a functional bound, not a speed figure
 STOP_BOUND = 10.0
 MARGIN = 20.0
+# setups in the long batch: all of them ride (the current setup, enqueued again), so on any
+# machine the batch lasts well past a deadline 8 s into the job; a stop cuts it after one piece
+BATCH = 64
 
 
 def _client(settings: Settings) -> TestClient:
@@ -72,15 +75,15 @@ def test_a_setup_that_costs_more_than_the_limit_is_refused_naming_the_fields(
 def test_a_stop_acts_within_the_bound_in_the_middle_of_a_long_batch(
     settings: Settings, redis_client: Redis, monkeypatch: pytest.MonkeyPatch, stop: str
 ) -> None:
-    """One batch of 24 setups that all ride 1.2 km at walking pace (1.2 million time steps
+    """One batch of 64 setups that all ride 1.2 km at walking pace (1.2 million time steps
     each) is a long simulation; the stop comes a second or more into it. Cancel: the job ends
     within the bound. Delete: the job is purged within the bound. Deadline: the shard stops and
     the finaliser starts within the bound (its ranking on fresh terrain, replaced here by the
     search's own ranking to keep the test short, is stated apart in docs/service.md)."""
     long = settings.model_copy(update={"max_course_length": 3000.0, "piece_steps": 1_500_000})
     scenario = _slow_course("1200 m")
-    body: dict[str, Any] = {"scenario": scenario, "trials": 48, "shards": 1,
-                            "batch_size": 24, "realisations": 1}  # fmt: skip
+    body: dict[str, Any] = {"scenario": scenario, "trials": 128, "shards": 1,
+                            "batch_size": BATCH, "realisations": 1}  # fmt: skip
     if stop == "deadline":
         body["run_seconds"] = 8
     ranked_at: list[float] = []
@@ -117,7 +120,7 @@ def test_a_stop_acts_within_the_bound_in_the_middle_of_a_long_batch(
         url = long.redis_url.get_secret_value()
         storage = redis_storage(url, f"tuneopt:study:{job_id}")
         study = optuna.load_study(study_name=job_id, storage=storage)
-        for _ in range(23):
+        for _ in range(BATCH - 1):
             study.enqueue_trial(build_space(model).indices(model.setup))
         stopped_at: list[float] = []
 
@@ -148,7 +151,8 @@ def test_a_stop_acts_within_the_bound_in_the_middle_of_a_long_batch(
             assert took < STOP_BOUND + MARGIN, f"purged {took:.1f} s after the delete"
             assert [k for k in redis_client.scan_iter() if job_id in k and "final" not in k] == []
             record(
-                "a delete in the middle of a long batch (24 setups x 1.2 million time steps)",
+                f"a delete in the middle of a long batch ({BATCH} setups x 1.2 million time "
+                "steps)",
                 f"the job was purged {took:.1f} s after the delete (bound stated: "
                 f"{STOP_BOUND:.0f} s)",
                 "pytest tests/service/test_stops.py -k delete",
@@ -164,16 +168,16 @@ def test_a_stop_acts_within_the_bound_in_the_middle_of_a_long_batch(
     took = acted - stopped_at[0]
     # the first batch never finished: the stop acted inside it, not after it, and the setups
     # it had not ridden yet were queued again
-    assert result["trials"]["finished"] < 24, result["trials"]
+    assert result["trials"]["finished"] < BATCH, result["trials"]
     trials = study.get_trials(deepcopy=False)
-    assert len(trials) >= 24 and sum(bool(t.user_attrs.get("reaped")) for t in trials) >= 1
+    assert len(trials) >= BATCH and sum(bool(t.user_attrs.get("reaped")) for t in trials) >= 1
     assert not [t for t in trials if t.state == TrialState.RUNNING]
     assert result["stopped"] == ("cancelled" if stop == "cancel" else "deadline")
     assert status["state"] in (("cancelled",) if stop == "cancel" else ("done", "failed")), status
     assert took < STOP_BOUND + MARGIN, f"it acted {took:.1f} s after the {stop}"
     what = "the job ended" if stop == "cancel" else "the shard stopped and the finaliser started"
     record(
-        f"a {stop} in the middle of a long batch (24 setups x 1.2 million time steps)",
+        f"a {stop} in the middle of a long batch ({BATCH} setups x 1.2 million time steps)",
         f"{what} {took:.1f} s after the {stop} (bound stated: {STOP_BOUND:.0f} s)",
         f"pytest tests/service/test_stops.py -k '{stop}'",
     )
@@ -196,7 +200,7 @@ def test_a_stopping_worker_hands_its_shard_back_within_the_bound(
 
     monkeypatch.setattr(evaluate, "ride_course", ride)
     with _client(long) as client:
-        body = {"scenario": scenario, "trials": 48, "shards": 1, "batch_size": 24,
+        body = {"scenario": scenario, "trials": 128, "shards": 1, "batch_size": BATCH,
                 "realisations": 1}  # fmt: skip
         job_id = client.post("/jobs", json=body).json()["id"]
         worker = make_worker(long, name=f"stop-{time.monotonic_ns()}")
@@ -206,7 +210,7 @@ def test_a_stopping_worker_hands_its_shard_back_within_the_bound(
         study = optuna.load_study(
             study_name=job_id, storage=redis_storage(url, f"tuneopt:study:{job_id}")
         )
-        for _ in range(23):
+        for _ in range(BATCH - 1):
             study.enqueue_trial(build_space(model).indices(model.setup))
         asked: list[float] = []
 
@@ -228,13 +232,14 @@ def test_a_stopping_worker_hands_its_shard_back_within_the_bound(
     assert status["state"] == "running" and status["errors"] == []
     assert any("handed back" in e for e in status["events"]), status["events"]
     trials = study.get_trials(deepcopy=False)
-    assert sum(t.state == TrialState.COMPLETE for t in trials) < 24
+    assert sum(t.state == TrialState.COMPLETE for t in trials) < BATCH
     assert not [t for t in trials if t.state == TrialState.RUNNING]
     shard_key = f"rq:job:{tasks.rq_id(job_id, 'shard-0')}"
     assert redis_client.hget(shard_key, "status") == "queued"  # back on the queue for another
     assert int(redis_client.hget(shard_key, "retries_left") or -1) == long.shard_retries
     record(
-        "a worker asked to stop in the middle of a long batch (24 setups x 1.2 million steps)",
+        f"a worker asked to stop in the middle of a long batch ({BATCH} setups x 1.2 million "
+        "steps)",
         f"the shard was handed back {took:.1f} s after the stop (bound stated: "
         f"{STOP_BOUND:.0f} s), as an event, with no retry spent",
         "pytest tests/service/test_stops.py -k stopping_worker",
