@@ -250,6 +250,16 @@ def test_a_folder_as_an_archive_starts_through_the_form(
     job = _submit(browser, [("scenario", ("enduro.tar.gz", archive))])
     enduro = SCENARIOS / "enduro_coil.toml"
     assert store.scenario(job) == load_scenario(enduro).model_dump(mode="json")
+    # another scenario in the folder, naming files not sent, does not stand in the way
+    stray = b'base = "../elsewhere.toml"\n[fork.damper]\nmeasured_table = "gone.csv"\n'
+    members = {f"f/{n}": (SCENARIOS / n).read_bytes() for n in ("trail_air.toml",)}
+    job = _submit(
+        browser,
+        [("scenario", ("f.zip", _zip_of({**members, "f/notes/other.toml": stray})))],
+        scenario_file="f/trail_air.toml",
+    )
+    dry = SCENARIOS / "trail_air.toml"
+    assert store.scenario(job) == load_scenario(dry).model_dump(mode="json")
 
 
 def _zip_of(members: dict[str, bytes]) -> bytes:
@@ -268,7 +278,11 @@ def test_form_problems_are_named_and_start_nothing(
     enduro = (SCENARIOS / "enduro_coil.toml").read_bytes()
     small = write_toml(small_scenario()).encode()
     cases: list[tuple[Any, dict[str, str], list[str]]] = [
-        ([("scenario", ("trail_air_wet.toml", wet))], {}, ["scenario.base", "trail_air.toml"]),
+        (
+            [("scenario", ("trail_air_wet.toml", wet))],
+            {},
+            ["scenario.base", "'trail_air.toml' is not among the files sent"],
+        ),
         (
             [("scenario", ("enduro_coil.toml", enduro))],
             {},
@@ -282,6 +296,14 @@ def test_form_problems_are_named_and_start_nothing(
             [("scenario", ("s.toml", b'base = "../../etc/passwd"\n'))],
             {},
             ["scenario.base", "no absolute path, no '..'"],
+        ),
+        (  # a base of any name is read as TOML: its own base is followed and checked too
+            [
+                ("scenario", ("s.toml", b'base = "common.txt"\n' + small)),
+                ("side", ("common.txt", b'base = "../../etc/passwd"\n')),
+            ],
+            {},
+            ["scenario.base", "'../../etc/passwd' in common.txt", "no absolute path"],
         ),
         (
             [("scenario", ("x.zip", _zip_of({"../s.toml": small})))],

@@ -94,7 +94,7 @@ def read_upload(
         if path in files:
             raise InputError.single("side", f"{path} is sent twice")
         files[path] = body
-    _check_references(files)
+    _check_references(files, main)
     return _load(files, main)
 
 
@@ -238,22 +238,45 @@ def _leads_down(name: str) -> bool:
     return ".." not in parts and any(p not in ("", ".") for p in parts)
 
 
-def _check_references(files: dict[str, bytes]) -> None:
-    """Every file name a scenario file refers to leads down from it: the loader then reads
-    nothing outside the upload's folder (a name that is not text is the loader's to refuse)."""
+_SEND_TOO = "; send it too: as a side file, or the scenario's folder as a .zip or .tar.gz"
+
+
+def _check_references(files: dict[str, bytes], main: str) -> None:
+    """Follow the scenario's files as the loader will (its base, the base's base, ...): every
+    file name they give leads down from the file that gives it, so the loader reads nothing
+    outside the upload's folder, and is among the files sent. A base is read as TOML unless
+    its name ends in .json, whatever its suffix, as the loader reads it."""
     problems = []
-    for path in sorted(files):
-        if not path.lower().endswith(_SCENARIO_SUFFIXES):
-            continue
+    folder = posixpath.dirname(main)
+    path: str | None = main
+    seen: set[str] = set()
+    while path is not None and path in files and path not in seen:
+        seen.add(path)
+        following = None
         for field, name in _references(_parsed(path, files[path]) or {}):
-            if isinstance(name, str) and not _leads_down(name):
+            if not isinstance(name, str):  # the loader says what is wrong with it
+                continue
+            where = f"scenario.{field}"
+            if not _leads_down(name):
                 problems.append(
                     FieldProblem(
-                        f"scenario.{field}",
+                        where,
                         f"{name!r} in {path}: an uploaded scenario may name only files in its "
                         "own folder or below it (no absolute path, no '..')",
                     )
                 )
+                continue
+            if field == "base":  # next to the file that names it
+                target = posixpath.normpath(posixpath.join(posixpath.dirname(path), name))
+                what, following = "the base file", target
+            else:  # next to the scenario being run, as the loader reads tables
+                target = posixpath.normpath(posixpath.join(folder, name))
+                what = "the measured table"
+            if target not in files:
+                problems.append(
+                    FieldProblem(where, f"{what} {name!r} is not among the files sent{_SEND_TOO}")
+                )
+        path = following
     if problems:
         raise InputError(problems)
 
@@ -284,7 +307,7 @@ def _hint(problem: FieldProblem) -> str:
     if problem.location.startswith(("base", "fork.damper", "shock.damper")) and (
         "no such" in problem.message.lower()
     ):
-        return " (send it too: as a side file, or the scenario's folder as a .zip or .tar.gz)"
+        return _SEND_TOO
     return ""
 
 
