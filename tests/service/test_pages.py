@@ -429,3 +429,35 @@ def test_hostile_job_ids_and_oversized_forms_get_plain_answers(
     answer = browser.post("/shop/new", files=files)
     assert answer.status_code == 400 and "Too many files" in _problems(answer.text)
     assert _store(shop_settings).list(10) == []
+
+
+def test_a_running_job_in_words() -> None:
+    """What the list and the job's page say of a running job, from the API's status."""
+    from tuneopt.service.pages.views import job_view
+
+    now = datetime(2026, 12, 3, 22, 0, tzinfo=UTC).timestamp()
+    status = {
+        "id": "a" * 32,
+        "scenario": "Trail bike",
+        "state": "running",
+        "created": "2026-12-03T21:30:00+00:00",
+        "started": "2026-12-03T21:31:00+00:00",
+        "ended": None,
+        "deadline": "2026-12-04T05:31:00+00:00",
+        "cancel_requested": False,
+        "progress": {
+            "finished": 120,
+            "budget": 400,
+            "best_score": 0.41234,
+            "trials_per_minute": 4.0,
+            "eta_seconds": 280 / 4.0 * 60,  # 280 trials left at 4 a minute: 70 min
+        },
+    }
+    view = job_view(status, now)
+    assert view["trials"] == "120 of 400 trials" and view["best"] == "0.4123"
+    assert view["left"] == "about 1 h 10 min left"
+    assert view["deadline"] == "stops at the latest in 7 h 31 min"
+    assert view["submitted"] == "30 min ago" and view["pace"] == "4.0 trials per minute"
+    assert view["live"] and view["state_text"] == "running"
+    status["cancel_requested"] = True
+    assert job_view(status, now)["state_text"] == "running, cancel asked for"

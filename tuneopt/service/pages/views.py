@@ -135,7 +135,7 @@ def api_problems(response: httpx2.Response) -> list[tuple[str, str]]:
     errors = body.get("errors") or []
     if not errors:
         return [("", str(body.get("detail", response.status_code)))]
-    names = {"run_seconds": "deadline"}
+    names = {"run_seconds": "deadline", "Idempotency-Key": "form"}
     return [(names.get(e["field"], e["field"]), e["message"]) for e in errors]
 
 
