@@ -199,6 +199,36 @@ def sos_step(sos: FloatArray, zi: FloatArray, x: float) -> float:
 
 
 @njit(cache=True, inline="always")
+def close_hit(
+    acc: FloatArray, off: int, i_in: int, i_max: int, i_sum: int, full_depth: float
+) -> None:
+    """End an open excursion: add it weighed min(1, its peak / full_depth)."""
+    if acc[off + i_in] > 0.0:
+        acc[off + i_in] = 0.0
+        acc[off + i_sum] += min(1.0, acc[off + i_max] / full_depth)
+
+
+@njit(cache=True, inline="always")
+def weigh_hit(
+    acc: FloatArray, off: int, depth: float, i_in: int, i_max: int, i_sum: int, i_deep: int,
+    full_depth: float,
+) -> None:
+    """One sample of an excursion past a stop (depth > 0 inside it): track its peak and the
+    deepest of all; when it ends, add it weighed by depth (``close_hit``)."""
+    if depth > 0.0:
+        if depth > acc[off + i_deep]:
+            acc[off + i_deep] = depth
+        if acc[off + i_in] > 0.0:
+            if depth > acc[off + i_max]:
+                acc[off + i_max] = depth
+        else:
+            acc[off + i_in] = 1.0
+            acc[off + i_max] = depth
+    else:
+        close_hit(acc, off, i_in, i_max, i_sum, full_depth)
+
+
+@njit(cache=True, inline="always")
 def accumulate_wheel(
     acc: FloatArray, off: int, hist: FloatArray, k: int, load: float, travel: float,
     travel_rate: float, tyre_defl: float, full_travel: float, rim_defl: float, static_load: float,
@@ -238,32 +268,10 @@ def accumulate_wheel(
         acc[off + WheelAcc.IN_RIM] = 1.0
         acc[off + WheelAcc.N_RIM] += 1.0
     # the same hits weighed by depth, from the first micrometre
-    if depth > 0.0:
-        if depth > acc[off + WheelAcc.DEEPEST]:
-            acc[off + WheelAcc.DEEPEST] = depth
-        if acc[off + WheelAcc.IN_HIT] > 0.0:
-            if depth > acc[off + WheelAcc.HIT_MAX]:
-                acc[off + WheelAcc.HIT_MAX] = depth
-        else:
-            acc[off + WheelAcc.IN_HIT] = 1.0
-            acc[off + WheelAcc.HIT_MAX] = depth
-    elif acc[off + WheelAcc.IN_HIT] > 0.0:
-        acc[off + WheelAcc.IN_HIT] = 0.0
-        acc[off + WheelAcc.HIT_SUM] += min(1.0, acc[off + WheelAcc.HIT_MAX] / BOTTOM_OUT_FULL_DEPTH)
-    if rim > 0.0:
-        if rim > acc[off + WheelAcc.RIM_DEEPEST]:
-            acc[off + WheelAcc.RIM_DEEPEST] = rim
-        if acc[off + WheelAcc.IN_RIM_HIT] > 0.0:
-            if rim > acc[off + WheelAcc.RIM_HIT_MAX]:
-                acc[off + WheelAcc.RIM_HIT_MAX] = rim
-        else:
-            acc[off + WheelAcc.IN_RIM_HIT] = 1.0
-            acc[off + WheelAcc.RIM_HIT_MAX] = rim
-    elif acc[off + WheelAcc.IN_RIM_HIT] > 0.0:
-        acc[off + WheelAcc.IN_RIM_HIT] = 0.0
-        acc[off + WheelAcc.RIM_HIT_SUM] += min(
-            1.0, acc[off + WheelAcc.RIM_HIT_MAX] / RIM_STRIKE_FULL_DEPTH
-        )
+    weigh_hit(acc, off, depth, WheelAcc.IN_HIT, WheelAcc.HIT_MAX, WheelAcc.HIT_SUM,
+              WheelAcc.DEEPEST, BOTTOM_OUT_FULL_DEPTH)
+    weigh_hit(acc, off, rim, WheelAcc.IN_RIM_HIT, WheelAcc.RIM_HIT_MAX, WheelAcc.RIM_HIT_SUM,
+              WheelAcc.RIM_DEEPEST, RIM_STRIKE_FULL_DEPTH)
     # top-out: full extension reached while extending fast; over once the end compresses again
     if acc[off + WheelAcc.IN_TOPOUT] > 0.0:
         if travel > 0.0:
@@ -319,14 +327,9 @@ def close_wheel(acc: FloatArray, off: int) -> None:
         acc[off + WheelAcc.BOTTOM_SUM] += acc[off + WheelAcc.EVENT_MAX]
         if acc[off + WheelAcc.EVENT_MAX] > acc[off + WheelAcc.BOTTOM_MAX]:
             acc[off + WheelAcc.BOTTOM_MAX] = acc[off + WheelAcc.EVENT_MAX]
-    if acc[off + WheelAcc.IN_HIT] > 0.0:
-        acc[off + WheelAcc.IN_HIT] = 0.0
-        acc[off + WheelAcc.HIT_SUM] += min(1.0, acc[off + WheelAcc.HIT_MAX] / BOTTOM_OUT_FULL_DEPTH)
-    if acc[off + WheelAcc.IN_RIM_HIT] > 0.0:
-        acc[off + WheelAcc.IN_RIM_HIT] = 0.0
-        acc[off + WheelAcc.RIM_HIT_SUM] += min(
-            1.0, acc[off + WheelAcc.RIM_HIT_MAX] / RIM_STRIKE_FULL_DEPTH
-        )
+    close_hit(acc, off, WheelAcc.IN_HIT, WheelAcc.HIT_MAX, WheelAcc.HIT_SUM, BOTTOM_OUT_FULL_DEPTH)
+    close_hit(acc, off, WheelAcc.IN_RIM_HIT, WheelAcc.RIM_HIT_MAX, WheelAcc.RIM_HIT_SUM,
+              RIM_STRIKE_FULL_DEPTH)
 
 
 @njit(cache=True, inline="always")
