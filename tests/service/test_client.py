@@ -10,7 +10,8 @@ import pytest
 
 from tests.conftest import write_toml
 from tests.service.conftest import after_first_report, small_scenario
-from tuneopt.cli import main
+from tuneopt.cli import main, submit
+from tuneopt.cli.service_client import Patience
 from tuneopt.service.settings import Settings
 from tuneopt.service.worker import make_worker
 
@@ -75,5 +76,7 @@ def test_client_errors_are_clear(
     scenario = tmp_path / "small.toml"
     scenario.write_text(write_toml(small_scenario()))
     monkeypatch.delenv("TUNEOPT_API_KEY")
+    monkeypatch.setattr(submit, "BRIEF", Patience(total=0.3, first=0.05))
     assert main(["submit", str(scenario), "--api", "http://127.0.0.1:9"]) == 1
-    assert "cannot reach the job service" in capsys.readouterr().err
+    err = capsys.readouterr().err
+    assert "cannot reach the job service at http://127.0.0.1:9" in err and "tried for" in err

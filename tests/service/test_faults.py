@@ -15,13 +15,12 @@ import os
 import signal
 import threading
 import time
-import urllib.error
-import urllib.request
 from collections.abc import Callable, Iterator, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 from typing import Any
 
+import httpx2
 import optuna
 import pytest
 from fastapi.testclient import TestClient
@@ -37,6 +36,7 @@ from tests.service.conftest import RedisServer, small_scenario
 from tests.service.processes import LIMIT, ApiProcess, Supervisor, Workers, kill, stop
 from tuneopt.cli import main
 from tuneopt.cli import submit as submit_command
+from tuneopt.cli.service_client import Patience
 from tuneopt.optimise.redis_storage import redis_storage
 from tuneopt.optimise.runner import count_finished
 from tuneopt.service import tasks
@@ -361,19 +361,19 @@ def test_a_submission_whose_answer_was_lost_is_sent_again_without_a_second_job(
     job between them."""
     scenario = tmp_path / "small.toml"
     scenario.write_text(write_toml(small_scenario()))
-    real = urllib.request.urlopen
+    real = httpx2.HTTPTransport.handle_request
     lost: list[str] = []
 
-    def answer_lost(request: Any, *args: Any, **kwargs: Any) -> Any:
-        response = real(request, *args, **kwargs)  # the API has stored the job
-        if request.get_method() == "POST" and not lost:
+    def answer_lost(transport: httpx2.HTTPTransport, request: httpx2.Request) -> httpx2.Response:
+        response = real(transport, request)  # the API has stored the job
+        if request.method == "POST" and not lost:
             lost.append(json.loads(response.read())["id"])
             response.close()
-            raise urllib.error.URLError("connection reset by peer")
+            raise httpx2.ReadError("connection reset by peer", request=request)
         return response
 
-    monkeypatch.setattr(submit_command, "RETRY_PAUSE", 0.05)
-    monkeypatch.setattr(urllib.request, "urlopen", answer_lost)
+    monkeypatch.setattr(submit_command, "BRIEF", Patience(total=10.0, first=0.05))
+    monkeypatch.setattr(httpx2.HTTPTransport, "handle_request", answer_lost)
     assert main(["submit", str(scenario), "--api", api, "--trials", "4"]) == 0
     told = capsys.readouterr().out.split()[-1]
     monkeypatch.undo()

@@ -1,112 +1,417 @@
 """``tuneopt submit``, ``status``, ``result`` and ``cancel``: the job service from the command
 line.
 
-They use the HTTP API only (standard library client); the API key comes from
-TUNEOPT_API_KEY, as for the service.
+They speak the service's HTTP API only (``tuneopt.cli.service_client``); the API key comes
+from TUNEOPT_API_KEY, as for the service. ``submit --wait`` follows the job to its end through
+an API restart or a Redis blip, then saves the report, the setup sheets and result.json into a
+folder.
 """
 
 from __future__ import annotations
 
 import argparse
+import io
 import json
 import os
+import posixpath
+import re
 import sys
+import tarfile
 import time
-import urllib.error
-import urllib.request
+import tomllib
 import uuid
+from datetime import datetime
+from pathlib import Path
 from typing import Any
 
-DEFAULT_API = "http://127.0.0.1:8000"
+from tuneopt.cli.optimise import parse_deadline
+from tuneopt.cli.service_client import (
+    BRIEF,
+    DEFAULT_API,
+    OUTAGE,
+    Patience,
+    ServiceClient,
+    ServiceError,
+)
+from tuneopt.model import FieldProblem, InputError, load_scenario
+
 ENDED = ("done", "failed", "cancelled")
-SUBMIT_ATTEMPTS = 3
-RETRY_PAUSE = 1.0  # [s], times the attempt's number
-# A waiting client polls through an API restart or a Redis blip: 15 tries, pauses of 1, 2, ...
-# 14 s, about 105 s in all, before it gives up (the job carries on regardless).
-WAIT_ATTEMPTS = 15
-
-
-class ApiError(Exception):
-    """An answer the user must see: the API's problem details, or no answer at all."""
-
-    def __init__(self, message: str, code: int):
-        super().__init__(message)
-        self.code = code
+POLL_SECONDS = 1.0  # between two looks at a job being waited for
+# the API's request fields, as this command's options (for the API's messages)
+OPTIONS = {
+    "trials": "--trials",
+    "seed": "--seed",
+    "realisations": "--realisations",
+    "run_seconds": "--until",
+    "scenario_file": "--scenario-file",
+}
+MAX_REALISATIONS = 32  # the API's own limit (tuneopt.service.requests.JobRequest)
+ARCHIVES = (".zip", ".tar.gz", ".tgz")
+_SCENARIO_SUFFIXES = (".toml", ".json")
+_ENDS = ("fork", "shock")
+# a job id the service made: used as a folder name, so nothing else is taken
+_PLAIN_ID = re.compile(r"[A-Za-z0-9_-]{1,128}")
 
 
 def register(sub: Any) -> None:
+    p = sub.add_parser(
+        "submit",
+        help="send a scenario to the job service",
+        description="Send SCENARIO to the job service: a scenario file (the files it names "
+        "are read here and sent with it), its folder, or a .zip/.tar.gz of its folder. With "
+        "--wait, follow the job to its end and save report.html, sheet.html and result.json "
+        "into a folder.",
+    )
+    p.add_argument("scenario", help="scenario file (.toml or .json), its folder, or an archive")
+    p.add_argument("--trials", type=int, help="budget of finished trials")
+    p.add_argument(
+        "--until",
+        help="deadline: HH:MM local time (the next one to come) or YYYY-MM-DDTHH:MM; the "
+        "service counts the time from when a worker starts the job",
+    )
+    p.add_argument("--seed", type=int, help="study seed")
+    p.add_argument(
+        "--realisations", type=int, help="terrain realisations each setup is raced over"
+    )
+    p.add_argument(
+        "--scenario-file",
+        metavar="NAME",
+        help="which scenario of a folder or archive to run, when it holds several",
+    )
+    p.add_argument(
+        "--wait",
+        action="store_true",
+        help="wait for the job (through a restart of the service), then save its files",
+    )
+    p.add_argument(
+        "--out", type=Path, metavar="DIR", help="with --wait: folder for the files (./<job id>)"
+    )
+    _api_option(p)
     for name, helptext in (
-        ("submit", "send a scenario to the job service"),
         ("status", "show a service job's state and progress"),
-        ("result", "show a finished service job's ranked setups"),
+        ("result", "show a finished service job's ranked setups (--out DIR: save its files)"),
         ("cancel", "stop a service job; the setups it finished are still ranked"),
     ):
         p = sub.add_parser(name, help=helptext)
-        if name == "submit":
-            p.add_argument("scenario", help="scenario file (.toml or .json)")
-            p.add_argument("--trials", type=int, help="budget of finished trials")
-            p.add_argument("--seed", type=int, help="study seed")
-            p.add_argument("--wait", action="store_true", help="wait and show progress")
-        else:
-            p.add_argument("job", help="job id")
-            if name == "result":
-                p.add_argument("--json", action="store_true", help="print the result as JSON")
-        p.add_argument("--api", default=DEFAULT_API, help=f"API address (default {DEFAULT_API})")
-        p.set_defaults(func=run, action=name)
+        p.add_argument("job", help="job id")
+        if name == "result":
+            p.add_argument("--json", action="store_true", help="print the result as JSON")
+            p.add_argument(
+                "--out",
+                type=Path,
+                metavar="DIR",
+                help="save report.html, sheet.html and result.json into DIR",
+            )
+        _api_option(p)
+    # every command of this module runs through ``run``
+    for command in ("submit", "status", "result", "cancel"):
+        sub.choices[command].set_defaults(func=run, action=command)
 
 
-def _request(
-    api: str,
-    method: str,
-    path: str,
-    body: dict[str, Any] | None = None,
-    headers: dict[str, str] | None = None,
-    attempts: int = 1,
-) -> Any:
-    """One call to the API; with ``attempts`` > 1, a call that got no answer (or a 503) is
-    sent again after a pause (only for calls that are safe to repeat)."""
-    data = None if body is None else json.dumps(body).encode()
-    req = urllib.request.Request(api.rstrip("/") + path, data=data, method=method)
-    req.add_header("Accept", "application/json")
-    if data is not None:
-        req.add_header("Content-Type", "application/json")
-    key = os.environ.get("TUNEOPT_API_KEY")
-    if key:
-        req.add_header("X-API-Key", key)
-    for name, value in (headers or {}).items():
-        req.add_header(name, value)
-    for attempt in range(1, attempts + 1):
-        try:
-            with urllib.request.urlopen(req, timeout=30) as response:
-                return json.loads(response.read() or b"null")
-        except urllib.error.HTTPError as exc:
-            if exc.code in (502, 503, 504) and attempt < attempts:
-                time.sleep(RETRY_PAUSE * attempt)
-                continue
-            raise ApiError(
-                _problem_text(exc), 2 if exc.code in (400, 413, 415, 422) else 1
-            ) from None
-        except (urllib.error.URLError, OSError) as exc:
-            if attempt < attempts:
-                time.sleep(RETRY_PAUSE * attempt)
-                continue
-            reason = getattr(exc, "reason", exc)
-            raise ApiError(f"cannot reach the job service at {api}: {reason}", 1) from None
-    raise AssertionError("unreachable")
+def _api_option(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--api", default=DEFAULT_API, help=f"API address (default {DEFAULT_API})")
 
 
-def _problem_text(exc: urllib.error.HTTPError) -> str:
+def run(args: argparse.Namespace) -> int:
     try:
-        problem = json.loads(exc.read())
-    except (ValueError, OSError):
-        return f"the service answered {exc.code} {exc.reason}"
-    lines = [f"{problem.get('title', exc.reason)} ({exc.code}): {problem.get('detail', '')}"]
-    for err in problem.get("errors", []) or []:
-        if isinstance(err, dict):
-            lines.append(f"  - {err.get('field') or err.get('location', '')}: {err.get('message')}")
-    return "\n".join(line.rstrip(": ") for line in lines)
+        if args.action == "submit":
+            return _submit(args)
+        with _client(args.api, BRIEF) as client:
+            if args.action == "status":
+                _show_status(client.status(args.job))
+                return 0
+            if args.action == "cancel":
+                _show_status(client.cancel(args.job))
+                print("  cancelling: shards stop after their current batch; then see "
+                      "`tuneopt result`")  # fmt: skip
+                return 0
+            _check_out(args.out)
+            data = client.result(args.job)
+            if args.json:
+                print(json.dumps(data, indent=2))
+            else:
+                _print_result(data)
+            if args.out is not None:
+                _say_saved(args.out, _save_files(client, args.job, args.out, data))
+            return 0
+    except ServiceError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return exc.code
 
 
+def _client(api: str, patience: Patience) -> ServiceClient:
+    return ServiceClient(
+        api,
+        os.environ.get("TUNEOPT_API_KEY"),
+        patience,
+        fields=OPTIONS,
+        notify=lambda message: print(message, file=sys.stderr),
+    )
+
+
+# -- submitting ----------------------------------------------------------------------------
+def _submit(args: argparse.Namespace) -> int:
+    _check_submit(args)
+    deadline = parse_deadline(args.until) if args.until is not None else None
+    # the time left is taken once: every try of the submission sends the same request
+    run_seconds = None if deadline is None else round(max(deadline - time.time(), 1.0), 1)
+    request = _submission(args, run_seconds)
+    token = uuid.uuid4().hex  # one key for every try: a lost answer, sent again, makes no twin
+    with _client(args.api, OUTAGE if args.wait else BRIEF) as client:
+        try:
+            status = client.submit(request, token)
+        except ServiceError as exc:
+            if run_seconds is None or exc.status != 422 or "run_seconds" not in str(exc):
+                raise
+            raise ServiceError(
+                f"{exc}\n  (--until {args.until} is {_duration(run_seconds)} from now)", 2, 422
+            ) from None
+        job = str(status.get("id", ""))
+        if deadline is not None and run_seconds is not None:
+            print(
+                f"time budget {_duration(run_seconds)}, to {_clock(deadline)}: the service "
+                "counts it from when a worker starts the job"
+            )
+        print(f"submitted job {job}")
+        if not args.wait:
+            return 0
+        if not _PLAIN_ID.fullmatch(job):
+            raise ServiceError(f"the service named the job {job!r}, which is no job id")
+        status = _wait(client, job)
+        return _ended(client, status, args.out if args.out is not None else Path(job))
+
+
+def _check_submit(args: argparse.Namespace) -> None:
+    """The options, checked before anything is read or sent."""
+    problems = []
+    if args.trials is not None and args.trials < 1:
+        problems.append(FieldProblem("--trials", "must be at least 1"))
+    if args.seed is not None and not 0 <= args.seed <= 2**31 - 1:
+        problems.append(FieldProblem("--seed", f"must be a whole number from 0 to {2**31 - 1}"))
+    if args.realisations is not None and not 1 <= args.realisations <= MAX_REALISATIONS:
+        problems.append(
+            FieldProblem("--realisations", f"must be between 1 and {MAX_REALISATIONS}")
+        )
+    if args.out is not None and not args.wait:
+        problems.append(
+            FieldProblem(
+                "--out",
+                "goes with --wait (for a job already sent: tuneopt result JOB --out DIR)",
+            )
+        )
+    path = Path(args.scenario)
+    if args.scenario_file is not None and not (path.is_dir() or _is_archive(path)):
+        problems.append(
+            FieldProblem("--scenario-file", "chooses a scenario of a folder or an archive only")
+        )
+    if problems:
+        raise InputError(problems)
+    _check_out(args.out)
+
+
+def _check_out(out: Path | None) -> None:
+    if out is not None and out.exists() and not out.is_dir():
+        raise InputError.single("--out", f"{out} is a file, not a folder")
+
+
+def _is_archive(path: Path) -> bool:
+    return path.name.lower().endswith(ARCHIVES)
+
+
+def _submission(args: argparse.Namespace, run_seconds: float | None) -> dict[str, Any]:
+    """The request for ``POST /jobs``. A scenario file is read here, with its base files and
+    measured tables, and sent as JSON; a folder goes as a .tar.gz of the scenario it holds and
+    the files that scenario names; an archive goes as it is (multipart, as the API takes
+    side files)."""
+    options: dict[str, Any] = {
+        k: v
+        for k, v in (
+            ("trials", args.trials),
+            ("seed", args.seed),
+            ("realisations", args.realisations),
+            ("run_seconds", run_seconds),
+        )
+        if v is not None
+    }
+    path = Path(args.scenario)
+    if path.is_dir():
+        main = _choose_in_folder(path, args.scenario_file)
+        load_scenario(path / main)  # its problems, by field, before anything is sent
+        packed = _pack(path, _files_read(path, main))
+        form = {k: str(v) for k, v in options.items()} | {"scenario_file": main}
+        name = f"{path.resolve().name or 'scenario'}.tar.gz"
+        return {"data": form, "files": [("scenario", (name, packed, "application/gzip"))]}
+    if _is_archive(path):
+        try:
+            content = path.read_bytes()
+        except OSError as exc:
+            raise InputError.single(
+                "", f"cannot read the archive: {exc.strerror}", str(path)
+            ) from None
+        form = {k: str(v) for k, v in options.items()}
+        if args.scenario_file:
+            form["scenario_file"] = args.scenario_file
+        return {"data": form, "files": [("scenario", (path.name, content))]}
+    scenario = load_scenario(path)  # base files and measured tables resolved here
+    return {"json": {"scenario": scenario.model_dump(mode="json"), **options}}
+
+
+def _read(path: Path) -> dict[str, Any] | None:
+    """A scenario file's data as the loader parses it (JSON by its suffix, else TOML); None
+    when it does not parse."""
+    try:
+        text = path.read_text(encoding="utf-8")
+        data = json.loads(text) if path.suffix.lower() == ".json" else tomllib.loads(text)
+    except (OSError, ValueError, RecursionError):
+        return None
+    return data if isinstance(data, dict) else None
+
+
+def _choose_in_folder(folder: Path, wanted: str | None) -> str:
+    """The scenario of a folder to run, as a path inside it: the one named, else the only
+    scenario file in it that no other names as its base."""
+    if wanted:
+        path = (folder / wanted).resolve()
+        if not path.is_file() or not path.is_relative_to(folder.resolve()):
+            raise InputError.single("--scenario-file", f"no file {wanted!r} in {folder}")
+        return path.relative_to(folder.resolve()).as_posix()
+    scenarios = sorted(
+        p.name for p in folder.iterdir() if p.is_file() and p.suffix.lower() in _SCENARIO_SUFFIXES
+    )
+    bases = set()
+    for name in scenarios:
+        base = (_read(folder / name) or {}).get("base")
+        if isinstance(base, str):
+            bases.add(posixpath.normpath(base))
+    leaves = [n for n in scenarios if n not in bases]
+    if len(leaves) == 1:
+        return leaves[0]
+    if not scenarios:
+        raise InputError.single("scenario", f"{folder} holds no .toml or .json scenario file")
+    raise InputError.single(
+        "--scenario-file",
+        f"{folder} holds several scenarios ({', '.join(leaves or scenarios)}): name the one to "
+        "run",
+    )
+
+
+def _files_read(folder: Path, main: str) -> list[str]:
+    """The files the loader reads for ``main`` (paths inside ``folder``): the scenario, its
+    base files in turn (each next to the file naming it) and the measured tables the merged
+    scenario names (next to ``main``). The service reads only names that lead down from the
+    file naming them, so any other is refused here, by field."""
+    files = [main]
+    tables: dict[str, str] = {}  # by end: the most derived file's name wins, as in the merge
+    path: str | None = main
+    while path is not None:
+        data = _read(folder / path) or {}
+        for end in _ENDS:
+            part = data.get(end)
+            damper = part.get("damper") if isinstance(part, dict) else None
+            if isinstance(damper, dict) and isinstance(damper.get("measured_table"), str):
+                tables.setdefault(end, damper["measured_table"])
+        base = data.get("base")
+        path = None
+        if isinstance(base, str):
+            _leads_down(base, "base", path_of=files[-1])
+            path = posixpath.normpath(posixpath.join(posixpath.dirname(files[-1]), base))
+            if path in files:
+                break  # the loader has said what is wrong with a loop already
+            files.append(path)
+    for end, name in tables.items():
+        _leads_down(name, f"{end}.damper.measured_table", path_of=main)
+        files.append(posixpath.normpath(posixpath.join(posixpath.dirname(main), name)))
+    return list(dict.fromkeys(files))
+
+
+def _leads_down(name: str, field: str, path_of: str) -> None:
+    parts = name.replace("\\", "/").split("/")
+    if name.startswith(("/", "\\")) or ".." in parts or re.match(r"[A-Za-z]:", name):
+        raise InputError.single(
+            field,
+            f"{name!r} in {path_of}: the service reads only files in the scenario's own folder "
+            "or below it; send the scenario file itself instead (tuneopt submit FILE reads "
+            "the files it names here)",
+        )
+
+
+def _pack(folder: Path, files: list[str]) -> bytes:
+    """The files, by their paths inside ``folder``, as a .tar.gz."""
+    buffer = io.BytesIO()
+    with tarfile.open(fileobj=buffer, mode="w:gz") as tar:
+        for name in files:
+            tar.add(folder / name, arcname=name, recursive=False)
+    return buffer.getvalue()
+
+
+# -- waiting -------------------------------------------------------------------------------
+def _wait(client: ServiceClient, job: str) -> dict[str, Any]:
+    """Follow the job until it ends; its last status. The client keeps trying while the
+    service is away (its patience); the job carries on in the service regardless."""
+    from rich.console import Console
+    from rich.progress import BarColumn, Progress, TextColumn
+
+    with Progress(
+        TextColumn("[bold]{task.fields[state]}"),
+        BarColumn(),
+        TextColumn("{task.completed}/{task.total} trials"),
+        TextColumn("best {task.fields[best]}"),
+        console=Console(stderr=True),
+    ) as bar:
+        # what the client says meanwhile (print to stderr) shows above the bar: rich takes
+        # the standard streams over while the bar is up
+        task = bar.add_task("job", total=None, state="queued", best="-")
+        try:
+            while True:
+                status = client.status(job)
+                p = status["progress"]
+                bar.update(
+                    task,
+                    total=p["budget"],
+                    completed=min(p["finished"], p["budget"] or p["finished"]),
+                    state=status["state"],
+                    best="-" if p["best_score"] is None else f"{p['best_score']:.3f}",
+                )
+                if status["state"] in ENDED:
+                    return status
+                time.sleep(POLL_SECONDS)
+        except ServiceError as exc:
+            if exc.status is None:  # no answer for the whole patience: the job goes on
+                raise ServiceError(
+                    f"{exc}\nthe job goes on in the service: `tuneopt status {job}`, and once "
+                    f"it has ended `tuneopt result {job} --out DIR`"
+                ) from None
+            raise
+        except KeyboardInterrupt:
+            bar.console.print(f"stopped waiting; the job goes on: `tuneopt status {job}`")
+            raise
+
+
+def _ended(client: ServiceClient, status: dict[str, Any], folder: Path) -> int:
+    """Show how the job ended and save its files; the exit status (0: done)."""
+    job, state = status["id"], status["state"]
+    _show_status(status)
+    try:
+        data = client.result(job)
+    except ServiceError as exc:
+        if exc.status != 409:  # 409: it ended without a result
+            raise
+        data = None
+    if data is not None:
+        _print_result(data)
+        _say_saved(folder, _save_files(client, job, folder, data))
+    if state == "done":
+        return 0
+    if state == "cancelled":
+        print(f"error: job {job} was cancelled; the setups it finished are ranked above",
+              file=sys.stderr)  # fmt: skip
+        return 1
+    reasons = "; ".join(status.get("errors") or []) or "the service gave no reason"
+    print(f"error: job {job} {state}: {reasons}", file=sys.stderr)
+    return 1
+
+
+# -- showing and saving --------------------------------------------------------------------
 def _show_status(status: dict[str, Any]) -> None:
     p = status["progress"]
     best = "-" if p["best_score"] is None else f"{p['best_score']:.3f}"
@@ -116,42 +421,17 @@ def _show_status(status: dict[str, Any]) -> None:
         f"  trials {p['finished']}/{budget}, best score {best}, "
         f"{p['trials_per_minute']:.0f} trials/min"
     )
+    if status.get("deadline") and status["state"] not in ENDED:
+        then = datetime.fromisoformat(status["deadline"]).timestamp()
+        print(f"  stops at the latest at {_clock(then)}")
     for error in status.get("errors", []):
         print(f"  error: {error}")
 
 
-def _wait(api: str, job: str) -> dict[str, Any]:
-    from rich.progress import BarColumn, Progress, TextColumn
-
-    with Progress(
-        TextColumn("[bold]{task.fields[state]}"),
-        BarColumn(),
-        TextColumn("{task.completed}/{task.total} trials"),
-        TextColumn("best {task.fields[best]}"),
-    ) as bar:
-        task = bar.add_task("job", total=None, state="queued", best="-")
-        while True:
-            status = _request(api, "GET", f"/jobs/{job}", attempts=WAIT_ATTEMPTS)
-            p = status["progress"]
-            bar.update(
-                task,
-                total=p["budget"],
-                completed=min(p["finished"], p["budget"] or p["finished"]),
-                state=status["state"],
-                best="-" if p["best_score"] is None else f"{p['best_score']:.3f}",
-            )
-            if status["state"] in ENDED:
-                return dict(status)
-            time.sleep(1.0)
-
-
-def _show_result(api: str, job: str, as_json: bool) -> None:
+def _print_result(data: dict[str, Any]) -> None:
     from tuneopt.report import print_ranking
 
-    data = _request(api, "GET", f"/jobs/{job}/result")
-    if as_json:
-        print(json.dumps(data, indent=2))
-    elif data.get("ranked"):
+    if data.get("ranked"):
         print_ranking(data)
     else:
         print("the job ended without a ridable setup")
@@ -159,38 +439,55 @@ def _show_result(api: str, job: str, as_json: bool) -> None:
             print(f"- {caution}")
 
 
-def run(args: argparse.Namespace) -> int:
-    try:
-        if args.action == "submit":
-            from tuneopt.model import load_scenario
+def _save_files(
+    client: ServiceClient, job: str, folder: Path, data: dict[str, Any]
+) -> list[str]:
+    """Write result.json and, when the job ranked setups, the report and the setup sheets
+    into ``folder``; the names written, and why any is missing."""
+    from tuneopt.report import REPORT_FILE, SHEET_FILE
+    from tuneopt.report.run_data import RESULT_FILE
 
-            scenario = load_scenario(args.scenario)  # measured tables and base files resolved
-            body: dict[str, Any] = {"scenario": scenario.model_dump(mode="json")}
-            if args.trials is not None:
-                body["trials"] = args.trials
-            if args.seed is not None:
-                body["seed"] = args.seed
-            # one key for every attempt: a submission whose answer was lost, sent again, gets
-            # the job it made rather than a second one
-            token = {"Idempotency-Key": uuid.uuid4().hex}
-            status = _request(args.api, "POST", "/jobs", body, token, SUBMIT_ATTEMPTS)
-            print(f"submitted job {status['id']}")
-            if not args.wait:
-                return 0
-            status = _wait(args.api, status["id"])
-            _show_status(status)
-            if status["state"] == "done":
-                _show_result(args.api, status["id"], False)
-            return 0 if status["state"] == "done" else 1
-        if args.action == "status":
-            _show_status(_request(args.api, "GET", f"/jobs/{args.job}"))
-            return 0
-        if args.action == "cancel":
-            _show_status(_request(args.api, "POST", f"/jobs/{args.job}/cancel"))
-            print("  cancelling: shards stop after their current batch; then see `tuneopt result`")
-            return 0
-        _show_result(args.api, args.job, args.json)
-        return 0
-    except ApiError as exc:
-        print(f"error: {exc}", file=sys.stderr)
-        return exc.code
+    folder.mkdir(parents=True, exist_ok=True)
+    saved = []
+    if data.get("ranked"):
+        try:
+            _write(folder / REPORT_FILE, client.report(job))
+            saved.append(REPORT_FILE)
+        except ServiceError as exc:
+            if exc.status != 409:  # 409: no report kept (its errors say why)
+                raise
+            saved.append(f"(no {REPORT_FILE}: {exc})")
+        _write(folder / SHEET_FILE, client.setup_sheets(job))
+        saved.append(SHEET_FILE)
+    _write(folder / RESULT_FILE, json.dumps(data, indent=2) + "\n")
+    saved.append(RESULT_FILE)
+    return saved
+
+
+def _say_saved(folder: Path, names: list[str]) -> None:
+    print(f"saved in {folder}{os.sep}: {', '.join(names)}")
+
+
+def _write(path: Path, text: str) -> None:
+    """Write atomically: a file that is there is whole."""
+    tmp = path.with_name(path.name + ".part")
+    tmp.write_text(text, encoding="utf-8")
+    tmp.replace(path)
+
+
+def _clock(stamp: float) -> str:
+    """A moment in local time: HH:MM, with the day when it is not today."""
+    at = datetime.fromtimestamp(stamp)
+    today = datetime.now().date()
+    if at.date() == today:
+        return at.strftime("%H:%M")
+    if (at.date() - today).days == 1:
+        return at.strftime("%H:%M tomorrow")
+    return at.strftime("%Y-%m-%d %H:%M")
+
+
+def _duration(seconds: float) -> str:
+    minutes = round(seconds / 60)
+    if minutes < 60:
+        return f"{minutes} min"
+    return f"{minutes // 60} h {minutes % 60:02d} min"
