@@ -20,6 +20,13 @@ def test_check_prints_the_table_and_the_cautions(
     out = capsys.readouterr().out
     for text in ("sag (stroke)", "natural frequency", "head angle", "maker's manual"):
         assert text in out
+    # each end over the standard inputs, ridden for every shipped scenario
+    for text in ("Each end alone over standard inputs", "peak travel used", "pack-down"):
+        assert text in out
+    assert "run failed" not in out
+    assert main(["check", str(scenario_path), "--static-only"]) == 0
+    static_only = capsys.readouterr().out
+    assert "sag (stroke)" in static_only and "peak travel used" not in static_only
 
 
 def test_check_json_is_the_same_check(capsys: pytest.CaptureFixture[str]) -> None:
@@ -27,6 +34,10 @@ def test_check_json_is_the_same_check(capsys: pytest.CaptureFixture[str]) -> Non
     data = json.loads(capsys.readouterr().out)
     assert data["front"]["tyre_load"] + data["rear"]["tyre_load"] > 0
     assert "caution" in data and 15 < data["front"]["sag_percent"] < 30
+    ride = data["end_response"]
+    assert ride["fork"]["end"] == "fork" and ride["shock"]["end"] == "shock"
+    # the quarter-car's sag is the static check's, at the wheel
+    assert abs(ride["fork"]["sag"] - data["front"]["sag_wheel"]) < 1e-4
 
 
 def test_broken_scenario_exits_nonzero_with_field_paths(tmp_path: Path) -> None:

@@ -1,10 +1,15 @@
 """The static check's one formatter: the terminal's table and the report's columns say the
-check's own numbers, and ``tuneopt check`` prints exactly what the formatter gives."""
+check's own numbers, and ``tuneopt check`` prints exactly what the formatter gives; the same
+for each end alone over the standard inputs (``tuneopt.sim.end_response``)."""
 
 from __future__ import annotations
 
+import dataclasses
 import io
 import json
+import math
+import subprocess
+import sys
 
 import pytest
 from rich.console import Console
@@ -18,10 +23,13 @@ from tuneopt.report.static_text import (
     DAMPING_KEYS,
     check_table,
     geometry_table,
+    response_data,
+    response_table,
     static_findings,
     static_rows,
     summary_lines,
 )
+from tuneopt.sim.end_response import ResponseCheck, response_check
 
 # [D] 1 lbf = 0.45359237 kg x 9.80665 m/s^2 and 1 in = 0.0254 m, both exact by definition
 N_PER_M_PER_LBF_IN = 0.45359237 * 9.80665 / 0.0254
@@ -101,6 +109,100 @@ def test_check_json_is_the_formatters_data(capsys: pytest.CaptureFixture[str]) -
     path = SCENARIOS / "enduro_coil.toml"
     assert main(["check", str(path), "--json"]) == 0
     printed = json.loads(capsys.readouterr().out)
-    expected = json.loads(json.dumps(check_data(static_check(load_scenario(path)))))
+    scenario = load_scenario(path)
+    check = static_check(scenario)
+    expected = json.loads(json.dumps(check_data(check, response_check(scenario, check=check))))
     assert printed == expected
     assert printed["caution"] == STATIC_CHECK_CAUTION
+    assert printed["end_response"]["fork"]["end"] == "fork"
+
+
+@pytest.fixture(scope="module")
+def named_response(named_check: tuple[str, StaticCheck]) -> ResponseCheck:
+    name, c = named_check
+    path = {"Trail bike": "trail_air.toml", "Downhill bike": "downhill_coil.toml"}
+    scenario = load_scenario(SCENARIOS / next(v for k, v in path.items() if name.startswith(k)))
+    return response_check(scenario, check=c)
+
+
+def _percent(cell: str) -> float:
+    return float(cell.split("%")[0])
+
+
+def test_response_rows_are_the_responses_numbers(named_response: ResponseCheck) -> None:
+    r = named_response
+    rows = {label.strip(): (fork, shock) for label, fork, shock in response_table(r)}
+    for i, e in enumerate(r.ends):
+        assert not e.failure
+        step = rows[f"step at {r.inputs.speed:.1f} m/s"][i]
+        assert float(step.split(" mm")[0]) == pytest.approx(e.step_height * 1e3, abs=0.05)
+        assert _percent(rows["peak travel used"][i]) == pytest.approx(100 * e.peak, abs=0.5)
+        settle = rows["back to sag (within 3% of travel)"][i]
+        assert float(settle.split(" s")[0]) == pytest.approx(e.settle_time, abs=5e-3)
+        mm, shares = rows["overshoot past sag"][i].split(" mm = ")
+        assert float(mm) == pytest.approx(e.overshoot * e.travel * 1e3, abs=0.05)
+        of_travel, of_hit = shares.split(", ")
+        assert _percent(of_travel) == pytest.approx(100 * e.overshoot, abs=0.5)
+        assert _percent(of_hit) == pytest.approx(100 * e.overshoot_ratio, abs=0.5)
+        pack = next(v for k, v in rows.items() if k.endswith("pack-down"))[i]
+        assert _percent(pack) == pytest.approx(100 * e.pack_down, abs=0.5)
+        ridden = rows["damping ratio, ridden (decay)"][i]
+        assert float(ridden.split(" ± ")[0]) == pytest.approx(e.damping_ratio, abs=5e-3)
+        static = float(rows["static check: mean low-speed"][i])
+        assert static == pytest.approx(e.damping_ratio_static, abs=5e-3)
+
+
+def test_response_static_figure_is_the_checks_mean(
+    named_check: tuple[str, StaticCheck], named_response: ResponseCheck
+) -> None:
+    # [D] the mean of the two low-speed ratios the static table shows (tuneopt.physics.bounce:
+    # a free decay measures the mean coefficient)
+    _, c = named_check
+    for statics, e in zip((c.front, c.rear), named_response.ends, strict=True):
+        ratios = statics.damping_ratios
+        mean = 0.5 * (ratios["compression low-speed"] + ratios["rebound low-speed"])
+        assert e.damping_ratio_static == pytest.approx(mean, rel=1e-12)
+        assert e.sag == pytest.approx(statics.sag_wheel, rel=1e-3)
+
+
+def test_the_terminal_prints_the_responses_rows_and_warnings(
+    named_check: tuple[str, StaticCheck], named_response: ResponseCheck
+) -> None:
+    name, c = named_check
+    out = io.StringIO()
+    print_static_check(name, c, Console(file=out, width=120), response=named_response)
+    text = out.getvalue()
+    assert "Each end alone over standard inputs" in text
+    for label, fork, shock in response_table(named_response):
+        assert label in text and fork in text and shock in text
+    for f in named_response.findings:
+        assert f"{f.level}: {f.location}: {f.message[:40]}" in " ".join(text.split())
+    # without a response, the static layout alone
+    out = io.StringIO()
+    print_static_check(name, c, Console(file=out, width=120))
+    assert "Each end alone" not in out.getvalue()
+
+
+def test_response_data_has_no_nan(named_response: ResponseCheck) -> None:
+    # JSON has no NaN: a figure the run could not read is null; the rest are the response's
+    failed = dataclasses.replace(named_response.fork, damping_ratio=math.nan)
+    data = response_data(dataclasses.replace(named_response, fork=failed))
+    text = json.dumps(data, allow_nan=False)
+    assert json.loads(text)["fork"]["damping_ratio"] is None
+    assert data["shock"]["pack_down"] == named_response.shock.pack_down
+    assert data["inputs"]["speed"] == named_response.inputs.speed
+
+
+def test_static_only_leaves_the_ride_out() -> None:
+    # --static-only: no end response in the data, and its module never loaded (a fresh
+    # process, so that no other test has loaded it)
+    code = (
+        "import sys, io, contextlib, json; from tuneopt.cli import main; buf = io.StringIO()\n"
+        "with contextlib.redirect_stdout(buf):\n"
+        f"    rc = main(['check', {str(SCENARIOS / 'trail_air.toml')!r}, '--static-only', "
+        "'--json'])\n"
+        "data = json.loads(buf.getvalue())\n"
+        "print(rc, 'end_response' in data, 'tuneopt.sim.end_response' in sys.modules)"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.split() == ["0", "False", "False"]

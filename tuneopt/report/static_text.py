@@ -3,7 +3,9 @@
 Two layouts of the same ``StaticCheck`` (``tuneopt.physics.static_check``):
 - the terminal's (``tuneopt check``): one setup in full, each cell with its unit and trade units
   beside SI (``check_table``, ``geometry_table``, ``summary_lines``, printed
-  by ``print_static_check``), and the same check as JSON data (``check_data``);
+  by ``print_static_check``), and the same check as JSON data (``check_data``); with them,
+  when given, each end alone over the standard inputs (``tuneopt.sim.end_response``:
+  ``response_table``, ``response_data``);
 - the run report's: several setups side by side, a fork and a shock column each, units in the
   row labels (``static_rows``, ``static_findings``).
 """
@@ -11,14 +13,17 @@ Two layouts of the same ``StaticCheck`` (``tuneopt.physics.static_check``):
 from __future__ import annotations
 
 import dataclasses
+import math
 from collections.abc import Callable, Sequence
 from typing import TYPE_CHECKING, Any
 
 from tuneopt.model import convert
 from tuneopt.physics import StaticCheck
 
-if TYPE_CHECKING:  # names for annotations only (tuneopt.physics exports the check itself)
+if TYPE_CHECKING:  # names for annotations only (tuneopt.physics exports the check itself;
+    # the check's text loads no simulator: the caller runs the end response)
     from tuneopt.physics.static_check import EndStatics, Finding
+    from tuneopt.sim.end_response import EndResponse, ResponseCheck
 
 __all__ = [
     "STATIC_CHECK_CAUTION",
@@ -28,6 +33,8 @@ __all__ = [
     "finding_text",
     "geometry_table",
     "print_static_check",
+    "response_data",
+    "response_table",
     "static_findings",
     "static_rows",
     "summary_lines",
@@ -125,8 +132,73 @@ def summary_lines(c: StaticCheck) -> list[str]:
     ]
 
 
-def print_static_check(name: str, c: StaticCheck, console: Any = None) -> None:
-    """The terminal layout on ``console`` (default: stdout, at least 90 columns)."""
+def _share(x: float) -> str:
+    return f"{x:.0%}"
+
+
+def response_table(r: ResponseCheck) -> list[Row]:
+    """Rows (label, fork, shock) of each end alone over the standard inputs, every cell with
+    its unit; shares are of the end's wheel travel."""
+    fork, shock = r.fork, r.shock
+    inputs = r.inputs
+
+    def ends(cell: Callable[[EndResponse], str]) -> tuple[str, str]:
+        def one(e: EndResponse) -> str:
+            return "run failed" if e.failure else cell(e)
+
+        return one(fork), one(shock)
+
+    def peak(e: EndResponse) -> str:
+        if e.bottomed_out:
+            return f"bottoms out, {e.bottom_out_depth * 1e3:.0f} mm past"
+        return _share(e.peak)
+
+    def settle(e: EndResponse) -> str:
+        if math.isnan(e.settle_time):
+            return "not within the run"
+        return f"{e.settle_time:.2f} s ({e.settle_periods:.1f} periods)"
+
+    def overshoot(e: EndResponse) -> str:
+        if not e.overshoot > 0:
+            return "none"
+        of_hit = _share(e.overshoot_ratio)
+        return f"{_mm(e.overshoot * e.travel)} = {_share(e.overshoot)}, {of_hit} of the hit"
+
+    def bump_peak(e: EndResponse) -> str:
+        return "bottoms out" if e.bumps_bottomed_out else _share(e.bump_peak)
+
+    def ridden(e: EndResponse) -> str:
+        if math.isnan(e.damping_ratio):
+            return "no swing to read"
+        if math.isnan(e.damping_ratio_spread):
+            return f"{e.damping_ratio:.2f}"
+        return f"{e.damping_ratio:.2f} ± {e.damping_ratio_spread:.2f}"
+
+    band = _share(inputs.settle_band)
+    return [
+        (
+            f"step at {inputs.speed:.1f} m/s",
+            *ends(lambda e: f"{_mm(e.step_height)} ({_share(e.step_height / e.travel)})"),
+        ),
+        ("  peak travel used", *ends(peak)),
+        (f"  back to sag (within {band} of travel)", *ends(settle)),
+        ("  overshoot past sag", *ends(overshoot)),
+        (
+            f"{inputs.bump_count} bumps of {inputs.bump_height * 1e3:.0f} mm every "
+            f"{inputs.bump_spacing:.1f} m: pack-down",
+            *ends(lambda e: f"{_share(e.pack_down)} ({_mm(e.pack_down * e.travel)})"),
+        ),
+        ("  deepest travel", *ends(bump_peak)),
+        ("damping ratio, ridden (decay)", *ends(ridden)),
+        ("  static check: mean low-speed", *ends(lambda e: f"{e.damping_ratio_static:.2f}")),
+    ]
+
+
+def print_static_check(
+    name: str, c: StaticCheck, console: Any = None, response: ResponseCheck | None = None
+) -> None:
+    """The terminal layout on ``console`` (default: stdout, at least 90 columns); with
+    ``response``, each end alone over the standard inputs after the static tables."""
     from rich.console import Console
     from rich.table import Table
 
@@ -147,17 +219,55 @@ def print_static_check(name: str, c: StaticCheck, console: Any = None) -> None:
     console.print(g)
     for line in summary_lines(c):
         console.print(line)
-    for f in c.findings:
+    findings = list(c.findings)
+    if response is not None:
+        e = Table(title="Each end alone over standard inputs (quarter-car)")
+        e.add_column("")
+        e.add_column("front (fork)", justify="right")
+        e.add_column("rear (shock)", justify="right")
+        for row in response_table(response):
+            e.add_row(*row)
+        console.print(e)
+        findings += response.findings
+    for f in findings:
         style = "bold red" if f.level == "error" else "yellow"
         console.print(f"[{style}]{f.level}[/]: {finding_text(f)}")
     console.print(f"[dim]{STATIC_CHECK_CAUTION}[/]")
 
 
-def check_data(c: StaticCheck) -> dict[str, Any]:
-    """The check as JSON data, in SI, with its caution."""
+def _finite(value: Any) -> Any:
+    """NaN as None (JSON has no NaN)."""
+    return None if isinstance(value, float) and math.isnan(value) else value
+
+
+def response_data(r: ResponseCheck) -> dict[str, Any]:
+    """Each end alone over the standard inputs as JSON data: SI, shares of the wheel travel
+    as fractions, a figure that could not be read as null."""
+
+    def end(e: EndResponse) -> dict[str, Any]:
+        data = dataclasses.asdict(e)
+        data["sag_share"] = e.sag_share
+        data["settle_periods"] = e.settle_periods
+        return {k: _finite(v) for k, v in data.items()}
+
+    return {
+        "inputs": dataclasses.asdict(r.inputs),
+        "fork": end(r.fork),
+        "shock": end(r.shock),
+        "findings": [dataclasses.asdict(f) for f in r.findings],
+        "units": "SI: m, s, Hz, m/s; peak, overshoot, pack_down, bump_peak and sag_share are "
+        "shares of the wheel travel; overshoot_ratio is a share of the hit's compression",
+    }
+
+
+def check_data(c: StaticCheck, response: ResponseCheck | None = None) -> dict[str, Any]:
+    """The check as JSON data, in SI, with its caution; with ``response``, each end alone over
+    the standard inputs under "end_response"."""
     data = dataclasses.asdict(c)
     for end in ("front", "rear"):
         data[end]["sag_percent"] = getattr(c, end).sag_percent
+    if response is not None:
+        data["end_response"] = response_data(response)
     data["caution"] = STATIC_CHECK_CAUTION
     data["units"] = "SI: m, N, N/m, Hz, kg, m/s^2, degrees for angles"
     return data
