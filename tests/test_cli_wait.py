@@ -126,7 +126,9 @@ def test_pauses_double_up_to_their_longest_and_stop_at_the_total(
     monkeypatch: pytest.MonkeyPatch,
 ) -> None:
     """On a stand-in clock: the pauses of OUTAGE are 0.5 s doubling to 15 s, cut at 100 s in
-    all (derived from the rule in Patience's docstring), and every try went out."""
+    all, and every try went out. [D] derived from the rule in Patience's docstring:
+    0.5 * 2**k capped at 15 until the sum reaches 100 (0.5+1+2+4+8 = 15.5, five pauses of 15
+    make 90.5, the last one 9.5)."""
     clock = [0.0]
     pauses: list[float] = []
 

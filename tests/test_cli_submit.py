@@ -1,0 +1,114 @@
+"""tuneopt submit before anything is sent: the files a folder's scenario goes with, and options
+refused by name with exit status 2 (no service needed: nothing reaches the network)."""
+
+from __future__ import annotations
+
+import io
+import shutil
+import tarfile
+from pathlib import Path
+
+import pytest
+
+from tests.conftest import SCENARIO_FILES, SCENARIOS
+from tuneopt.cli import main, submit
+from tuneopt.model import InputError, load_scenario, loading
+
+NOWHERE = "http://127.0.0.1:9"  # nothing listens there: a test that reached it would fail
+
+
+@pytest.mark.parametrize("scenario", SCENARIO_FILES, ids=lambda p: p.stem)
+def test_a_folder_goes_with_exactly_the_files_the_loader_reads(
+    scenario: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """The files packed for a folder's scenario are the ones the project's loader opens for it
+    (its base file, a measured table), no fewer and no more."""
+    opened: list[Path] = []
+    real = loading._read_text
+
+    def recorded(path: Path, limit: int) -> str:
+        opened.append(Path(path).resolve())
+        return real(path, limit)
+
+    monkeypatch.setattr(loading, "_read_text", recorded)
+    load_scenario(scenario)
+    packed = submit._files_read(SCENARIOS, scenario.name)
+    assert sorted((SCENARIOS / p).resolve() for p in packed) == sorted(set(opened))
+    with tarfile.open(fileobj=io.BytesIO(submit._pack(SCENARIOS, packed)), mode="r:gz") as t:
+        assert sorted(t.getnames()) == sorted(packed)
+
+
+def test_the_shipped_files_with_side_files_are_covered() -> None:
+    # the shipped scenarios hold one with a base file and one with a measured damper table
+    assert submit._files_read(SCENARIOS, "trail_air_wet.toml") == [
+        "trail_air_wet.toml",
+        "trail_air.toml",
+    ]
+    assert submit._files_read(SCENARIOS, "enduro_coil.toml") == [
+        "enduro_coil.toml",
+        "enduro_shock_dyno.csv",
+    ]
+
+
+def test_a_scenario_in_a_subfolder_keeps_its_path(tmp_path: Path) -> None:
+    (tmp_path / "wet").mkdir()
+    shutil.copy(SCENARIOS / "trail_air.toml", tmp_path / "trail_air.toml")
+    (tmp_path / "wet" / "loop.toml").write_text('base = "../trail_air.toml"\n')
+    with pytest.raises(InputError) as err:
+        submit._files_read(tmp_path, "wet/loop.toml")
+    assert "base" in str(err.value) and "'../trail_air.toml' in wet/loop.toml" in str(err.value)
+    (tmp_path / "wet" / "loop.toml").write_text('base = "dry/trail_air.toml"\n')
+    (tmp_path / "wet" / "dry").mkdir()
+    shutil.copy(SCENARIOS / "trail_air.toml", tmp_path / "wet" / "dry" / "trail_air.toml")
+    assert submit._files_read(tmp_path, "wet/loop.toml") == [
+        "wet/loop.toml",
+        "wet/dry/trail_air.toml",
+    ]
+    assert submit._choose_in_folder(tmp_path / "wet", None) == "loop.toml"
+    assert submit._choose_in_folder(tmp_path, "wet/loop.toml") == "wet/loop.toml"
+
+
+@pytest.mark.parametrize(
+    ("argv", "option"),
+    [
+        (["--trials", "0"], "--trials"),
+        (["--realisations", "40"], "--realisations"),
+        (["--seed", "-1"], "--seed"),
+        (["--out", "somewhere"], "--out"),  # without --wait
+        (["--scenario-file", "x.toml"], "--scenario-file"),  # a file has nothing to choose
+        (["--api", "127.0.0.1:8000"], "--api"),
+        (["--until", "24:00"], "--until"),
+    ],
+)
+def test_options_are_refused_by_name_before_anything_is_sent(
+    argv: list[str], option: str, capsys: pytest.CaptureFixture[str]
+) -> None:
+    scenario = str(SCENARIOS / "trail_air.toml")
+    api = [] if "--api" in argv else ["--api", NOWHERE]
+    assert main(["submit", scenario, *argv, *api]) == 2
+    out, err = capsys.readouterr()
+    assert option in err and "submitted job" not in out and "cannot reach" not in err, err
+    assert "Traceback" not in err
+
+
+def test_an_out_that_is_a_file_is_refused(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    taken = tmp_path / "taken"
+    taken.write_text("")
+    scenario = str(SCENARIOS / "trail_air.toml")
+    assert main(["submit", scenario, "--wait", "--out", str(taken), "--api", NOWHERE]) == 2
+    assert "--out" in capsys.readouterr().err
+    assert main(["result", "0" * 32, "--out", str(taken), "--api", NOWHERE]) == 2
+    assert "--out" in capsys.readouterr().err
+
+
+def test_a_folder_with_several_scenarios_asks_which(capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["submit", str(SCENARIOS), "--api", NOWHERE]) == 2
+    err = capsys.readouterr().err
+    assert "--scenario-file" in err
+    for name in ("downhill_coil.toml", "enduro_coil.toml", "trail_air_wet.toml"):
+        assert name in err
+    assert "trail_air.toml," not in err  # the wet loop's base is no choice of its own
+    assert main(["submit", str(SCENARIOS), "--scenario-file", "nope.toml", "--api", NOWHERE]) == 2
+    assert "--scenario-file: no file 'nope.toml'" in capsys.readouterr().err
