@@ -228,3 +228,20 @@ def test_failed_run_is_one_warning() -> None:
     )
     (finding,) = end_findings(failed)
     assert "could not ride" in finding.message and "runaway" in finding.message
+
+
+def test_figures_that_could_not_be_read_warn_without_false_limits() -> None:
+    # an end that never settles within the run is said so; a figure shown equal to its limit
+    # (8 % pack-down against 8 %) is not called past it
+    nan = float("nan")
+    base = dict(
+        end="shock", travel=0.15, sag=0.045, step_height=0.075, natural_frequency=2.2,
+        peak=0.7, bottomed_out=False, bottom_out_depth=0.0, overshoot=0.0,
+        overshoot_ratio=nan, bump_peak=0.5, bumps_bottomed_out=False, damping_ratio=nan,
+        damping_ratio_spread=nan, damping_ratio_static=0.9,
+    )
+    stuck = EndResponse(settle_time=nan, pack_down=0.0804, **base)  # type: ignore[arg-type]
+    messages = [f.message for f in end_findings(stuck)]
+    assert messages == ["after the 75 mm step the end does not settle back to sag within the run"]
+    deep = EndResponse(settle_time=0.3, pack_down=0.0851, **base)  # type: ignore[arg-type]
+    assert [m for m in (f.message for f in end_findings(deep)) if "packs down" in m]

@@ -420,6 +420,12 @@ def _read(
     )
 
 
+def _percent(share: float) -> float:
+    """A share as the findings print it, whole per cent (so that a figure shown equal to its
+    limit is never called past it)."""
+    return round(100.0 * share, 0)  # NaN stays NaN (and compares false)
+
+
 def end_findings(resp: EndResponse, ranges: ResponseRanges | None = None) -> list[Finding]:
     """Warnings where the end's figures leave ``ranges`` (common practice, no source), and one
     when the quarter-car could not ride the inputs at all."""
@@ -443,36 +449,35 @@ def end_findings(resp: EndResponse, ranges: ResponseRanges | None = None) -> lis
             f"bottoms out on {step} ({resp.bottom_out_depth * 1e3:.0f} mm past full travel): "
             f"spring soft or compression open for {hit}"
         )
-    elif resp.peak > ranges.peak_high:
+    elif _percent(resp.peak) > _percent(ranges.peak_high):
         warn(
             f"{step} uses {resp.peak:.0%} of the travel, above {ranges.peak_high:.0%}: little "
             "left for a bigger hit"
         )
-    elif resp.peak < ranges.peak_low:
+    elif _percent(resp.peak) < _percent(ranges.peak_low):
         warn(
             f"{step} uses {resp.peak:.0%} of the travel, below {ranges.peak_low:.0%}: spring "
             f"or compression firm for {hit}"
         )
-    if resp.overshoot_ratio > ranges.overshoot_ratio_high:
+    if _percent(resp.overshoot_ratio) > _percent(ranges.overshoot_ratio_high):
         warn(
             f"after {step} the end swings {resp.overshoot:.0%} of the travel past sag, "
             f"{resp.overshoot_ratio:.0%} of the compression the hit put in (above "
             f"{ranges.overshoot_ratio_high:.0%}): rebound fast"
         )
-    if not resp.settle_periods <= ranges.settle_periods_high:
-        took = (
-            "does not settle back to sag within the run"
-            if np.isnan(resp.settle_time)
-            else f"takes {resp.settle_time:.2f} s ({resp.settle_periods:.1f} periods of its "
-            "natural frequency) to settle back to sag"
+    if np.isnan(resp.settle_time):
+        warn(f"after {step} the end does not settle back to sag within the run")
+    elif round(resp.settle_periods, 1) > ranges.settle_periods_high:
+        warn(
+            f"after {step} the end takes {resp.settle_time:.2f} s ({resp.settle_periods:.1f} "
+            f"periods of its natural frequency) to settle back to sag, more than "
+            f"{ranges.settle_periods_high:.0f}: it swings past sag more than once"
         )
-        warn(f"after {step} the end {took}, more than {ranges.settle_periods_high:.0f} periods: "
-             "it swings past sag more than once")
     if resp.bumps_bottomed_out:
         warn("bottoms out on the run of small bumps")
-    if resp.pack_down > ranges.pack_down_high:
+    if _percent(resp.pack_down) > _percent(ranges.pack_down_high):
         warn(
-            f"sits {resp.pack_down:.0%} of the travel below sag over the last bumps (above "
+            f"sits {resp.pack_down:.0%} of the travel deeper than sag over the last bumps (above "
             f"{ranges.pack_down_high:.0%}): packs down, rebound slow"
         )
     return out
