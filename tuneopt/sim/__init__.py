@@ -12,6 +12,7 @@ from tuneopt.sim._common import (
     UNLOADED_FRACTION,
 )
 from tuneopt.sim.build import halfcar_params
+from tuneopt.sim.end_response import end_responses
 from tuneopt.sim.halfcar import (
     HalfCarResult,
     HalfCarTraces,
@@ -66,6 +67,7 @@ __all__ = [
     "WheelEnd",
     "WheelMetrics",
     "distance_derivative",
+    "end_responses",
     "halfcar_params",
     "prepare_scenario_course",
     "road_input_from_wheel_inputs",
