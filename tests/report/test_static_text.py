@@ -8,8 +8,6 @@ import dataclasses
 import io
 import json
 import math
-import subprocess
-import sys
 
 import pytest
 from rich.console import Console
@@ -193,16 +191,18 @@ def test_response_data_has_no_nan(named_response: ResponseCheck) -> None:
     assert data["inputs"]["speed"] == named_response.inputs.speed
 
 
-def test_static_only_leaves_the_ride_out() -> None:
-    # --static-only: no end response in the data, and its module never loaded (a fresh
-    # process, so that no other test has loaded it)
-    code = (
-        "import sys, io, contextlib, json; from tuneopt.cli import main; buf = io.StringIO()\n"
-        "with contextlib.redirect_stdout(buf):\n"
-        f"    rc = main(['check', {str(SCENARIOS / 'trail_air.toml')!r}, '--static-only', "
-        "'--json'])\n"
-        "data = json.loads(buf.getvalue())\n"
-        "print(rc, 'end_response' in data, 'tuneopt.sim.end_response' in sys.modules)"
-    )
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
-    assert out.stdout.split() == ["0", "False", "False"]
+def test_static_only_leaves_the_ride_out(
+    monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # --static-only: no end response in the data, and the ride never asked for
+    import tuneopt.sim.end_response as end_response
+
+    def refuse(*args: object, **kwargs: object) -> None:
+        raise AssertionError("the ride ran under --static-only")
+
+    monkeypatch.setattr(end_response, "response_check", refuse)
+    path = str(SCENARIOS / "trail_air.toml")
+    assert main(["check", path, "--static-only", "--json"]) == 0
+    assert "end_response" not in json.loads(capsys.readouterr().out)
+    with pytest.raises(AssertionError, match="the ride ran"):
+        main(["check", path, "--json"])
