@@ -66,6 +66,7 @@ def register(sub: Any) -> None:
     p.add_argument("--trials", type=int, help="budget of finished trials")
     p.add_argument(
         "--until",
+        metavar="HH:MM",
         help="deadline: HH:MM local time (the next one to come) or YYYY-MM-DDTHH:MM; the "
         "service counts the time from when a worker starts the job",
     )
@@ -81,7 +82,8 @@ def register(sub: Any) -> None:
     p.add_argument(
         "--wait",
         action="store_true",
-        help="wait for the job (through a restart of the service), then save its files",
+        help="wait for the job, riding out about 100 s of the service being away (a "
+        "restart), then save its files",
     )
     p.add_argument(
         "--out", type=Path, metavar="DIR", help="with --wait: folder for the files (./<job id>)"
@@ -151,8 +153,7 @@ def _client(api: str, patience: Patience) -> ServiceClient:
 
 # -- submitting ----------------------------------------------------------------------------
 def _submit(args: argparse.Namespace) -> int:
-    _check_submit(args)
-    deadline = parse_deadline(args.until) if args.until is not None else None
+    deadline = _check_submit(args)
     # the time left is taken once: every try of the submission sends the same request
     run_seconds = None if deadline is None else round(max(deadline - time.time(), 1.0), 1)
     request = _submission(args, run_seconds)
@@ -181,9 +182,16 @@ def _submit(args: argparse.Namespace) -> int:
         return _ended(client, status, args.out if args.out is not None else Path(job))
 
 
-def _check_submit(args: argparse.Namespace) -> None:
-    """The options, checked before anything is read or sent."""
-    problems = []
+def _check_submit(args: argparse.Namespace) -> float | None:
+    """The options, checked before anything is read or sent; the deadline (Unix time) that
+    --until gives."""
+    problems: list[FieldProblem] = []
+    deadline = None
+    if args.until is not None:
+        try:
+            deadline = parse_deadline(args.until)
+        except InputError as exc:
+            problems += exc.problems
     if args.trials is not None and args.trials < 1:
         problems.append(FieldProblem("--trials", "must be at least 1"))
     if args.seed is not None and not 0 <= args.seed <= 2**31 - 1:
@@ -207,6 +215,7 @@ def _check_submit(args: argparse.Namespace) -> None:
     if problems:
         raise InputError(problems)
     _check_out(args.out)
+    return deadline
 
 
 def _check_out(out: Path | None) -> None:
@@ -443,25 +452,24 @@ def _save_files(
     client: ServiceClient, job: str, folder: Path, data: dict[str, Any]
 ) -> list[str]:
     """Write result.json and, when the job ranked setups, the report and the setup sheets
-    into ``folder``; the names written, and why any is missing."""
+    into ``folder``; the names written, and why any is missing (result.json first, so that a
+    page the service cannot give leaves the result saved)."""
     from tuneopt.report import REPORT_FILE, SHEET_FILE
     from tuneopt.report.run_data import RESULT_FILE
 
     folder.mkdir(parents=True, exist_ok=True)
+    _write(folder / RESULT_FILE, json.dumps(data, indent=2) + "\n")
     saved = []
     if data.get("ranked"):
-        try:
-            _write(folder / REPORT_FILE, client.report(job))
-            saved.append(REPORT_FILE)
-        except ServiceError as exc:
-            if exc.status != 409:  # 409: no report kept (its errors say why)
-                raise
-            saved.append(f"(no {REPORT_FILE}: {exc})")
-        _write(folder / SHEET_FILE, client.setup_sheets(job))
-        saved.append(SHEET_FILE)
-    _write(folder / RESULT_FILE, json.dumps(data, indent=2) + "\n")
-    saved.append(RESULT_FILE)
-    return saved
+        for name, fetch in ((REPORT_FILE, client.report), (SHEET_FILE, client.setup_sheets)):
+            try:
+                _write(folder / name, fetch(job))
+                saved.append(name)
+            except ServiceError as exc:
+                if exc.status != 409:  # 409: the service has no such page for the job
+                    raise
+                saved.append(f"(no {name}: {exc})")
+    return [*saved, RESULT_FILE]
 
 
 def _say_saved(folder: Path, names: list[str]) -> None:
