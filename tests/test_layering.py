@@ -49,12 +49,6 @@ ALLOWED: dict[tuple[str, str], str] = {
     # being refactored (cli/*): unit conversion from the model's private quantity module
     ("cli/_measured_sag.py", "tuneopt.model._quantity.convert"): "being refactored",
     ("cli/bounce.py", "tuneopt.model._quantity.parse_quantity"): "being refactored",
-    # being refactored (service/*): error locations formatted with the loader's private helper
-    ("service/problems.py", "tuneopt.model.loading._location"): "being refactored",
-    # being refactored (service/*): the service's pages take the report's style and cautions
-    # from its private template module
-    ("service/pages/templates.py", "tuneopt.report._templates.CAUTIONS"): "being refactored",
-    ("service/pages/templates.py", "tuneopt.report._templates.STYLE"): "being refactored",
 }
 
 

@@ -10,6 +10,7 @@ from importlib import import_module
 from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:
+    from tuneopt.report._templates import CAUTIONS, STYLE
     from tuneopt.report.comparison import (
         COMPARISON_FILE,
         compare_setting_rows,
@@ -65,6 +66,8 @@ if TYPE_CHECKING:
 # public name -> the module (under tuneopt.report) that defines it. A name may not be that of
 # a module here (fit_page.fit_page): importing the module would set the package's attribute.
 _HOMES = {
+    "CAUTIONS": "_templates",
+    "STYLE": "_templates",
     "COMPARISON_FILE": "comparison",
     "compare_setting_rows": "comparison",
     "score_matrix": "comparison",
@@ -117,6 +120,7 @@ _HOMES = {
 }
 
 __all__ = [
+    "CAUTIONS",
     "COMPARISON_FILE",
     "EXPORTS_DIR",
     "HEADLINE_METRICS",
@@ -129,6 +133,7 @@ __all__ = [
     "SETTINGS_FILE",
     "SHEET_FILE",
     "STATIC_CHECK_CAUTION",
+    "STYLE",
     "SetupEntry",
     "build_setup_sheets",
     "build_test_day",

@@ -8,6 +8,7 @@ from __future__ import annotations
 import logging
 from collections.abc import Iterable
 from http import HTTPStatus
+from typing import Any
 
 from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
@@ -18,7 +19,6 @@ from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.routing import Match
 
 from tuneopt.model.errors import FieldProblem, InputError
-from tuneopt.model.loading import _location
 
 __all__ = ["FieldError", "Problem", "ProblemError", "install_handlers", "problem_response"]
 
@@ -77,23 +77,41 @@ def problem_response(
     )
 
 
+# where FastAPI says a request's parameter came from: the first part of an error's location
+_SENT_IN = ("header", "path", "query", "cookie", "body")
+
+
+def _parameter(loc: tuple[Any, ...]) -> str:
+    """The request parameter a validation error is about, by the name the client sends it
+    under (``Idempotency-Key``, ``job_id``); where it was sent (header, path, query) is left
+    out, and an index into a list is written ``[i]``."""
+    parts = list(loc[1:] if loc and loc[0] in _SENT_IN and len(loc) > 1 else loc)
+    text = ".".join(f"[{p}]" if isinstance(p, int) else str(p) for p in parts)
+    return text.replace(".[", "[")
+
+
 def _validation_problems(exc: RequestValidationError) -> list[FieldProblem]:
     out = []
     for err in exc.errors():
         loc = tuple(err.get("loc", ()))
-        out.append(FieldProblem(_location(loc), str(err.get("msg", "invalid"))))
+        out.append(FieldProblem(_parameter(loc), str(err.get("msg", "invalid"))))
     return out
+
+
+# the methods a 405 answer's Allow may list
+_METHODS = ("GET", "HEAD", "POST", "PUT", "PATCH", "DELETE", "OPTIONS")
 
 
 def _allowed_methods(request: Request) -> list[str]:
     """Every method some route serves at the request's path (one path may have several routes,
-    one per method)."""
-    allowed: set[str] = set()
-    for route in request.app.router.routes:
-        match, _ = route.matches(request.scope)
-        if match != Match.NONE:
-            allowed |= set(getattr(route, "methods", None) or ())
-    return sorted(allowed)
+    one per method, in the app's routers): those the app's routes match fully at the path."""
+    routes = request.app.router.routes
+    allowed = []
+    for method in _METHODS:
+        scope = {**request.scope, "method": method}
+        if any(route.matches(scope)[0] == Match.FULL for route in routes):
+            allowed.append(method)
+    return allowed
 
 
 def install_handlers(app: FastAPI) -> None:

@@ -10,14 +10,15 @@ import json
 import re
 import secrets
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from enum import StrEnum
-from typing import Any
+from typing import Any, TypeVar, cast
 
-from redis import ConnectionPool, Redis, WatchError
+from redis import ConnectionPool, Redis
 from redis.client import Pipeline
 
-__all__ = ["JobRecord", "JobState", "JobStore", "is_job_id", "new_job_id"]
+__all__ = ["JobRecord", "JobState", "JobStore", "is_job_id", "new_job_id", "transaction"]
 
 _ID = re.compile(r"^[0-9a-f]{32}$")
 # a shard's rate counts towards the job's pace only while it has reported lately [s]
@@ -111,6 +112,20 @@ local v = redis.call('GET', KEYS[1])
 if v and cjson.decode(v)['job'] == ARGV[1] then redis.call('DEL', KEYS[1]) end
 return 0
 """
+
+
+T = TypeVar("T")
+
+
+def transaction(client: Redis, body: Callable[[Pipeline], T], *watched: str) -> T:
+    """Run ``body`` on a transaction pipeline of ``client`` and commit what it queued, as one
+    MULTI/EXEC; ``body``'s value. With keys ``watched``, ``body`` reads them first (the
+    pipeline answers at once until ``body`` calls ``multi()``), and the whole is run again
+    from the start when one of them changed before the commit (redis-py's
+    ``Redis.transaction``). A ``body`` that decides to write nothing calls ``unwatch()`` and
+    returns without ``multi()``."""
+    value = client.transaction(body, *watched, value_from_callable=True)  # type: ignore[arg-type]
+    return cast(T, value)
 
 
 def _float(value: str | None) -> float | None:
@@ -291,20 +306,17 @@ class JobStore:
         """Set fields on a job that exists and has not ended, in one transaction with that
         check (so that a job cannot end between the two); False when it has ended or is gone."""
         key = self.key(job_id)
-        with self.redis.pipeline() as pipe:
-            while True:
-                try:
-                    pipe.watch(key)
-                    current = pipe.hget(key, "state")
-                    if current is None or JobState(str(current)).is_final:
-                        pipe.unwatch()
-                        return False
-                    pipe.multi()
-                    pipe.hset(key, mapping=dict[Any, Any](mapping))
-                    pipe.execute()
-                    return True
-                except WatchError:
-                    continue
+
+        def write(pipe: Pipeline) -> bool:
+            current = pipe.hget(key, "state")
+            if current is None or JobState(str(current)).is_final:
+                pipe.unwatch()
+                return False
+            pipe.multi()
+            pipe.hset(key, mapping=dict[Any, Any](mapping))
+            return True
+
+        return transaction(self.redis, write, key)
 
     # cancel and delete
     def request_cancel(self, job_id: str) -> bool:

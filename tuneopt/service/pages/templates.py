@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from tuneopt.report._templates import CAUTIONS, STYLE
+from tuneopt.report import CAUTIONS, STYLE
 
 __all__ = ["render_page"]
 
