@@ -20,7 +20,7 @@ course were easy.
 
 from __future__ import annotations
 
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -45,6 +45,9 @@ __all__ = [
 # being ranked stand out of the course-to-course noise once racing has dropped the clear losers
 # (chosen by the trust benchmark, benchmarks/bench_trust.py).
 DEFAULT_REALISATIONS = 8
+# An end whose spring cannot hold the rider has no sag: it counts as this far [% points] outside
+# its sag window, further than any sag can lie, so the search is pulled away from it first.
+NO_SAG_DISTANCE = 100.0
 
 
 @dataclass(frozen=True)
@@ -78,6 +81,10 @@ class Outcome:
     failure: str = ""
     scores: tuple[float, ...] = ()
     bottomed: int = 0  # realisations ridden in which either end bottomed out
+    # how far a setup that cannot be ridden lies from one that can: sag [% points] beyond the
+    # sag windows, summed over the ends, an end without a sag (its spring cannot hold the rider)
+    # counted as NO_SAG_DISTANCE; 0 for a ridable setup
+    infeasibility: float = 0.0
 
     @property
     def ok(self) -> bool:
@@ -173,6 +180,20 @@ class Evaluator:
         """Riding time simulated per setup that rides every realisation [s]."""
         return sum(c.duration for c in self.courses)
 
+    def window_distance(self, sag: Mapping[str, float]) -> float:
+        """Sag [% points] beyond the sag windows, summed over the ends; an end without a sag
+        counts NO_SAG_DISTANCE (further than any sag can lie)."""
+        total = 0.0
+        for end in ("fork", "shock"):
+            value = sag.get(end)
+            if value is None or not np.isfinite(value):
+                total += NO_SAG_DISTANCE
+                continue
+            window = self.windows.get(end)
+            if window is not None:
+                total += max(0.0, window.low - value, value - window.high)
+        return total
+
     def _static(self, setup: Setup) -> tuple[StaticCheck | None, dict[str, float], str]:
         try:
             check = static_check(self.scenario, setup)
@@ -210,7 +231,11 @@ class Evaluator:
             reference = None  # a leader scored on other realisations cannot be paired
         statics = [self._static(s) for s in setups]
         feasible = [i for i, (_, _, why) in enumerate(statics) if not why]
-        outcomes: list[Outcome] = [Outcome(None, sag=sag, failure=why) for _, sag, why in statics]
+        outcomes: list[Outcome] = [
+            Outcome(None, sag=sag, failure=why, infeasibility=self.window_distance(sag) if why
+                    else 0.0)
+            for _, sag, why in statics
+        ]
         if not feasible:
             return outcomes
         n, r_total = len(feasible), self.realisations

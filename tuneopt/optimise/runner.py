@@ -54,8 +54,9 @@ log = logging.getLogger(__name__)
 optuna.logging.set_verbosity(optuna.logging.WARNING)
 
 # Told for setups that cannot be ridden (sag outside its window, a spring that cannot hold the
-# rider): far above any real score (they are around 5-20), plus the distance from feasibility so
-# the sampler is pulled back towards it.
+# rider): far above any real score (they are around 5-20), plus the distance from feasibility
+# (Outcome.infeasibility: sag beyond the windows; a spring that cannot hold the rider furthest
+# of all) so the sampler is pulled back towards the windows.
 INFEASIBLE_PENALTY = 100.0
 
 SAMPLERS = ("tpe", "cmaes", "nsga2", "random", "gp")
@@ -250,10 +251,8 @@ def _tell_outcome(study: optuna.Study, trial: optuna.Trial, outcome: Outcome) ->
         return
     trial.set_user_attr("failure", outcome.failure)
     if outcome.failure.startswith(("infeasible", "static")):
-        distance = 0.0
-        if outcome.sag:
-            distance = sum(abs(v - 25.0) for v in outcome.sag.values()) / 10
-        study.tell(trial, INFEASIBLE_PENALTY + distance)
+        # a tenth of a point per % of sag beyond the windows: the closer, the better told
+        study.tell(trial, INFEASIBLE_PENALTY + outcome.infeasibility / 10)
     else:
         study.tell(trial, state=TrialState.FAIL)
 
