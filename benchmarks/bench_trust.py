@@ -8,7 +8,8 @@ the gain measured on the fresh realisations (mean paired difference over the cur
 mean score, with a 95 % t interval), the share of fresh realisations where the recommendation
 beats the current setup, its bottom-out risk there (share of realisations with a bottom-out)
 against the current setup's, and the CPU time. Per scenario: how far apart the three seeds'
-winners are, setting by setting, in steps of the search space.
+winners are, setting by setting, in steps of the search space, and which settings spread beyond
+two steps without every study's report calling them flat (the score barely moves along them).
 
     python benchmarks/bench_trust.py [--fresh 40] [--trials 300] [--scenarios a.toml b.toml]
                                      [--json out.json]
@@ -37,6 +38,8 @@ sys.path.insert(0, str(ROOT))
 from tuneopt.model import load_scenario  # noqa: E402
 from tuneopt.optimise.evaluate import Evaluator  # noqa: E402
 from tuneopt.optimise.space import build_space  # noqa: E402
+from tuneopt.report.fresh_terrain import flat_settings  # noqa: E402
+from tuneopt.report.run_data import read_run_folder  # noqa: E402
 
 SCENARIOS = ("scenarios/trail_air.toml", "scenarios/enduro_coil.toml")
 STUDY_SEEDS = (1, 2, 3)
@@ -95,6 +98,8 @@ def _one_study(path: Path, seed: int, trials: int, fresh: int) -> dict[str, Any]
     cpu0, wall0 = _cpu_seconds(), time.time()
     with tempfile.TemporaryDirectory() as tmp:
         result = _optimise(path, seed, trials, Path(tmp) / "run")
+        # the settings the report calls flat (one step either side moves the score < 0.5 %)
+        flat = flat_settings(read_run_folder(Path(tmp) / "run").result)
     cpu_study, wall_study = _cpu_seconds() - cpu0, time.time() - wall0
     winner = result["ranked"][0]
     setups = [space.setup(winner["indices"]), scenario.setup]
@@ -119,6 +124,7 @@ def _one_study(path: Path, seed: int, trials: int, fresh: int) -> dict[str, Any]
         "bottom_risk_winner": float(np.mean(bottomed[ok, 0])),
         "bottom_risk_current": float(np.mean(bottomed[ok, 1])),
         "indices": winner["indices"],
+        "flat": sorted(flat),
         "settings": winner["settings"],
         "cpu_seconds": cpu_study,
         "wall_seconds": wall_study,
@@ -154,11 +160,19 @@ def _spread(rows: list[dict[str, Any]]) -> str:
     for name in dict.fromkeys(r["scenario"] for r in rows):
         mine = [r for r in rows if r["scenario"] == name]
         keys = list(mine[0]["indices"])
-        parts = []
+        parts, unexplained = [], []
         for k in keys:
             idx = [r["indices"][k] for r in mine]
-            parts.append(f"{k} {max(idx) - min(idx)}")
+            spread = max(idx) - min(idx)
+            named = sum(k in r.get("flat", ()) for r in mine)
+            parts.append(f"{k} {spread}" + (f" (flat in {named} of {len(mine)})" if named else ""))
+            if spread > 2 and named < len(mine):
+                unexplained.append(k)
         lines.append(f"- {name}: winners' spread in steps: " + ", ".join(parts))
+        lines.append(
+            f"  - spread beyond 2 steps and not called flat by every study: "
+            f"{', '.join(unexplained) or 'none'}"
+        )
         for r in mine:
             lines.append(f"  - seed {r['seed']}: " + ", ".join(
                 f"{k} {v}" for k, v in r["settings"].items()))

@@ -83,6 +83,8 @@ def test_nothing_to_search_is_an_error() -> None:
             "shock.lsc",
             "shock.hsc",
             "shock.lsr",
+            "front_tyre_pressure",
+            "rear_tyre_pressure",
         ]
     }
     with pytest.raises(InputError, match="nothing to search"):

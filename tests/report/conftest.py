@@ -36,6 +36,8 @@ def report_data(surface: str = "dry") -> dict[str, Any]:
         {"terrain": "braking_bumps", "share": 0.5},
         {"terrain": "root_field", "share": 0.5},
     ]
+    # tyre pressures held (a study with them searched has a fixture of its own)
+    data["search"] = {"tyre_pressures": False}
     if surface != "dry":
         data["name"] = f"{data['name']}, {surface}"
     return data

@@ -96,6 +96,9 @@ def test_trial_changes_stay_on_the_searched_grid(dry_run: Path, dry_result: dict
     for key, value in best["settings"].items():
         if key.rpartition(".")[2] in CLICKS:
             assert shown[key].split()[0] == value and shown[key].endswith("from closed")
+        elif key.endswith("tyre_pressure"):  # bar, as the scenario writes it
+            number, unit = value.split()
+            assert shown[key].split() == [f"{float(number):g}", unit]
         elif key.endswith("pressure"):
             assert shown[key] == value  # psi, as the scenario writes it
 

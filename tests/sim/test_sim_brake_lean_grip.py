@@ -191,3 +191,26 @@ def test_a_wetter_surface_and_a_tighter_corner_leave_more_unmet() -> None:
 
     dry, wet, tight = run(0.8, 4.0), run(0.55, 4.0), run(0.8, 6.0)
     assert wet > dry and tight > dry
+
+
+def test_tyre_pressure_scales_the_grip_capacity_through_the_friction_factor() -> None:
+    # Grip capacity mu(F_z) F_z is linear in mu, so the same run with the friction coefficient
+    # scaled by a tyre-pressure factor has its mean capacity scaled by exactly that factor
+    # [D: the capacity law, Pacejka 2012]; the factor itself is the inflation-pressure term
+    # 1 + p_p3 (p - p0) / p0 of the Magic Formula 6.1 (Besselink et al. 2010) [M for the form].
+    from tuneopt.physics.tyre import friction_pressure_factor
+
+    road = _flat(1500, 1e-3, lateral=np.full(1500, 3.0))
+    soft, hard = friction_pressure_factor([1.4e5, 2.2e5], 1.8e5, -0.3)
+    assert_allclose([soft, hard], [1 + 0.3 * 0.4 / 1.8, 1 - 0.3 * 0.4 / 1.8], rtol=1e-12)
+    base = half_car(1)
+    runs = {}
+    for name, factor in (("plain", None), ("soft", soft), ("hard", hard)):
+        front = replace(base.front, friction_factor=None if factor is None else np.array([factor]))
+        runs[name] = simulate_halfcar(replace(base, front=front), road)
+    plain = float(runs["plain"].front.grip_capacity_mean[0])
+    assert_allclose(float(runs["soft"].front.grip_capacity_mean[0]), soft * plain, rtol=1e-9)
+    assert_allclose(float(runs["hard"].front.grip_capacity_mean[0]), hard * plain, rtol=1e-9)
+    # the rear tyre is untouched
+    assert_allclose(runs["soft"].rear.grip_capacity_mean, runs["plain"].rear.grip_capacity_mean,
+                    rtol=1e-12)

@@ -120,7 +120,9 @@ class Search(Strict):
     shock_rate: RateRange | None = None
     front_tyre_pressure: PressureRange | None = None
     rear_tyre_pressure: PressureRange | None = None
-    tyre_pressures: bool = Field(False, description="search tyre pressures too")
+    tyre_pressures: bool = Field(
+        True, description="search tyre pressures inside the tyres' ranges; false holds them"
+    )
     fork_sag: SagWindow | None = Field(
         None, description="default: the usual range for the bike's kind, holding the current sag"
     )

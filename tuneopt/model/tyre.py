@@ -13,6 +13,11 @@ from tuneopt.model._quantity import Damping, Length, Pressure, Stiffness
 __all__ = ["StiffnessPoint", "Tyre", "parse_tyre_size"]
 
 MAX_TYRE_PRESSURE = 1e6  # [Pa] 10 bar, above any bicycle tyre's limit
+# The rim strike's default deflection: a rim's edge stands about 6 mm above its bead seat (from
+# memory) and a tread with its casing, squeezed twice between rim and rock, takes about 5 mm
+# (estimate, no source).
+RIM_EDGE_HEIGHT = 0.006
+PINCHED_CASING = 0.005
 
 # Bead seat diameters of the nominal sizes [m] (ISO 5775 / ETRTO; from memory).
 _BEAD_SEAT = {"26": 0.559, "27.5": 0.584, "650b": 0.584, "29": 0.622}
@@ -52,7 +57,9 @@ class Tyre(Strict):
     stiffness: Literal["estimate"] | list[StiffnessPoint] = "estimate"
     damping: Damping = Field(100.0, ge=0, description="radial damping [N s/m]; small")
     rim_strike_deflection: Length | None = Field(
-        None, gt=0, description="deflection at which the rim hits; default 0.55 x width"
+        None,
+        gt=0,
+        description="deflection at which the rim hits; default the tyre's height less 11 mm",
     )
     # Grip as a force (tuneopt.sim.grip). Both defaults are estimates, not measurements: no
     # published values for mountain-bike tyres were at hand.
@@ -68,6 +75,19 @@ class Tyre(Strict):
         le=0,
         description="p_D2: relative fall of the friction coefficient per relative load above "
         "static; estimate -0.1 (car tyres -0.05 to -0.15)",
+    )
+    friction_reference_pressure: Pressure = Field(
+        1.8e5,
+        gt=0,
+        le=MAX_TYRE_PRESSURE,
+        description="pressure at which the surface's friction coefficient holds; estimate 1.8 bar",
+    )
+    pressure_sensitivity: float = Field(
+        -0.3,
+        gt=-1,
+        le=0,
+        description="p_p3: relative change of the friction coefficient per relative pressure "
+        "above the reference pressure; estimate -0.3 (softer grips more)",
     )
 
     @field_validator("size")
@@ -113,6 +133,10 @@ class Tyre(Strict):
 
     @property
     def rim_strike(self) -> float:
-        """Deflection at which the rim strikes [m]; default an estimate of 0.55 x width
-        (common practice, no source)."""
-        return self.rim_strike_deflection or 0.55 * self.width
+        """Deflection at which the rim strikes [m]: what a tape gives, the tyre's height above
+        the bead seat minus the rim's edge height and the casing and tread squeezed between the
+        rim and the obstacle. Default: the section height minus RIM_EDGE_HEIGHT and
+        PINCHED_CASING (estimates)."""
+        if self.rim_strike_deflection is not None:
+            return self.rim_strike_deflection
+        return max(self.section_height - RIM_EDGE_HEIGHT - PINCHED_CASING, 0.3 * self.width)

@@ -166,8 +166,9 @@ def summary(
         )
         out.append(
             f"Tyre pressures were not searched in either study; both winners ride them as the "
-            f"scenarios set them ({shown}). To let each course choose them, set "
-            "tyre_pressures = true under [search] in both scenarios."
+            f"scenarios set them ({shown}). To let each course choose them, remove "
+            "tyre_pressures = false (and the pressures from fixed) under [search] in both "
+            "scenarios."
         )
     for name, study in (("A", sa), ("B", sb)):
         if study.basis == "search":

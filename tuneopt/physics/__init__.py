@@ -8,6 +8,7 @@ from tuneopt.physics.hardware import (
     leverage_curve,
     rear_end,
     spring_params,
+    tyre_friction_factor,
     tyre_stiffness,
 )
 from tuneopt.physics.layout import Layout, layout
@@ -34,5 +35,6 @@ __all__ = [
     "rear_end",
     "spring_params",
     "static_check",
+    "tyre_friction_factor",
     "tyre_stiffness",
 ]

@@ -28,7 +28,11 @@ from tuneopt.physics.spring import (
     EndStops,
     rebase_air_spring,
 )
-from tuneopt.physics.tyre import measured_stiffness, membrane_stiffness
+from tuneopt.physics.tyre import (
+    friction_pressure_factor,
+    measured_stiffness,
+    membrane_stiffness,
+)
 
 __all__ = [
     "SuspensionEnd",
@@ -153,6 +157,15 @@ def tyre_stiffness(tyre: Tyre, pressure: float) -> float:
     pts = tyre.stiffness
     return float(
         measured_stiffness(pressure, [p.pressure for p in pts], [p.stiffness for p in pts])
+    )
+
+
+def tyre_friction_factor(tyre: Tyre, pressure: float) -> float:
+    """Factor on the surface's friction coefficient at gauge pressure [Pa] (softer grips more;
+    ``tuneopt.physics.tyre.friction_pressure_factor``)."""
+    return float(
+        friction_pressure_factor(pressure, tyre.friction_reference_pressure,
+                                 tyre.pressure_sensitivity)
     )
 
 

@@ -13,7 +13,7 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-__all__ = ["membrane_stiffness", "measured_stiffness", "tyre_force"]
+__all__ = ["friction_pressure_factor", "membrane_stiffness", "measured_stiffness", "tyre_force"]
 
 FloatArray = NDArray[np.float64]
 
@@ -45,3 +45,19 @@ def tyre_force(deflection: ArrayLike, stiffness: ArrayLike) -> FloatArray:
     return np.asarray(stiffness, dtype=np.float64) * np.clip(
         np.asarray(deflection, dtype=np.float64), 0, None
     )
+
+
+def friction_pressure_factor(pressure: ArrayLike, nominal: float, p_p3: float) -> FloatArray:
+    """Factor on the friction coefficient at gauge pressure p [Pa]: 1 + p_p3 (p - p0) / p0.
+
+    A softer tyre lays a longer contact patch at a lower contact pressure, and rubber grips
+    harder at lower contact pressure. The form is the inflation-pressure term of the friction
+    coefficient in Pacejka's Magic Formula 6.1 (Besselink, Schmeitz and Pacejka, "An improved
+    Magic Formula/Swift tyre model that can handle inflation pressure changes", Vehicle System
+    Dynamics 48, 2010) [M for the form], its quadratic term left out; p0 is the pressure at
+    which the surface's friction coefficient holds, p_p3 < 0 an estimate (no published values
+    for mountain-bike tyres were at hand). The factor is held at or above 0.5 (a linear law
+    far outside its fitted range)."""
+    p = np.asarray(pressure, dtype=np.float64)
+    factor: FloatArray = np.maximum(1.0 + p_p3 * (p - nominal) / nominal, 0.5)
+    return factor

@@ -150,15 +150,15 @@ def _record(
     c.accumulate_wheel(
         acc, _ACC_F, hist_f, k, out[Out.LOAD_F], out[Out.TRAVEL_F], out[Out.RATE_F],
         out[Out.DEFL_F], p[_F + End.TRAVEL], p[_F + End.D_RIM], p[_F + End.F_STATIC], c.HIST_LOW,
-        p[_F + End.HIST_W], braking, cornering, demand, out[Out.LOAD_F] * upright, mu,
-        p[_F + End.PD2], relax_f,
+        p[_F + End.HIST_W], braking, cornering, demand, out[Out.LOAD_F] * upright,
+        mu * p[_F + End.MU_FACTOR], p[_F + End.PD2], relax_f,
     )
     demand = _demand(p[_R + End.BRAKE_SHARE] * m_tot * a, p[_R + End.LAT_SHARE] * m_tot * ay)
     c.accumulate_wheel(
         acc, _ACC_R, hist_r, k, out[Out.LOAD_R], out[Out.TRAVEL_R], out[Out.RATE_R],
         out[Out.DEFL_R], p[_R + End.TRAVEL], p[_R + End.D_RIM], p[_R + End.F_STATIC], c.HIST_LOW,
-        p[_R + End.HIST_W], braking, cornering, demand, out[Out.LOAD_R] * upright, mu,
-        p[_R + End.PD2], relax_r,
+        p[_R + End.HIST_W], braking, cornering, demand, out[Out.LOAD_R] * upright,
+        mu * p[_R + End.MU_FACTOR], p[_R + End.PD2], relax_r,
     )
     # the kick: how fast a deep compression extends
     ck = _ACC_CAR

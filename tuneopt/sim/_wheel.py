@@ -31,6 +31,7 @@ class End(c.Layout):
     LAT_SHARE = auto()
     HIST_W = auto()
     PD2 = auto()  # load sensitivity of the tyre's friction coefficient
+    MU_FACTOR = auto()  # factor on the surface's friction coefficient (tyre pressure)
 
 
 E_FIELDS = len(End)
@@ -103,6 +104,7 @@ def pack_wheel(
     p[:, off + End.LAT_SHARE] = lateral_share
     p[:, off + End.HIST_W] = (c.HIST_LOW + c.HIST_HIGH * wheel.travel) / c.HIST_BINS
     p[:, off + End.PD2] = wheel.load_sensitivity
+    p[:, off + End.MU_FACTOR] = 1.0 if wheel.friction_factor is None else wheel.friction_factor
 
 
 def check_wheel(wheel: WheelEnd) -> None:
@@ -113,8 +115,9 @@ def check_wheel(wheel: WheelEnd) -> None:
     if wheel.damper_force.shape != (b, wheel.velocity_grid.shape[0]):
         raise ValueError("damper_force must have shape (B, V) matching velocity_grid")
     for name in ("travel", "unsprung_mass", "tyre_stiffness", "tyre_damping",
-                 "rim_strike_deflection"):
-        if np.shape(getattr(wheel, name)) != (b,):
+                 "rim_strike_deflection", "friction_factor"):
+        value = getattr(wheel, name)
+        if value is not None and np.shape(value) != (b,):
             raise ValueError(f"{name} must have shape ({b},)")
     if not wheel.relaxation_length > 0:
         raise ValueError("relaxation_length must be positive")

@@ -23,6 +23,7 @@ from tuneopt.physics import (
     leverage_curve,
     rear_end,
     static_check,
+    tyre_friction_factor,
     tyre_stiffness,
 )
 from tuneopt.physics.layout import Layout
@@ -104,6 +105,7 @@ def wheel_end(
         wheel_radius=tyre.outer_radius,
         relaxation_length=tyre.relaxation_length,
         load_sensitivity=tyre.load_sensitivity,
+        friction_factor=np.array([tyre_friction_factor(tyre, p) for p in pressures]),
     )
 
 

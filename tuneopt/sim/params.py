@@ -39,6 +39,8 @@ class WheelEnd:
         [m] (first-order lag; default an estimate [?], see tuneopt.sim.grip).
     load_sensitivity: p_D2, the friction coefficient's relative fall per unit of relative load
         above the static load [-] (default an estimate [?]; car tyres -0.05 to -0.15 [M]).
+    friction_factor: (B,) factor on the surface's friction coefficient from each setup's tyre
+        pressure [-] (``tuneopt.physics.tyre.friction_pressure_factor``); None: 1.
     """
 
     travel_grid: FloatArray
@@ -53,6 +55,7 @@ class WheelEnd:
     wheel_radius: float
     relaxation_length: float = 0.15
     load_sensitivity: float = -0.1
+    friction_factor: FloatArray | None = None
 
     @property
     def batch(self) -> int:
