@@ -11,7 +11,7 @@ from __future__ import annotations
 from collections.abc import Iterator
 from contextlib import contextmanager
 from enum import IntEnum, auto
-from typing import Any
+from typing import Any, Final
 
 import numba
 import numpy as np
@@ -27,6 +27,10 @@ from tuneopt.sim.grip import grip_capacity
 # loop round differently and which elements take which path changes with the arrays'
 # alignment, so a run's results changed from one process to the next.
 FAST = {"nsz", "arcp", "contract"}
+# Division by zero gives an infinity or a NaN, as in numpy, rather than raising as in Python:
+# numba's default Python model tests every division and integer modulo first. The failure
+# checks catch what is not finite.
+ERRORS: Final = "numpy"
 
 # Rim strike: beyond rim_strike_deflection the tyre stiffens by this factor times its own rate.
 # Stiff enough to stop the rim within millimetres, soft enough for RK4 at a 1 ms step with
@@ -151,7 +155,7 @@ def init_wheel_acc(acc: FloatArray, off: int) -> None:
     acc[:, off + WheelAcc.CAPACITY] = np.nan  # set from the first sample's load
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=ERRORS, inline="always")
 def table_value(row: FloatArray, x0: float, inv_dx: float, x: float) -> float:
     """Linear interpolation on a uniform grid (start x0, 1/spacing inv_dx), extrapolated with the
     end slopes; NaN for NaN (no early exit: the clamps send NaN to the first interval and f
@@ -166,7 +170,19 @@ def table_value(row: FloatArray, x0: float, inv_dx: float, x: float) -> float:
     return value
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=ERRORS, inline="always")
+def all_finite(y: FloatArray, dy: FloatArray, n: int) -> bool:
+    """Whether the first n states and their rates are all finite: one test of their sum (a NaN
+    or an infinity carries into it; finite values large enough to overflow it are a runaway
+    anyway)."""
+    total = 0.0
+    for i in range(n):
+        total += y[i] + dy[i]
+    finite: bool = np.isfinite(total)
+    return finite
+
+
+@njit(cache=True, error_model=ERRORS, inline="always")
 def end_runaway(travel: float, tyre_defl: float, full_travel: float) -> bool:
     """An end's travel [m] or its tyre's deflection [m] beyond the runaway limits."""
     return (
@@ -176,7 +192,7 @@ def end_runaway(travel: float, tyre_defl: float, full_travel: float) -> bool:
     )
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=ERRORS, inline="always")
 def tyre_force(defl: float, defl_rate: float, k: float, c: float, rim_defl: float) -> float:
     """One-sided tyre: k*d + c*d' while in contact, never pulling; rim strike past rim_defl."""
     if defl <= 0.0:
@@ -187,7 +203,7 @@ def tyre_force(defl: float, defl_rate: float, k: float, c: float, rim_defl: floa
     return f if f > 0.0 else 0.0
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=ERRORS, inline="always")
 def sos_step(sos: FloatArray, zi: FloatArray, x: float) -> float:
     """One sample through second-order sections (transposed direct form II, as scipy)."""
     for j in range(sos.shape[0]):
@@ -198,7 +214,7 @@ def sos_step(sos: FloatArray, zi: FloatArray, x: float) -> float:
     return x
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=ERRORS, inline="always")
 def close_hit(
     acc: FloatArray, off: int, i_in: int, i_max: int, i_sum: int, full_depth: float
 ) -> None:
@@ -208,7 +224,7 @@ def close_hit(
         acc[off + i_sum] += min(1.0, acc[off + i_max] / full_depth)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=ERRORS, inline="always")
 def weigh_hit(
     acc: FloatArray, off: int, depth: float, i_in: int, i_max: int, i_sum: int, i_deep: int,
     full_depth: float,
@@ -228,7 +244,7 @@ def weigh_hit(
         close_hit(acc, off, i_in, i_max, i_sum, full_depth)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=ERRORS, inline="always")
 def accumulate_wheel(
     acc: FloatArray, off: int, hist: FloatArray, k: int, load: float, travel: float,
     travel_rate: float, tyre_defl: float, full_travel: float, rim_defl: float, static_load: float,
@@ -319,7 +335,7 @@ def accumulate_wheel(
         acc[off + WheelAcc.N_FREE] += 1.0
 
 
-@njit(cache=True)
+@njit(cache=True, error_model=ERRORS)
 def close_wheel(acc: FloatArray, off: int) -> None:
     """Close the bottom-out and rim hits still open at the end of the run."""
     if acc[off + WheelAcc.IN_BOTTOM] > 0.0:
@@ -332,7 +348,7 @@ def close_wheel(acc: FloatArray, off: int) -> None:
               RIM_STRIKE_FULL_DEPTH)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=ERRORS, inline="always")
 def accumulate_vibration(
     acc: FloatArray, off: int, sos: FloatArray, zi: FloatArray, accel: float
 ) -> float:

@@ -16,7 +16,7 @@ from tuneopt.sim.road import RoadInput
 FloatArray = NDArray[np.float64]
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=c.ERRORS, inline="always")
 def road_position(t: float, dt: float, n: int) -> tuple[int, float]:
     """Sample index i and fraction f in [i, i + 1] of time t [s] on n samples dt [s] apart
     (held to the first and last interval)."""
@@ -29,7 +29,7 @@ def road_position(t: float, dt: float, n: int) -> tuple[int, float]:
     return i, u - i
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=c.ERRORS, inline="always")
 def rk4_stage(st: int, k: int, dt: float) -> tuple[int, float, float]:
     """Where RK4 stage st of the step from sample k takes the road and its state: the sample
     j1 the road moves towards, the weight wt of that move, and the step [s] from the state."""
@@ -40,7 +40,7 @@ def rk4_stage(st: int, k: int, dt: float) -> tuple[int, float, float]:
     return k + 1, 1.0, dt
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=c.ERRORS, inline="always")
 def rk4_stage_state(
     tmp: FloatArray, y: FloatArray, kk: FloatArray, st: int, step: float, n: int
 ) -> None:
@@ -49,7 +49,7 @@ def rk4_stage_state(
         tmp[i] = y[i] + (step * kk[st - 1, i] if st > 0 else 0.0)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=c.ERRORS, inline="always")
 def rk4_update(y: FloatArray, kk: FloatArray, dt: float, n: int) -> None:
     """The RK4 step of the n states y from the four stage rates kk."""
     for i in range(n):

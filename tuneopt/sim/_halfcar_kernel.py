@@ -30,7 +30,7 @@ from tuneopt.sim._wheel import End
 FloatArray = NDArray[np.float64]
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=c.ERRORS, inline="always")
 def _suspension(
     p: FloatArray, o: int, s: float, sd: float, spring: FloatArray, damper: FloatArray
 ) -> float:
@@ -39,7 +39,7 @@ def _suspension(
     )
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=c.ERRORS, inline="always")
 def _rhs(
     y: FloatArray, zf: float, zfd: float, zr: float, zrd: float, a: float, ay: float,
     p: FloatArray, sf: FloatArray, df: FloatArray, sr: FloatArray, dr: FloatArray, dy: FloatArray,
@@ -103,7 +103,7 @@ def _rhs(
     out[Out.RATE_R] = r_r
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=c.ERRORS, inline="always")
 def _is_runaway(p: FloatArray, out: FloatArray) -> bool:
     if c.end_runaway(out[Out.TRAVEL_F], out[Out.DEFL_F], p[_F + End.TRAVEL]):
         return True
@@ -117,7 +117,7 @@ def _is_runaway(p: FloatArray, out: FloatArray) -> bool:
     return coupling
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=c.ERRORS, inline="always")
 def _demand(fx: float, fy: float) -> float:
     """Force asked along the ground [N] from its braking and lateral parts (friction circle)."""
     if fx == 0.0:
@@ -128,7 +128,7 @@ def _demand(fx: float, fy: float) -> float:
     return both
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=c.ERRORS, inline="always")
 def _record(
     k: int, y: FloatArray, dy: FloatArray, out: FloatArray, zf: float, zr: float, a: float,
     ay: float, mu: float, relax_f: float, relax_r: float, p: FloatArray, acc: FloatArray,
@@ -136,9 +136,8 @@ def _record(
     every: int,
 ) -> int:
     """Checks, metric accumulation and trace for sample k (derivative and outputs given)."""
-    for i in range(_NS):
-        if not (np.isfinite(y[i]) and np.isfinite(dy[i])):
-            return c.FAIL_NON_FINITE
+    if not c.all_finite(y, dy, _NS):
+        return c.FAIL_NON_FINITE
     if _is_runaway(p, out):
         return c.FAIL_RUNAWAY
     braking = a > c.BRAKING_THRESHOLD
@@ -216,7 +215,7 @@ def _record(
     return c.FAIL_NONE
 
 
-@njit(cache=True)
+@njit(cache=True, error_model=c.ERRORS)
 def _sample(
     k: int, y: FloatArray, zf: float, zfd: float, zr: float, zrd: float, a: float, ay: float,
     mu: float, relax_f: float, relax_r: float, p: FloatArray, sf: FloatArray, df: FloatArray,
@@ -230,7 +229,7 @@ def _sample(
                    sos, zi, trace, every)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model=c.ERRORS)
 def _initial_state(p: FloatArray, zf0: float, zr0: float) -> FloatArray:
     """Static equilibrium carried rigidly onto the road's starting heights."""
     y = np.zeros(_NS)
@@ -244,7 +243,7 @@ def _initial_state(p: FloatArray, zf0: float, zr0: float) -> FloatArray:
     return y
 
 
-@njit(cache=True, parallel=True, fastmath=c.FAST)
+@njit(cache=True, error_model=c.ERRORS, parallel=True, fastmath=c.FAST)
 def _run(
     P: FloatArray, tables: tuple[FloatArray, ...], road: tuple[FloatArray, ...], mu: float,
     relax: tuple[FloatArray, FloatArray], dt: float, sos: FloatArray, acc: FloatArray,
@@ -278,33 +277,35 @@ def _run(
         trace_b = trace[b]
         h = dt
         for k in range(n):
-            done = False
-            for st in range(4):
-                # road at the stage time: sample k, the midpoint, or sample k + 1
-                j1, wt, step = drv.rk4_stage(st, k, h)
-                drv.rk4_stage_state(tmp, y, kk, st, step, _NS)
-                _rhs(tmp, zf[k] + wt * (zf[j1] - zf[k]), zfd[k] + wt * (zfd[j1] - zfd[k]),
-                     zr[k] + wt * (zr[j1] - zr[k]), zrd[k] + wt * (zrd[j1] - zrd[k]),
-                     dec[k] + wt * (dec[j1] - dec[k]), lat[k] + wt * (lat[j1] - lat[k]), p,
-                     sf, df, sr, dr, kk[st], out)
-                if st == 0:
-                    code = _record(k, y, kk[0], out, zf[k], zr[k], dec[k], lat[k], mu, relax_f[k],
-                                   relax_r[k], p, acc_b, hist_f, hist_r, sos, zi, trace_b, every)
-                    if code != 0:
-                        fail[b] = code
-                        done = True
-                        break
-                    if k == n - 1:
-                        done = True
-                        break
-            if done:
+            # stage 0 at sample k: its derivative is also the sample's record
+            _rhs(y, zf[k], zfd[k], zr[k], zrd[k], dec[k], lat[k], p, sf, df, sr, dr, kk[0], out)
+            code = _record(k, y, kk[0], out, zf[k], zr[k], dec[k], lat[k], mu, relax_f[k],
+                           relax_r[k], p, acc_b, hist_f, hist_r, sos, zi, trace_b, every)
+            if code != 0:
+                fail[b] = code
                 break
+            if k == n - 1:
+                break
+            # the road at the midpoint (stages 1 and 2 share it) and at sample k + 1
+            j = k + 1
+            zf_m, zfd_m = zf[k] + 0.5 * (zf[j] - zf[k]), zfd[k] + 0.5 * (zfd[j] - zfd[k])
+            zr_m, zrd_m = zr[k] + 0.5 * (zr[j] - zr[k]), zrd[k] + 0.5 * (zrd[j] - zrd[k])
+            dec_m, lat_m = dec[k] + 0.5 * (dec[j] - dec[k]), lat[k] + 0.5 * (lat[j] - lat[k])
+            for st in range(1, 3):
+                drv.rk4_stage_state(tmp, y, kk, st, 0.5 * h, _NS)
+                _rhs(tmp, zf_m, zfd_m, zr_m, zrd_m, dec_m, lat_m, p, sf, df, sr, dr, kk[st], out)
+            drv.rk4_stage_state(tmp, y, kk, 3, h, _NS)
+            # written as the stage's weight of 1 was, so that results stay the same to the bit
+            _rhs(tmp, zf[k] + (zf[j] - zf[k]), zfd[k] + (zfd[j] - zfd[k]),
+                 zr[k] + (zr[j] - zr[k]), zrd[k] + (zrd[j] - zrd[k]),
+                 dec[k] + (dec[j] - dec[k]), lat[k] + (lat[j] - lat[k]), p, sf, df, sr, dr,
+                 kk[3], out)
             drv.rk4_update(y, kk, h, _NS)
         c.close_wheel(acc_b, _ACC_F)
         c.close_wheel(acc_b, _ACC_R)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model=c.ERRORS)
 def _rhs_at_time(
     t: float, y: FloatArray, road: tuple[FloatArray, ...], dt: float, p: FloatArray,
     tables: tuple[FloatArray, ...],
@@ -323,7 +324,7 @@ def _rhs_at_time(
     return dy
 
 
-@njit(cache=True)
+@njit(cache=True, error_model=c.ERRORS)
 def _replay(
     Y: FloatArray, road: tuple[FloatArray, ...], mu: float, relax: tuple[FloatArray, FloatArray],
     p: FloatArray, tables: tuple[FloatArray, ...], sos: FloatArray, acc: FloatArray,

@@ -25,7 +25,7 @@ from numpy.typing import NDArray
 __all__ = ["grip_capacity", "relaxation_factor"]
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model="numpy", inline="always")
 def grip_capacity(fz: float, fz0: float, mu0: float, pd2: float) -> float:
     """Steady grip capacity [N] of a tyre under ground-normal load fz [N] (nominal load fz0 [N],
     friction coefficient mu0 at fz0 [-], load sensitivity pd2 [-]); 0 when unloaded."""

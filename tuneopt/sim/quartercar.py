@@ -110,7 +110,7 @@ class QuarterCarResult:
     traces: QuarterCarTraces | None
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=c.ERRORS, inline="always")
 def _rhs(
     y: FloatArray, zr: float, zrd: float, p: FloatArray, spring: FloatArray,
     damper: FloatArray, dy: FloatArray, out: FloatArray,
@@ -134,15 +134,14 @@ def _rhs(
     out[Out.ACCEL] = a_s
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model=c.ERRORS, inline="always")
 def _record(
     k: int, y: FloatArray, dy: FloatArray, out: FloatArray, p: FloatArray, acc: FloatArray,
     hist: FloatArray, sos: FloatArray, zi: FloatArray, trace: FloatArray, every: int,
 ) -> int:
     """Checks, metric accumulation and trace for sample k (derivative and outputs given)."""
-    for i in range(4):
-        if not (np.isfinite(y[i]) and np.isfinite(dy[i])):
-            return c.FAIL_NON_FINITE
+    if not c.all_finite(y, dy, 4):
+        return c.FAIL_NON_FINITE
     o = _W
     s = out[Out.TRAVEL]
     if c.end_runaway(s, out[Out.DEFL], p[o + End.TRAVEL]):
@@ -161,7 +160,7 @@ def _record(
     return c.FAIL_NONE
 
 
-@njit(cache=True)
+@njit(cache=True, error_model=c.ERRORS)
 def _sample(
     k: int, y: FloatArray, zr: float, zrd: float, p: FloatArray, spring: FloatArray,
     damper: FloatArray, dy: FloatArray, out: FloatArray, acc: FloatArray, hist: FloatArray,
@@ -172,7 +171,7 @@ def _sample(
     return _record(k, y, dy, out, p, acc, hist, sos, zi, trace, every)
 
 
-@njit(cache=True, parallel=True, fastmath=c.FAST)
+@njit(cache=True, error_model=c.ERRORS, parallel=True, fastmath=c.FAST)
 def _run(
     P: FloatArray, springs: FloatArray, dampers: FloatArray, zr: FloatArray, zrd: FloatArray,
     dt: float, sos: FloatArray, acc: FloatArray, hist: FloatArray, fail: NDArray[np.int64],
@@ -221,7 +220,7 @@ def _run(
         c.close_wheel(acc_b, _ACC_W)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model=c.ERRORS)
 def _rhs_at_time(
     t: float, y: FloatArray, zr: FloatArray, zrd: FloatArray, dt: float, p: FloatArray,
     spring: FloatArray, damper: FloatArray,
@@ -235,7 +234,7 @@ def _rhs_at_time(
     return dy
 
 
-@njit(cache=True)
+@njit(cache=True, error_model=c.ERRORS)
 def _replay(
     Y: FloatArray, zr: FloatArray, zrd: FloatArray, p: FloatArray, spring: FloatArray,
     damper: FloatArray, sos: FloatArray, acc: FloatArray, hist: FloatArray, trace: FloatArray,
