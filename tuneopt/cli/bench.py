@@ -5,9 +5,10 @@ from __future__ import annotations
 import argparse
 import json
 import math
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from tuneopt.sim.benchmark import BenchResult, bench
+if TYPE_CHECKING:  # the simulator loads when the command runs, not with every command
+    from tuneopt.sim.benchmark import BenchResult
 
 
 def register(sub: Any) -> None:
@@ -57,6 +58,8 @@ def format_table(result: BenchResult) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
+    from tuneopt.sim.benchmark import bench
+
     result = bench(args.duration, batch=args.batch, cold=args.cold)
     if args.json:
         print(json.dumps(_finite(result.as_dict()), indent=2, allow_nan=False))
