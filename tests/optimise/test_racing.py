@@ -16,7 +16,7 @@ from tuneopt.optimise.evaluate import Evaluator, RacePolicy, paired_interval
 from tuneopt.optimise.runner import leader_scores
 from tuneopt.optimise.sag_windows import sag_windows
 from tuneopt.optimise.space import build_space
-from tuneopt.optimise.validation import compare_scores, validation_seeds
+from tuneopt.optimise.validation import compare_scores, selection_seeds, validation_seeds
 
 
 def _drop(scores: np.ndarray, reference: np.ndarray | None = None) -> np.ndarray:
@@ -113,9 +113,11 @@ def test_validation_realisations_are_never_searched() -> None:
     for seed in (0, 3, 11, 2**31 - 5):
         search = set(range(seed, seed + 32))
         fresh = validation_seeds(seed, 24)
-        assert len(set(fresh)) == 24
-        assert not search & set(fresh)
-        assert all(0 <= s < 2**31 for s in fresh)
+        chosen = selection_seeds(seed, 24)
+        assert len(set(fresh)) == 24 and len(set(chosen)) == 24
+        assert not search & set(fresh) and not search & set(chosen)
+        assert not set(fresh) & set(chosen)  # the figures never come from the choosing set
+        assert all(0 <= s < 2**31 for s in fresh + chosen)
 
 
 def test_a_setup_with_its_damping_closed_is_dropped_early(small_scenario: Scenario) -> None:
@@ -181,17 +183,24 @@ def test_ranking_comes_from_the_fresh_realisations(
     plan = StudyPlan("study", trials=12, batch_size=6, seed=3)
     run = start_run(small_scenario, tmp_path / "run", plan, realisations=2, validation=4)
     ranking = run_local(run, top=3)
-    scores = [e.score for e in ranking.ranked]
-    assert scores == sorted(scores)
+    # the order comes from the selection set, every figure from the validation set
+    chosen = [e.validation["selection_score"] for e in ranking.ranked]
+    assert chosen == sorted(chosen)
     best = ranking.ranked[0]
     assert best.validation["realisations"] == 4
+    assert best.validation["selection_realisations"] == 4
     space = build_space(small_scenario)
+    picked = Evaluator(small_scenario, seeds=selection_seeds(3, 4))
+    assert best.validation["selection_score"] == pytest.approx(
+        picked.evaluate([space.setup(best.indices)])[0].score, rel=1e-12
+    )
     fresh = Evaluator(small_scenario, seeds=validation_seeds(3, 4))
     w, b = fresh.evaluate([space.setup(best.indices), small_scenario.setup])
     assert best.score == pytest.approx(w.score, rel=1e-12)
     assert ranking.baseline is not None
     assert ranking.baseline.score == pytest.approx(b.score, rel=1e-12)
-    assert best.score <= ranking.baseline.score  # the current setup competed in the finals
+    # the current setup competed in the finals: #1 rode no worse where the order was chosen
+    assert best.validation["selection_score"] <= picked.evaluate([small_scenario.setup])[0].score
     expected = compare_scores(w.scores, b.scores)
     assert best.validation["gain"] == pytest.approx(expected.gain, rel=1e-12)
     assert best.validation["gain_low"] == pytest.approx(expected.gain_low, rel=1e-12)
@@ -207,3 +216,37 @@ def test_realisations_built_on_the_way_score_as_kept_ones(small_scenario: Scenar
     a, b = kept.evaluate(setups)[0], lazy.evaluate(setups)[0]
     assert a.scores == b.scores
     assert kept.simulated_seconds == lazy.simulated_seconds
+
+
+def test_a_realisation_one_setup_cannot_ride_leaves_the_selection(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    """Setups are ordered on the selection realisations all of them rode: one realisation on
+    which setup 0 ran away (the passive rider over a big feature) is dropped for everyone, not
+    the setup; paired means over the rest decide [D, definition of the paired comparison]."""
+    import tuneopt.optimise.validation as v
+    from tuneopt.optimise.evaluate import Outcome
+
+    seeds = v.selection_seeds(5, 4)
+    difficulty = dict(zip(seeds, (8.0, 9.0, 30.0, 7.0), strict=True))
+
+    class OneCourse:
+        def __init__(self, scenario: object, *, seeds: tuple[int, ...], dt: float,
+                     keep_courses: bool) -> None:
+            self.seed = seeds[0]
+
+        def evaluate(self, setups: list[float]) -> list[Outcome]:
+            d = difficulty[self.seed]
+            if d == 30.0:  # setup 0 runs away here; the others ride it and score high
+                return [Outcome(None, failure="simulation: runaway")] + [
+                    Outcome(d + s) for s in setups[1:]
+                ]
+            return [Outcome(d + s) for s in setups]
+
+    class Search:
+        scenario, seed, dt = None, 5, 1e-3
+
+    monkeypatch.setattr(v, "Evaluator", OneCourse)
+    got = v.selection_scores(Search(), [0.1, 0.2, 0.3], 4)  # type: ignore[arg-type]
+    common = np.mean([8.0, 9.0, 7.0])
+    assert got == pytest.approx([common + 0.1, common + 0.2, common + 0.3], rel=1e-12)

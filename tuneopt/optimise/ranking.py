@@ -18,6 +18,7 @@ from tuneopt.optimise.validation import (
     DEFAULT_VALIDATION,
     FINALISTS,
     compare_scores,
+    selection_scores,
     validation_evaluator,
 )
 
@@ -268,18 +269,30 @@ def _validated(
     evaluator: Evaluator,
     count: int,
 ) -> tuple[list[RankedSetup], RankedSetup | None]:
-    """Re-score the finalists and the current setup on fresh realisations and rank them by
-    that; the figures against the current setup and the winner come from the same set."""
-    fresh = validation_evaluator(evaluator, count)
+    """Order the finalists and the current setup by their scores on the selection set, then
+    take every figure (scores, against the current setup and the winner) from the validation
+    set, which chose nothing: the order's own pick is not flattered by the figures."""
     setups = [space.setup(e.indices) for e in entries] + [space.base]
+    chosen = selection_scores(evaluator, setups, count)
+    fresh = validation_evaluator(evaluator, count)
     outcomes = fresh.evaluate(setups)
     base_out = outcomes[-1]
-    kept = [(e, o) for e, o in zip(entries, outcomes[:-1], strict=True) if o.ok]
-    kept.sort(key=lambda eo: (float(eo[1].score), eo[0].trial))  # type: ignore[arg-type]
+    kept = [
+        (e, o, float(c))
+        for e, o, c in zip(entries, outcomes[:-1], chosen[:-1], strict=True)
+        if o.ok
+    ]
+    # by the selection set (a setup that rode none of it last, by its validation score)
+    kept.sort(key=lambda eoc: (
+        not np.isfinite(eoc[2]), eoc[2] if np.isfinite(eoc[2]) else float(eoc[1].score),  # type: ignore[arg-type]
+        eoc[0].trial,
+    ))
     ranked: list[RankedSetup] = []
-    for rank, (e, o) in enumerate(kept, start=1):
+    for rank, (e, o, c) in enumerate(kept, start=1):
         info: dict[str, Any] = {"realisations": fresh.realisations,
-                                "bottom_out_risk": o.bottomed / fresh.realisations}
+                                "bottom_out_risk": o.bottomed / fresh.realisations,
+                                "selection_score": c if np.isfinite(c) else None,
+                                "selection_realisations": count}
         change: dict[str, float] = {}
         if base_out.ok:
             info.update(compare_scores(o.scores, base_out.scores).as_dict())

@@ -1,12 +1,14 @@
 """Re-scoring the finalists on terrain the search never saw.
 
 The setup that won the search was picked on the same realisations that scored it, so its score
-there is optimistically biased (the winner's curse; Kim & Nelson 2001 [M]). The finalists and
-the current setup are therefore scored again, all of them on the same fresh realisations, and
-every figure a user reads (the ranking, the gain against the current setup, which of two setups
-is better) comes from that set: a paired mean difference with its 95 % t interval, the share of
-realisations on which one beats the other, and the share on which a setup bottoms out. A
-difference whose interval holds zero is within noise and is said so.
+there is optimistically biased (the winner's curse; Kim & Nelson 2001 [M]). The same holds one
+level up: the best of several finalists on one set of realisations is biased on that set. The
+finalists and the current setup are therefore ridden on two sets of fresh realisations: the
+selection set orders them (which is #1), and the validation set, which chose nothing, gives
+every figure a user reads (each setup's score, the gain against the current setup, which of two
+setups is better): a paired mean difference with its 95 % t interval, the share of realisations
+on which one beats the other, and the share on which a setup bottoms out. A difference whose
+interval holds zero is within noise and is said so.
 """
 
 from __future__ import annotations
@@ -15,7 +17,9 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import NDArray
 
+from tuneopt.model import Setup
 from tuneopt.optimise.evaluate import Evaluator, paired_interval
 
 __all__ = [
@@ -23,6 +27,8 @@ __all__ = [
     "FINALISTS",
     "Comparison",
     "compare_scores",
+    "selection_scores",
+    "selection_seeds",
     "validation_evaluator",
     "validation_seeds",
 ]
@@ -34,21 +40,54 @@ FINALISTS = 8
 # Validation courses are built from seeds this far from the study's own, so a study never
 # validates on a realisation it searched on (a study uses seed .. seed + realisations - 1).
 _VALIDATION_OFFSET = 100_000
+# The selection set, which orders the finalists, lies as far again from both.
+_SELECTION_OFFSET = 200_000
 _SEED_LIMIT = 2**31
 
 
 def validation_seeds(study_seed: int, count: int) -> tuple[int, ...]:
+    """The realisations every figure comes from (never searched, never used to choose)."""
     return tuple((study_seed + _VALIDATION_OFFSET + k) % _SEED_LIMIT for k in range(count))
 
 
-def validation_evaluator(search: Evaluator, count: int = DEFAULT_VALIDATION) -> Evaluator:
-    """An evaluator for the same scenario over ``count`` fresh realisations."""
-    return Evaluator(
-        search.scenario,
-        seeds=validation_seeds(search.seed, count),
-        dt=search.dt,
-        keep_courses=False,
-    )
+def selection_seeds(study_seed: int, count: int) -> tuple[int, ...]:
+    """The realisations that order the finalists (never searched, never reported)."""
+    return tuple((study_seed + _SELECTION_OFFSET + k) % _SEED_LIMIT for k in range(count))
+
+
+def validation_evaluator(
+    search: Evaluator, count: int = DEFAULT_VALIDATION, *, selection: bool = False
+) -> Evaluator:
+    """An evaluator for the same scenario over ``count`` fresh realisations: the validation
+    set, or with ``selection`` the selection set."""
+    seeds = (selection_seeds if selection else validation_seeds)(search.seed, count)
+    return Evaluator(search.scenario, seeds=seeds, dt=search.dt, keep_courses=False)
+
+
+def selection_scores(
+    search: Evaluator, setups: Sequence[Setup], count: int = DEFAULT_VALIDATION
+) -> NDArray[np.float64]:
+    """Each setup's mean score over the selection realisations that every one of them rode to
+    the end, (S,); NaN for a setup that rode none of them. A realisation the passive rider
+    cannot get through on some setup (a runaway over a big feature) leaves the comparison
+    rather than the setups: the others are still compared on the same realisations."""
+    table = np.full((len(setups), count), np.nan)
+    for r, seed in enumerate(selection_seeds(search.seed, count)):
+        one = Evaluator(search.scenario, seeds=(seed,), dt=search.dt, keep_courses=False)
+        for i, o in enumerate(one.evaluate(setups)):
+            if o.ok:
+                table[i, r] = float(o.score)  # type: ignore[arg-type]
+    common = np.all(np.isfinite(table), axis=0)
+    if common.any():
+        means: NDArray[np.float64] = np.mean(table[:, common], axis=1)
+        return means
+    # no realisation every setup rode: each on those it rode (no longer paired)
+    with np.errstate(invalid="ignore"):
+        ridden = np.isfinite(table).sum(axis=1)
+        fallback: NDArray[np.float64] = np.where(
+            ridden > 0, np.nansum(table, axis=1) / np.maximum(ridden, 1), np.nan
+        )
+    return fallback
 
 
 @dataclass(frozen=True)

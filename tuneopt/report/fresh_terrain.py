@@ -40,7 +40,8 @@ def fresh_terrain_lines(result: RunResult) -> list[str]:
         wins = round(gain.wins * n)
         if gain.within_noise:
             lines.append(
-                f"On {n} terrain realisations the search never saw, setup #1 and the current "
+                f"On {n} terrain realisations neither the search nor the choice of #1 saw, "
+                f"setup #1 and the current "
                 f"setup are within noise of each other: #1 is {_pct(gain.gain)} better on "
                 f"average, 95 % interval {_pct(gain.low)} to {_pct(gain.high)}, "
                 f"and scores better on {wins} of {n}. Changing the setup is not shown to help."
@@ -48,7 +49,8 @@ def fresh_terrain_lines(result: RunResult) -> list[str]:
         else:
             word = "better" if gain.gain > 0 else "worse"
             lines.append(
-                f"On {n} terrain realisations the search never saw, setup #1 scores "
+                f"On {n} terrain realisations neither the search nor the choice of #1 saw, "
+                f"setup #1 scores "
                 f"{_pct(abs(gain.gain))} {word} than the current setup (95 % interval "
                 f"{_pct(gain.low)} to {_pct(gain.high)} better) and scores "
                 f"better on {wins} of {n}."

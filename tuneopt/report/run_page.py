@@ -201,7 +201,8 @@ def trials_line(result: RunResult) -> str:
         f"realisation(s), {result.simulated_seconds_per_setup:.0f} s of riding in all "
         "for a setup that rides them all (setups clearly worse than the leader stopped early)"
         + (
-            f"; the finalists re-scored on {result.validation_realisations} fresh ones."
+            f"; the finalists ordered on {result.validation_realisations} fresh ones and "
+            f"every figure taken from {result.validation_realisations} others."
             if result.validation_realisations
             else "."
         )
