@@ -68,3 +68,27 @@ def test_setup_without_static_equilibrium_fails_alone() -> None:
     assert res.failure[1] == FailureReason.STATIC and res.failure[2] == FailureReason.STATIC
     single = simulate_quartercar(quarter_car(1, rate=15e3), road)
     assert_array_equal(res.wheel.load_variation[0], single.wheel.load_variation[0])
+
+
+def test_taking_setups_out_of_a_batch_keeps_every_other_field() -> None:
+    # every per-setup array is cut, every shared field (the tyre's grip constants, the head
+    # angle) kept: a rebuilt copy once dropped them silently to their defaults
+    from dataclasses import fields, replace
+
+    import numpy as np
+    from sim_setups import half_car
+
+    from tuneopt.sim.params import WheelEnd
+
+    base = half_car(4)
+    front = replace(base.front, relaxation_length=0.3, load_sensitivity=-0.2,
+                    friction_factor=np.linspace(0.9, 1.2, 4))
+    params = replace(base, front=front, head_angle=64.0)
+    one = params.take(slice(1, 3))
+    assert one.head_angle == 64.0 and one.batch == 2
+    for f in fields(WheelEnd):
+        got, was = getattr(one.front, f.name), getattr(params.front, f.name)
+        if f.name in WheelEnd.PER_SETUP:
+            np.testing.assert_array_equal(got, was[1:3])
+        else:
+            np.testing.assert_array_equal(got, was)

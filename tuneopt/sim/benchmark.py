@@ -244,23 +244,6 @@ def _timed(fn: Callable[[], Any], repeat: int = 1) -> tuple[Any, float, float]:
     return best
 
 
-def _take(
-    params: QuarterCarParams | HalfCarParams, idx: slice
-) -> QuarterCarParams | HalfCarParams:
-    """The setups idx of a batch (wheel-end arrays sliced along the batch axis)."""
-    def cut(wheel: WheelEnd) -> WheelEnd:
-        return WheelEnd(wheel.travel_grid, wheel.spring_force[idx], wheel.velocity_grid,
-                        wheel.damper_force[idx], wheel.travel[idx], wheel.unsprung_mass[idx],
-                        wheel.tyre_stiffness[idx], wheel.tyre_damping[idx],
-                        wheel.rim_strike_deflection[idx], wheel.wheel_radius)
-
-    if isinstance(params, QuarterCarParams):
-        return QuarterCarParams(cut(params.wheel), params.sprung_mass[idx])
-    return HalfCarParams(cut(params.front), cut(params.rear), params.rider, params.frame_mass,
-                         params.frame_pitch_inertia, params.frame_com_x, params.frame_com_height,
-                         params.wheelbase, params.brake_front_share)
-
-
 _START_CODE = """
 import time
 t0 = time.perf_counter()
@@ -288,12 +271,12 @@ def _fresh_process_seconds(model: str, empty_cache: bool) -> float:
 def _bench_model(sim: Callable[..., Any], ref: Callable[..., Any], params: Any, road: RoadInput,
                  batch: int, reference_setups: int, rtol: float, model: str,
                  cold: bool) -> ModelBench:
-    one = _take(params, slice(0, 1))
+    one = params.take(slice(0, 1))
     _, first_wall, _ = _timed(lambda: sim(one, road))
     _, warm1_wall, warm1_cpu = _timed(lambda: sim(one, road), repeat=3)
     result, warm_wall, warm_cpu = _timed(lambda: sim(params, road), repeat=3)
     per_setup_cpu = warm_cpu / batch
-    sub = _take(params, slice(0, reference_setups))
+    sub = params.take(slice(0, reference_setups))
     max_step = DEMO_SHORTEST_FEATURE / float(np.max(road.speed))
     reference, _, ref_cpu = _timed(
         lambda: ref(sub, road, rtol=rtol, atol=rtol * 1e-3, max_step=max_step)

@@ -8,7 +8,7 @@ tables, only forces at the wheel, which keeps the compiled loops small.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from numpy.typing import NDArray
@@ -57,9 +57,22 @@ class WheelEnd:
     load_sensitivity: float = -0.1
     friction_factor: FloatArray | None = None
 
+    # the fields with one row per setup (the others are shared by the batch)
+    PER_SETUP = ("spring_force", "damper_force", "travel", "unsprung_mass", "tyre_stiffness",
+                 "tyre_damping", "rim_strike_deflection", "friction_factor")
+
     @property
     def batch(self) -> int:
         return int(self.spring_force.shape[0])
+
+    def take(self, idx: slice | NDArray[np.intp]) -> WheelEnd:
+        """The setups idx of the batch, every other field as it is."""
+        rows = {
+            name: getattr(self, name)[idx]
+            for name in self.PER_SETUP
+            if getattr(self, name) is not None
+        }
+        return replace(self, **rows)
 
 
 @dataclass(frozen=True)
@@ -108,6 +121,14 @@ class HalfCarParams:
     brake_front_share: float = 0.6
     head_angle: float = 90.0
 
+    @property
+    def batch(self) -> int:
+        return self.front.batch
+
+    def take(self, idx: slice | NDArray[np.intp]) -> HalfCarParams:
+        """The setups idx of the batch, every other field as it is."""
+        return replace(self, front=self.front.take(idx), rear=self.rear.take(idx))
+
 
 @dataclass(frozen=True)
 class QuarterCarParams:
@@ -123,3 +144,7 @@ class QuarterCarParams:
     @property
     def batch(self) -> int:
         return self.wheel.batch
+
+    def take(self, idx: slice | NDArray[np.intp]) -> QuarterCarParams:
+        """The setups idx of the batch."""
+        return replace(self, wheel=self.wheel.take(idx), sprung_mass=self.sprung_mass[idx])
