@@ -17,19 +17,34 @@ Example::
     friction = 0.35          # optional: overrides the surface's friction for this entry
     length = "200 m"         # optional: this entry's own length
 
+    [[course.mix]]
+    profile = "home_loop_section.csv"   # a measured profile instead of a terrain type
+    share = 0.3
+    speed = "15 km/h"        # needed when the file has no speed column, refused when it has one
+    friction = 0.6           # optional
+
 Shares are shares of the course distance. They must add up to 1; a sum within 0.01 of 1 (for
 example three shares of 0.33) is rescaled to exactly 1, anything further off is an error, because
 a mix that adds up to 0.7 is more likely a missing entry than a rounding slip.
+
+A measured profile is ridden once, as measured, whatever the course length: its share weighs its
+metrics (rates per minute and means, as for every segment) as that share of the course distance,
+so a 150 m section with share 0.3 of a 600 m course stands for 180 m of riding. Repeating it
+would add a seam and a period the trail does not have; cutting it would throw measured terrain
+away. The loader (tuneopt.model.loading) reads the file and carries its samples inline
+(:class:`ProfileSamples`), so the scenario's data hold the profile itself, not a path.
 """
 
 from __future__ import annotations
 
 import math
-from typing import Literal
+from collections.abc import Callable, Sequence
+from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 from tuneopt.model._quantity import Length, Velocity
+from tuneopt.model.errors import FieldProblem
 
 __all__ = [
     "CourseSpec",
@@ -43,6 +58,13 @@ __all__ = [
     "MIN_SPEED",
     "MIN_FRICTION",
     "MAX_SAMPLES",
+    "MAX_PROFILE_GAP",
+    "MAX_PROFILE_SPIKE",
+    "MAX_PROFILE_SAMPLES",
+    "MIN_PROFILE_LENGTH",
+    "MEASURED",
+    "ProfileSamples",
+    "profile_problems",
 ]
 
 # The built-in terrain types (their parameters live in tuneopt.terrain.library).
@@ -64,14 +86,135 @@ MIN_FRICTION = 0.1  # ice-like; below it no corner can be ridden
 MAX_LENGTH = 50_000.0  # [m]
 MAX_GD = 524288e-6  # [m^3] upper limit of ISO 8608 class H
 MAX_SAMPLES = 20_000_000  # profile samples over the whole course: about 1 GB of arrays
+# Measured profiles: a wider gap is a hole in the record, not something to bridge with a straight
+# line; a one-sample jump further than the spike limit that comes straight back is a sensor
+# dropout, not terrain (common practice, no source).
+MAX_PROFILE_GAP = 0.25  # [m]
+MAX_PROFILE_SPIKE = 0.2  # [m]
+MAX_PROFILE_SAMPLES = 500_000  # samples carried in a scenario (a 5 MB file holds about 250,000)
+MIN_PROFILE_LENGTH = 1.0  # [m] shorter than a wheelbase is nothing to ride
+MEASURED = "measured"  # the terrain name of a mix entry that is a measured profile
+_MAX_LISTED = 5
 
 
-class MixEntry(BaseModel):
-    """One terrain type in the mix with its share of the course distance and optional overrides."""
+def profile_problems(
+    distance: Sequence[float],
+    elevation: Sequence[float],
+    speed: Sequence[float] | None,
+    where: Callable[[int], str],
+    *,
+    max_gap: float = MAX_PROFILE_GAP,
+    max_spike: float = MAX_PROFILE_SPIKE,
+) -> list[FieldProblem]:
+    """What is wrong with a profile's samples, each problem located by ``where(i)`` (sample i:
+    a file's line, or an index into the samples). Values must be finite (speed > 0); distance
+    must increase strictly, with no gap wider than ``max_gap`` [m]; no sample may jump more than
+    ``max_spike`` [m] from both neighbours in the same direction (a dropout)."""
+    problems: list[FieldProblem] = []
+    columns: list[tuple[str, Sequence[float]]] = [("distance", distance), ("elevation", elevation)]
+    if speed is not None:
+        columns.append(("speed", speed))
+    for i in range(len(distance)):
+        for name, values in columns:
+            value = values[i]
+            if not math.isfinite(value):
+                message = f"{name} is {value}, expected a finite number"
+            elif name == "speed" and value <= 0:
+                message = f"speed must be greater than 0, got {value:g}"
+            else:
+                continue
+            problems.append(FieldProblem(where(i), message))
+            break
+    if problems:
+        return problems
+    for i in range(1, len(distance)):
+        step = distance[i] - distance[i - 1]
+        if step <= 0:
+            problems.append(
+                FieldProblem(
+                    where(i),
+                    f"distance {distance[i]:g} m does not increase ({where(i - 1)} has "
+                    f"{distance[i - 1]:g} m)",
+                )
+            )
+        elif step > max_gap:
+            problems.append(
+                FieldProblem(
+                    where(i), f"gap of {step:g} m after {where(i - 1)} is wider than {max_gap:g} m"
+                )
+            )
+    for i in range(1, len(elevation) - 1):
+        before, after = elevation[i] - elevation[i - 1], elevation[i] - elevation[i + 1]
+        if abs(before) > max_spike and abs(after) > max_spike and (before > 0) == (after > 0):
+            problems.append(
+                FieldProblem(
+                    where(i),
+                    f"spike: elevation {elevation[i]:g} m jumps more than {max_spike:g} m away "
+                    f"from both neighbours ({where(i - 1)} and {where(i + 1)})",
+                )
+            )
+    return problems
+
+
+class ProfileSamples(BaseModel):
+    """A measured profile carried in the scenario: the samples as its file held them, distance
+    and elevation [m] and, when the file had it, speed [m/s]. ``source`` is the file's name as
+    the scenario gave it (for messages and reports; nothing reads it again)."""
 
     model_config = ConfigDict(extra="forbid", frozen=True)
 
-    terrain: str = Field(description="terrain type, one of " + ", ".join(TERRAIN_NAMES))
+    source: str = Field(description="the CSV file the samples came from, as the scenario named it")
+    distance: tuple[float, ...] = Field(description="distance along the trail [m], increasing")
+    elevation: tuple[float, ...] = Field(description="elevation [m]")
+    speed: tuple[float, ...] | None = Field(default=None, description="riding speed [m/s]")
+
+    @model_validator(mode="after")
+    def _samples(self) -> ProfileSamples:
+        n = len(self.distance)
+        if len(self.elevation) != n or (self.speed is not None and len(self.speed) != n):
+            counts = f"{n} distances, {len(self.elevation)} elevations" + (
+                f", {len(self.speed)} speeds" if self.speed is not None else ""
+            )
+            raise ValueError(f"the samples must come in equal numbers, got {counts}")
+        if n < 2:
+            raise ValueError(f"a profile needs at least 2 samples, got {n}")
+        if n > MAX_PROFILE_SAMPLES:
+            raise ValueError(
+                f"{n} samples, above the {MAX_PROFILE_SAMPLES} a scenario may carry; thin the "
+                "record or send a shorter section"
+            )
+        problems = profile_problems(
+            self.distance, self.elevation, self.speed, lambda i: f"sample {i}"
+        )
+        if problems:
+            listed = "; ".join(str(p) for p in problems[:_MAX_LISTED])
+            more = len(problems) - _MAX_LISTED
+            raise ValueError(listed + (f"; and {more} more problems" if more > 0 else ""))
+        if self.length < MIN_PROFILE_LENGTH:
+            raise ValueError(
+                f"the profile is {self.length:g} m long, shorter than {MIN_PROFILE_LENGTH:g} m"
+            )
+        return self
+
+    @property
+    def length(self) -> float:
+        """Distance from the first sample to the last [m]."""
+        return self.distance[-1] - self.distance[0]
+
+
+class MixEntry(BaseModel):
+    """One entry of the mix: a terrain type, or a measured profile (``terrain`` is then
+    MEASURED), with its share of the course distance and optional overrides."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+    terrain: str = Field(
+        description="terrain type, one of " + ", ".join(TERRAIN_NAMES) + "; leave out with profile"
+    )
+    profile: ProfileSamples | None = Field(
+        default=None,
+        description="a measured profile instead of a terrain type (the loader reads the file)",
+    )
     share: float = Field(description="share of the course distance, 0 < share <= 1")
     speed: Velocity | None = Field(default=None, description="riding speed on the straights")
     roughness: str | float | None = Field(
@@ -89,9 +232,65 @@ class MixEntry(BaseModel):
     )
     length: Length | None = Field(default=None, description="this entry's own length")
 
+    @model_validator(mode="before")
+    @classmethod
+    def _terrain_or_profile(cls, data: Any) -> Any:
+        if not isinstance(data, dict):
+            return data
+        terrain, profile = data.get("terrain"), data.get("profile")
+        if profile is None:
+            if terrain is None:
+                raise ValueError(
+                    "give terrain (a terrain type) or profile (a measured profile's CSV file)"
+                )
+            if terrain == MEASURED:
+                raise ValueError(
+                    f"terrain {MEASURED!r} is for an entry with a profile; give profile = "
+                    "\"file.csv\" or a terrain type"
+                )
+            return data
+        if isinstance(profile, str):
+            raise ValueError(
+                f"profile {profile!r} names a file, which is read only when the scenario is "
+                "loaded from its folder"
+            )
+        if terrain is not None and terrain != MEASURED:
+            raise ValueError(
+                f"give terrain or profile, not both (terrain {terrain!r} and a profile)"
+            )
+        problems = [
+            f"{name} does not apply to a measured profile ({why})"
+            for name, why in (
+                ("length", "it is ridden once, as measured; its share weighs it"),
+                ("roughness", "the profile is the roughness"),
+                ("feature_height", "the profile holds its own features"),
+            )
+            if data.get(name) is not None
+        ]
+        if problems:
+            raise ValueError("; ".join(problems))
+        return {**data, "terrain": MEASURED}
+
+    @model_validator(mode="after")
+    def _speed_of_a_profile(self) -> MixEntry:
+        if self.profile is None:
+            return self
+        if self.profile.speed is None and self.speed is None:
+            raise ValueError(
+                f"speed: {self.profile.source} has no speed column; give the entry a speed"
+            )
+        if self.profile.speed is not None and self.speed is not None:
+            raise ValueError(
+                f"speed: {self.profile.source} has a speed column, which is ridden; leave the "
+                "entry's speed out"
+            )
+        return self
+
     @field_validator("terrain")
     @classmethod
     def _known_terrain(cls, value: str) -> str:
+        if value == MEASURED:  # only with a profile (checked before)
+            return value
         if value not in TERRAIN_NAMES:
             raise ValueError(
                 f"unknown terrain type {value!r}; known types: {', '.join(TERRAIN_NAMES)}"
@@ -247,6 +446,9 @@ class CourseSpec(BaseModel):
         return self
 
     def entry_length(self, index: int) -> float:
-        """Length of mix entry ``index`` [m]: its own length, else its share of the course."""
+        """Length of mix entry ``index`` [m]: a measured profile's own length, else the entry's
+        own length, else its share of the course."""
         entry = self.mix[index]
+        if entry.profile is not None:
+            return entry.profile.length
         return entry.length if entry.length is not None else entry.share * self.length

@@ -1,7 +1,9 @@
 """Reading scenarios from TOML or JSON (files or text), with every error named by field path.
 
-This is the input edge: it reads files (the scenario and any measured damper table it names)
-and turns pydantic's errors into :class:`InputError`.
+This is the input edge: it reads files (the scenario, any measured damper table and any
+measured terrain profile it names) and turns pydantic's errors into :class:`InputError`. The
+files a scenario names are read here and their data carried inline, so a scenario's data (a
+run's record, a service job) hold the table or profile itself, not a path.
 """
 
 from __future__ import annotations
@@ -12,16 +14,25 @@ import io
 import json
 import math
 import tomllib
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, get_args
 
 from pydantic import BaseModel, ValidationError
 
 from tuneopt.model._quantity import parse_quantity
+from tuneopt.model.course import MAX_PROFILE_GAP, MAX_PROFILE_SPIKE, profile_problems
 from tuneopt.model.errors import FieldProblem, InputError
 from tuneopt.model.scenario import Scenario, setup_problems
 
-__all__ = ["load_scenario", "parse_damper_csv", "scenario_from_data", "problems_from_validation"]
+__all__ = [
+    "ProfileRows",
+    "load_scenario",
+    "parse_damper_csv",
+    "parse_profile_text",
+    "scenario_from_data",
+    "problems_from_validation",
+]
 
 _MESSAGES = {
     "missing": "missing (required)",
@@ -192,6 +203,105 @@ def parse_damper_csv(text: str, source: str) -> dict[str, Any]:
     return {"points": points, "source": source}
 
 
+@dataclass(frozen=True)
+class ProfileRows:
+    """A measured profile's samples as its CSV held them: distance and elevation [m], speed
+    [m/s] or None without a speed column, and each sample's line number in the file."""
+
+    distance: list[float]
+    elevation: list[float]
+    speed: list[float] | None
+    lines: list[int]
+
+
+def parse_profile_text(
+    text: str,
+    *,
+    max_gap: float = MAX_PROFILE_GAP,
+    max_spike: float = MAX_PROFILE_SPIKE,
+    source: str = "profile",
+) -> ProfileRows:
+    """Read a measured profile's CSV: a header ``distance,elevation`` or
+    ``distance,elevation,speed`` (SI: m, m, m/s), then one sample per line; blank lines and lines
+    starting with ``#`` are skipped. Raises InputError (``source``) listing every problem, each
+    located ``line N`` (tuneopt.model.course.profile_problems says what is checked)."""
+    text = text.removeprefix("\ufeff")  # spreadsheets save "CSV UTF-8" with a byte-order mark
+    problems: list[FieldProblem] = []
+    columns: list[str] | None = None
+    header_line = 0
+    lines: list[int] = []
+    rows: list[list[float]] = []
+    for number, raw in enumerate(text.splitlines(), start=1):
+        stripped = raw.strip()
+        if not stripped or stripped.startswith("#"):
+            continue
+        cells = [c.strip() for c in stripped.split(",")]
+        if columns is None:
+            names = [c.lower() for c in cells]
+            if names not in (["distance", "elevation"], ["distance", "elevation", "speed"]):
+                raise InputError.single(
+                    f"line {number}",
+                    "the header must be 'distance,elevation' or 'distance,elevation,speed', "
+                    f"got {_shown(stripped)}",
+                    source,
+                )
+            columns, header_line = names, number
+            continue
+        if len(cells) != len(columns):
+            problems.append(
+                FieldProblem(
+                    f"line {number}",
+                    f"expected {len(columns)} values ({','.join(columns)}), got {len(cells)}",
+                )
+            )
+            continue
+        values: list[float] = []
+        for name, cell in zip(columns, cells, strict=True):
+            try:
+                value = float(cell)
+            except ValueError:
+                problems.append(
+                    FieldProblem(f"line {number}", f"{name} {_shown(cell)} is not a number")
+                )
+                break
+            if not math.isfinite(value):
+                problems.append(
+                    FieldProblem(f"line {number}", f"{name} is {cell}, expected a finite number")
+                )
+                break
+            if name == "speed" and value <= 0:
+                problems.append(
+                    FieldProblem(f"line {number}", f"speed must be greater than 0, got {value:g}")
+                )
+                break
+            values.append(value)
+        else:
+            lines.append(number)
+            rows.append(values)
+    if columns is None:
+        raise InputError.single("line 1", "no header and no data", source)
+    if problems:
+        raise InputError(problems[:_MAX_REPORTED] + _more(len(problems)), source)
+    if len(rows) < 2:
+        raise InputError.single(
+            f"line {header_line}", f"need at least 2 data lines, got {len(rows)}", source
+        )
+    distance = [r[0] for r in rows]
+    elevation = [r[1] for r in rows]
+    speed = [r[2] for r in rows] if len(columns) == 3 else None
+    problems = profile_problems(
+        distance,
+        elevation,
+        speed,
+        lambda i: f"line {lines[i]}",
+        max_gap=max_gap,
+        max_spike=max_spike,
+    )
+    if problems:
+        raise InputError(problems[:_MAX_REPORTED] + _more(len(problems)), source)
+    return ProfileRows(distance, elevation, speed, lines)
+
+
 def _more(count: int) -> list[FieldProblem]:
     if count <= _MAX_REPORTED:
         return []
@@ -243,6 +353,55 @@ def _attach_tables(data: dict[str, Any], base_dir: Path | None) -> list[FieldPro
     return problems
 
 
+def _attach_profiles(data: dict[str, Any], base_dir: Path | None) -> list[FieldProblem]:
+    """Read the measured profiles the course's mix names (``profile = "file.csv"``, next to the
+    scenario, as damper tables are) and put their samples in their place."""
+    course = data.get("course")
+    mix = course.get("mix") if isinstance(course, dict) else None
+    if not isinstance(mix, list):
+        return []
+    problems = []
+    for i, entry in enumerate(mix):
+        if not isinstance(entry, dict) or not isinstance(entry.get("profile"), str):
+            continue  # a table of samples (data sent whole) or junk: the schema judges it
+        name = entry["profile"]
+        where = f"course.mix[{i}].profile"
+        if base_dir is None:
+            problems.append(
+                FieldProblem(where, _NO_FOLDER + "give the profile's samples (distance, elevation)")
+            )
+            continue
+        if not name.strip():
+            problems.append(FieldProblem(where, "must be a CSV file name next to the scenario"))
+            continue
+        label = name if name.isprintable() and len(name) <= 80 else _shown(name)
+        try:
+            text = _read_text((base_dir / name).resolve(), MAX_TABLE_BYTES)
+        except OSError as exc:
+            problems.append(FieldProblem(where, f"cannot read {label}: {exc.strerror}"))
+            continue
+        except ValueError as exc:  # a NUL in the name, not UTF-8, too large
+            problems.append(FieldProblem(where, f"cannot read {label}: {exc}"))
+            continue
+        try:
+            rows = parse_profile_text(text, source=label)
+        except InputError as exc:
+            problems += [
+                FieldProblem(f"{where} ({label} {p.location})" if p.location else where, p.message)
+                for p in exc.problems
+            ]
+            continue
+        samples: dict[str, Any] = {
+            "source": label,
+            "distance": rows.distance,
+            "elevation": rows.elevation,
+        }
+        if rows.speed is not None:
+            samples["speed"] = rows.speed
+        entry["profile"] = samples
+    return problems
+
+
 def scenario_from_data(
     data: Any, source: str | None = None, base_dir: Path | None = None
 ) -> Scenario:
@@ -253,7 +412,7 @@ def scenario_from_data(
     if deep is not None:
         raise InputError.single(deep, f"nested more than {MAX_DEPTH} levels deep", source)
     data = json.loads(json.dumps(data, default=str))  # a private, plain copy we may edit
-    problems = _attach_tables(data, base_dir)
+    problems = _attach_tables(data, base_dir) + _attach_profiles(data, base_dir)
     if "base" in data:  # files resolve it before this point (load_scenario)
         problems.append(
             FieldProblem(

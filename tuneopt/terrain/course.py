@@ -10,10 +10,18 @@ Big hits come first: their number is fixed by the segment's length and the type'
 tuneopt.terrain.features.lay_big_hits), so every realisation carries its share; the everyday
 features fill the stretches between them. On a wet surface the straights are ridden at the
 type's wet_speed_factor of its dry speed, unless the mix entry sets its own speed.
+
+A mix entry that is a measured profile becomes one segment through
+tuneopt.terrain.measured.segment_from_profile: its samples resampled to the course spacing,
+after the same flat lead-in, ridden at the file's speed or the entry's. It is the same in every
+realisation (the seed moves only the built-in types' segments; each keeps its own streams,
+keyed by its index in the mix); its friction is the entry's, else the middle (median) of the
+built-in types' friction on that surface. It carries no features and no corners.
 """
 
 from __future__ import annotations
 
+import statistics
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -28,12 +36,21 @@ from tuneopt.terrain.features import (
     lay_braking_bumps,
     lay_features,
 )
-from tuneopt.terrain.library import terrain_type
+from tuneopt.terrain.library import TERRAIN_LIBRARY, terrain_type
 from tuneopt.terrain.parameters import Roughness, TerrainType, iso_8608_class_mean
 from tuneopt.terrain.roughness import synthesise_profile
 from tuneopt.terrain.speed import place_corners, speed_profile
 
-__all__ = ["Segment", "Course", "build_course", "build_segment", "read_only", "LEAD_IN", "TAPER"]
+__all__ = [
+    "Segment",
+    "Course",
+    "build_course",
+    "build_segment",
+    "profile_friction",
+    "read_only",
+    "LEAD_IN",
+    "TAPER",
+]
 
 LEAD_IN = 3.0  # [m] flat and smooth start of every segment
 TAPER = 2.0  # [m] the roughness fades in over this distance after the lead-in
@@ -180,19 +197,49 @@ def build_segment(
     )
 
 
+def profile_friction(surface: str) -> float:
+    """Friction of a measured profile whose entry sets none: the median of the built-in terrain
+    types' friction on ``surface`` (an uncertain middle value, as theirs are)."""
+    return statistics.median(t.friction(surface) for t in TERRAIN_LIBRARY.values())
+
+
 def build_course(spec: CourseSpec, seed: int) -> Course:
     """Build the course described by ``spec`` from ``seed``; same spec and seed, same course.
 
-    Raises InputError (field paths under ``course``) when an entry cannot be built, for example a
-    segment too short to hold its terrain type's features.
+    A measured profile's segment is the same for every seed. Raises InputError (field paths
+    under ``course``) when an entry cannot be built, for example a segment too short to hold its
+    terrain type's features.
     """
+    # measured imports this module (Segment, LEAD_IN), so it is imported when a course is built
+    from tuneopt.terrain.measured import profile_from_samples, segment_from_profile
+
     if isinstance(seed, bool) or not isinstance(seed, int | np.integer) or seed < 0:
         raise InputError.single("seed", f"must be a whole number >= 0, got {seed!r}")
     seed = int(seed)
     problems: list[FieldProblem] = []
-    plans: list[tuple[TerrainType, float, float, float]] = []
+    plans: list[tuple[int, TerrainType, float, float, float]] = []
+    measured: dict[int, Segment] = {}
     for i, entry in enumerate(spec.mix):
         where = f"course.mix[{i}]"
+        if entry.profile is not None:
+            friction = (
+                entry.friction if entry.friction is not None else profile_friction(spec.surface)
+            )
+            try:
+                profile = profile_from_samples(entry.profile, spec.spacing)
+                measured[i] = segment_from_profile(
+                    profile,
+                    friction=friction,
+                    speed=entry.speed if entry.profile.speed is None else None,
+                    weight=entry.share,
+                    terrain=entry.terrain,
+                )
+            except InputError as exc:
+                problems += [
+                    FieldProblem(f"{where}.profile ({p.location})", p.message)
+                    for p in exc.problems
+                ]
+            continue
         try:
             terrain = _apply_overrides(terrain_type(entry.terrain), entry, where, spec.surface)
         except InputError as exc:
@@ -217,15 +264,17 @@ def build_course(spec: CourseSpec, seed: int) -> Course:
             )
             continue
         friction = entry.friction if entry.friction is not None else terrain.friction(spec.surface)
-        plans.append((terrain, length, friction, entry.share))
+        plans.append((i, terrain, length, friction, entry.share))
     if problems:
         raise InputError(problems)
-    segments: list[Segment] = []
-    for i, (terrain, length, friction, share) in enumerate(plans):
+    segments: dict[int, Segment] = dict(measured)
+    for i, terrain, length, friction, share in plans:
         try:
-            segments.append(build_segment(terrain, length, spec.spacing, friction, share, seed, i))
+            segments[i] = build_segment(terrain, length, spec.spacing, friction, share, seed, i)
         except ValueError as exc:  # big hits scaled up until they no longer fit
             problems.append(FieldProblem(f"course.mix[{i}]", f"{terrain.name}: {exc}"))
     if problems:
         raise InputError(problems)
-    return Course(segments=tuple(segments), seed=seed, surface=spec.surface)
+    return Course(
+        segments=tuple(segments[i] for i in sorted(segments)), seed=seed, surface=spec.surface
+    )

@@ -4,25 +4,34 @@ The CSV has a header line ``distance,elevation`` or ``distance,elevation,speed``
 metres, metres per second), then one sample per line. Blank lines and lines starting with ``#``
 are skipped. Distance must increase strictly; a gap wider than ``max_gap`` is an error (a hole in
 the record, not something to bridge with a straight line); so is a one-sample spike that jumps
-more than ``max_spike`` and comes straight back (a sensor dropout, not terrain).
+more than ``max_spike`` and comes straight back (a sensor dropout, not terrain). The reading and
+those checks are the model's (tuneopt.model.loading.parse_profile_text), which the scenario
+loader uses too for a course's ``profile = "file.csv"``; here the samples are resampled.
 """
 
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 from numpy.typing import NDArray
 
-from tuneopt.model.course import MAX_SAMPLES
+from tuneopt.model.course import MAX_PROFILE_GAP, MAX_PROFILE_SPIKE, MAX_SAMPLES, ProfileSamples
 from tuneopt.model.errors import FieldProblem, InputError
+from tuneopt.model.loading import parse_profile_text
 from tuneopt.terrain.course import LEAD_IN, Segment, read_only
 
-__all__ = ["MeasuredProfile", "parse_profile_csv", "read_profile_csv", "segment_from_profile"]
+__all__ = [
+    "MeasuredProfile",
+    "parse_profile_csv",
+    "profile_from_samples",
+    "read_profile_csv",
+    "segment_from_profile",
+]
 
-_MAX_REPORTED = 20
 # About a million samples (5 km at 5 mm): a larger file is most likely the wrong one,
 # and reading it whole would only cost memory and time.
 MAX_PROFILE_BYTES = 20_000_000
@@ -40,116 +49,26 @@ class MeasuredProfile:
     source: str
 
 
-def _problem(line: int, message: str) -> FieldProblem:
-    return FieldProblem(f"line {line}", message)
-
-
-def parse_profile_csv(
-    text: str,
-    *,
-    dx: float = 0.005,
-    max_gap: float = 0.25,
-    max_spike: float = 0.2,
-    source: str = "profile",
+def _resampled(
+    distance: Sequence[float],
+    elevation: Sequence[float],
+    speed: Sequence[float] | None,
+    dx: float,
+    source: str,
+    last: str,
 ) -> MeasuredProfile:
-    """Read CSV ``text`` into a profile resampled (linearly) to ``dx`` [m].
-
-    Raises InputError listing every problem found, each with its line number.
-    """
-    for name, value in (("dx", dx), ("max_gap", max_gap), ("max_spike", max_spike)):
-        if not (value > 0 and math.isfinite(value)):
-            raise InputError.single(name, f"must be a positive number of metres, got {value!r}")
-    text = text.removeprefix("\ufeff")  # spreadsheets save "CSV UTF-8" with a byte-order mark
-    problems: list[FieldProblem] = []
-    columns: list[str] | None = None
-    header_line = 0
-    lines: list[int] = []
-    rows: list[list[float]] = []
-    for number, raw in enumerate(text.splitlines(), start=1):
-        stripped = raw.strip()
-        if not stripped or stripped.startswith("#"):
-            continue
-        cells = [c.strip() for c in stripped.split(",")]
-        if columns is None:
-            names = [c.lower() for c in cells]
-            if names not in (["distance", "elevation"], ["distance", "elevation", "speed"]):
-                raise InputError(
-                    [
-                        _problem(
-                            number,
-                            "the header must be 'distance,elevation' or "
-                            f"'distance,elevation,speed', got {stripped!r}",
-                        )
-                    ],
-                    source,
-                )
-            columns, header_line = names, number
-            continue
-        if len(cells) != len(columns):
-            problems.append(
-                _problem(number, f"expected {len(columns)} values ({','.join(columns)}), "
-                         f"got {len(cells)}")
-            )
-            continue
-        values: list[float] = []
-        for name, cell in zip(columns, cells, strict=True):
-            try:
-                value = float(cell)
-            except ValueError:
-                problems.append(_problem(number, f"{name} {cell!r} is not a number"))
-                break
-            if not math.isfinite(value):
-                problems.append(_problem(number, f"{name} is {cell}, expected a finite number"))
-                break
-            if name == "speed" and value <= 0:
-                problems.append(_problem(number, f"speed must be greater than 0, got {value:g}"))
-                break
-            values.append(value)
-        else:
-            lines.append(number)
-            rows.append(values)
-    if columns is None:
-        raise InputError([FieldProblem("line 1", "no header and no data")], source)
-    if problems:
-        raise InputError(_capped(problems), source)
-    if len(rows) < 2:
-        raise InputError(
-            [_problem(header_line, f"need at least 2 data lines, got {len(rows)}")], source
-        )
-    data = np.array(rows)
-    x, z = data[:, 0], data[:, 1]
-    step = np.diff(x)
-    for i in np.flatnonzero(step <= 0):
-        problems.append(
-            _problem(lines[i + 1], f"distance {x[i + 1]:g} m does not increase (line {lines[i]} "
-                     f"has {x[i]:g} m)")
-        )
-    for i in np.flatnonzero(step > max_gap):
-        problems.append(
-            _problem(lines[i + 1], f"gap of {step[i]:g} m after line {lines[i]} is wider than "
-                     f"{max_gap:g} m")
-        )
-    if z.size >= 3:
-        before, after = z[1:-1] - z[:-2], z[1:-1] - z[2:]
-        spike = (np.abs(before) > max_spike) & (np.abs(after) > max_spike) & (
-            np.sign(before) == np.sign(after)
-        )
-        for i in np.flatnonzero(spike) + 1:
-            problems.append(
-                _problem(lines[i], f"spike: elevation {z[i]:g} m jumps more than {max_spike:g} m "
-                         f"away from both neighbours (lines {lines[i - 1]} and {lines[i + 1]})")
-            )
-    if problems:
-        raise InputError(_capped(problems), source)
+    """Linear resampling to ``dx`` from the first sample; ``last`` locates the last sample in
+    the problems raised (a file's line, or the sample's index)."""
+    x = np.asarray(distance, dtype=np.float64)
     total = float(x[-1] - x[0])
     if total < dx:
-        raise InputError([_problem(lines[-1], f"profile is {total:g} m long, shorter than dx")],
+        raise InputError([FieldProblem(last, f"profile is {total:g} m long, shorter than dx")],
                          source)
     if total / dx > MAX_SAMPLES:
         raise InputError(
             [
-                _problem(
-                    lines[-1],
+                FieldProblem(
+                    last,
                     f"profile is {total:g} m long: at dx = {dx:g} m that is more than the "
                     f"{MAX_SAMPLES / 1e6:.0f} million samples a course may have",
                 )
@@ -158,24 +77,52 @@ def parse_profile_csv(
         )
     n = int(math.floor(total / dx + 1e-9)) + 1
     xs = np.arange(n, dtype=np.float64) * dx
-    zs = np.interp(xs, x - x[0], z)
-    speed = np.interp(xs, x - x[0], data[:, 2]) if len(columns) == 3 else None
-    return MeasuredProfile(x=xs, z=zs, speed=speed, dx=dx, source=source)
+    zs = np.interp(xs, x - x[0], np.asarray(elevation, dtype=np.float64))
+    vs = None if speed is None else np.interp(xs, x - x[0], np.asarray(speed, dtype=np.float64))
+    return MeasuredProfile(x=xs, z=zs, speed=vs, dx=dx, source=source)
 
 
-def _capped(problems: list[FieldProblem]) -> list[FieldProblem]:
-    if len(problems) <= _MAX_REPORTED:
-        return problems
-    rest = len(problems) - _MAX_REPORTED
-    return problems[:_MAX_REPORTED] + [FieldProblem("", f"... and {rest} more problems")]
+def _check_settings(**settings: float) -> None:
+    for name, value in settings.items():
+        if not (value > 0 and math.isfinite(value)):
+            raise InputError.single(name, f"must be a positive number of metres, got {value!r}")
+
+
+def parse_profile_csv(
+    text: str,
+    *,
+    dx: float = 0.005,
+    max_gap: float = MAX_PROFILE_GAP,
+    max_spike: float = MAX_PROFILE_SPIKE,
+    source: str = "profile",
+) -> MeasuredProfile:
+    """Read CSV ``text`` into a profile resampled (linearly) to ``dx`` [m].
+
+    Raises InputError listing every problem found, each with its line number.
+    """
+    _check_settings(dx=dx, max_gap=max_gap, max_spike=max_spike)
+    rows = parse_profile_text(text, max_gap=max_gap, max_spike=max_spike, source=source)
+    return _resampled(
+        rows.distance, rows.elevation, rows.speed, dx, source, f"line {rows.lines[-1]}"
+    )
+
+
+def profile_from_samples(samples: ProfileSamples, dx: float) -> MeasuredProfile:
+    """A scenario's measured profile (its samples, checked by the schema) resampled linearly
+    to ``dx`` [m], as parse_profile_csv resamples a file."""
+    _check_settings(dx=dx)
+    last = f"sample {len(samples.distance) - 1}"
+    return _resampled(
+        samples.distance, samples.elevation, samples.speed, dx, samples.source, last
+    )
 
 
 def read_profile_csv(
     path: str | Path,
     *,
     dx: float = 0.005,
-    max_gap: float = 0.25,
-    max_spike: float = 0.2,
+    max_gap: float = MAX_PROFILE_GAP,
+    max_spike: float = MAX_PROFILE_SPIKE,
 ) -> MeasuredProfile:
     """Read a CSV file into a profile; see parse_profile_csv. Errors name the file and line."""
     path = Path(path)
