@@ -239,10 +239,11 @@ def parse_profile_text(
         if columns is None:
             names = [c.lower() for c in cells]
             if names not in (["distance", "elevation"], ["distance", "elevation", "speed"]):
+                # the line itself is not echoed: a wrong file named here may be anyone's
                 raise InputError.single(
                     f"line {number}",
-                    "the header must be 'distance,elevation' or 'distance,elevation,speed', "
-                    f"got {_shown(stripped)}",
+                    "the header must be 'distance,elevation' or 'distance,elevation,speed' "
+                    f"(SI, no units in it); this line has {len(cells)} other column names",
                     source,
                 )
             columns, header_line = names, number
