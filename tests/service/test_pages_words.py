@@ -57,3 +57,11 @@ def test_a_running_job_in_words() -> None:
     assert view["live"] and view["state_text"] == "running"
     status["cancel_requested"] = True
     assert job_view(status, now)["state_text"] == "running, cancel asked for"
+    # a job fitting its course to a ride log says so, with the fit's rides for the trials
+    status |= {"stage": "fit", "cancel_requested": False}
+    status["fit"] = {"log": "evening.csv", "rides": 12, "rides_at_most": 241, "best_distance": 0.3}
+    view = job_view(status, now)
+    assert view["state_text"] == "fitting the course to evening.csv"
+    assert view["trials"] == "12 of at most 241 rides of the course fit"
+    status["stage"] = "search"
+    assert job_view(status, now)["trials"] == "120 of 400 trials"

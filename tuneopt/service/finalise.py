@@ -66,7 +66,18 @@ def finalise_job(job_id: str) -> str:
     topped_up = _finish_budget(store, job)
     ranking = rank_study(job.study, job.space, job.evaluator, top=settings.top)
     stopped = _why_stopped(job.record, ranking.finished, cancelled)
-    data = result_data(ranking, _info(job, ranking.validation_realisations, stopped, topped_up))
+    info = _info(job, ranking.validation_realisations, stopped, topped_up)
+    fit = store.get_fit(job_id) if record.fit is not None else None
+    if fit is not None:  # the search ran on the course fitted to the job's ride log
+        info["course_fit"] = {
+            "log": fit["log"],
+            "ridden_on": fit["setup_label"],
+            "distance_before": fit["before"]["total"],
+            "distance_after": fit["after"]["total"],
+            "fitted_scenario": f"/jobs/{job_id}/fit/scenario",
+            "page": f"/jobs/{job_id}/fit/page",
+        }
+    data = result_data(ranking, info)
     store.set_result(job_id, data)
     if job.evaluator is not None:
         _keep_report(store, job, data, settings.max_report_bytes)

@@ -56,14 +56,15 @@ def jobs_router(
     async def submit(
         request: Request, response: Response, idempotency_key: IdempotencyKey = None
     ) -> JobStatus:
-        data, strict = await read_body(request)
-        job = validate_job(data, settings, strict=strict)
+        data, strict, ride_log = await read_body(request)
+        job = validate_job(data, settings, strict=strict, ride_log=ride_log)
         job_id, made_now = record_and_queue(
             raw, store, queue, job, settings.shard_retries, idempotency_key
         )
         if made_now:
-            event(log, "job.submitted", f"job queued: {job.trials} trials, {job.shards} shards",
-                  job=job_id, trials=job.trials, shards=job.shards)  # fmt: skip
+            fit = "" if job.fit is None else f"a course fit of {job.fit['budget']} rides, then "
+            event(log, "job.submitted", f"job queued: {fit}{job.trials} trials, {job.shards} "
+                  "shards", job=job_id, trials=job.trials, shards=job.shards)  # fmt: skip
         response.headers["Location"] = f"/jobs/{job_id}"
         response.headers["Retry-After"] = "5"
         return job_status(load_job(store, job_id))

@@ -7,80 +7,16 @@ from __future__ import annotations
 
 import hashlib
 import json
-import re
-import secrets
 import time
 from collections.abc import Callable
-from dataclasses import dataclass, field
-from enum import StrEnum
 from typing import Any, TypeVar, cast
 
 from redis import ConnectionPool, Redis
 from redis.client import Pipeline
 
+from tuneopt.service.job_record import JobRecord, JobState, fresh_rate, is_job_id, new_job_id
+
 __all__ = ["JobRecord", "JobState", "JobStore", "is_job_id", "new_job_id", "transaction"]
-
-_ID = re.compile(r"^[0-9a-f]{32}$")
-# a shard's rate counts towards the job's pace only while it has reported lately [s]
-_RATE_FRESH = 120.0
-
-
-class JobState(StrEnum):
-    QUEUED = "queued"
-    RUNNING = "running"
-    FINISHING = "finishing"
-    DONE = "done"
-    FAILED = "failed"
-    CANCELLED = "cancelled"
-
-    @property
-    def is_final(self) -> bool:
-        return self in (JobState.DONE, JobState.FAILED, JobState.CANCELLED)
-
-
-def new_job_id() -> str:
-    """128 random bits: one client cannot guess another's job."""
-    return secrets.token_hex(16)
-
-
-def is_job_id(text: str) -> bool:
-    return bool(_ID.fullmatch(text))
-
-
-@dataclass(frozen=True)
-class JobRecord:
-    id: str
-    state: JobState
-    created: float
-    request: dict[str, Any]
-    scenario_name: str
-    started: float | None = None
-    ended: float | None = None
-    deadline: float | None = None
-    finished: int = 0
-    best_score: float | None = None
-    trials_per_minute: float = 0.0
-    cancel_requested: bool = False
-    deleted: bool = False
-    errors: list[str] = field(default_factory=list)
-    events: list[str] = field(default_factory=list)
-
-    @property
-    def budget(self) -> int | None:
-        value = self.request.get("trials")
-        return int(value) if value is not None else None
-
-    def eta_seconds(self, now: float) -> float | None:
-        if self.state.is_final:
-            return None
-        eta = None
-        if self.budget is not None and self.trials_per_minute > 0:
-            eta = max(self.budget - self.finished, 0) / self.trials_per_minute * 60
-        if self.deadline is not None:
-            left = max(self.deadline - now, 0.0)
-            eta = left if eta is None else min(eta, left)
-        return eta
-
 
 # Writes by a job's parts land only on a record that exists: a part still running after the
 # job was purged must not bring a stray half-record back.
@@ -128,21 +64,6 @@ def transaction(client: Redis, body: Callable[[Pipeline], T], *watched: str) -> 
     return cast(T, value)
 
 
-def _float(value: str | None) -> float | None:
-    return float(value) if value not in (None, "") else None
-
-
-def _fresh_rate(raw: dict[str, str], now: float) -> float:
-    """A job's pace: the trials per minute of its shards that reported lately."""
-    rate = 0.0
-    for name, value in raw.items():
-        if name.startswith("rate:"):
-            per_minute, updated = (float(v) for v in value.split("|"))
-            if now - updated < _RATE_FRESH:
-                rate += per_minute
-    return rate
-
-
 class JobStore:
     """Job records under ``prefix`` on one Redis connection (``decode_responses=True``)."""
 
@@ -181,6 +102,16 @@ class JobStore:
 
     def _owner_key(self, job_id: str, shard: int) -> str:
         return f"{self.key(job_id)}:owner:{shard}"
+
+    def ride_log_key(self, job_id: str) -> str:
+        """The job's ride log (zlib-compressed bytes of the file sent), when it has one."""
+        return f"{self.key(job_id)}:ride-log"
+
+    def _fit_keys(self, job_id: str) -> tuple[str, str, str]:
+        """The course fit's numbers (JSON), its fitted scenario (TOML text) and its page
+        (zlib-compressed HTML)."""
+        base = self.key(job_id)
+        return f"{base}:fit", f"{base}:fit-scenario", f"{base}:fit-page"
 
     # records
     def create(
@@ -224,31 +155,9 @@ class JobStore:
         raw: dict[str, str] = self.redis.hgetall(self.key(job_id))  # type: ignore[assignment]
         if "id" not in raw or "state" not in raw:  # gone, or only a stray write left
             return None
-        rate = _fresh_rate(raw, time.time())
         errors: list[str] = self.redis.lrange(self._errors_key(job_id), 0, -1)  # type: ignore[assignment]
         events: list[str] = self.redis.lrange(self._events_key(job_id), 0, -1)  # type: ignore[assignment]
-        state = JobState(raw["state"])
-        started, ended = _float(raw.get("started")), _float(raw.get("ended"))
-        finished = int(raw.get("finished", "0"))
-        if state.is_final and started is not None and ended is not None and ended > started:
-            rate = finished / (ended - started) * 60  # an ended job: its mean over the run
-        return JobRecord(
-            id=raw["id"],
-            state=state,
-            created=float(raw["created"]),
-            request=json.loads(raw["request"]),
-            scenario_name=raw.get("scenario_name", ""),
-            started=started,
-            ended=ended,
-            deadline=_float(raw.get("deadline")),
-            finished=finished,
-            best_score=_float(raw.get("best_score")),
-            trials_per_minute=rate,
-            cancel_requested=raw.get("cancel") == "1",
-            deleted=raw.get("deleted") == "1",
-            errors=errors,
-            events=events,
-        )
+        return JobRecord.from_hash(raw, errors, events, time.time())
 
     def request(self, job_id: str) -> dict[str, Any]:
         """The job's options as submitted ({} when the record is gone)."""
@@ -277,6 +186,8 @@ class JobStore:
             self._report_key(job_id),
             self._errors_key(job_id),
             self._events_key(job_id),
+            self.ride_log_key(job_id),
+            *self._fit_keys(job_id),
             *(self._owner_key(job_id, k) for k in range(shards)),
         )
 
@@ -303,8 +214,14 @@ class JobStore:
         return self._set_if_live(job_id, mapping)
 
     def _set_if_live(self, job_id: str, mapping: dict[str, str]) -> bool:
-        """Set fields on a job that exists and has not ended, in one transaction with that
-        check (so that a job cannot end between the two); False when it has ended or is gone."""
+        """Set fields on a job that exists and has not ended (see ``_if_live``)."""
+        key = self.key(job_id)
+        return self._if_live(job_id, lambda pipe: pipe.hset(key, mapping=dict[Any, Any](mapping)))
+
+    def _if_live(self, job_id: str, writes: Callable[[Pipeline], object]) -> bool:
+        """Queue ``writes`` on a job that exists and has not ended, in one transaction with
+        that check (so that a job cannot end between the two); False when it has ended or is
+        gone (nothing is written)."""
         key = self.key(job_id)
 
         def write(pipe: Pipeline) -> bool:
@@ -313,7 +230,7 @@ class JobStore:
                 pipe.unwatch()
                 return False
             pipe.multi()
-            pipe.hset(key, mapping=dict[Any, Any](mapping))
+            writes(pipe)
             return True
 
         return transaction(self.redis, write, key)
@@ -391,7 +308,7 @@ class JobStore:
                 state = JobState(raw["state"])
                 counts[state] = counts.get(state, 0) + 1
                 if not state.is_final:
-                    rate += _fresh_rate(raw, now)
+                    rate += fresh_rate(raw, now)
         return counts, rate
 
     # shard owners: who ran a shard last, so that its retry can reap what it left running
@@ -414,6 +331,49 @@ class JobStore:
     def get_report(self, job_id: str) -> bytes | None:
         """The job's HTML report (zlib-compressed), or None."""
         packed = self._raw().get(self._report_key(job_id))
+        return None if packed is None else bytes(packed)  # type: ignore[arg-type]
+
+    # the course fit of a job submitted with a ride log
+    def get_ride_log(self, job_id: str) -> bytes | None:
+        """The job's ride log as sent (zlib-compressed), or None."""
+        packed = self._raw().get(self.ride_log_key(job_id))
+        return None if packed is None else bytes(packed)  # type: ignore[arg-type]
+
+    def keep_fit(
+        self,
+        job_id: str,
+        scenario: dict[str, Any],
+        numbers: dict[str, Any],
+        scenario_text: str,
+        page: bytes | None,
+    ) -> bool:
+        """Keep a finished course fit, in one transaction with the check that the job is
+        live: its numbers, the fitted scenario's file and the page (None: not kept), and the
+        fitted scenario as the one the search runs on. False when the job has ended or is
+        gone (nothing is written)."""
+        key = self.key(job_id)
+        numbers_key, scenario_key, page_key = self._fit_keys(job_id)
+
+        def writes(pipe: Pipeline) -> None:
+            pipe.set(numbers_key, json.dumps(numbers, allow_nan=False))
+            pipe.set(scenario_key, scenario_text)
+            if page is not None:
+                pipe.set(page_key, page)
+            pipe.hset(key, mapping={"scenario": json.dumps(scenario), "stage": "search"})
+
+        return self._if_live(job_id, writes)
+
+    def get_fit(self, job_id: str) -> dict[str, Any] | None:
+        text = self.redis.get(self._fit_keys(job_id)[0])
+        return None if text is None else dict(json.loads(str(text)))
+
+    def get_fit_scenario(self, job_id: str) -> str | None:
+        text = self.redis.get(self._fit_keys(job_id)[1])
+        return None if text is None else str(text)
+
+    def get_fit_page(self, job_id: str) -> bytes | None:
+        """The fit's HTML page (zlib-compressed), or None."""
+        packed = self._raw().get(self._fit_keys(job_id)[2])
         return None if packed is None else bytes(packed)  # type: ignore[arg-type]
 
     def _raw(self) -> Redis:

@@ -3,8 +3,6 @@
 from __future__ import annotations
 
 import inspect
-import json
-import tomllib
 from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
@@ -15,10 +13,17 @@ from tuneopt.model.errors import FieldProblem
 from tuneopt.model.loading import problems_from_validation
 from tuneopt.optimise.evaluate import DEFAULT_REALISATIONS, Evaluator
 from tuneopt.optimise.space import build_space
+from tuneopt.service.ride_logs import JSON_LOG_NAME, RideLogUpload, check_ride_log
 from tuneopt.service.settings import Settings
 from tuneopt.terrain import terrain_type
 
-__all__ = ["JobRequest", "ValidJob", "parse_scenario_file", "validate_job"]
+__all__ = ["JobRequest", "ValidJob", "validate_job"]
+
+# the course fit's defaults and bounds (a job's fit_budget is bounded by the operator's
+# max_fit_rides); the same as tuneopt fit's
+DEFAULT_FIT_BUDGET = 200
+DEFAULT_FIT_REALISATIONS = 2
+MAX_FIT_REALISATIONS = 8
 
 
 class JobRequest(BaseModel):
@@ -42,6 +47,25 @@ class JobRequest(BaseModel):
     realisations: int = Field(
         default=DEFAULT_REALISATIONS, ge=1, le=32, description="terrain realisations"
     )
+    ride_log: str | None = Field(
+        default=None,
+        description="a ride log's text (docs/ride-logs.md), ridden on this scenario's bike: "
+        "the job first fits the scenario's course to it, then optimises on the fitted course "
+        "(in a multipart form, a file part)",
+    )
+    fit_budget: int | None = Field(
+        default=None,
+        ge=10,
+        description=f"simulated rides the course fit's search may spend (default "
+        f"{DEFAULT_FIT_BUDGET} or the limit); only with a ride log",
+    )
+    fit_realisations: int | None = Field(
+        default=None,
+        ge=1,
+        le=MAX_FIT_REALISATIONS,
+        description=f"course realisations every candidate course of the fit rides (default "
+        f"{DEFAULT_FIT_REALISATIONS}); only with a ride log",
+    )
 
 
 class ValidJob(BaseModel):
@@ -55,36 +79,20 @@ class ValidJob(BaseModel):
     sampler: str
     batch_size: int | None
     realisations: int
+    fit: dict[str, Any] | None = None  # the course fit: budget, realisations, the log's facts
+    ride_log: bytes | None = Field(default=None, exclude=True)  # the log's file as sent
 
     def options(self) -> dict[str, Any]:
-        return self.model_dump(mode="json", exclude={"scenario"})
+        """What the job's record keeps of the request (the scenario and the log apart)."""
+        leave_out = {"scenario"} if self.fit is not None else {"scenario", "fit"}
+        return self.model_dump(mode="json", exclude=leave_out)
 
 
-def parse_scenario_file(content: bytes, filename: str) -> dict[str, Any]:
-    """A scenario file's data (TOML, or JSON when the name ends in .json)."""
-    try:
-        text = content.decode("utf-8")
-    except UnicodeDecodeError:
-        raise InputError.single("scenario", "the file is not UTF-8 text") from None
-    if filename.lower().endswith(".json"):
-        try:
-            data = json.loads(text)
-        except json.JSONDecodeError as exc:
-            raise InputError.single(
-                "scenario", f"not valid JSON: {exc.msg} (line {exc.lineno})"
-            ) from None
-    else:
-        try:
-            data = tomllib.loads(text)
-        except tomllib.TOMLDecodeError as exc:
-            raise InputError.single("scenario", f"not valid TOML: {exc}") from None
-    if not isinstance(data, dict):
-        raise InputError.single("scenario", "a scenario must be an object at the top level")
-    return data
-
-
-def validate_job(data: Any, settings: Settings, strict: bool = True) -> ValidJob:
-    """Check a request body (parsed JSON, or form fields with the scenario's data).
+def validate_job(
+    data: Any, settings: Settings, strict: bool = True, ride_log: RideLogUpload | None = None
+) -> ValidJob:
+    """Check a request body (parsed JSON, or form fields with the scenario's data, and the
+    form's ride log file as ``ride_log``).
 
     Raises InputError naming each field path and the reason."""
     if not isinstance(data, dict):
@@ -138,6 +146,15 @@ def validate_job(data: Any, settings: Settings, strict: bool = True) -> ValidJob
                 "shards", f"{shards} is above this service's limit of {settings.max_shards}"
             )
         )
+    upload = ride_log
+    if upload is None and request.ride_log is not None:
+        upload = RideLogUpload(JSON_LOG_NAME, request.ride_log.encode("utf-8"))
+    if upload is None:
+        problems += [
+            FieldProblem(name, "given without a ride log: it is an option of the course fit")
+            for name in ("fit_budget", "fit_realisations")
+            if getattr(request, name) is not None
+        ]
     if problems:
         raise InputError(problems)
     try:
@@ -147,7 +164,11 @@ def validate_job(data: Any, settings: Settings, strict: bool = True) -> ValidJob
             [FieldProblem(_under("scenario", p.location), p.message) for p in exc.problems]
         ) from None
     assert scenario.course is not None
+    fit = None if upload is None else _fit_options(upload, scenario, scenario.course, request,
+                                                   settings)  # fmt: skip
     return ValidJob(
+        fit=fit,
+        ride_log=None if upload is None else upload.content,
         scenario=scenario,
         trials=trials,
         run_seconds=run_seconds,
@@ -176,14 +197,76 @@ def samples_per_setup(course: CourseSpec, realisations: int) -> tuple[float, flo
     return profile * realisations, steps * realisations
 
 
-def _cost_problems(course: CourseSpec, realisations: int, limit: int) -> list[FieldProblem]:
-    """The fields that make one setup cost more than the operator's limit, each named."""
+def _fit_options(
+    upload: RideLogUpload,
+    scenario: Scenario,
+    course: CourseSpec,
+    request: JobRequest,
+    settings: Settings,
+) -> dict[str, Any]:
+    """The course fit's options, within the operator's limits, and what it needs of the log
+    (read and checked here: InputError naming ``ride_log`` with the log's lines)."""
+    from tuneopt.calibrate import fit_space
+
+    measured = [i for i, e in enumerate(course.mix) if e.profile is not None]
+    if measured:  # the fit sets terrain types' numbers; a measured profile has none
+        raise InputError(
+            [
+                FieldProblem(
+                    f"scenario.course.mix[{i}].profile",
+                    "a course fit to a ride log fits terrain types, not a measured profile: "
+                    "send the job without the ride log, or the course without the profile",
+                )
+                for i in measured
+            ]
+        )
+    budget = request.fit_budget
+    if budget is None:
+        budget = min(DEFAULT_FIT_BUDGET, settings.max_fit_rides)
+    realisations = request.fit_realisations or DEFAULT_FIT_REALISATIONS
+    problems = []
+    if budget > settings.max_fit_rides:
+        problems.append(
+            FieldProblem(
+                "fit_budget",
+                f"{budget} rides is above this service's limit of {settings.max_fit_rides}",
+            )
+        )
+    space = fit_space(course)
+    # every candidate course is ridden over the lengths the fit rides, from each realisation
+    problems += _cost_problems(
+        space.simulated(space.x0),
+        realisations,
+        settings.max_samples_per_setup,
+        count="fit_realisations",
+        what="one ride of the course fit",
+    )
+    if problems:
+        raise InputError(problems)
+    return {
+        "budget": budget,
+        "realisations": realisations,
+        # the search's rides, the fitted course ridden again, a step either way of each number
+        "rides_at_most": budget + 1 + 2 * len(space.knobs),
+        **check_ride_log(upload, scenario),
+    }
+
+
+def _cost_problems(
+    course: CourseSpec,
+    realisations: int,
+    limit: int,
+    count: str = "realisations",
+    what: str = "one setup",
+) -> list[FieldProblem]:
+    """The fields that make ``what`` (one setup over its realisations) cost more than the
+    operator's limit, each named; ``count`` is the field that sets the realisations."""
     profile, steps = samples_per_setup(course, realisations)
     worst = max(profile, steps)
     if worst <= limit:
         return []
     why = (
-        f"one setup would need {worst / 1e6:.1f} million simulated samples "
+        f"{what} would need {worst / 1e6:.1f} million simulated samples "
         f"({profile / 1e6:.1f} million terrain samples: course length / spacing x "
         f"realisations; {steps / 1e6:.1f} million time steps: course length / speed / "
         f"{_STEP * 1e3:g} ms x realisations), above this service's limit of "
@@ -191,12 +274,12 @@ def _cost_problems(course: CourseSpec, realisations: int, limit: int) -> list[Fi
     )
     fields = ["scenario.course.length"]
     fields.append("scenario.course.spacing" if profile >= steps else "scenario.course.mix.speed")
-    fields.append("realisations")
+    fields.append(count)
     fixes = {
         "scenario.course.length": "a shorter course lowers it",
         "scenario.course.spacing": "a coarser spacing (up to 5 mm) lowers it",
         "scenario.course.mix.speed": "a faster riding speed lowers it",
-        "realisations": f"fewer realisations ({realisations} asked) lower it",
+        count: f"fewer realisations ({realisations} asked) lower it",
     }
     return [FieldProblem(f, f"{why}; {fixes[f]}") for f in fields]
 

@@ -1,19 +1,22 @@
 """What a job leaves for its client, served from Redis: the ranked setups (JSON) and the HTML
-report."""
+report; for a job submitted with a ride log, its course fit (numbers, fitted scenario, page)."""
 
 from __future__ import annotations
 
+import re
 import zlib
 from typing import Any
 
-from fastapi import APIRouter
-from fastapi.responses import HTMLResponse
+from fastapi import APIRouter, Response
+from fastapi.responses import HTMLResponse, PlainTextResponse
 
 from tuneopt.service.access import load_job
 from tuneopt.service.problems import ProblemError
 from tuneopt.service.records import JobRecord, JobStore
 
 __all__ = ["results_router"]
+
+TOML = "application/toml"
 
 
 def _not_yet(record: JobRecord, what: str) -> ProblemError:
@@ -50,6 +53,60 @@ def results_router(store: JobStore, guarded: list[Any]) -> APIRouter:
         packed = store.get_report(job_id)
         if packed is None:
             raise _not_yet(record, "report")
+        return HTMLResponse(zlib.decompress(packed).decode("utf-8"))
+
+    def fit_of(job_id: str) -> JobRecord:
+        """The record of a job submitted with a ride log (409 for one without: the job has
+        no fit, as a failed job has no result)."""
+        record = load_job(store, job_id)
+        if record.fit is None:
+            raise ProblemError(
+                409, "this job was submitted without a ride log: it has no course fit"
+            )
+        return record
+
+    @router.get(
+        "/jobs/{job_id}/fit",
+        summary="The course fit of a job submitted with a ride log: its numbers (SI), what it "
+        "says, the ridden setup and the cautions, once the fit has ended",
+    )
+    def get_fit(job_id: str) -> dict[str, Any]:
+        record = fit_of(job_id)
+        numbers = store.get_fit(job_id)
+        if numbers is None:
+            raise _not_yet(record, "course fit")
+        return numbers
+
+    @router.get(
+        "/jobs/{job_id}/fit/scenario",
+        response_class=PlainTextResponse,
+        responses={200: {"content": {TOML: {}}}},
+        summary="The fitted scenario (TOML, the scenario with its course fitted to the ride "
+        "log): what the job's search runs on",
+    )
+    def get_fit_scenario(job_id: str) -> Response:
+        record = fit_of(job_id)
+        text = store.get_fit_scenario(job_id)
+        if text is None:
+            raise _not_yet(record, "fitted scenario")
+        name = re.sub(r"[^A-Za-z0-9_.-]+", "_", record.scenario_name).strip("_.") or "scenario"
+        return Response(
+            text,
+            media_type=TOML,
+            headers={"Content-Disposition": f'inline; filename="{name}_fitted.toml"'},
+        )
+
+    @router.get(
+        "/jobs/{job_id}/fit/page",
+        response_class=HTMLResponse,
+        summary="The course fit's HTML page: log and simulation before and after, the fitted "
+        "numbers and how firmly the log pins them",
+    )
+    def get_fit_page(job_id: str) -> HTMLResponse:
+        record = fit_of(job_id)
+        packed = store.get_fit_page(job_id)
+        if packed is None:
+            raise _not_yet(record, "fit page")
         return HTMLResponse(zlib.decompress(packed).decode("utf-8"))
 
     return router

@@ -51,7 +51,15 @@ class Settings(BaseSettings):
         "(course length / spacing) or time steps (course length / speed / 1 ms), whichever is "
         "more",
     )
-    max_body_bytes: int = Field(default=1_000_000, ge=1024)
+    max_fit_rides: int = Field(
+        default=1000,
+        ge=10,
+        description="simulated rides a job's course fit to its ride log may spend on its search "
+        "(each rides the course over the fit's realisations)",
+    )
+    max_body_bytes: int = Field(
+        default=1_000_000, ge=1024, description="a request, its ride log and files included [B]"
+    )
     max_jobs_listed: int = Field(default=100, ge=1)
 
     # workers

@@ -4,12 +4,16 @@ from __future__ import annotations
 
 import time
 from datetime import UTC, datetime
+from typing import Literal
 
-from pydantic import BaseModel
+from pydantic import BaseModel, Field
 
 from tuneopt.service.records import JobRecord, JobState
 
-__all__ = ["JobList", "JobStatus", "ProgressView", "job_status"]
+__all__ = ["FIT_LINKS", "FitView", "JobList", "JobStatus", "ProgressView", "job_status"]
+
+# a fitted job's links to its course fit: the numbers (JSON), the fitted scenario (TOML), the page
+FIT_LINKS = {"fit": "fit", "fit_scenario": "fit/scenario", "fit_page": "fit/page"}
 
 
 class ProgressView(BaseModel):
@@ -18,6 +22,17 @@ class ProgressView(BaseModel):
     best_score: float | None
     trials_per_minute: float
     eta_seconds: float | None
+
+
+class FitView(BaseModel):
+    """The course fit of a job submitted with a ride log: simulated rides spent, at most the
+    search's budget plus the fitted course ridden again and a step either way of each fitted
+    number, and the smallest distance between log and simulation so far."""
+
+    log: str
+    rides: int
+    rides_at_most: int
+    best_distance: float | None
 
 
 class JobStatus(BaseModel):
@@ -33,6 +48,12 @@ class JobStatus(BaseModel):
     errors: list[str]
     events: list[str]
     links: dict[str, str]
+    stage: Literal["fit", "search"] | None = Field(
+        default=None,
+        description="a job with a ride log: 'fit' while its course is fitted to the log, "
+        "'search' after (None: a job without a ride log)",
+    )
+    fit: FitView | None = None
 
 
 class JobList(BaseModel):
@@ -46,6 +67,17 @@ def _time(value: float | None) -> datetime | None:
 def job_status(record: JobRecord) -> JobStatus:
     """The status of a job from its record, read now (the time left is counted from now)."""
     base = f"/jobs/{record.id}"
+    links = {"self": base, "result": f"{base}/result", "report": f"{base}/report"}
+    fit, stage = None, None
+    if record.fit is not None:
+        links |= {name: f"{base}/{path}" for name, path in FIT_LINKS.items()}
+        fit = FitView(
+            log=str(record.fit["log"]),
+            rides=record.fit_rides,
+            rides_at_most=int(record.fit["rides_at_most"]),
+            best_distance=record.fit_best,
+        )
+        stage = "search" if record.stage == "search" else "fit"
     return JobStatus(
         id=record.id,
         state=record.state,
@@ -64,5 +96,7 @@ def job_status(record: JobRecord) -> JobStatus:
         ),
         errors=record.errors,
         events=record.events,
-        links={"self": base, "result": f"{base}/result", "report": f"{base}/report"},
+        links=links,
+        stage=stage,
+        fit=fit,
     )

@@ -6,24 +6,28 @@ from __future__ import annotations
 
 import hashlib
 import json
+import zlib
 from typing import Annotated, Any
 
 from fastapi import Header, Request
 from redis import Redis
 from redis.client import Pipeline
 from rq import Queue
+from starlette.datastructures import FormData
 
 from tuneopt.model import Scenario
 from tuneopt.model.errors import FieldProblem, InputError
-from tuneopt.service import tasks
+from tuneopt.service import fitting, tasks
 from tuneopt.service.problems import ProblemError
 from tuneopt.service.records import JobStore, new_job_id, transaction
 from tuneopt.service.requests import JobRequest, ValidJob
-from tuneopt.service.uploads import MAX_SIDE_FILES, UPLOAD_PARTS, scenario_from_form
+from tuneopt.service.ride_logs import JSON_LOG_NAME, RideLogUpload
+from tuneopt.service.uploads import MAX_SIDE_FILES, UPLOAD_PARTS, scenario_from_form, side_files
 
 __all__ = ["FORM_FIELDS", "IdempotencyKey", "body_schemas", "read_body", "record_and_queue"]
 
-FORM_FIELDS = frozenset(JobRequest.model_fields) - {"scenario"}
+# the form's text fields; the scenario and the ride log are file parts
+FORM_FIELDS = frozenset(JobRequest.model_fields) - {"scenario", "ride_log"}
 _COMPONENT = "#/components/schemas/{model}"
 # how long a submission can be repeated with the same Idempotency-Key and get the same job [s]
 SUBMISSION_TTL = 24 * 3600
@@ -81,6 +85,13 @@ def body_schemas() -> tuple[dict[str, Any], dict[str, Any], dict[str, Any]]:
                 "type": "string",
                 "description": "which scenario of an archive to run, when it holds several",
             },
+            "ride_log": {
+                "type": "string",
+                "format": "binary",
+                "description": "a ride log file (docs/ride-logs.md): the job first fits the "
+                "scenario's course to it (a setup file its header names goes as a 'side' "
+                "part)",
+            },
             **form_fields,
         },
     }
@@ -91,9 +102,10 @@ def _refuse_constant(name: str) -> Any:
     raise ValueError(f"{name} is not a JSON number")
 
 
-async def read_body(request: Request) -> tuple[dict[str, Any], bool]:
-    """The job's fields, and whether their types must match exactly (JSON) or may be read
-    from text (form fields)."""
+async def read_body(request: Request) -> tuple[dict[str, Any], bool, RideLogUpload | None]:
+    """The job's fields, whether their types must match exactly (JSON) or may be read from
+    text (form fields), and a form's ride log with the files sent beside it (a JSON body's
+    log is its field ``ride_log``)."""
     kind = request.headers.get("content-type", "").split(";")[0].strip().lower()
     if kind == "application/json":
         body = await request.body()
@@ -112,23 +124,40 @@ async def read_body(request: Request) -> tuple[dict[str, Any], bool]:
             raise ProblemError(400, "the body is not valid JSON: nested too deeply") from None
         if not isinstance(data, dict):
             raise InputError.single("", "the body must be a JSON object")
-        return data, True
+        return data, True, None
     if kind == "multipart/form-data":
         fields: dict[str, Any] = {}
+        # the scenario, its side files and the ride log
         async with request.form(
-            max_files=1 + MAX_SIDE_FILES, max_fields=len(FORM_FIELDS) + 2
+            max_files=2 + MAX_SIDE_FILES, max_fields=len(FORM_FIELDS) + 3
         ) as form:
             fields["scenario"] = await scenario_from_form(form)
+            ride_log = await _ride_log_part(form)
             for name, value in form.multi_items():
-                if name in UPLOAD_PARTS:
+                if name in UPLOAD_PARTS or name == "ride_log":
                     continue
                 if name not in FORM_FIELDS:
                     raise InputError.single(name, "unknown field (check the spelling)")
                 fields[name] = value
-        return fields, False
+        return fields, False, ride_log
     raise ProblemError(
         415, "send the job as application/json or as multipart/form-data with the scenario file"
     )
+
+
+async def _ride_log_part(form: FormData) -> RideLogUpload | None:
+    """The form's ride log (a file part, or the log's text), with the side files sent."""
+    parts = form.getlist("ride_log")
+    if not parts:
+        return None
+    if len(parts) > 1:
+        raise InputError.single("ride_log", "sent more than once: send one ride log")
+    part = parts[0]
+    if isinstance(part, str):
+        name, content = JSON_LOG_NAME, part.encode("utf-8")
+    else:
+        name, content = part.filename or JSON_LOG_NAME, await part.read()
+    return RideLogUpload(name, content, await side_files(form))
 
 
 def record_and_queue(
@@ -139,9 +168,10 @@ def record_and_queue(
     retries: int,
     idempotency_key: str | None = None,
 ) -> tuple[str, bool]:
-    """Record a checked job and queue its start, in one transaction: both are written or
-    neither (an API stopped between the writes would leave a record saying queued that no
-    worker would ever start). ``raw`` is a client that does not decode answers (rq's).
+    """Record a checked job (with its ride log, if any) and queue its first part (its
+    start, or its course fit), in one transaction: both are written or neither (an API
+    stopped between the writes would leave a record saying queued that no worker would ever
+    start). ``raw`` is a client that does not decode answers (rq's).
 
     With an ``idempotency_key`` the key is kept with the job, and a repeat of the same request
     under it gets the job the first made (the key is watched: of two repeats sent at the same
@@ -164,7 +194,11 @@ def record_and_queue(
                 return made_before, False
         pipe.multi()
         store.create(job_id, scenario, job.options(), job.scenario.name, pipe=pipe)
-        tasks.enqueue_start(queue, job_id, retries, pipeline=pipe)
+        if job.ride_log is None:
+            tasks.enqueue_start(queue, job_id, retries, pipeline=pipe)
+        else:  # the course fit first; it starts the job when it ends
+            pipe.set(store.ride_log_key(job_id), zlib.compress(job.ride_log, 6))
+            fitting.enqueue_fit(queue, job_id, retries, pipeline=pipe)
         if seen is not None:
             pipe.set(seen, json.dumps({"job": job_id, "request": fingerprint}), ex=SUBMISSION_TTL)
             pipe.hset(store.key(job_id), "submission", seen)  # purged with the job

@@ -93,7 +93,7 @@ def _store(redis: Redis | None = None) -> JobStore:
 
 
 def rq_id(job_id: str, part: str) -> str:
-    """The rq job id of one part of a job (``start``, ``shard-N``, ``final``)."""
+    """The rq job id of one part of a job (``fit``, ``start``, ``shard-N``, ``final``)."""
     return f"{job_id}-{part}"
 
 
@@ -367,11 +367,16 @@ def _end(store: JobStore, job_id: str, state: JobState, **fields: Any) -> str:
     return state.value
 
 
+def _parts(shards: int) -> list[str]:
+    """The parts a job may have: its course fit, start, shards and finaliser."""
+    return ["fit", "start", *(f"shard-{k}" for k in range(shards)), "final"]
+
+
 def parts_pending(queue: Queue, job_id: str, shards: int) -> bool:
-    """Whether a queued part of the job (its start, a shard, its finaliser) may still run."""
-    parts = ["start", *(f"shard-{k}" for k in range(shards)), "final"]
+    """Whether a queued part of the job (its fit, start, a shard, its finaliser) may still
+    run."""
     waiting = {JobStatus.QUEUED, JobStatus.STARTED, JobStatus.DEFERRED, JobStatus.SCHEDULED}
-    for part in parts:
+    for part in _parts(shards):
         try:
             job = Job.fetch(rq_id(job_id, part), connection=queue.connection,
                             serializer=JSONSerializer)  # fmt: skip
@@ -397,7 +402,7 @@ def _forget_parts(job_id: str, shards: int) -> None:
     with rq's result time instead: deleting it under rq's feet would leave a stray record)."""
     queue = _queue()
     ended = {JobStatus.FINISHED, JobStatus.FAILED, JobStatus.CANCELED, JobStatus.STOPPED}
-    for part in ["start", *(f"shard-{k}" for k in range(shards)), "final"]:
+    for part in _parts(shards):
         try:
             job = Job.fetch(rq_id(job_id, part), connection=queue.connection,
                             serializer=JSONSerializer)  # fmt: skip
@@ -416,9 +421,10 @@ def result_folder(results_dir: Path, job_id: str) -> Path:
 
 
 def job_failed(job: Job, connection: Any, exc_type: Any, value: Any, tb: Any) -> None:
-    """rq failure callback of the start and final parts: the job fails once no retry is left."""
+    """rq failure callback of the fit, start and final parts: the job fails once no retry is
+    left. A part handed back by a stopping worker is no failure (it is queued again)."""
     job_id = str(job.args[0]) if job.args else ""
-    if not is_job_id(job_id):
+    if not is_job_id(job_id) or exc_type is ShardInterrupted:
         return
     redis = Redis.from_url(_current().redis_url.get_secret_value(), decode_responses=True)
     store = _store(redis)

@@ -26,9 +26,19 @@ from starlette.datastructures import FormData
 from tuneopt.model import InputError, load_scenario
 from tuneopt.model.errors import FieldProblem
 from tuneopt.model.loading import MAX_SCENARIO_BYTES, MAX_TABLE_BYTES
-from tuneopt.service.requests import parse_scenario_file
 
-__all__ = ["ARCHIVES", "MAX_SIDE_FILES", "UPLOAD_PARTS", "read_upload", "scenario_from_form"]
+__all__ = [
+    "ARCHIVES",
+    "MAX_SIDE_FILES",
+    "UPLOAD_PARTS",
+    "leads_down",
+    "parse_scenario_file",
+    "plain_name",
+    "read_upload",
+    "scenario_from_form",
+    "side_files",
+    "without",
+]
 
 MAX_SIDE_FILES = 8  # a scenario, its base and a table per end leave room to spare
 MAX_ARCHIVE_FILES = 64
@@ -50,6 +60,16 @@ async def scenario_from_form(form: FormData) -> dict[str, Any]:
         raise InputError.single(
             "scenario", "sent more than once: send one scenario file (the files it names as 'side')"
         )
+    side = await side_files(form)
+    entry = form.get("scenario_file")
+    if entry is not None and not isinstance(entry, str):
+        raise InputError.single("scenario_file", "must be text: a file name in the archive")
+    return read_upload(await upload.read(), upload.filename or "", side, entry or None)
+
+
+async def side_files(form: FormData) -> list[tuple[str, bytes]]:
+    """A multipart form's ``side`` files, (name, bytes), read from their start (they may be
+    read again: the ride log's setup file is among them)."""
     side = []
     for part in form.getlist("side"):
         if isinstance(part, str):
@@ -57,11 +77,32 @@ async def scenario_from_form(form: FormData) -> dict[str, Any]:
                 raise InputError.single("side", "must be files, not text")
             continue
         if part.filename or part.size:
+            await part.seek(0)
             side.append((part.filename or "", await part.read()))
-    entry = form.get("scenario_file")
-    if entry is not None and not isinstance(entry, str):
-        raise InputError.single("scenario_file", "must be text: a file name in the archive")
-    return read_upload(await upload.read(), upload.filename or "", side, entry or None)
+    return side
+
+
+def parse_scenario_file(content: bytes, filename: str) -> dict[str, Any]:
+    """A scenario file's data (TOML, or JSON when the name ends in .json)."""
+    try:
+        text = content.decode("utf-8")
+    except UnicodeDecodeError:
+        raise InputError.single("scenario", "the file is not UTF-8 text") from None
+    if filename.lower().endswith(".json"):
+        try:
+            data = json.loads(text)
+        except json.JSONDecodeError as exc:
+            raise InputError.single(
+                "scenario", f"not valid JSON: {exc.msg} (line {exc.lineno})"
+            ) from None
+    else:
+        try:
+            data = tomllib.loads(text)
+        except tomllib.TOMLDecodeError as exc:
+            raise InputError.single("scenario", f"not valid TOML: {exc}") from None
+    if not isinstance(data, dict):
+        raise InputError.single("scenario", "a scenario must be an object at the top level")
+    return data
 
 
 def read_upload(
@@ -86,11 +127,11 @@ def read_upload(
         files.update(_unpack(content, filename))
         main = _choose(files, scenario_file)
     else:
-        main = _plain_name(filename or "scenario.toml", "scenario")
+        main = plain_name(filename or "scenario.toml", "scenario")
         files[main] = content
     folder = posixpath.dirname(main)
     for name, body in side:
-        path = posixpath.join(folder, _plain_name(name, "side"))
+        path = posixpath.join(folder, plain_name(name, "side"))
         if path in files:
             raise InputError.single("side", f"{path} is sent twice")
         files[path] = body
@@ -111,7 +152,7 @@ def _references(data: dict[str, Any]) -> list[tuple[str, Any]]:
     return found
 
 
-def _plain_name(name: str, field: str) -> str:
+def plain_name(name: str, field: str) -> str:
     """An uploaded file's own name (browsers send no folder; some send a Windows path)."""
     base = name.replace("\\", "/").rsplit("/", 1)[-1].strip()
     if not base or base in (".", "..") or not base.isprintable():
@@ -229,7 +270,7 @@ def _listed(paths: Sequence[str]) -> str:
     return ", ".join(paths) if paths else "no scenario file"
 
 
-def _leads_down(name: str) -> bool:
+def leads_down(name: str) -> bool:
     """Whether a file name stays in the folder of the file that names it."""
     path = name.replace("\\", "/")
     if path.startswith("/") or not path.isprintable():
@@ -257,7 +298,7 @@ def _check_references(files: dict[str, bytes], main: str) -> None:
             if not isinstance(name, str):  # the loader says what is wrong with it
                 continue
             where = f"scenario.{field}"
-            if not _leads_down(name):
+            if not leads_down(name):
                 problems.append(
                     FieldProblem(
                         where,
@@ -296,7 +337,7 @@ def _load(files: dict[str, bytes], main: str) -> dict[str, Any]:
             shown = (f"{root.resolve()}/", f"{root}/")
             raise InputError(
                 [
-                    FieldProblem(_under(p.location), _strip(p.message, shown) + _hint(p))
+                    FieldProblem(_under(p.location), without(p.message, shown) + _hint(p))
                     for p in exc.problems
                 ]
             ) from None
@@ -311,7 +352,8 @@ def _hint(problem: FieldProblem) -> str:
     return ""
 
 
-def _strip(text: str, prefixes: Sequence[str]) -> str:
+def without(text: str, prefixes: Sequence[str]) -> str:
+    """``text`` with every one of ``prefixes`` taken out (a private folder's path)."""
     for prefix in prefixes:
         text = text.replace(prefix, "")
     return text

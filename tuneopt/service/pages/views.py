@@ -105,6 +105,11 @@ def job_view(status: dict[str, Any], now: float) -> dict[str, Any]:
     if status.get("started") and status.get("ended"):
         took = datetime.fromisoformat(status["ended"]) - datetime.fromisoformat(status["started"])
         ran = f"{_duration(took.total_seconds())}, ended {_ago(status['ended'], now)}"
+    trials = f"{p['finished']} of {'?' if p.get('budget') is None else p['budget']} trials"
+    fit = status.get("fit")
+    if state == "running" and status.get("stage") == "fit" and fit:  # fitting the course
+        text = f"fitting the course to {fit['log']}" + text.removeprefix("running")
+        trials = f"{fit['rides']} of at most {fit['rides_at_most']} rides of the course fit"
     best = p.get("best_score")
     pace = p.get("trials_per_minute") or 0.0
     return {
@@ -116,7 +121,7 @@ def job_view(status: dict[str, Any], now: float) -> dict[str, Any]:
         "cancel_requested": bool(status.get("cancel_requested")),
         "finished": p["finished"],
         "budget": p.get("budget"),
-        "trials": f"{p['finished']} of {'?' if p.get('budget') is None else p['budget']} trials",
+        "trials": trials,
         "best": "" if best is None else f"{best:.4f}",
         "left": left,
         "pace": f"{pace:.1f} trials per minute" if pace > 0 else "",
