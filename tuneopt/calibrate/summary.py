@@ -10,7 +10,7 @@ from typing import Any
 
 from tuneopt.calibrate.fit import FitResult, KnobCheck, RideDistance
 from tuneopt.calibrate.space import class_of, gd_of, height_of, speed_of
-from tuneopt.model.course import CourseSpec
+from tuneopt.model.course import CourseSpec, MixEntry
 
 __all__ = [
     "FIRM_RISE",
@@ -63,17 +63,19 @@ def _value(kind: str, spec: CourseSpec, i: int) -> str:
 
 def parameter_rows(result: FitResult, checks: tuple[KnobCheck, ...]) -> list[ParameterRow]:
     """The fitted numbers, in the order of the search's knobs, with the entries' shares (the
-    first entry's share is not a knob of its own: it is what the others leave)."""
+    first built-in entry's share is not a knob of its own: it is what the others and the
+    measured profiles leave; a measured profile has no row, nothing of it is fitted)."""
     rise = {c.label: c.rise for c in checks}
     rows = []
-    if any(k.kind == "share" for k in result.space.knobs):
+    ref = result.space.reference
+    if ref is not None and any(k.kind == "share" for k in result.space.knobs):
         rows.append(
             ParameterRow(
-                entry=0,
-                terrain=result.start.mix[0].terrain,
+                entry=ref,
+                terrain=result.start.mix[ref].terrain,
                 quantity=_QUANTITY["share"] + " (what the others leave)",
-                start=_value("share", result.start, 0),
-                fitted=_value("share", result.fitted, 0),
+                start=_value("share", result.start, ref),
+                fitted=_value("share", result.fitted, ref),
                 rise=math.nan,
                 firm=True,
             )
@@ -141,6 +143,17 @@ def fit_lines(result: FitResult, rows: list[ParameterRow]) -> list[str]:
             f"riding speed off by {result.before.riding_speed_w1 * 3.6:.1f} -> "
             f"{result.after.riding_speed_w1 * 3.6:.1f} km/h."
         )
+    measured = [(i, e) for i, e in enumerate(result.fitted.mix) if e.profile is not None]
+    if measured:
+        lines.append(
+            "Ridden as measured, not fitted (share kept): "
+            + ", ".join(
+                f"course.mix[{i}] {e.profile.source} ({100 * e.share:.0f} %)"
+                for i, e in measured
+                if e.profile is not None
+            )
+            + "."
+        )
     fork_noise, rear_noise = result.sensor_noise
     lines.append(
         f"Sensor noise read from the log: fork {fork_noise * 1e3:.2f} mm, rear "
@@ -172,20 +185,35 @@ def _distance_json(d: RideDistance) -> dict[str, Any]:
 
 
 def fit_json(result: FitResult, rows: list[ParameterRow]) -> dict[str, Any]:
-    """The fit's numbers in SI (lengths m, speeds m/s, Gd m^3, shares as fractions)."""
+    """The fit's numbers in SI (lengths m, speeds m/s, Gd m^3, shares as fractions). A
+    measured profile's entry is terrain "measured" with the profile's file (``profile``) and
+    length, its share, and its speed when the entry sets one (null when the file's speed
+    column is ridden); roughness and feature height are null (the profile is both, and
+    nothing of it is fitted)."""
+
+    def entry(e: MixEntry, surface: str) -> dict[str, Any]:
+        if e.profile is not None:
+            return {
+                "terrain": e.terrain,
+                "profile": e.profile.source,
+                "length": e.profile.length,
+                "share": e.share,
+                "roughness_gd": None,
+                "roughness_class": None,
+                "feature_height": None,
+                "speed": e.speed,
+            }
+        return {
+            "terrain": e.terrain,
+            "share": e.share,
+            "roughness_gd": gd_of(e),
+            "roughness_class": class_of(gd_of(e)),
+            "feature_height": height_of(e),
+            "speed": speed_of(e, surface),
+        }
 
     def mix(spec: CourseSpec) -> list[dict[str, Any]]:
-        return [
-            {
-                "terrain": e.terrain,
-                "share": e.share,
-                "roughness_gd": gd_of(e),
-                "roughness_class": class_of(gd_of(e)),
-                "feature_height": height_of(e),
-                "speed": speed_of(e, spec.surface),
-            }
-            for e in spec.mix
-        ]
+        return [entry(e, spec.surface) for e in spec.mix]
 
     return {
         "start_course": mix(result.start),
