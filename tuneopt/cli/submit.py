@@ -306,11 +306,14 @@ def _choose_in_folder(folder: Path, wanted: str | None) -> str:
 
 def _files_read(folder: Path, main: str) -> list[str]:
     """The files the loader reads for ``main`` (paths inside ``folder``): the scenario, its
-    base files in turn (each next to the file naming it) and the measured tables the merged
-    scenario names (next to ``main``). The service reads only names that lead down from the
-    file naming them, so any other is refused here, by field."""
+    base files in turn (each next to the file naming it), and the measured tables and the
+    course's measured profiles the merged scenario names (next to ``main``). The service reads
+    only names that lead down from the file naming them, so any other is refused here, by
+    field."""
     files = [main]
     tables: dict[str, str] = {}  # by end: the most derived file's name wins, as in the merge
+    mix: list[Any] | None = None  # the most derived file's: a list replaces, it is not merged
+    course_settled = False  # a file whose course is not a table, or holds a mix, settles it
     path: str | None = main
     while path is not None:
         data = _read(folder / path) or {}
@@ -319,6 +322,13 @@ def _files_read(folder: Path, main: str) -> list[str]:
             damper = part.get("damper") if isinstance(part, dict) else None
             if isinstance(damper, dict) and isinstance(damper.get("measured_table"), str):
                 tables.setdefault(end, damper["measured_table"])
+        course = data.get("course")
+        if not course_settled and course is not None:
+            if not isinstance(course, dict):
+                course_settled = True  # replaces the base's course whole: no mix to read
+            elif "mix" in course:
+                course_settled = True
+                mix = course["mix"] if isinstance(course["mix"], list) else None
         base = data.get("base")
         path = None
         if isinstance(base, str):
@@ -327,8 +337,14 @@ def _files_read(folder: Path, main: str) -> list[str]:
             if path in files:
                 break  # the loader has said what is wrong with a loop already
             files.append(path)
-    for end, name in tables.items():
-        _leads_down(name, f"{end}.damper.measured_table", path_of=main)
+    named = [(f"{end}.damper.measured_table", name) for end, name in tables.items()]
+    named += [
+        (f"course.mix[{i}].profile", entry["profile"])
+        for i, entry in enumerate(mix or [])
+        if isinstance(entry, dict) and isinstance(entry.get("profile"), str)
+    ]
+    for field, name in named:
+        _leads_down(name, field, path_of=main)
         files.append(posixpath.normpath(posixpath.join(posixpath.dirname(main), name)))
     return list(dict.fromkeys(files))
 
