@@ -3,19 +3,21 @@
 from __future__ import annotations
 
 import inspect
+import math
 from typing import Any, Literal
 
+import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from tuneopt.model import InputError, Scenario, scenario_from_data
-from tuneopt.model.course import CourseSpec
+from tuneopt.model.course import CourseSpec, ProfileSamples
 from tuneopt.model.errors import FieldProblem
 from tuneopt.model.loading import problems_from_validation
 from tuneopt.optimise.evaluate import DEFAULT_REALISATIONS, Evaluator
 from tuneopt.optimise.space import build_space
 from tuneopt.service.ride_logs import JSON_LOG_NAME, RideLogUpload, check_ride_log
 from tuneopt.service.settings import Settings
-from tuneopt.terrain import terrain_type
+from tuneopt.terrain import LEAD_IN, terrain_type
 
 __all__ = ["JobRequest", "ValidJob", "validate_job"]
 
@@ -187,14 +189,38 @@ _STEP = float(inspect.signature(Evaluator).parameters["dt"].default)
 def samples_per_setup(course: CourseSpec, realisations: int) -> tuple[float, float]:
     """What one setup costs over all its realisations: terrain profile samples (length /
     spacing) and simulated time steps (length / riding speed / time step; at least that, for
-    braking and corners ride slower than the straights)."""
+    braking and corners ride slower than the straights). A measured profile is ridden once,
+    whole, as the course builder lays it out (``profile_ride``)."""
     profile = steps = 0.0
     for i, entry in enumerate(course.mix):
+        if entry.profile is not None:
+            samples, seconds = profile_ride(entry.profile, entry.speed, course.spacing)
+            profile += samples
+            steps += seconds / _STEP
+            continue
         length = course.entry_length(i)
         speed = entry.speed or terrain_type(entry.terrain).straight_speed(course.surface)
         profile += length / course.spacing
         steps += length / speed / _STEP
     return profile * realisations, steps * realisations
+
+
+def profile_ride(samples: ProfileSamples, speed: float | None, spacing: float) -> tuple[int, float]:
+    """A measured profile's segment as tuneopt.terrain.measured.segment_from_profile lays it
+    out: a flat lead-in of LEAD_IN metres, then the samples resampled to ``spacing`` from the
+    first, once. Returns its number of samples and its riding time [s]: the lead-in at the
+    first sample's speed, the profile at the file's speed (the trapezoid rule on 1/speed
+    over the file's samples: the speed is linear between them, 1/speed convex, so never
+    less than the time ridden) or at the entry's ``speed`` [m/s]."""
+    lead = math.ceil(LEAD_IN / spacing)
+    count = lead + math.floor(samples.length / spacing + 1e-9) + 1
+    if samples.speed is None:
+        assert speed is not None  # the schema requires one of the two
+        return count, count * spacing / speed
+    distance = np.asarray(samples.distance, dtype=np.float64)
+    slowness = 1.0 / np.asarray(samples.speed, dtype=np.float64)
+    seconds = float(np.trapezoid(slowness, distance)) + lead * spacing * float(slowness[0])
+    return count, seconds
 
 
 def _fit_options(
@@ -272,14 +298,21 @@ def _cost_problems(
         f"{_STEP * 1e3:g} ms x realisations), above this service's limit of "
         f"{limit / 1e6:g} million per setup"
     )
-    fields = ["scenario.course.length"]
+    measured = [i for i, e in enumerate(course.mix) if e.profile is not None]
+    fields = ["scenario.course.length"] if len(measured) < len(course.mix) else []
     fields.append("scenario.course.spacing" if profile >= steps else "scenario.course.mix.speed")
+    fields += [f"scenario.course.mix[{i}].profile" for i in measured]
     fields.append(count)
     fixes = {
         "scenario.course.length": "a shorter course lowers it",
         "scenario.course.spacing": "a coarser spacing (up to 5 mm) lowers it",
         "scenario.course.mix.speed": "a faster riding speed lowers it",
         count: f"fewer realisations ({realisations} asked) lower it",
+        **{
+            f"scenario.course.mix[{i}].profile": "a shorter measured profile lowers it (it is "
+            "ridden once, whole, in every realisation)"
+            for i in measured
+        },
     }
     return [FieldProblem(f, f"{why}; {fixes[f]}") for f in fields]
 

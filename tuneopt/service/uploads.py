@@ -1,6 +1,7 @@
 """A scenario uploaded with its side files: a base file (``base = "other.toml"``), a measured
-damper table (``measured_table = "table.csv"``), sent as further form parts or as a .zip or
-.tar.gz of the scenario's folder.
+damper table (``measured_table = "table.csv"``), a course's measured profile
+(``profile = "section.csv"`` in an entry of ``[[course.mix]]``), sent as further form parts or
+as a .zip or .tar.gz of the scenario's folder.
 
 The files are laid out in a private temporary folder and read by the project's own scenario
 loader, so an upload reads exactly as the same files on disk do. Nothing outside that folder is
@@ -40,7 +41,8 @@ __all__ = [
     "without",
 ]
 
-MAX_SIDE_FILES = 8  # a scenario, its base and a table per end leave room to spare
+# a base, a table per end and a dozen measured profiles in the course's mix
+MAX_SIDE_FILES = 16
 MAX_ARCHIVE_FILES = 64
 ARCHIVES = (".zip", ".tar.gz", ".tgz")
 _SCENARIO_SUFFIXES = (".toml", ".json")
@@ -149,6 +151,12 @@ def _references(data: dict[str, Any]) -> list[tuple[str, Any]]:
         damper = part.get("damper") if isinstance(part, dict) else None
         if isinstance(damper, dict) and "measured_table" in damper:
             found.append((f"{end}.damper.measured_table", damper["measured_table"]))
+    course = data.get("course")
+    mix = course.get("mix") if isinstance(course, dict) else None
+    for i, entry in enumerate(mix if isinstance(mix, list) else []):
+        # a file's name; samples sent inline (a table) name no file
+        if isinstance(entry, dict) and isinstance(entry.get("profile"), str):
+            found.append((f"course.mix[{i}].profile", entry["profile"]))
     return found
 
 
@@ -310,9 +318,9 @@ def _check_references(files: dict[str, bytes], main: str) -> None:
             if field == "base":  # next to the file that names it
                 target = posixpath.normpath(posixpath.join(posixpath.dirname(path), name))
                 what, following = "the base file", target
-            else:  # next to the scenario being run, as the loader reads tables
+            else:  # next to the scenario being run, as the loader reads tables and profiles
                 target = posixpath.normpath(posixpath.join(folder, name))
-                what = "the measured table"
+                what = "the measured profile" if field.endswith("profile") else "the measured table"
             if target not in files:
                 problems.append(
                     FieldProblem(where, f"{what} {name!r} is not among the files sent{_SEND_TOO}")
@@ -345,7 +353,7 @@ def _load(files: dict[str, bytes], main: str) -> dict[str, Any]:
 
 
 def _hint(problem: FieldProblem) -> str:
-    if problem.location.startswith(("base", "fork.damper", "shock.damper")) and (
+    if problem.location.startswith(("base", "fork.damper", "shock.damper", "course.mix")) and (
         "no such" in problem.message.lower()
     ):
         return _SEND_TOO
