@@ -32,6 +32,7 @@ from tuneopt.service.pages.session import (
 )
 from tuneopt.service.records import JobStore
 from tuneopt.service.settings import Settings
+from tuneopt.service.uploads import MAX_SIDE_FILES
 from tuneopt.service.worker import make_worker
 
 # the files each shipped scenario names beside itself (its base file, its damper table)
@@ -198,12 +199,18 @@ def test_every_shipped_scenario_starts_through_the_form(
     browser: TestClient, shop_settings: Settings, path: Path
 ) -> None:
     _log_in(browser, shop_settings)
+    sent = time.time()
     job = _submit(browser, _files(path.name), trials="8", deadline="2")
     store = _store(shop_settings)
     # read exactly as the same files on disk (the base merged, the damper table read)
     assert store.scenario(job) == load_scenario(path).model_dump(mode="json")
     assert store.request(job)["trials"] == 8
-    assert store.request(job)["run_seconds"] == 7200.0
+    # "2" hours: an absolute deadline two hours after the form was sent, set at once (a job
+    # that waits in the queue stops then too), not run_seconds from the start
+    assert store.request(job)["run_seconds"] is None
+    record = store.get(job)
+    assert record is not None and record.deadline is not None
+    assert 0 <= record.deadline - (sent + 7200.0) <= time.time() - sent
     listed = browser.get("/shop/")
     assert listed.status_code == 200
     assert f'data-job="{job}"' in listed.text and "0 of 8 trials" in listed.text
@@ -405,7 +412,8 @@ def test_hostile_job_ids_and_oversized_forms_get_plain_answers(
         answer = browser.post(f"/shop/jobs/{job_id}/cancel")
         assert answer.status_code in (404, 405), (job_id, answer.status_code)
     # more side files than the service reads: the form again, saying why
-    files = _files("trail_air.toml") + [("side", (f"t{i}.csv", b"x")) for i in range(12)]
+    extra = [("side", (f"t{i}.csv", b"x")) for i in range(MAX_SIDE_FILES + 4)]
+    files = _files("trail_air.toml") + extra
     answer = browser.post("/shop/new", files=files)
     assert answer.status_code == 400 and "Too many files" in _problems(answer.text)
     assert _store(shop_settings).list(10) == []

@@ -118,8 +118,8 @@ def _stopped(store: JobStore, job_id: str, why: str, rides: int, most: int) -> s
         store.add_error(
             job_id,
             f"the deadline came during the course fit, after {rides} of at most {most} rides: "
-            "nothing was optimised (give the job more time with run_seconds, or the fit fewer "
-            "rides with fit_budget)",
+            "nothing was optimised (give the job more time with run_seconds or a later "
+            "deadline, or the fit fewer rides with fit_budget)",
         )
         return tasks._end(store, job_id, JobState.FAILED)
     store.add_event(job_id, f"course fit stopped by a cancel after {rides} rides")

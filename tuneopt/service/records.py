@@ -121,9 +121,11 @@ class JobStore:
         request: dict[str, Any],
         name: str,
         pipe: Pipeline | None = None,
+        deadline: float | None = None,
     ) -> None:
         """Write a new job's record and index entry in one transaction; with ``pipe`` (a
-        transaction the caller executes), as part of that one."""
+        transaction the caller executes), as part of that one. ``deadline`` [Unix s]: an
+        absolute deadline the client gave (else it is set when a worker starts the job)."""
         now = time.time()
         target = self.redis.pipeline() if pipe is None else pipe
         target.hset(
@@ -138,6 +140,8 @@ class JobStore:
                 "finished": "0",
             },
         )
+        if deadline is not None:
+            target.hset(self.key(job_id), "deadline", repr(deadline))
         target.zadd(self.index_key, {job_id: now})
         if pipe is None:
             target.execute()

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import inspect
 import math
+import time
+from datetime import datetime
 from typing import Any, Literal
 
 import numpy as np
@@ -38,7 +40,17 @@ class JobRequest(BaseModel):
         default=None, ge=1, description="budget of finished trials (default 200 or the limit)"
     )
     run_seconds: float | None = Field(
-        default=None, gt=0, description="wall-clock budget from the start of the job [s]"
+        default=None,
+        gt=0,
+        description="wall-clock budget from when a worker starts the job [s] (or deadline)",
+    )
+    deadline: str | None = Field(
+        default=None,
+        description="when the job stops, wherever it is (waiting in the queue included): an "
+        "ISO 8601 date-time with its offset from UTC, e.g. 2026-06-02T06:30:00+02:00 or "
+        "...Z; in the future and at most the service's TUNEOPT_MAX_RUN_SECONDS from now; "
+        "instead of run_seconds",
+        json_schema_extra={"format": "date-time"},
     )
     seed: int | None = Field(
         default=None, ge=0, le=2**31 - 1, description="study seed (default: the course's)"
@@ -75,7 +87,8 @@ class ValidJob(BaseModel):
 
     scenario: Scenario
     trials: int
-    run_seconds: float
+    run_seconds: float | None  # None: the job has an absolute deadline
+    deadline: float | None = None  # Unix time [s]
     seed: int
     shards: int
     sampler: str
@@ -132,8 +145,20 @@ def validate_job(
                 f"{trials} is above this service's limit of {settings.max_trials}",
             )
         )
-    run_seconds = request.run_seconds or settings.max_run_seconds
-    if run_seconds > settings.max_run_seconds:
+    run_seconds: float | None = request.run_seconds or settings.max_run_seconds
+    deadline = None
+    if request.deadline is not None:
+        run_seconds = None
+        deadline = _deadline(request.deadline, settings.max_run_seconds, problems)
+        if request.run_seconds is not None:
+            problems.append(
+                FieldProblem(
+                    "deadline",
+                    "given with run_seconds: give one of them (deadline, a time; run_seconds, "
+                    "seconds from when a worker starts the job)",
+                )
+            )
+    elif run_seconds is not None and run_seconds > settings.max_run_seconds:
         problems.append(
             FieldProblem(
                 "run_seconds",
@@ -174,12 +199,57 @@ def validate_job(
         scenario=scenario,
         trials=trials,
         run_seconds=run_seconds,
+        deadline=deadline,
         seed=request.seed if request.seed is not None else scenario.course.seed,
         shards=min(shards, trials),
         sampler=request.sampler,
         batch_size=request.batch_size,
         realisations=request.realisations,
     )
+
+
+_EXAMPLE = "2026-06-02T06:30:00+02:00"
+
+
+def _deadline(text: str, max_run_seconds: float, problems: list[FieldProblem]) -> float | None:
+    """A deadline's Unix time [s], or None with the problem added: an ISO 8601 date-time with
+    its offset, in the future, at most ``max_run_seconds`` from now."""
+    try:
+        when = datetime.fromisoformat(text.strip())
+    except ValueError:
+        problems.append(
+            FieldProblem(
+                "deadline",
+                f"{text[:40]!r} is not an ISO 8601 date-time; write it with its offset from "
+                f"UTC, e.g. {_EXAMPLE}",
+            )
+        )
+        return None
+    if when.tzinfo is None or when.utcoffset() is None:
+        problems.append(
+            FieldProblem(
+                "deadline",
+                f"{text[:40]!r} has no offset from UTC, so the time is ambiguous; write it as "
+                f"{_EXAMPLE} (or with Z for UTC)",
+            )
+        )
+        return None
+    then, now = when.timestamp(), time.time()
+    if then <= now:
+        problems.append(
+            FieldProblem("deadline", f"{text[:40]} is past ({now - then:.0f} s ago)")
+        )
+        return None
+    if then - now > max_run_seconds:
+        problems.append(
+            FieldProblem(
+                "deadline",
+                f"{text[:40]} is {(then - now) / 3600:.2f} hours from now, past this service's "
+                f"limit of {max_run_seconds / 3600:g} hours ({max_run_seconds:g} s) per job",
+            )
+        )
+        return None
+    return then
 
 
 # the simulator's time step [s]: the evaluator's own default, read once

@@ -193,7 +193,9 @@ def record_and_queue(
                 pipe.unwatch()
                 return made_before, False
         pipe.multi()
-        store.create(job_id, scenario, job.options(), job.scenario.name, pipe=pipe)
+        store.create(
+            job_id, scenario, job.options(), job.scenario.name, pipe=pipe, deadline=job.deadline
+        )
         if job.ride_log is None:
             tasks.enqueue_start(queue, job_id, retries, pipeline=pipe)
         else:  # the course fit first; it starts the job when it ends

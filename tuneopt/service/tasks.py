@@ -205,6 +205,7 @@ def start_job(job_id: str) -> str:
         store.add_error(job_id, exc.describe())
         return _end(store, job_id, JobState.FAILED)
     now = time.time()
+    # the client's deadline, one a course fit set, or run_seconds from now
     deadline = record.deadline or now + float(record.request["run_seconds"])
     plan = _plan(job_id, record.request, deadline)
     storage = redis_storage(settings.redis_url.get_secret_value(), store.study_prefix(job_id))
@@ -216,9 +217,11 @@ def start_job(job_id: str) -> str:
           job=job_id, shards=record.request["shards"])  # fmt: skip
 
     queue = _queue()
-    run_seconds = float(record.request["run_seconds"])
+    left = max(deadline - now, 0.0)  # the job's time from now: rq's limits of its parts [s]
+    if left <= 0:  # a job taken up after its deadline is finalised at once with what it has
+        store.add_event(job_id, "taken up by a worker after its deadline: no shard runs")
     shards = []
-    for shard in range(int(record.request["shards"])):
+    for shard in range(int(record.request["shards"]) if left > 0 else 0):
         part = rq_id(job_id, f"shard-{shard}")
         if Job.exists(part, connection=queue.connection):
             shards.append(Job.fetch(part, connection=queue.connection, serializer=JSONSerializer))
@@ -229,7 +232,7 @@ def start_job(job_id: str) -> str:
                 args=(job_id, shard),
                 job_id=part,
                 retry=Retry(max=settings.shard_retries) if settings.shard_retries else None,
-                job_timeout=int(run_seconds) + SHARD_OVERRUN_SECONDS,
+                job_timeout=int(left) + SHARD_OVERRUN_SECONDS,
                 result_ttl=_part_ttl(),
                 failure_ttl=settings.retention_seconds,
             )
@@ -240,10 +243,10 @@ def start_job(job_id: str) -> str:
             "tuneopt.service.finalise.finalise_job",
             args=(job_id,),
             job_id=final,
-            depends_on=Dependency(jobs=shards, allow_failure=True),
+            depends_on=Dependency(jobs=shards, allow_failure=True) if shards else None,
             retry=Retry(max=2),
             on_failure=Callback("tuneopt.service.tasks.job_failed"),
-            job_timeout=int(run_seconds) + FINALISE_SECONDS,
+            job_timeout=int(left) + FINALISE_SECONDS,
             result_ttl=_part_ttl(),
             failure_ttl=settings.retention_seconds,
         )

@@ -12,7 +12,7 @@ import hmac
 import re
 import secrets
 import time
-from datetime import UTC, datetime
+from datetime import UTC, datetime, timedelta
 from typing import Any
 
 import httpx2
@@ -173,14 +173,15 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
             text, files = await _job_form(request)
         except StarletteHTTPException as exc:  # too many parts, too large, not a form
             return new_form(request, exc.status_code, [("form", str(exc.detail))], {})
+        now = datetime.now(UTC)
         try:
             offset = tz_offset(text.get("tz_offset", ""))
-            run_seconds = deadline_seconds(text.get("deadline", ""), datetime.now(UTC), offset)
+            seconds = deadline_seconds(text.get("deadline", ""), now, offset)
         except InputError as exc:
             return new_form(request, 422, input_problems(exc), text)
         fields = {k: text[k] for k in ("trials", "realisations", "scenario_file") if text.get(k)}
-        if run_seconds is not None:
-            fields["run_seconds"] = repr(run_seconds)
+        if seconds is not None:  # the API's absolute deadline: the job waits in the queue too
+            fields["deadline"] = (now + timedelta(seconds=seconds)).isoformat()
         if not any(name == "scenario" for name, _ in files):
             return new_form(request, 422, [("scenario", "choose the scenario file")], text)
         token = text.get("token", "")
