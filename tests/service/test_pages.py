@@ -391,7 +391,7 @@ def test_a_finished_job_shows_its_report_and_setup_sheets(
     # one rank's sheet alone, the whole set one such sheet per rank
     assert one.status_code == 200 and per_sheet >= 1
     assert sheets.text.count("recommendation,") == per_sheet * len(ranks)
-    assert browser.get(f"/shop/jobs/{job}/sheet?rank=99").status_code == 409
+    assert browser.get(f"/shop/jobs/{job}/sheet?rank=99").status_code == 422  # the API's
     assert browser.get(f"/shop/jobs/{job}/result.json").json() == result
 
 

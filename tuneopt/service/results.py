@@ -1,22 +1,25 @@
-"""What a job leaves for its client, served from Redis: the ranked setups (JSON) and the HTML
-report; for a job submitted with a ride log, its course fit (numbers, fitted scenario, page)."""
+"""What a job leaves for its client, served from Redis: the ranked setups (JSON), the HTML
+report, the setup sheets and ranked.csv (made from the result when asked); for a job submitted
+with a ride log, its course fit (numbers, fitted scenario, page)."""
 
 from __future__ import annotations
 
 import re
 import zlib
-from typing import Any
+from typing import Annotated, Any
 
-from fastapi import APIRouter, Response
+from fastapi import APIRouter, Query, Response
 from fastapi.responses import HTMLResponse, PlainTextResponse
 
 from tuneopt.service.access import load_job
+from tuneopt.service.job_files import Unavailable, ranked_csv, setup_sheets_html
 from tuneopt.service.problems import ProblemError
 from tuneopt.service.records import JobRecord, JobStore
 
 __all__ = ["results_router"]
 
 TOML = "application/toml"
+CSV = "text/csv"
 
 
 def _not_yet(record: JobRecord, what: str) -> ProblemError:
@@ -32,16 +35,21 @@ def _not_yet(record: JobRecord, what: str) -> ProblemError:
 def results_router(store: JobStore, guarded: list[Any]) -> APIRouter:
     router = APIRouter(dependencies=guarded)
 
+    def ended_result(job_id: str, what: str) -> dict[str, Any]:
+        """An ended job's result (404 for no such job, 409 before it has ended; ``what`` the
+        client asked for, for the 409's words)."""
+        record = load_job(store, job_id)
+        result = store.get_result(job_id)
+        if result is None:
+            raise _not_yet(record, what)
+        return result
+
     @router.get(
         "/jobs/{job_id}/result",
         summary="The ranked setups (with their cautions) once the job has ended",
     )
     def get_result(job_id: str) -> dict[str, Any]:
-        record = load_job(store, job_id)
-        result = store.get_result(job_id)
-        if result is None:
-            raise _not_yet(record, "result")
-        return result
+        return ended_result(job_id, "result")
 
     @router.get(
         "/jobs/{job_id}/report",
@@ -54,6 +62,44 @@ def results_router(store: JobStore, guarded: list[Any]) -> APIRouter:
         if packed is None:
             raise _not_yet(record, "report")
         return HTMLResponse(zlib.decompress(packed).decode("utf-8"))
+
+
+    @router.get(
+        "/jobs/{job_id}/sheet",
+        response_class=HTMLResponse,
+        summary="The setup sheets (one printable page per ranked setup, or the one ranked "
+        "rank), as the shop pages serve them, once the job has ended with ranked setups",
+    )
+    def get_sheet(
+        job_id: str,
+        rank: Annotated[int | None, Query(ge=1, description="one ranked setup's sheet")] = None,
+    ) -> HTMLResponse:
+        result = ended_result(job_id, "setup sheet")
+        try:
+            return HTMLResponse(setup_sheets_html(store.scenario(job_id), result, rank))
+        except Unavailable as exc:
+            raise ProblemError(409, str(exc)) from None
+        except KeyError:  # deleted meanwhile
+            raise ProblemError(404, "no such job") from None
+
+    @router.get(
+        "/jobs/{job_id}/ranked.csv",
+        response_class=PlainTextResponse,
+        responses={200: {"content": {CSV: {}}}},
+        summary="ranked.csv, the table a local run writes beside result.json (one row per "
+        "ranked setup), once the job has ended with ranked setups",
+    )
+    def get_ranked_csv(job_id: str) -> Response:
+        result = ended_result(job_id, "ranked.csv")
+        try:
+            text = ranked_csv(result)
+        except Unavailable as exc:
+            raise ProblemError(409, str(exc)) from None
+        return Response(
+            text,
+            media_type=CSV,
+            headers={"Content-Disposition": f'attachment; filename="{job_id}-ranked.csv"'},
+        )
 
     def fit_of(job_id: str) -> JobRecord:
         """The record of a job submitted with a ride log (409 for one without: the job has

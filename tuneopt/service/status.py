@@ -67,7 +67,8 @@ def _time(value: float | None) -> datetime | None:
 def job_status(record: JobRecord) -> JobStatus:
     """The status of a job from its record, read now (the time left is counted from now)."""
     base = f"/jobs/{record.id}"
-    links = {"self": base, "result": f"{base}/result", "report": f"{base}/report"}
+    links = {"self": base, "result": f"{base}/result", "report": f"{base}/report",
+             "sheet": f"{base}/sheet", "ranked_csv": f"{base}/ranked.csv"}  # fmt: skip
     fit, stage = None, None
     if record.fit is not None:
         links |= {name: f"{base}/{path}" for name, path in FIT_LINKS.items()}

@@ -2,8 +2,8 @@
 
 The pages are a face of the HTTP API, not a second service: every job action and every job's
 data goes through the API's own routes, called in process with the service's key, so that the
-checks, limits, records and logs stay the API's. Only the setup sheet is made here, from the
-job's validated scenario and its result (``build_setup_sheets``).
+checks, limits, records and logs stay the API's, the setup sheets among them. Only the job
+page's one-line summary of each ranked setup is made here (``build_setup_sheets``).
 """
 
 from __future__ import annotations
@@ -257,17 +257,11 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
     async def sheet(request: Request, job_id: str, rank: int | None = None) -> Response:
         if (no := refused(request, job_id)) is not None:
             return no
-        answer = await call(request, "GET", f"/jobs/{job_id}/result")
+        params = {"rank": rank} if rank else {}
+        answer = await call(request, "GET", f"/jobs/{job_id}/sheet", params=params)
         if answer.status_code != 200:
             return _text(answer.status_code, api_problems(answer)[0][1])
-        from tuneopt.report.setup_sheet import build_setup_sheets, render_setup_sheets
-
-        try:
-            scenario = scenario_from_data(store.scenario(job_id))
-            sheets = build_setup_sheets(scenario, answer.json(), [rank] if rank else None)
-        except InputError as exc:
-            return _text(409, "; ".join(str(p) for p in exc.problems))
-        return HTMLResponse(render_setup_sheets(sheets), headers=_headers(_CSP))
+        return HTMLResponse(answer.text, headers=_headers(_CSP))
 
     return router
 
