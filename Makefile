@@ -16,7 +16,7 @@ $(STAMP): pyproject.toml
 demo: $(STAMP)
 	$(BIN)/tuneopt check $(DEMO)
 	rm -rf out/demo
-	$(BIN)/tuneopt optimise $(DEMO) --trials 300 --workers 2 --out out/demo
+	$(BIN)/tuneopt optimise $(DEMO) --workers 2 --out out/demo
 
 lint: $(STAMP)
 	$(BIN)/ruff check .

@@ -1,7 +1,8 @@
 """Does a recommendation hold on terrain the study never saw?
 
 For each scenario and each of three study seeds, run ``tuneopt optimise`` as a user would (the
-demo's budget: 300 trials, 2 worker processes, every other setting at its default), then score
+demo's budget: the default 600 trials, 2 worker processes, every other setting at its default),
+then score
 the recommended setup and the current one on fresh course realisations whose seeds the study
 never used. Printed per study: the gain the study states (with its interval when it gives one),
 the gain measured on the fresh realisations (mean paired difference over the current setup's
@@ -11,7 +12,7 @@ against the current setup's, and the CPU time. Per scenario: how far apart the t
 winners are, setting by setting, in steps of the search space, and which settings spread beyond
 two steps without every study's report calling them flat (the score barely moves along them).
 
-    python benchmarks/bench_trust.py [--fresh 40] [--trials 300] [--scenarios a.toml b.toml]
+    python benchmarks/bench_trust.py [--fresh 40] [--trials 600] [--scenarios a.toml b.toml]
                                      [--json out.json]
 
 Slow by design (a few minutes per study on 2 cores); not part of the test suite.
@@ -37,6 +38,7 @@ sys.path.insert(0, str(ROOT))
 
 from tuneopt.model import load_scenario  # noqa: E402
 from tuneopt.optimise.evaluate import Evaluator  # noqa: E402
+from tuneopt.optimise.runner import DEFAULT_TRIALS  # noqa: E402
 from tuneopt.optimise.space import build_space  # noqa: E402
 from tuneopt.report.fresh_terrain import flat_settings  # noqa: E402
 from tuneopt.report.run_data import read_run_folder  # noqa: E402
@@ -183,7 +185,7 @@ def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--scenarios", nargs="+", default=list(SCENARIOS))
     ap.add_argument("--seeds", nargs="+", type=int, default=list(STUDY_SEEDS))
-    ap.add_argument("--trials", type=int, default=300)
+    ap.add_argument("--trials", type=int, default=DEFAULT_TRIALS)
     ap.add_argument("--fresh", type=int, default=40)
     ap.add_argument("--json", type=Path)
     args = ap.parse_args(argv)

@@ -24,7 +24,8 @@ def register(sub: Any) -> None:
     p.add_argument("scenario", nargs="?", help="scenario file (.toml or .json)")
     p.add_argument("--out", type=Path, help="output folder (new)")
     p.add_argument("--resume", type=Path, metavar="DIR", help="continue the run in DIR")
-    p.add_argument("--trials", type=int, help="budget of finished trials (default 200)")
+    p.add_argument("--trials", type=int,
+                   help="budget of finished trials (default 600, or none with --until)")
     p.add_argument("--until", help="deadline: HH:MM (next occurrence) or YYYY-MM-DDTHH:MM")
     p.add_argument("--workers", type=int, default=1, help="local processes (default 1)")
     p.add_argument("--seed", type=int, help="study seed: terrain and sampler (default: course's)")
@@ -145,7 +146,14 @@ def _stop_on_sigterm() -> None:
 def run(args: argparse.Namespace) -> int:
     from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 
-    from tuneopt.optimise import SAMPLERS, StudyPlan, load_run, run_local, start_run
+    from tuneopt.optimise import (
+        DEFAULT_TRIALS,
+        SAMPLERS,
+        StudyPlan,
+        load_run,
+        run_local,
+        start_run,
+    )
     from tuneopt.optimise.evaluate import DEFAULT_REALISATIONS
     from tuneopt.optimise.validation import DEFAULT_VALIDATION
     from tuneopt.report import print_ranking, write_run_report
@@ -163,7 +171,7 @@ def run(args: argparse.Namespace) -> int:
             raise InputError.single("course", "missing: the optimiser needs a terrain mix")
         baseline = _baseline(args.baseline, scenario) if args.baseline else None
         seed = args.seed if args.seed is not None else scenario.course.seed
-        trials = args.trials if args.trials is not None else (None if deadline else 200)
+        trials = args.trials if args.trials is not None else (None if deadline else DEFAULT_TRIALS)
         plan = StudyPlan(
             name="study",
             trials=trials,
