@@ -106,7 +106,7 @@ def test_a_refusal_ends_the_wait_at_once_with_its_reason(service: FakeService) -
 @pytest.mark.parametrize(
     "service",
     [[_problem(422, "the request has invalid fields",
-               errors=[{"field": "run_seconds", "message": "above this service's limit"},
+               errors=[{"field": "deadline", "message": "above this service's limit"},
                        {"field": "scenario.fork.travel", "message": "must be positive"}])]],
     indirect=True,
 )  # fmt: skip
@@ -118,7 +118,7 @@ def test_bad_input_names_the_commands_options(service: FakeService) -> None:
         client.submit({"json": {"scenario": {}}}, "k" * 32)
     assert err.value.code == 2  # bad input: the command's exit status 2
     lines = str(err.value).splitlines()
-    assert "  - --until (run_seconds): above this service's limit" in lines
+    assert "  - --until (deadline): above this service's limit" in lines
     assert "scenario.fork.travel: must be positive" in " ".join(lines)
 
 

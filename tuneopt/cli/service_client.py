@@ -138,17 +138,12 @@ class ServiceClient:
         return self.call("GET", f"/jobs/{_segment(job)}/report").text
 
     def setup_sheets(self, job: str) -> str:
-        """The job's setup sheets (one printable page per ranked setup), from the service's
-        shop pages: the API itself serves none, and the pages ask for their log-in (the API key
-        posted once, a cookie after) when the service has a key."""
-        if self.key:
-            self.call("POST", "/shop/login", data={"key": self.key}, ok=(303,))
-        answer = self.call("GET", f"/shop/jobs/{_segment(job)}/sheet", ok=(200, 303))
-        if answer.status_code == 303:
-            raise ServiceError(
-                "the service's pages asked for a log-in again: the setup sheets cannot be fetched"
-            )
-        return answer.text
+        """The job's setup sheets, one printable page per ranked setup."""
+        return self.call("GET", f"/jobs/{_segment(job)}/sheet").text
+
+    def ranked_csv(self, job: str) -> str:
+        """The job's ranked setups as CSV, the columns a local run's ranked.csv has."""
+        return self.call("GET", f"/jobs/{_segment(job)}/ranked.csv").text
 
     # -- one call ----------------------------------------------------------------------------
     def call(

@@ -42,7 +42,7 @@ OPTIONS = {
     "trials": "--trials",
     "seed": "--seed",
     "realisations": "--realisations",
-    "run_seconds": "--until",
+    "deadline": "--until",
     "scenario_file": "--scenario-file",
 }
 MAX_REALISATIONS = 32  # the API's own limit (tuneopt.service.requests.JobRequest)
@@ -154,25 +154,27 @@ def _client(api: str, patience: Patience) -> ServiceClient:
 # -- submitting ----------------------------------------------------------------------------
 def _submit(args: argparse.Namespace) -> int:
     deadline = _check_submit(args)
-    # the time left is taken once: every try of the submission sends the same request
-    run_seconds = None if deadline is None else round(max(deadline - time.time(), 1.0), 1)
-    request = _submission(args, run_seconds)
+    # the deadline as the moment it is, with the local offset: the same in every try of the
+    # submission, and honoured by the service whenever a worker takes the job up
+    stamp = None if deadline is None else datetime.fromtimestamp(deadline).astimezone().isoformat(
+        timespec="seconds"
+    )
+    request = _submission(args, stamp)
     token = uuid.uuid4().hex  # one key for every try: a lost answer, sent again, makes no twin
     with _client(args.api, OUTAGE if args.wait else BRIEF) as client:
         try:
             status = client.submit(request, token)
         except ServiceError as exc:
-            if run_seconds is None or exc.status != 422 or "run_seconds" not in str(exc):
+            if deadline is None or exc.status != 422 or "deadline" not in str(exc):
                 raise
             raise ServiceError(
-                f"{exc}\n  (--until {args.until} is {_duration(run_seconds)} from now)", 2, 422
+                f"{exc}\n  (--until {args.until} is {_duration(deadline - time.time())} from now)",
+                2,
+                422,
             ) from None
         job = str(status.get("id", ""))
-        if deadline is not None and run_seconds is not None:
-            print(
-                f"time budget {_duration(run_seconds)}, to {_clock(deadline)}: the service "
-                "counts it from when a worker starts the job"
-            )
+        if deadline is not None:
+            print(f"stops by {_clock(deadline)}, whenever a worker takes it up")
         print(f"submitted job {job}")
         if not args.wait:
             return 0
@@ -227,7 +229,7 @@ def _is_archive(path: Path) -> bool:
     return path.name.lower().endswith(ARCHIVES)
 
 
-def _submission(args: argparse.Namespace, run_seconds: float | None) -> dict[str, Any]:
+def _submission(args: argparse.Namespace, deadline: str | None) -> dict[str, Any]:
     """The request for ``POST /jobs``. A scenario file is read here, with its base files and
     measured tables, and sent as JSON; a folder goes as a .tar.gz of the scenario it holds and
     the files that scenario names; an archive goes as it is (multipart, as the API takes
@@ -238,7 +240,7 @@ def _submission(args: argparse.Namespace, run_seconds: float | None) -> dict[str
             ("trials", args.trials),
             ("seed", args.seed),
             ("realisations", args.realisations),
-            ("run_seconds", run_seconds),
+            ("deadline", deadline),
         )
         if v is not None
     }
@@ -467,17 +469,20 @@ def _print_result(data: dict[str, Any]) -> None:
 def _save_files(
     client: ServiceClient, job: str, folder: Path, data: dict[str, Any]
 ) -> list[str]:
-    """Write result.json and, when the job ranked setups, the report and the setup sheets
-    into ``folder``; the names written, and why any is missing (result.json first, so that a
-    page the service cannot give leaves the result saved)."""
+    """Write result.json and, when the job ranked setups, the report, the setup sheets and
+    ranked.csv into ``folder``; the names written, and why any is missing (result.json first,
+    so that a page the service cannot give leaves the result saved)."""
     from tuneopt.report import REPORT_FILE, SHEET_FILE
     from tuneopt.report.run_data import RESULT_FILE
+    from tuneopt.report.run_report import RANKED_CSV as RANKED_FILE
 
     folder.mkdir(parents=True, exist_ok=True)
     _write(folder / RESULT_FILE, json.dumps(data, indent=2) + "\n")
     saved = []
     if data.get("ranked"):
-        for name, fetch in ((REPORT_FILE, client.report), (SHEET_FILE, client.setup_sheets)):
+        pages = ((REPORT_FILE, client.report), (SHEET_FILE, client.setup_sheets),
+                 (RANKED_FILE, client.ranked_csv))
+        for name, fetch in pages:
             try:
                 _write(folder / name, fetch(job))
                 saved.append(name)
