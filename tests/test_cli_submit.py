@@ -12,7 +12,7 @@ from pathlib import Path
 import pytest
 
 from tests.conftest import SCENARIO_FILES, SCENARIOS, scenario_data, write_toml
-from tuneopt.cli import main, submit
+from tuneopt.cli import main, scenario_folder, submit
 from tuneopt.model import InputError, load_scenario, loading
 
 NOWHERE = "http://127.0.0.1:9"  # nothing listens there: a test that reached it would fail
@@ -33,9 +33,9 @@ def _packs_what_the_loader_reads(
     with monkeypatch.context() as patch:
         patch.setattr(loading, "_read_text", recorded)
         load_scenario(folder / main)
-    packed = submit._files_read(folder, main)
+    packed = scenario_folder.files_read(folder, main)
     assert sorted((folder / p).resolve() for p in packed) == sorted(set(opened))
-    with tarfile.open(fileobj=io.BytesIO(submit._pack(folder, packed)), mode="r:gz") as t:
+    with tarfile.open(fileobj=io.BytesIO(scenario_folder.pack(folder, packed)), mode="r:gz") as t:
         assert sorted(t.getnames()) == sorted(packed)
     return packed
 
@@ -110,7 +110,7 @@ def test_a_profile_outside_the_folder_is_refused_by_field(
     folder = _profile_folder(tmp_path / "loop", name="../outside.csv")
     load_scenario(folder / "ride.toml")
     with pytest.raises(InputError) as err:
-        submit._files_read(folder, "ride.toml")
+        scenario_folder.files_read(folder, "ride.toml")
     assert err.value.problems[0].location == "course.mix[1].profile"
     assert "'../outside.csv' in ride.toml" in err.value.problems[0].message
     code = main(["submit", str(folder), "--scenario-file", "ride.toml", "--api", NOWHERE])
@@ -122,11 +122,11 @@ def test_a_profile_outside_the_folder_is_refused_by_field(
 
 def test_the_shipped_files_with_side_files_are_covered() -> None:
     # the shipped scenarios hold one with a base file and one with a measured damper table
-    assert submit._files_read(SCENARIOS, "trail_air_wet.toml") == [
+    assert scenario_folder.files_read(SCENARIOS, "trail_air_wet.toml") == [
         "trail_air_wet.toml",
         "trail_air.toml",
     ]
-    assert submit._files_read(SCENARIOS, "enduro_coil.toml") == [
+    assert scenario_folder.files_read(SCENARIOS, "enduro_coil.toml") == [
         "enduro_coil.toml",
         "enduro_shock_dyno.csv",
     ]
@@ -137,17 +137,17 @@ def test_a_scenario_in_a_subfolder_keeps_its_path(tmp_path: Path) -> None:
     shutil.copy(SCENARIOS / "trail_air.toml", tmp_path / "trail_air.toml")
     (tmp_path / "wet" / "loop.toml").write_text('base = "../trail_air.toml"\n')
     with pytest.raises(InputError) as err:
-        submit._files_read(tmp_path, "wet/loop.toml")
+        scenario_folder.files_read(tmp_path, "wet/loop.toml")
     assert "base" in str(err.value) and "'../trail_air.toml' in wet/loop.toml" in str(err.value)
     (tmp_path / "wet" / "loop.toml").write_text('base = "dry/trail_air.toml"\n')
     (tmp_path / "wet" / "dry").mkdir()
     shutil.copy(SCENARIOS / "trail_air.toml", tmp_path / "wet" / "dry" / "trail_air.toml")
-    assert submit._files_read(tmp_path, "wet/loop.toml") == [
+    assert scenario_folder.files_read(tmp_path, "wet/loop.toml") == [
         "wet/loop.toml",
         "wet/dry/trail_air.toml",
     ]
-    assert submit._choose_in_folder(tmp_path / "wet", None) == "loop.toml"
-    assert submit._choose_in_folder(tmp_path, "wet/loop.toml") == "wet/loop.toml"
+    assert scenario_folder.choose_in_folder(tmp_path / "wet", None) == "loop.toml"
+    assert scenario_folder.choose_in_folder(tmp_path, "wet/loop.toml") == "wet/loop.toml"
 
 
 @pytest.mark.parametrize(
