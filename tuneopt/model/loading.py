@@ -324,6 +324,25 @@ def _read_text(path: Path, limit: int) -> str:
 _NO_FOLDER = "names a file, but this scenario was not read from a folder; "
 
 
+def _label(name: str) -> str:
+    """A file name as a message shows it."""
+    return name if name.isprintable() and len(name) <= 80 else _shown(name)
+
+
+def _read_side_file(
+    path: Path, where: str, label: str, problems: list[FieldProblem]
+) -> str | None:
+    """The text of a file a scenario names (field ``where``); None, with the problem added,
+    when it cannot be read."""
+    try:
+        return _read_text(path.resolve(), MAX_TABLE_BYTES)
+    except OSError as exc:
+        problems.append(FieldProblem(where, f"cannot read {label}: {exc.strerror}"))
+    except ValueError as exc:  # a NUL in the name, not UTF-8, too large
+        problems.append(FieldProblem(where, f"cannot read {label}: {exc}"))
+    return None
+
+
 def _attach_tables(data: dict[str, Any], base_dir: Path | None) -> list[FieldProblem]:
     problems = []
     for end in ("fork", "shock"):
@@ -338,14 +357,9 @@ def _attach_tables(data: dict[str, Any], base_dir: Path | None) -> list[FieldPro
         if not isinstance(name, str):
             problems.append(FieldProblem(where, "must be a CSV file name next to the scenario"))
             continue
-        label = name if name.isprintable() and len(name) <= 80 else _shown(name)
-        try:
-            text = _read_text((base_dir / name).resolve(), MAX_TABLE_BYTES)
-        except OSError as exc:
-            problems.append(FieldProblem(where, f"cannot read {label}: {exc.strerror}"))
-            continue
-        except ValueError as exc:  # a NUL in the name, not UTF-8, too large
-            problems.append(FieldProblem(where, f"cannot read {label}: {exc}"))
+        label = _label(name)
+        text = _read_side_file(base_dir / name, where, label, problems)
+        if text is None:
             continue
         try:
             damper["measured"] = parse_damper_csv(text, name)
@@ -375,14 +389,9 @@ def _attach_profiles(data: dict[str, Any], base_dir: Path | None) -> list[FieldP
         if not name.strip():
             problems.append(FieldProblem(where, "must be a CSV file name next to the scenario"))
             continue
-        label = name if name.isprintable() and len(name) <= 80 else _shown(name)
-        try:
-            text = _read_text((base_dir / name).resolve(), MAX_TABLE_BYTES)
-        except OSError as exc:
-            problems.append(FieldProblem(where, f"cannot read {label}: {exc.strerror}"))
-            continue
-        except ValueError as exc:  # a NUL in the name, not UTF-8, too large
-            problems.append(FieldProblem(where, f"cannot read {label}: {exc}"))
+        label = _label(name)
+        text = _read_side_file(base_dir / name, where, label, problems)
+        if text is None:
             continue
         try:
             rows = parse_profile_text(text, source=label)

@@ -194,6 +194,19 @@ def response_table(r: ResponseCheck) -> list[Row]:
     ]
 
 
+def _ends_table(title: str, rows: list[Row]) -> Any:
+    """A terminal table of rows with a label, the front (fork) and the rear (shock)."""
+    from rich.table import Table
+
+    t = Table(title=title)
+    t.add_column("")
+    t.add_column("front (fork)", justify="right")
+    t.add_column("rear (shock)", justify="right")
+    for row in rows:
+        t.add_row(*row)
+    return t
+
+
 def print_static_check(
     name: str, c: StaticCheck, console: Any = None, response: ResponseCheck | None = None
 ) -> None:
@@ -203,13 +216,7 @@ def print_static_check(
     from rich.table import Table
 
     console = console or Console(width=max(Console().width, 90))
-    t = Table(title=f"Static check: {name}")
-    t.add_column("")
-    t.add_column("front (fork)", justify="right")
-    t.add_column("rear (shock)", justify="right")
-    for row in check_table(c):
-        t.add_row(*row)
-    console.print(t)
+    console.print(_ends_table(f"Static check: {name}", check_table(c)))
 
     g = Table(title="Geometry")
     for col in ("", "head angle", "BB height", "wheelbase"):
@@ -221,13 +228,10 @@ def print_static_check(
         console.print(line)
     findings = list(c.findings)
     if response is not None:
-        e = Table(title="Each end alone over standard inputs (quarter-car)")
-        e.add_column("")
-        e.add_column("front (fork)", justify="right")
-        e.add_column("rear (shock)", justify="right")
-        for row in response_table(response):
-            e.add_row(*row)
-        console.print(e)
+        console.print(
+            _ends_table("Each end alone over standard inputs (quarter-car)",
+                        response_table(response))
+        )
         findings += response.findings
     for f in findings:
         style = "bold red" if f.level == "error" else "yellow"
