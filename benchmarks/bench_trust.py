@@ -78,12 +78,16 @@ def _stated_gain(result: dict[str, Any]) -> tuple[float, float | None, float | N
     return -float(winner["change_vs_baseline"]["score"]), None, None
 
 
-def _fresh(scenario: Any, setups: list[Any], seeds: range) -> np.ndarray:
-    """Scores (len(seeds), len(setups)) and bottom-out flags on the fresh realisations."""
+def _fresh(
+    scenario: Any, setups: list[Any], seeds: range, terms: list[list[dict[str, float]]]
+) -> np.ndarray:
+    """Scores (len(seeds), len(setups)) and bottom-out flags on the fresh realisations; each
+    realisation's score terms per setup appended to ``terms``."""
     scores = np.full((len(seeds), len(setups)), np.nan)
     bottomed = np.zeros((len(seeds), len(setups)), dtype=bool)
     for i, s in enumerate(seeds):
         outcomes = Evaluator(scenario, seed=s, realisations=1).evaluate(setups)
+        terms.append([dict(o.terms) if o.ok else {} for o in outcomes])
         for j, o in enumerate(outcomes):
             if o.ok:
                 scores[i, j] = o.score
@@ -104,9 +108,13 @@ def _one_study(path: Path, seed: int, trials: int, fresh: int) -> dict[str, Any]
         flat = flat_settings(read_run_folder(Path(tmp) / "run").result)
     cpu_study, wall_study = _cpu_seconds() - cpu0, time.time() - wall0
     winner = result["ranked"][0]
-    setups = [space.setup(winner["indices"]), scenario.setup]
-    scores, bottomed = _fresh(scenario, setups, range(FRESH_FROM, FRESH_FROM + fresh))
-    ok = np.all(np.isfinite(scores), axis=1)
+    # the winner and the current setup, then the rest of the ranked setups (kept for analysis)
+    setups = [space.setup(winner["indices"]), scenario.setup] + [
+        space.setup(r["indices"]) for r in result["ranked"][1:]
+    ]
+    terms: list[list[dict[str, float]]] = []
+    scores, bottomed = _fresh(scenario, setups, range(FRESH_FROM, FRESH_FROM + fresh), terms)
+    ok = np.all(np.isfinite(scores[:, :2]), axis=1)
     w, c = scores[ok, 0], scores[ok, 1]
     diff = c - w  # positive: the recommendation scores lower (better)
     mean_c = float(np.mean(c))
@@ -130,6 +138,13 @@ def _one_study(path: Path, seed: int, trials: int, fresh: int) -> dict[str, Any]
         "settings": winner["settings"],
         "cpu_seconds": cpu_study,
         "wall_seconds": wall_study,
+        # for analysis: every ranked setup's study figures, and each fresh realisation's scores
+        # and terms (columns: winner, current, ranked #2 ...; NaN where a setup could not ride)
+        "ranked": [{k: r.get(k) for k in ("rank", "indices", "score", "validation")}
+                   for r in result["ranked"]],
+        "fresh_scores": [[None if not np.isfinite(v) else float(v) for v in row]
+                         for row in scores],
+        "fresh_terms": terms,
     }
 
 
