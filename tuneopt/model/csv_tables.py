@@ -11,9 +11,9 @@ from dataclasses import dataclass
 from typing import Any
 
 from tuneopt.model._quantity import parse_quantity
-from tuneopt.model.course import MAX_PROFILE_GAP, MAX_PROFILE_SPIKE, profile_problems
 from tuneopt.model.errors import FieldProblem, InputError
 from tuneopt.model.field_problems import _MAX_REPORTED, _more, _shown
+from tuneopt.model.measured_profile import MAX_PROFILE_GAP, MAX_PROFILE_SPIKE, profile_problems
 
 __all__ = ["ProfileRows", "parse_damper_csv", "parse_profile_text"]
 
@@ -113,7 +113,7 @@ def parse_profile_text(
     """Read a measured profile's CSV: a header ``distance,elevation`` or
     ``distance,elevation,speed`` (SI: m, m, m/s), then one sample per line; blank lines and lines
     starting with ``#`` are skipped. Raises InputError (``source``) listing every problem, each
-    located ``line N`` (tuneopt.model.course.profile_problems says what is checked)."""
+    located ``line N`` (tuneopt.model.measured_profile.profile_problems says what is checked)."""
     text = text.removeprefix("\ufeff")  # spreadsheets save "CSV UTF-8" with a byte-order mark
     problems: list[FieldProblem] = []
     columns: list[str] | None = None
