@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import json
 import math
-from dataclasses import asdict
+from collections.abc import Mapping
+from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any
 
@@ -12,7 +13,7 @@ import pandas as pd
 
 from tuneopt.optimise.ranking import Ranking
 
-__all__ = ["CAUTIONS", "json_safe", "result_data", "write_result"]
+__all__ = ["CAUTIONS", "RankedTable", "json_safe", "ranked_table", "result_data", "write_result"]
 
 CAUTIONS = (
     "These are simulated results from a model of the bike, the rider and the terrain; they "
@@ -53,6 +54,35 @@ def result_data(ranking: Ranking, info: dict[str, Any]) -> dict[str, Any]:
     )
 
 
+@dataclass(frozen=True)
+class RankedTable:
+    """ranked.csv of a result: one row per ranked setup, in the result's order (rank, score,
+    robustness, the settings in trade units, the metrics in SI, the trade-off), and the
+    cautions that go with the file. The file holds the rows only; the cautions travel beside
+    it in result.json, which every ranked.csv is written or served with."""
+
+    rows: tuple[dict[str, Any], ...]
+    cautions: tuple[str, ...]
+
+    def csv(self) -> str:
+        """The rows as ranked.csv's text (a header line, then a line per row)."""
+        text: str = pd.DataFrame(list(self.rows)).to_csv(index=False)
+        return text
+
+
+def ranked_table(result: Mapping[str, Any]) -> RankedTable:
+    """ranked.csv of ``result`` (result.json's data, as ``result_data`` makes it): the one
+    builder for the file a local run writes and the one the service serves."""
+    rows = []
+    for r in result["ranked"]:
+        row = {"rank": r["rank"], "score": r["score"], "robustness": r["robustness"]}
+        row.update({f"setting:{k}": v for k, v in r["settings"].items()})
+        row.update({f"metric:{k}": v for k, v in r["metrics"].items()})
+        row["tradeoff"] = r["tradeoff"]
+        rows.append(row)
+    return RankedTable(tuple(rows), tuple(result["cautions"]))
+
+
 def write_result(out: Path, ranking: Ranking, info: dict[str, Any]) -> Path:
     """Write result.json and ranked.csv atomically (a crash never leaves half a file)."""
     data = result_data(ranking, info)
@@ -60,15 +90,8 @@ def write_result(out: Path, ranking: Ranking, info: dict[str, Any]) -> Path:
     tmp = path.with_suffix(".json.tmp")
     tmp.write_text(json.dumps(data, indent=2, allow_nan=False))
     tmp.replace(path)
-    rows = []
-    for r in data["ranked"]:
-        row = {"rank": r["rank"], "score": r["score"], "robustness": r["robustness"]}
-        row.update({f"setting:{k}": v for k, v in r["settings"].items()})
-        row.update({f"metric:{k}": v for k, v in r["metrics"].items()})
-        row["tradeoff"] = r["tradeoff"]
-        rows.append(row)
     csv = out / "ranked.csv"
     tmp_csv = csv.with_suffix(".csv.tmp")
-    pd.DataFrame(rows).to_csv(tmp_csv, index=False)
+    tmp_csv.write_text(ranked_table(data).csv(), encoding="utf-8")
     tmp_csv.replace(csv)
     return path

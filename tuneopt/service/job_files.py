@@ -9,6 +9,7 @@ from typing import Any
 
 from tuneopt.model import InputError, scenario_from_data
 from tuneopt.model.errors import FieldProblem
+from tuneopt.optimise.result import ranked_table
 
 __all__ = ["Unavailable", "ranked_csv", "setup_sheets_html"]
 
@@ -42,26 +43,11 @@ def setup_sheets_html(scenario: dict[str, Any], result: dict[str, Any], rank: in
 
 def ranked_csv(result: dict[str, Any]) -> str:
     """ranked.csv as a local run writes it beside result.json (one row per ranked setup: rank,
-    score, robustness, the settings in trade units, the metrics in SI, the trade-off), made
-    with the report's export table from the result. Raises Unavailable."""
-    from tuneopt.report.exports import ranked_frame
-    from tuneopt.report.run_data import read_result
-
+    score, robustness, the settings in trade units, the metrics in SI, the trade-off), made by
+    the same builder (tuneopt.optimise.result.ranked_table). Raises Unavailable."""
     if not result.get("ranked"):
         raise Unavailable(NO_RANKED.format(what="ranked.csv"))
-    table = ranked_frame(read_result(result, "result"))
-    # the export table holds the current setup too (rank 0) and more columns (settings in SI,
-    # changes against the current setup, sag); ranked.csv has the ranked rows and these
-    columns = [
-        "rank",
-        "score",
-        "robustness",
-        *(c for c in table.columns if c.startswith("setting:")),
-        *(c for c in table.columns if c.startswith("metric:")),
-        "tradeoff",
-    ]
-    text: str = table[table["rank"] > 0][columns].to_csv(index=False)
-    return text
+    return ranked_table(result).csv()
 
 
 def _listed(ranks: list[int]) -> str:
