@@ -16,6 +16,7 @@ import subprocess
 import threading
 import time
 from collections.abc import Callable, Iterator
+from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
@@ -28,6 +29,7 @@ from tests.conftest import scenario_data
 from tuneopt.service.api import create_app
 from tuneopt.service.records import JobStore
 from tuneopt.service.settings import Settings
+from tuneopt.service.worker import make_worker
 
 
 def _free_port() -> int:
@@ -148,10 +150,30 @@ def settings(redis_client: Redis, redis_server: RedisServer, tmp_path: Path) -> 
 
 
 @pytest.fixture
+def fit_settings(redis_client: Redis, settings: Settings) -> Settings:
+    """The test settings with room for a ride log (the demo log: 790 kB) and its 400 m course,
+    for jobs with a ride log."""
+    return settings.model_copy(update={"max_body_bytes": 2_000_000, "max_course_length": 500.0})
+
+
+@pytest.fixture
+def fit_client(fit_settings: Settings) -> Iterator[TestClient]:
+    with client_for(fit_settings) as client:
+        yield client
+
+
+def client_for(settings: Settings) -> TestClient:
+    """A test client of the API made with ``settings``, sending its API key; enter it (``with``)
+    to run the app's start-up."""
+    c = TestClient(create_app(settings))  # a server error fails with its traceback
+    assert settings.api_key is not None
+    c.headers["X-API-Key"] = settings.api_key.get_secret_value()
+    return c
+
+
+@pytest.fixture
 def client(settings: Settings) -> Iterator[TestClient]:
-    with TestClient(create_app(settings)) as c:  # a server error fails with its traceback
-        assert settings.api_key is not None
-        c.headers["X-API-Key"] = settings.api_key.get_secret_value()
+    with client_for(settings) as c:
         yield c
 
 
@@ -225,3 +247,62 @@ def api(settings: Settings, monkeypatch: pytest.MonkeyPatch) -> Iterator[str]:
     finally:
         server.should_exit = True
         thread.join(timeout=10)
+
+
+# How many times the measured time to a worker's first trial (time_to_first_trial) a test gives
+# a job that must finish trials before its deadline: room for the machine's load to change
+# between the measurement and the job. Common practice, no source.
+RUN_FACTOR = 4.0
+# [s] the operator's limit on a job's time in the tests that size a job's time by measurement:
+# on a loaded machine it may be minutes (the usual 600 s would refuse it)
+MEASURED_RUN_LIMIT = 8 * 3600.0
+
+
+def time_to_first_trial(client: TestClient, settings: Settings, body: dict[str, Any]) -> float:
+    """[s] How long a worker takes, on this machine as loaded now, from its start to the first
+    trial told of a job like ``body`` with a budget of one trial (the current setup): it takes
+    the job up, makes the study, builds the course and rides one setup. Tests that need trials
+    to finish before a deadline size the deadline from this, not from a fixed second or two,
+    which a loaded machine can spend before the first ride ends.
+
+    Two such jobs run to their end, one after the other; the second is timed. The first warms
+    this process as the job under test will find it (imports, the simulator's kernels compiled
+    or loaded from their cache: minutes on a loaded machine after a kernel changed)."""
+    one = {k: v for k, v in body.items() if k not in ("deadline", "run_seconds")}
+    one.update(trials=1, shards=1, run_seconds=settings.max_run_seconds)
+    told: list[float] = []
+    report = JobStore.record_progress
+
+    def hooked(self: JobStore, *args: Any) -> None:
+        told.append(time.time())
+        report(self, *args)
+
+    for _ in range(2):
+        answer = client.post("/jobs", json=one)
+        assert answer.status_code == 202, answer.text
+        told.clear()
+        with pytest.MonkeyPatch.context() as patch:
+            patch.setattr(JobStore, "record_progress", hooked)
+            started = time.time()
+            make_worker(settings, name=f"measure-{time.monotonic_ns()}").work(burst=True)
+        assert told, client.get(f"/jobs/{answer.json()['id']}").json()
+    return told[0] - started
+
+
+def submit_shortly_before_deadline(
+    client: TestClient, body: dict[str, Any], lead: float = 1.0, offset: Any = UTC
+) -> tuple[str, float]:
+    """Submit ``body`` with a deadline ``lead`` seconds after the moment it is sent; returns
+    the job's id and the deadline (Unix seconds). On a loaded machine the submission itself may
+    take longer than the lead, and a deadline already past when the API reads it is refused (as
+    it should be): then the lead doubles and the job is sent again, up to a minute ahead."""
+    while True:
+        deadline = time.time() + lead
+        stamp = datetime.fromtimestamp(deadline, tz=UTC).astimezone(offset).isoformat()
+        answer = client.post("/jobs", json={**body, "deadline": stamp})
+        if answer.status_code == 202:
+            return str(answer.json()["id"]), deadline
+        said = {e["field"]: e["message"] for e in answer.json().get("errors", [])}
+        past = answer.status_code == 422 and "is past" in said.get("deadline", "")
+        assert past and lead < 60, answer.text
+        lead *= 2

@@ -16,10 +16,18 @@ from fastapi.testclient import TestClient
 from redis import Redis
 
 from tests.figures import record
-from tests.service.conftest import problem, small_scenario
-from tuneopt.optimise import runner
+from tests.service.conftest import (
+    MEASURED_RUN_LIMIT,
+    RUN_FACTOR,
+    client_for,
+    problem,
+    small_scenario,
+    submit_shortly_before_deadline,
+    time_to_first_trial,
+)
+from tuneopt.optimise import evaluate, runner
 from tuneopt.optimise.redis_storage import redis_storage
-from tuneopt.service import finalise
+from tuneopt.service import finalise, tasks
 from tuneopt.service.records import JobStore
 from tuneopt.service.settings import Settings
 from tuneopt.service.worker import make_worker
@@ -107,11 +115,29 @@ def _slow_scenario() -> dict[str, Any]:
 
 
 def test_a_job_that_waited_in_the_queue_stops_at_its_deadline(
-    client: TestClient, settings: Settings, monkeypatch: pytest.MonkeyPatch
+    settings: Settings, monkeypatch: pytest.MonkeyPatch
 ) -> None:
-    """Submitted with a deadline 3 s ahead while no worker runs; a worker starts 2 s later.
-    The shards stop and the finaliser starts within the stated bound of the deadline; every
-    batch was asked before the deadline."""
+    """Submitted with a deadline while no worker runs; a worker takes the job up later. The
+    shard decides every batch and every ride on a clock reading before the deadline, the
+    finaliser starts within the stated bound of it, and trials finished before it are ranked.
+
+    The times are sized on this machine as loaded now (a fixed second or two is spent before
+    the first ride ends on a loaded one): the worker starts with ``RUN_FACTOR`` times what a
+    worker took to come up and finish one trial of the same job left before the deadline, after
+    the job waited in the queue twice that (at least 2 s). Counted from the start instead, the
+    deadline would let the shard ride on for that long past it. The worker stops between two
+    setups (pieces of one setup), so a trial is told as soon as its ride ends."""
+    # the least piece (one setup); room for a deadline sized on a loaded machine
+    fine = settings.model_copy(
+        update={"piece_steps": 10_000, "max_run_seconds": MEASURED_RUN_LIMIT}
+    )
+    with client_for(fine) as client:
+        _waited_in_the_queue(client, fine, monkeypatch)
+
+
+def _waited_in_the_queue(
+    client: TestClient, fine: Settings, monkeypatch: pytest.MonkeyPatch
+) -> None:
     ranked_at: list[float] = []
     real_rank = finalise.rank_study
 
@@ -120,24 +146,51 @@ def test_a_job_that_waited_in_the_queue_stops_at_its_deadline(
         return real_rank(study, space, None, **kwargs)  # the search's own ranking, to be short
 
     monkeypatch.setattr(finalise, "rank_study", rank_quickly)
+    body = {"scenario": _slow_scenario(), "trials": 2000, "shards": 1, "batch_size": 16,
+            "realisations": 1}  # fmt: skip
+    first = time_to_first_trial(client, fine, body)
+    ranked_at.clear()
+    # the shard's clock, read where it decides: the readings on which it asked each batch and
+    # started each ride (what it read last before it); wall times of the asks for the record
+    readings: list[float] = []
+    asked_on: list[float] = []
+    rode_on: list[float] = []
     asks: list[float] = []
+
+    def clock() -> float:
+        readings.append(time.time())
+        return readings[-1]
+
+    real_shard = tasks.run_shard
+    monkeypatch.setattr(tasks, "run_shard", lambda *a, **k: real_shard(*a, **k, clock=clock))
     real_ask = runner.ask_batch
 
     def ask(*args: Any, **kwargs: Any) -> Any:
-        asks.append(time.time())  # the runner checked the deadline just before
+        asks.append(time.time())
+        asked_on.append(readings[-1])  # the runner checked the deadline on it just before
         return real_ask(*args, **kwargs)
 
     monkeypatch.setattr(runner, "ask_batch", ask)
+    real_ride = evaluate.ride_course
+
+    def ride(*args: Any, **kwargs: Any) -> Any:
+        if not ranked_at:  # the shard's rides, not the finaliser's
+            rode_on.append(readings[-1])  # the checkpoint before each ride read it
+        return real_ride(*args, **kwargs)
+
+    monkeypatch.setattr(evaluate, "ride_course", ride)
+    window = max(RUN_FACTOR * first, 1.0)  # [s] from the worker's start to the deadline
+    # [s] in the queue before a worker takes the job up: longer than a ride (one ride and the
+    # worker coming up took `first`), so rides past a deadline counted from the start show
+    wait = max(2.0 * first, 2.0)
     submitted = time.time()
-    deadline = submitted + 3.0
-    body = {"scenario": _slow_scenario(), "deadline": _iso(deadline), "trials": 2000,
-            "shards": 1, "batch_size": 16, "realisations": 1}  # fmt: skip
-    answer = client.post("/jobs", json=body)
+    deadline = submitted + wait + window
+    answer = client.post("/jobs", json={**body, "deadline": _iso(deadline)})
     assert answer.status_code == 202, answer.text
     job = answer.json()["id"]
-    time.sleep(max(submitted + 2.0 - time.time(), 0.0))
+    time.sleep(max(submitted + wait - time.time(), 0.0))
     started = time.time()
-    _work(settings)
+    _work(fine)
     status = client.get(f"/jobs/{job}").json()
     result = client.get(f"/jobs/{job}/result").json()
     assert result["stopped"] == "deadline", result["stopped"]
@@ -146,15 +199,21 @@ def test_a_job_that_waited_in_the_queue_stops_at_its_deadline(
     assert len(ranked_at) == 1
     late = ranked_at[0] - deadline
     assert 0.0 <= late <= STOP_BOUND + MARGIN, late
-    assert result["trials"]["finished"] > 0  # it ran between the start and the deadline
-    # every batch was asked before the deadline (counted from the start, as run_seconds is,
-    # the shard would have asked batches until 3 s after the worker started)
-    assert asks and max(asks) < deadline, [a - deadline for a in asks]
+    # it ran between the start and the deadline, and what it finished was ranked
+    assert result["trials"]["finished"] > 0, (first, result["trials"])
+    assert status["state"] == "done" and result["ranked"], status
+    # every batch was asked and every ride started on a reading before the deadline (counted
+    # from the start, as run_seconds is, the shard would have ridden on until `wait` after it)
+    assert asked_on and max(asked_on) < deadline, [a - deadline for a in asked_on]
+    assert rode_on and max(rode_on) < deadline, [r - deadline for r in rode_on]
     record(
-        "a job submitted with a deadline 3 s ahead, taken up by a worker 2 s later (batches "
-        "of 16 setups riding 100 m at walking pace)",
+        f"a job submitted with a deadline {wait + window:.1f} s ahead, taken up by a worker "
+        f"{wait:.1f} s later ({RUN_FACTOR:g} times the {first:.2f} s a worker took to come up "
+        "and finish one trial; batches of 16 setups riding 100 m at walking pace)",
         f"its shard stopped and the finaliser started {late:.2f} s after the deadline; "
-        f"its last batch asked {deadline - max(asks):.2f} s before it",
+        f"{result['trials']['finished']} trials finished; its last batch asked "
+        f"{deadline - max(asks):.2f} s and its last ride started "
+        f"{deadline - max(rode_on):.2f} s before it",
         "pytest tests/service/test_deadline.py -k waited",
     )
 
@@ -162,12 +221,9 @@ def test_a_job_that_waited_in_the_queue_stops_at_its_deadline(
 def test_a_job_taken_up_after_its_deadline_is_finalised_at_once(
     client: TestClient, settings: Settings
 ) -> None:
-    deadline = time.time() + 1.0
-    body = {"scenario": _slow_scenario(), "deadline": _iso(deadline), "trials": 2000,
-            "shards": 2, "batch_size": 16, "realisations": 1}  # fmt: skip
-    answer = client.post("/jobs", json=body)
-    assert answer.status_code == 202, answer.text
-    job = answer.json()["id"]
+    body = {"scenario": _slow_scenario(), "trials": 2000, "shards": 2, "batch_size": 16,
+            "realisations": 1}  # fmt: skip
+    job, deadline = submit_shortly_before_deadline(client, body, offset=PLUS_TWO)
     time.sleep(max(deadline + 0.5 - time.time(), 0.0))
     _work(settings)
     status = client.get(f"/jobs/{job}").json()

@@ -8,13 +8,12 @@ from __future__ import annotations
 import html
 import io
 import time
-from datetime import UTC, datetime
 from pathlib import Path
 
 import pandas as pd
 from fastapi.testclient import TestClient
 
-from tests.service.conftest import problem, small_scenario
+from tests.service.conftest import problem, small_scenario, submit_shortly_before_deadline
 from tuneopt.model import scenario_from_data
 from tuneopt.optimise import StudyPlan, run_local, start_run
 from tuneopt.service.api import create_app
@@ -104,10 +103,8 @@ def test_a_job_that_ended_without_a_ridable_setup_has_no_sheet_nor_ranked_csv(
 ) -> None:
     """A job taken up after its deadline ranks nothing: its result is there, the files are
     not (409 saying why)."""
-    deadline = time.time() + 1.0
-    body = {"scenario": small_scenario(), "trials": 8,
-            "deadline": datetime.fromtimestamp(deadline, tz=UTC).isoformat()}  # fmt: skip
-    job = client.post("/jobs", json=body).json()["id"]
+    body = {"scenario": small_scenario(), "trials": 8}
+    job, deadline = submit_shortly_before_deadline(client, body)
     time.sleep(max(deadline + 0.3 - time.time(), 0.0))
     _work(settings)
     assert client.get(f"/jobs/{job}/result").json()["ranked"] == []

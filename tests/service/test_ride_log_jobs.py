@@ -14,7 +14,6 @@ import json
 import threading
 import time
 import tomllib
-from collections.abc import Iterator
 from datetime import datetime
 from pathlib import Path
 from typing import Any
@@ -45,20 +44,6 @@ KNOBS = 15
 # loaded machine (a functional bound, not a speed figure)
 STOP_BOUND = 10.0
 MARGIN = 20.0
-
-
-@pytest.fixture
-def fit_settings(redis_client: Redis, settings: Settings) -> Settings:
-    """The test settings with room for the demo log (790 kB) and its 400 m course."""
-    return settings.model_copy(update={"max_body_bytes": 2_000_000, "max_course_length": 500.0})
-
-
-@pytest.fixture
-def fit_client(fit_settings: Settings) -> Iterator[TestClient]:
-    with TestClient(create_app(fit_settings)) as client:
-        assert fit_settings.api_key is not None
-        client.headers["X-API-Key"] = fit_settings.api_key.get_secret_value()
-        yield client
 
 
 def _work(settings: Settings, max_jobs: int | None = None) -> None:
