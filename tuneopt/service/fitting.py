@@ -7,6 +7,15 @@ search, the fitted course built once, a step either way of every fitted number, 
 Before every simulated ride of the fit the part checks for a cancel, a delete, the job's
 deadline and its worker being asked to stop; one ride costs at most what one setup may
 (``TUNEOPT_MAX_SAMPLES_PER_SETUP``, checked at submission), so stops act within a ride.
+
+A course may hold measured profiles (sent as side files, or inline): as in ``tuneopt fit``
+they are ridden as measured by every candidate and keep their entries and shares, and only the
+built-in entries are fitted. The fitted scenario carries each profile's samples inline, so that
+the one file GET /jobs/<id>/fit/scenario serves is the whole scenario: sent back as it is (a
+scenario file, no side files) or read by ``tuneopt optimise`` it rides the same profiles. That
+file must stay within what the loader reads of a scenario file (MAX_SCENARIO_BYTES): a course
+whose profiles would make it larger is refused at submission (``fit_course_problems``), and
+checked again on the text written.
 """
 
 from __future__ import annotations
@@ -23,6 +32,8 @@ from rq import Queue, Retry
 from rq.job import Callback, Job
 
 from tuneopt.model import InputError, Scenario, Setup, scenario_from_data
+from tuneopt.model.errors import FieldProblem
+from tuneopt.model.loading import MAX_SCENARIO_BYTES
 from tuneopt.service import tasks
 from tuneopt.service.logs import event
 from tuneopt.service.records import JobRecord, JobState, JobStore, is_job_id
@@ -33,12 +44,70 @@ if TYPE_CHECKING:
     from tuneopt.model.course import CourseSpec
     from tuneopt.ridelog import RideLog
 
-__all__ = ["FIT_PROGRESS_SECONDS", "enqueue_fit", "fit_job"]
+__all__ = ["FIT_PROGRESS_SECONDS", "enqueue_fit", "fit_course_problems", "fit_job"]
 
 log = logging.getLogger(__name__)
 
 # the fit's progress is written to the job's record at most this often [s]
 FIT_PROGRESS_SECONDS = 1.0
+
+
+# [B] what the fitted scenario's file holds besides its data, allowed for when its size is
+# checked at submission: the header (the job, the log's name, the distances and the cautions:
+# about 700 B with usual names) and the fitted numbers' digits. The text written is checked
+# again, exactly.
+FITTED_HEADER_ROOM = 2_000
+
+
+def _fitted_text(submitted: dict[str, Any], course: CourseSpec, header: Sequence[str]) -> str:
+    """The fitted scenario's file: the job's scenario with ``course`` as its [course], every
+    measured profile inline."""
+    from tuneopt.report import toml_text
+    from tuneopt.report.fit_scenario import course_table
+
+    return toml_text({**submitted, "course": course_table(course)}, header)
+
+
+def _too_large(size: int, course: CourseSpec, prefix: str) -> list[FieldProblem]:
+    """The problems of a fitted scenario's file of ``size`` bytes, by the measured profiles
+    that make it large; none when the loader reads it."""
+    if size <= MAX_SCENARIO_BYTES:
+        return []
+    why = (
+        f"a course fit hands back the scenario with the course's measured profiles inline, as "
+        f"one file to send back or run as it is; with this course that file would be about "
+        f"{size / 1e6:.2f} MB, above the {MAX_SCENARIO_BYTES / 1e6:g} MB a scenario file may "
+        "hold"
+    )
+    measured = [(i, e.profile) for i, e in enumerate(course.mix) if e.profile is not None]
+    if not measured:
+        return [FieldProblem(f"{prefix}scenario", why)]
+    return [
+        FieldProblem(
+            f"{prefix}scenario.course.mix[{i}].profile",
+            f"{why}; this profile's {len(profile.distance)} samples are part of it: send a "
+            "shorter profile (or fewer), or the job without the ride log",
+        )
+        for i, profile in measured
+    ]
+
+
+def fit_course_problems(scenario: Scenario) -> list[FieldProblem]:
+    """What the service's course fit cannot take of ``scenario``'s course, checked when a job
+    with a ride log is submitted, by field: a course of measured profiles only (nothing to fit:
+    InputError), or one whose fitted scenario's file would be larger than the loader reads."""
+    from tuneopt.calibrate import fit_space
+
+    course = scenario.course
+    assert course is not None  # checked before the fit's options
+    try:
+        space = fit_space(course)
+    except InputError as exc:
+        raise InputError(
+            [FieldProblem(f"scenario.{p.location}", p.message) for p in exc.problems]
+        ) from None
+    text = _fitted_text(scenario.model_dump(mode="json"), space.course(space.x0), ())
+    return _too_large(len(text.encode("utf-8")) + FITTED_HEADER_ROOM, course, "")
 
 
 class _FitStopped(Exception):
@@ -160,9 +229,7 @@ def _fit(
     from tuneopt.calibrate.fit import FAILED_SCORE, knob_checks
     from tuneopt.calibrate.summary import fit_json, fit_lines, parameter_rows
     from tuneopt.optimise import CAUTIONS
-    from tuneopt.report import toml_text
     from tuneopt.report.fit_page import fit_page
-    from tuneopt.report.fit_scenario import course_table
     from tuneopt.ridelog import parse_ride_log
     from tuneopt.ridelog.convert import fork_full_travel, rear_full_travel
     from tuneopt.terrain import build_course
@@ -217,7 +284,10 @@ def _fit(
         "Before you ride:",
         *[f"- {c}" for c in CAUTIONS],
     ]
-    text = toml_text({**submitted, "course": course_table(result.fitted)}, header)
+    text = _fitted_text(submitted, result.fitted, header)
+    too_large = _too_large(len(text.encode("utf-8")), result.fitted, "fitted ")
+    if too_large:
+        raise InputError(too_large, "the fitted scenario")
     fitted = scenario_from_data(tomllib.loads(text), "the fitted scenario")
     assert fitted.course is not None
     too_costly = _cost_problems(

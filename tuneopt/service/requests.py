@@ -303,24 +303,14 @@ def _fit_options(
     """The course fit's options, within the operator's limits, and what it needs of the log
     (read and checked here: InputError naming ``ride_log`` with the log's lines)."""
     from tuneopt.calibrate import fit_space
+    from tuneopt.service.fitting import fit_course_problems
 
-    measured = [i for i, e in enumerate(course.mix) if e.profile is not None]
-    if measured:  # the fit sets terrain types' numbers; a measured profile has none
-        raise InputError(
-            [
-                FieldProblem(
-                    f"scenario.course.mix[{i}].profile",
-                    "a course fit to a ride log fits terrain types, not a measured profile: "
-                    "send the job without the ride log, or the course without the profile",
-                )
-                for i in measured
-            ]
-        )
+    # measured profiles are ridden as measured and handed back inline (service/fitting.py)
+    problems = fit_course_problems(scenario)
     budget = request.fit_budget
     if budget is None:
         budget = min(DEFAULT_FIT_BUDGET, settings.max_fit_rides)
     realisations = request.fit_realisations or DEFAULT_FIT_REALISATIONS
-    problems = []
     if budget > settings.max_fit_rides:
         problems.append(
             FieldProblem(
