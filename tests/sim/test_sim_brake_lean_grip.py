@@ -119,10 +119,10 @@ def _accumulate(loads: np.ndarray, static_load: float, mu: float, pd2: float,
     acc = np.zeros((1, c.W_FIELDS))
     c.init_wheel_acc(acc, 0)
     row = acc[0]
-    hist = np.zeros(c.HIST_BINS)
+    hist = np.zeros((1, c.HIST_BINS))
     caps = np.empty(loads.shape[0])
     for k, load in enumerate(loads):
-        c.accumulate_wheel(row, 0, hist, k, load, 0.03, 0.0, 0.01, 0.15, 0.03, static_load,
+        c.accumulate_wheel(row, 0, hist, 0, k, load, 0.03, 0.0, 0.01, 0.15, 0.03, static_load,
                            c.HIST_LOW, 1e-4, phase, False, demand, load, mu, pd2, relax[k])
         caps[k] = row[c.WheelAcc.CAPACITY]
     return np.concatenate((row, caps))

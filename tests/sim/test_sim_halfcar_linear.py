@@ -17,6 +17,7 @@ from sim_setups import half_car
 
 from tuneopt.sim import RoadInput, simulate_halfcar
 from tuneopt.sim import halfcar as hc
+from tuneopt.sim._halfcar_rows import ROAD_CHANNELS
 
 
 def _linear_model(params):  # type: ignore[no-untyped-def]
@@ -92,11 +93,11 @@ def test_rhs_jacobian_matches_hand_built_linear_model() -> None:
             params.rear.damper_force,
         )
     ]
-    zero = np.zeros(4)
-    y0 = hc._initial_state(p, 0.0, 0.0)
+    level = (np.zeros(4),) * ROAD_CHANNELS  # level ground, no braking or cornering
+    y0 = hc._start(p, level)
 
     def rhs(y: np.ndarray) -> np.ndarray:
-        return hc._rhs_at_time(0.0, y, (zero,) * 6, 1e-3, p, tuple(tabs))
+        return hc._rhs_at_time(0.0, y, level, 1e-3, p, tuple(tabs))
 
     assert np.max(np.abs(rhs(y0))) < 1e-9  # static equilibrium
     jac = np.zeros((12, 12))

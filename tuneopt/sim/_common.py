@@ -246,12 +246,13 @@ def weigh_hit(
 
 @njit(cache=True, error_model=ERRORS, inline="always")
 def accumulate_wheel(
-    acc: FloatArray, off: int, hist: FloatArray, k: int, load: float, travel: float,
+    acc: FloatArray, off: int, hist: FloatArray, row: int, k: int, load: float, travel: float,
     travel_rate: float, tyre_defl: float, full_travel: float, rim_defl: float, static_load: float,
     hist_low: float, hist_width: float, braking: bool, cornering: bool, demand: float,
     ground_load: float, mu: float, pd2: float, relax: float,
 ) -> None:
-    """Add one sample of one wheel.
+    """Add one sample k of one wheel: its accumulator block at off, its travel histogram hist's
+    row (hist (ends, bins): indexing the row in place keeps the loop free of array views).
 
     load: tyre force in the bike's plane [N]; travel [m] and travel_rate [m/s] (compression
     positive); tyre deflection [m]; demand: the force the phase asks of this tyre along the
@@ -298,7 +299,7 @@ def accumulate_wheel(
     acc[off + WheelAcc.SUM_S] += travel
     if travel > acc[off + WheelAcc.S_MAX]:
         acc[off + WheelAcc.S_MAX] = travel
-    nb = hist.shape[0]
+    nb = hist.shape[1]
     u = (travel + hist_low) / hist_width
     if u < 0.0:
         j = 0
@@ -306,7 +307,7 @@ def accumulate_wheel(
         j = nb - 1
     else:
         j = int(u)
-    hist[j] += 1.0
+    hist[row, j] += 1.0
     # grip capacity through the relaxation-length lag
     steady = grip_capacity(ground_load, static_load, mu, pd2)
     cap = acc[off + WheelAcc.CAPACITY]

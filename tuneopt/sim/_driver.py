@@ -1,19 +1,48 @@
-"""Pieces both models' drivers share: the road between samples, trace sizing, the static
-failure test and the solve_ivp reference loop."""
+"""What both models' drivers share: the fixed-step RK4 loop over a batch, the replay of given
+states through the metric accumulation, the right-hand side at any time for solve_ivp and the
+solve_ivp reference loop; on the Python side the batch's working arrays, the kernel call, the
+traces and the wheels' metrics.
+
+A model hands its compiled pieces to the loops (numba specialises a loop on the functions it is
+given and inlines them, so the calls cost what the code written out in place would):
+
+    inputs(road, i, j, w) -> r        what the right-hand side reads of the road (a tuple), at
+                                      weight w from sample i towards sample j
+    rhs(y, r, p, tabs, dy, out)       the derivative dy of the states y and the sample's output
+                                      channels (out[:-1]) with the road r at that time
+    record(k, y, dy, out, road, p, acc, hist, sos, zi) -> failure code
+                                      checks and metrics of sample k (y, dy finite); writes the
+                                      weighted acceleration into out's last slot for the trace
+    start(p, road) -> y               the initial state
+    close(acc)                        what is still open at the end of the run
+    rows(tables, b) -> tabs           one setup's table rows
+
+p is the setup's parameter row, tabs its tables, road the model's tuple of channels (each
+(N,), one type: see ``channels``).
+"""
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from typing import Any, Unpack
 
 import numpy as np
-from numba import njit
+from numba import njit, prange
 from numpy.typing import NDArray
 from scipy.integrate import solve_ivp
 
 from tuneopt.sim import _common as c
+from tuneopt.sim._wheel import End
+from tuneopt.sim.iso2631 import weighting_sos
+from tuneopt.sim.metrics import WheelMetrics, wheel_metrics
+from tuneopt.sim.params import ReferenceOptions, WheelEnd
 from tuneopt.sim.road import RoadInput
 
 FloatArray = NDArray[np.float64]
+Channels = tuple[FloatArray, ...]
+# A wheel end of a model: its block's offset in the parameter row and in the accumulator row.
+EndSlot = tuple[int, int]
 
 
 @njit(cache=True, error_model=c.ERRORS, inline="always")
@@ -27,17 +56,6 @@ def road_position(t: float, dt: float, n: int) -> tuple[int, float]:
     if i < 0:
         i = 0
     return i, u - i
-
-
-@njit(cache=True, error_model=c.ERRORS, inline="always")
-def rk4_stage(st: int, k: int, dt: float) -> tuple[int, float, float]:
-    """Where RK4 stage st of the step from sample k takes the road and its state: the sample
-    j1 the road moves towards, the weight wt of that move, and the step [s] from the state."""
-    if st == 0:
-        return k, 0.0, 0.0
-    if st < 3:
-        return k + 1, 0.5, 0.5 * dt
-    return k + 1, 1.0, dt
 
 
 @njit(cache=True, error_model=c.ERRORS, inline="always")
@@ -56,6 +74,112 @@ def rk4_update(y: FloatArray, kk: FloatArray, dt: float, n: int) -> None:
         y[i] += dt / 6.0 * (kk[0, i] + 2.0 * kk[1, i] + 2.0 * kk[2, i] + kk[3, i])
 
 
+@njit(error_model=c.ERRORS, inline="always")
+def _keep(k: int, out: FloatArray, trace: FloatArray, every: int) -> None:
+    """Sample k's output channels into the trace, every `every` samples."""
+    if trace.shape[1] > 0 and k % every == 0:
+        j = k // every
+        for ch in range(out.shape[0]):
+            trace[ch, j] = out[ch]
+
+
+@njit(error_model=c.ERRORS, inline="always")
+def rk4_batch(
+    inputs: Any, rhs: Any, record: Any, start: Any, close: Any, rows: Any, ns: int, n_trace: int,
+    P: FloatArray, tables: Any, road: Channels, dt: float, sos: FloatArray, acc: FloatArray,
+    hist: FloatArray, fail: NDArray[np.int64], trace: FloatArray, every: int,
+) -> None:
+    """RK4 at the road's sample spacing dt [s] over the batch: P (B, n_par) parameter rows,
+    tables the model's (rows picks a setup's), road its channels, sos the weighting filter; acc,
+    hist, fail and trace (B, n_trace, M) filled in place. ns states, n_trace output slots (the
+    channels and the weighted acceleration)."""
+    n = road[0].shape[0]
+    for b in prange(P.shape[0]):
+        if fail[b] != 0:
+            continue
+        p = P[b]
+        tabs = rows(tables, b)
+        y = start(p, road)
+        kk = np.empty((4, ns))
+        tmp = np.empty(ns)
+        out = np.empty(n_trace)
+        zi = np.zeros((sos.shape[0], 2))
+        acc_b = acc[b]
+        hist_b = hist[b]
+        trace_b = trace[b]
+        h = dt
+        for k in range(n):
+            # stage 0 at sample k: its derivative is also the sample's record
+            rhs(y, inputs(road, k, k, 0.0), p, tabs, kk[0], out)
+            if not c.all_finite(y, kk[0], ns):
+                fail[b] = c.FAIL_NON_FINITE
+                break
+            code = record(k, y, kk[0], out, road, p, acc_b, hist_b, sos, zi)
+            if code != 0:
+                fail[b] = code
+                break
+            _keep(k, out, trace_b, every)
+            if k == n - 1:
+                break
+            # the road at the midpoint (stages 1 and 2 share it) and at sample k + 1
+            mid = inputs(road, k, k + 1, 0.5)
+            for st in range(1, 3):
+                rk4_stage_state(tmp, y, kk, st, 0.5 * h, ns)
+                rhs(tmp, mid, p, tabs, kk[st], out)
+            rk4_stage_state(tmp, y, kk, 3, h, ns)
+            rhs(tmp, inputs(road, k, k + 1, 1.0), p, tabs, kk[3], out)
+            rk4_update(y, kk, h, ns)
+        close(acc_b)
+
+
+@njit(error_model=c.ERRORS, inline="always")
+def replay(
+    inputs: Any, rhs: Any, record: Any, close: Any, n_trace: int, Y: FloatArray, road: Channels,
+    p: FloatArray, tabs: Any, sos: FloatArray, acc: FloatArray, hist: FloatArray,
+    trace: FloatArray, every: int,
+) -> int:
+    """Accumulate one setup's metrics from given states Y (N, states) at the sample times;
+    returns a failure code."""
+    ns = Y.shape[1]
+    dy = np.empty(ns)
+    out = np.empty(n_trace)
+    zi = np.zeros((sos.shape[0], 2))
+    code = 0
+    y = np.empty(ns)
+    for k in range(Y.shape[0]):
+        for i in range(ns):
+            y[i] = Y[k, i]
+        rhs(y, inputs(road, k, k, 0.0), p, tabs, dy, out)
+        if not c.all_finite(y, dy, ns):
+            code = c.FAIL_NON_FINITE
+            break
+        code = record(k, y, dy, out, road, p, acc, hist, sos, zi)
+        if code != 0:
+            break
+        _keep(k, out, trace, every)
+    close(acc)
+    return code
+
+
+@njit(error_model=c.ERRORS, inline="always")
+def rhs_at_time(
+    inputs: Any, rhs: Any, n_trace: int, t: float, y: FloatArray, road: Channels, dt: float,
+    p: FloatArray, tabs: Any,
+) -> FloatArray:
+    """The same equations at any time t [s], the road linear between samples (for solve_ivp)."""
+    i, f = road_position(t, dt, road[0].shape[0])
+    dy = np.empty(y.shape[0])
+    out = np.empty(n_trace)
+    rhs(y, inputs(road, i, i + 1, f), p, tabs, dy, out)
+    return dy
+
+
+def channels(*arrays: FloatArray) -> Channels:
+    """A model's road channels as the kernels take them: all of one type (C-contiguous,
+    writeable float64), copied only where one is not already."""
+    return tuple(np.require(a, np.float64, ("C", "W")) for a in arrays)
+
+
 def trace_layout(samples: int, trace_every: int | None) -> tuple[int, int]:
     """Trace stride and number of kept samples (0 without traces)."""
     every = int(trace_every) if trace_every else 1
@@ -68,31 +192,124 @@ def static_failures(static_travel: FloatArray, travel: FloatArray, grid_start: f
     return ~((static_travel <= travel) & (static_travel >= grid_start))
 
 
-def solve_reference(
-    road: RoadInput,
-    fail: NDArray[np.int64],
-    setup: Callable[[int], tuple[Callable[[float, FloatArray], FloatArray], FloatArray]],
-    replay: Callable[[int, FloatArray], int],
-    *,
-    rtol: float,
-    atol: float,
-    max_step: float | None,
-    method: str,
-) -> None:
-    """Integrate each setup b not yet failed with solve_ivp and replay its states.
+@dataclass(frozen=True)
+class Batch:
+    """A batch's inputs and working arrays as the kernels take them: P (B, n_par) parameter
+    rows, tables (each (B, K)), road the channels (each (N,)), sos the weighting filter; acc
+    (B, n_acc), hist (B, ends, bins), fail (B,) and trace (B, n_trace, M, every `every`
+    samples) filled in place; ends the wheel ends' blocks, in the order of hist's second axis."""
 
-    setup(b) gives the right-hand side fun(t, y) and the initial state; replay(b, Y) runs the
-    metric accumulation over the states Y (N, states) at the sample times and returns a failure
-    code, stored in fail[b] (a solver that stops early stores FAIL_NON_FINITE).
+    ends: tuple[EndSlot, ...]
+    P: FloatArray
+    tables: tuple[FloatArray, ...]
+    road: Channels
+    sos: FloatArray
+    acc: FloatArray
+    hist: FloatArray
+    fail: NDArray[np.int64]
+    trace: FloatArray
+    every: int
+
+    @property
+    def size(self) -> int:
+        return int(self.P.shape[0])
+
+    def tables_of(self, b: int) -> tuple[FloatArray, ...]:
+        """Setup b's table rows."""
+        return tuple(t[b] for t in self.tables)
+
+
+def prepare_batch(
+    P: FloatArray, road_channels: Channels, road: RoadInput, ends: Sequence[EndSlot],
+    wheels: Sequence[WheelEnd], n_acc: int, n_trace: int, trace_every: int | None,
+) -> Batch:
+    """The working arrays for parameter rows P and their wheel ends: setups whose static travel
+    is off an end's table fail at once; the wheels' accumulator blocks start as they must."""
+    bsz = P.shape[0]
+    fail = np.zeros(bsz, dtype=np.int64)
+    acc = np.zeros((bsz, n_acc))
+    for (o, a), wheel in zip(ends, wheels, strict=True):
+        fail[static_failures(P[:, o + End.S0], wheel.travel, wheel.travel_grid[0])] = (
+            c.FAIL_STATIC
+        )
+        c.init_wheel_acc(acc, a)
+    every, m = trace_layout(road.samples, trace_every)
+    tables = tuple(
+        np.ascontiguousarray(t, dtype=np.float64)
+        for wheel in wheels for t in (wheel.spring_force, wheel.damper_force)
+    )
+    return Batch(
+        ends=tuple(ends), P=P, tables=tables, road=road_channels,
+        sos=weighting_sos("Wk", 1.0 / road.dt), acc=acc,
+        hist=np.zeros((bsz, len(ends), c.HIST_BINS)), fail=fail,
+        trace=np.zeros((bsz, n_trace, m)), every=every,
+    )
+
+
+def run_batch(kernel: Callable[..., None], batch: Batch, dt: float) -> None:
+    """Call a model's RK4 kernel on the batch (no more threads than setups)."""
+    with c.kernel_threads(batch.size):
+        kernel(batch.P, batch.tables, batch.road, dt, batch.sos, batch.acc, batch.hist,
+               batch.fail, batch.trace, batch.every)
+
+
+def traces(batch: Batch, dt: float) -> tuple[FloatArray, FloatArray]:
+    """Time of the kept samples (M,) [s] and the traces (B, n_trace, M), NaN for failed setups."""
+    tr = batch.trace.copy()
+    tr[batch.fail != 0] = np.nan
+    return np.arange(tr.shape[2], dtype=np.float64) * (batch.every * dt), tr
+
+
+def wheel_results(
+    batch: Batch, road: RoadInput, n_brake: FloatArray, n_corner: FloatArray
+) -> list[WheelMetrics]:
+    """Each end's WheelMetrics from its accumulator block and histogram."""
+    P, failed = batch.P, batch.fail != 0
+    return [
+        wheel_metrics(batch.acc, a, batch.hist[:, i], road.samples, road.dt,
+                      P[:, o + End.F_STATIC], P[:, o + End.S0], P[:, o + End.HIST_W], n_brake,
+                      n_corner, failed)
+        for i, (o, a) in enumerate(batch.ends)
+    ]
+
+
+def solve_reference(
+    batch: Batch,
+    road: RoadInput,
+    rhs_at_time: Callable[..., FloatArray],
+    start: Callable[[FloatArray, Channels], FloatArray],
+    replay: Callable[..., int],
+    **options: Unpack[ReferenceOptions],
+) -> None:
+    """Integrate each setup not yet failed with solve_ivp and replay its states.
+
+    rhs_at_time(t, y, road, dt, p, tabs) is the model's right-hand side at any time, start(p,
+    road) its initial state and replay(Y, road, p, tabs, sos, acc, hist, trace, every) its
+    metric accumulation over the states Y (N, states) at the sample times, returning a failure
+    code, stored in the batch's fail (a solver that stops early stores FAIL_NON_FINITE).
     """
+    unknown = sorted(set(options) - ReferenceOptions.__optional_keys__)
+    if unknown:
+        raise TypeError(f"unknown solver option(s) {', '.join(unknown)}; known: rtol, atol, "
+                        "max_step, method")
+    max_step = options.get("max_step")
     t = np.arange(road.samples) * road.dt
-    for b in range(fail.shape[0]):
+    fail = batch.fail
+    for b in range(batch.size):
         if fail[b] != 0:
             continue
-        fun, y0 = setup(b)
-        sol = solve_ivp(fun, (0.0, t[-1]), y0, method=method, t_eval=t, rtol=rtol, atol=atol,
+        p, tabs = batch.P[b], batch.tables_of(b)
+
+        def fun(tt: float, yy: FloatArray, p: FloatArray = p,
+                tabs: tuple[FloatArray, ...] = tabs) -> FloatArray:
+            return rhs_at_time(tt, yy, batch.road, road.dt, p, tabs)
+
+        sol = solve_ivp(fun, (0.0, t[-1]), start(p, batch.road),
+                        method=options.get("method", "RK45"), t_eval=t,
+                        rtol=options.get("rtol", 1e-8), atol=options.get("atol", 1e-10),
                         max_step=max_step if max_step is not None else road.dt)
         if sol.status != 0 or sol.y.shape[1] != t.shape[0]:
             fail[b] = c.FAIL_NON_FINITE
             continue
-        fail[b] = replay(b, np.ascontiguousarray(sol.y.T))
+        fail[b] = int(replay(np.ascontiguousarray(sol.y.T), batch.road, p, tabs, batch.sos,
+                             batch.acc[b], batch.hist[b], batch.trace[b], batch.every))

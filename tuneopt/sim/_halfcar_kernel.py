@@ -1,11 +1,12 @@
 """The half-car's compiled kernels: the right-hand side of its equations (see
-``tuneopt.sim.halfcar``'s module docstring), the per-sample checks and metric accumulation, the
-fixed-step RK4 loop over a batch, and the pieces the ``solve_ivp`` reference driver calls."""
+``tuneopt.sim.halfcar``'s module docstring) and the per-sample checks and metric accumulation,
+handed to the shared drivers of ``tuneopt.sim._driver`` for the fixed-step RK4 loop over a batch
+and the pieces the ``solve_ivp`` reference calls."""
 
 from __future__ import annotations
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 from numpy.typing import NDArray
 
 from tuneopt.sim import _common as c
@@ -18,6 +19,7 @@ from tuneopt.sim._halfcar_rows import (
     _F,
     _NOUT,
     _NS,
+    _NTRACE,
     _R,
     _RUNAWAY_COUPLING,
     KICK_DEPTH,
@@ -28,6 +30,9 @@ from tuneopt.sim._halfcar_rows import (
 from tuneopt.sim._wheel import End
 
 FloatArray = NDArray[np.float64]
+Channels = tuple[FloatArray, ...]
+Tables = tuple[FloatArray, FloatArray, FloatArray, FloatArray]
+Inputs = tuple[float, float, float, float, float, float]
 
 
 @njit(cache=True, error_model=c.ERRORS, inline="always")
@@ -40,11 +45,21 @@ def _suspension(
 
 
 @njit(cache=True, error_model=c.ERRORS, inline="always")
+def _inputs(road: Channels, i: int, j: int, w: float) -> Inputs:
+    """The road heights and rates, deceleration and lateral acceleration at weight w from
+    sample i towards sample j."""
+    zf, zfd, zr, zrd, dec, lat, _, _ = road
+    return (zf[i] + w * (zf[j] - zf[i]), zfd[i] + w * (zfd[j] - zfd[i]),
+            zr[i] + w * (zr[j] - zr[i]), zrd[i] + w * (zrd[j] - zrd[i]),
+            dec[i] + w * (dec[j] - dec[i]), lat[i] + w * (lat[j] - lat[i]))
+
+
+@njit(cache=True, error_model=c.ERRORS, inline="always")
 def _rhs(
-    y: FloatArray, zf: float, zfd: float, zr: float, zrd: float, a: float, ay: float,
-    p: FloatArray, sf: FloatArray, df: FloatArray, sr: FloatArray, dr: FloatArray, dy: FloatArray,
-    out: FloatArray,
+    y: FloatArray, r: Inputs, p: FloatArray, tabs: Tables, dy: FloatArray, out: FloatArray
 ) -> None:
+    sf, df, sr, dr = tabs
+    zf, zfd, zr, zrd, a, ay = r
     lwb = p[Par.L]
     xc = p[Par.X_C]
     xd = p[Par.X_D]
@@ -130,14 +145,15 @@ def _demand(fx: float, fy: float) -> float:
 
 @njit(cache=True, error_model=c.ERRORS, inline="always")
 def _record(
-    k: int, y: FloatArray, dy: FloatArray, out: FloatArray, zf: float, zr: float, a: float,
-    ay: float, mu: float, relax_f: float, relax_r: float, p: FloatArray, acc: FloatArray,
-    hist_f: FloatArray, hist_r: FloatArray, sos: FloatArray, zi: FloatArray, trace: FloatArray,
-    every: int,
+    k: int, y: FloatArray, dy: FloatArray, out: FloatArray, road: Channels, p: FloatArray,
+    acc: FloatArray, hist: FloatArray, sos: FloatArray, zi: FloatArray,
 ) -> int:
-    """Checks, metric accumulation and trace for sample k (derivative and outputs given)."""
-    if not c.all_finite(y, dy, _NS):
-        return c.FAIL_NON_FINITE
+    """Checks and metric accumulation of sample k (derivative and outputs given)."""
+    # the sample's values read at once: an array of the road held across the branches below
+    # would be reference-counted on every sample
+    zf_, _, zr_, _, dec, lat, rf_, rr_ = road
+    zf, zr, a, ay, relax_f, relax_r = zf_[k], zr_[k], dec[k], lat[k], rf_[k], rr_[k]
+    mu = p[Par.MU]
     if _is_runaway(p, out):
         return c.FAIL_RUNAWAY
     braking = a > c.BRAKING_THRESHOLD
@@ -147,14 +163,14 @@ def _record(
     upright = 1.0 if ay == 0.0 else c.GRAVITY / np.sqrt(c.GRAVITY * c.GRAVITY + ay * ay)
     demand = _demand(p[_F + End.BRAKE_SHARE] * m_tot * a, p[_F + End.LAT_SHARE] * m_tot * ay)
     c.accumulate_wheel(
-        acc, _ACC_F, hist_f, k, out[Out.LOAD_F], out[Out.TRAVEL_F], out[Out.RATE_F],
+        acc, _ACC_F, hist, 0, k, out[Out.LOAD_F], out[Out.TRAVEL_F], out[Out.RATE_F],
         out[Out.DEFL_F], p[_F + End.TRAVEL], p[_F + End.D_RIM], p[_F + End.F_STATIC], c.HIST_LOW,
         p[_F + End.HIST_W], braking, cornering, demand, out[Out.LOAD_F] * upright,
         mu * p[_F + End.MU_FACTOR], p[_F + End.PD2], relax_f,
     )
     demand = _demand(p[_R + End.BRAKE_SHARE] * m_tot * a, p[_R + End.LAT_SHARE] * m_tot * ay)
     c.accumulate_wheel(
-        acc, _ACC_R, hist_r, k, out[Out.LOAD_R], out[Out.TRAVEL_R], out[Out.RATE_R],
+        acc, _ACC_R, hist, 1, k, out[Out.LOAD_R], out[Out.TRAVEL_R], out[Out.RATE_R],
         out[Out.DEFL_R], p[_R + End.TRAVEL], p[_R + End.D_RIM], p[_R + End.F_STATIC], c.HIST_LOW,
         p[_R + End.HIST_W], braking, cornering, demand, out[Out.LOAD_R] * upright,
         mu * p[_R + End.MU_FACTOR], p[_R + End.PD2], relax_r,
@@ -182,7 +198,7 @@ def _record(
             out[Out.TRAVEL_F] > KICK_DEPTH * p[_F + End.TRAVEL] and out[Out.RATE_F] < 0.0
         ) else 0.0
         acc[ck + Car.KICK_PEAK] = 0.0
-    aw = c.accumulate_vibration(acc, _ACC_V, sos, zi, out[Out.ACCEL_D])
+    out[_NOUT] = c.accumulate_vibration(acc, _ACC_V, sos, zi, out[Out.ACCEL_D])
     acc[_ACC_CAR + Car.SUM_W2] += out[Out.PITCH_RATE] ** 2
     if braking:
         acc[_ACC_CAR + Car.N_BRAKE] += 1.0
@@ -207,31 +223,13 @@ def _record(
         rate = abs(out[Out.PITCH_RATE])
         if rate > acc[_ACC_CAR + Car.LANDING_RATE]:
             acc[_ACC_CAR + Car.LANDING_RATE] = rate
-    if trace.shape[1] > 0 and k % every == 0:
-        j = k // every
-        for ch in range(_NOUT):
-            trace[ch, j] = out[ch]
-        trace[_NOUT, j] = aw
     return c.FAIL_NONE
 
 
 @njit(cache=True, error_model=c.ERRORS)
-def _sample(
-    k: int, y: FloatArray, zf: float, zfd: float, zr: float, zrd: float, a: float, ay: float,
-    mu: float, relax_f: float, relax_r: float, p: FloatArray, sf: FloatArray, df: FloatArray,
-    sr: FloatArray, dr: FloatArray, dy: FloatArray, out: FloatArray, acc: FloatArray,
-    hist_f: FloatArray, hist_r: FloatArray, sos: FloatArray, zi: FloatArray, trace: FloatArray,
-    every: int,
-) -> int:
-    """Derivative and outputs at sample k, then _record. Returns a failure code."""
-    _rhs(y, zf, zfd, zr, zrd, a, ay, p, sf, df, sr, dr, dy, out)
-    return _record(k, y, dy, out, zf, zr, a, ay, mu, relax_f, relax_r, p, acc, hist_f, hist_r,
-                   sos, zi, trace, every)
-
-
-@njit(cache=True, error_model=c.ERRORS)
-def _initial_state(p: FloatArray, zf0: float, zr0: float) -> FloatArray:
+def _start(p: FloatArray, road: Channels) -> FloatArray:
     """Static equilibrium carried rigidly onto the road's starting heights."""
+    zf0, zr0 = road[0][0], road[2][0]
     y = np.zeros(_NS)
     th = (zf0 - zr0) / p[Par.L]
     y[0] = zr0 + p[Par.X_C] * th
@@ -243,113 +241,41 @@ def _initial_state(p: FloatArray, zf0: float, zr0: float) -> FloatArray:
     return y
 
 
+@njit(cache=True, error_model=c.ERRORS, inline="always")
+def _close(acc: FloatArray) -> None:
+    c.close_wheel(acc, _ACC_F)
+    c.close_wheel(acc, _ACC_R)
+
+
+@njit(cache=True, error_model=c.ERRORS, inline="always")
+def _rows(tables: Tables, b: int) -> Tables:
+    return tables[0][b], tables[1][b], tables[2][b], tables[3][b]
+
+
 @njit(cache=True, error_model=c.ERRORS, parallel=True, fastmath=c.FAST)
 def _run(
-    P: FloatArray, tables: tuple[FloatArray, ...], road: tuple[FloatArray, ...], mu: float,
-    relax: tuple[FloatArray, FloatArray], dt: float, sos: FloatArray, acc: FloatArray,
-    hist: FloatArray, fail: NDArray[np.int64], trace: FloatArray, every: int,
+    P: FloatArray, tables: Tables, road: Channels, dt: float, sos: FloatArray,
+    acc: FloatArray, hist: FloatArray, fail: NDArray[np.int64], trace: FloatArray, every: int,
 ) -> None:
-    """RK4 over the batch: P (B, _NP) parameter rows; tables (front spring, front damper, rear
-    spring, rear damper), each (B, K); road (front height, its rate, rear height, its rate,
-    deceleration, lateral acceleration), each (N,); mu the road's friction coefficient; relax
-    (front, rear) the grip lag's weights (N,); dt [s]; sos the rider's weighting filter; acc,
-    hist, fail, trace the outputs filled in place (trace every `every` samples)."""
-    sfs, dfs, srs, drs = tables
-    zf, zfd, zr, zrd, dec, lat = road
-    relax_f, relax_r = relax
-    n = zf.shape[0]
-    for b in prange(P.shape[0]):
-        if fail[b] != 0:
-            continue
-        p = P[b]
-        sf = sfs[b]
-        df = dfs[b]
-        sr = srs[b]
-        dr = drs[b]
-        y = _initial_state(p, zf[0], zr[0])
-        kk = np.empty((4, _NS))
-        tmp = np.empty(_NS)
-        out = np.empty(_NOUT)
-        zi = np.zeros((sos.shape[0], 2))
-        acc_b = acc[b]
-        hist_f = hist[b, 0]
-        hist_r = hist[b, 1]
-        trace_b = trace[b]
-        h = dt
-        for k in range(n):
-            # stage 0 at sample k: its derivative is also the sample's record
-            _rhs(y, zf[k], zfd[k], zr[k], zrd[k], dec[k], lat[k], p, sf, df, sr, dr, kk[0], out)
-            code = _record(k, y, kk[0], out, zf[k], zr[k], dec[k], lat[k], mu, relax_f[k],
-                           relax_r[k], p, acc_b, hist_f, hist_r, sos, zi, trace_b, every)
-            if code != 0:
-                fail[b] = code
-                break
-            if k == n - 1:
-                break
-            # the road at the midpoint (stages 1 and 2 share it) and at sample k + 1
-            j = k + 1
-            zf_m, zfd_m = zf[k] + 0.5 * (zf[j] - zf[k]), zfd[k] + 0.5 * (zfd[j] - zfd[k])
-            zr_m, zrd_m = zr[k] + 0.5 * (zr[j] - zr[k]), zrd[k] + 0.5 * (zrd[j] - zrd[k])
-            dec_m, lat_m = dec[k] + 0.5 * (dec[j] - dec[k]), lat[k] + 0.5 * (lat[j] - lat[k])
-            for st in range(1, 3):
-                drv.rk4_stage_state(tmp, y, kk, st, 0.5 * h, _NS)
-                _rhs(tmp, zf_m, zfd_m, zr_m, zrd_m, dec_m, lat_m, p, sf, df, sr, dr, kk[st], out)
-            drv.rk4_stage_state(tmp, y, kk, 3, h, _NS)
-            # written as the stage's weight of 1 was, so that results stay the same to the bit
-            _rhs(tmp, zf[k] + (zf[j] - zf[k]), zfd[k] + (zfd[j] - zfd[k]),
-                 zr[k] + (zr[j] - zr[k]), zrd[k] + (zrd[j] - zrd[k]),
-                 dec[k] + (dec[j] - dec[k]), lat[k] + (lat[j] - lat[k]), p, sf, df, sr, dr,
-                 kk[3], out)
-            drv.rk4_update(y, kk, h, _NS)
-        c.close_wheel(acc_b, _ACC_F)
-        c.close_wheel(acc_b, _ACC_R)
+    """RK4 over the batch (``tuneopt.sim._driver.rk4_batch``): tables (front spring, front
+    damper, rear spring, rear damper), each (B, K); road the ROAD_CHANNELS."""
+    drv.rk4_batch(_inputs, _rhs, _record, _start, _close, _rows, _NS, _NTRACE, P, tables, road,
+                  dt, sos, acc, hist, fail, trace, every)
 
 
 @njit(cache=True, error_model=c.ERRORS)
 def _rhs_at_time(
-    t: float, y: FloatArray, road: tuple[FloatArray, ...], dt: float, p: FloatArray,
-    tables: tuple[FloatArray, ...],
+    t: float, y: FloatArray, road: Channels, dt: float, p: FloatArray, tabs: Tables
 ) -> FloatArray:
-    """The same equations at any time, the road linear between samples (for solve_ivp);
-    road and tables as _run's, the tables one setup's rows."""
-    zf, zfd, zr, zrd, dec, lat = road
-    sf, df, sr, dr = tables
-    i, f = drv.road_position(t, dt, zf.shape[0])
-    dy = np.empty(_NS)
-    out = np.empty(_NOUT)
-    _rhs(y, zf[i] + f * (zf[i + 1] - zf[i]), zfd[i] + f * (zfd[i + 1] - zfd[i]),
-         zr[i] + f * (zr[i + 1] - zr[i]), zrd[i] + f * (zrd[i + 1] - zrd[i]),
-         dec[i] + f * (dec[i + 1] - dec[i]), lat[i] + f * (lat[i + 1] - lat[i]), p, sf, df, sr,
-         dr, dy, out)
-    return dy
+    """The right-hand side at any time t [s] (for solve_ivp); tabs one setup's table rows."""
+    return drv.rhs_at_time(_inputs, _rhs, _NTRACE, t, y, road, dt, p, tabs)
 
 
 @njit(cache=True, error_model=c.ERRORS)
 def _replay(
-    Y: FloatArray, road: tuple[FloatArray, ...], mu: float, relax: tuple[FloatArray, FloatArray],
-    p: FloatArray, tables: tuple[FloatArray, ...], sos: FloatArray, acc: FloatArray,
-    hist: FloatArray, trace: FloatArray, every: int,
+    Y: FloatArray, road: Channels, p: FloatArray, tabs: Tables, sos: FloatArray,
+    acc: FloatArray, hist: FloatArray, trace: FloatArray, every: int,
 ) -> int:
-    """Accumulate metrics from given states Y (N, 12) at the sample times (road, relax as
-    _run's, tables one setup's rows)."""
-    zf, zfd, zr, zrd, dec, lat = road
-    sf, df, sr, dr = tables
-    relax_f, relax_r = relax
-    dy = np.empty(_NS)
-    out = np.empty(_NOUT)
-    zi = np.zeros((sos.shape[0], 2))
-    code = 0
-    hist_f = hist[0]
-    hist_r = hist[1]
-    y = np.empty(_NS)
-    for k in range(Y.shape[0]):
-        for i in range(_NS):
-            y[i] = Y[k, i]
-        code = _sample(k, y, zf[k], zfd[k], zr[k], zrd[k], dec[k], lat[k], mu, relax_f[k],
-                       relax_r[k], p, sf, df, sr, dr, dy, out, acc, hist_f, hist_r, sos, zi, trace,
-                       every)
-        if code != 0:
-            break
-    c.close_wheel(acc, _ACC_F)
-    c.close_wheel(acc, _ACC_R)
-    return code
+    """Metrics of one setup from given states Y (N, 12) at the sample times."""
+    return drv.replay(_inputs, _rhs, _record, _close, _NTRACE, Y, road, p, tabs, sos, acc, hist,
+                      trace, every)

@@ -46,6 +46,7 @@ class Par(c.Layout):
     FB_COT = auto()  # brake_front_share m_tot cot(HA): fork-axis brake force per unit decel [kg]
     N_KICK_WINDOW = auto()  # samples watched for the kick after a deep compression turns [-]
     MU_COT = auto()  # the road's friction coefficient times cot(HA): caps the fork-axis brake
+    MU = auto()  # the road's friction coefficient [-]
 
 
 _F = len(Par)  # the front wheel end's block
@@ -112,6 +113,13 @@ class Out(c.Layout):
 
 _NOUT = len(Out)
 _NTRACE = _NOUT + 1
+
+# The road's channels as the kernels take them (a tuple, each (N,)), in this order: front road
+# height [m] and its rate [m/s], rear height and rate, braking deceleration and lateral
+# acceleration [m/s^2] (what the right-hand side reads, linear between samples), then the front
+# and rear tyres' grip-lag weights of each sample [-] (only the metrics read them).
+ROAD_CHANNELS = 8
+
 # A rider coupling stretched or squeezed this far has come apart [m].
 _RUNAWAY_COUPLING = 0.5
 

@@ -36,15 +36,15 @@ ground-normal share (times cos(phi)) is what the grip capacity sees.
 
 from __future__ import annotations
 
-from collections.abc import Callable
 from dataclasses import dataclass
+from typing import Unpack
 
 import numpy as np
 from numpy.typing import NDArray
 
 from tuneopt.sim import _common as c
 from tuneopt.sim import _driver as drv
-from tuneopt.sim._halfcar_kernel import _initial_state, _replay, _rhs_at_time, _run
+from tuneopt.sim._halfcar_kernel import _replay, _rhs_at_time, _run, _start
 from tuneopt.sim._halfcar_rows import (
     _ACC_CAR,
     _ACC_F,
@@ -63,10 +63,10 @@ from tuneopt.sim._halfcar_rows import (
     Out,
     Par,
     _pack,
+    static_tyre_loads,
 )
 from tuneopt.sim._wheel import End
 from tuneopt.sim.grip import relaxation_factor
-from tuneopt.sim.iso2631 import weighting_sos
 from tuneopt.sim.metrics import (
     GripPhase,
     KickMetrics,
@@ -76,9 +76,8 @@ from tuneopt.sim.metrics import (
     failure_reasons,
     first_short,
     vibration_metrics,
-    wheel_metrics,
 )
-from tuneopt.sim.params import HalfCarParams
+from tuneopt.sim.params import HalfCarParams, ReferenceOptions
 from tuneopt.sim.road import RoadInput
 
 __all__ = [
@@ -146,79 +145,34 @@ class HalfCarResult:
     traces: HalfCarTraces | None
 
 
-def static_tyre_loads(params: HalfCarParams) -> tuple[FloatArray, FloatArray]:
-    """Front and rear tyre loads at rest on level ground [N], each (B,), from moment balance."""
-    p = _pack(params)
-    return p[:, _F + End.F_STATIC].copy(), p[:, _R + End.F_STATIC].copy()
-
-
-@dataclass(frozen=True)
-class _Prepared:
-    P: FloatArray
-    tables: tuple[FloatArray, FloatArray, FloatArray, FloatArray]
-    acc: FloatArray
-    hist: FloatArray
-    fail: NDArray[np.int64]
-    trace: FloatArray
-    every: int
-    sos: FloatArray
-    relax_f: FloatArray
-    relax_r: FloatArray
-
-
-def _prepare(params: HalfCarParams, road: RoadInput, trace_every: int | None) -> _Prepared:
+def _prepare(params: HalfCarParams, road: RoadInput, trace_every: int | None) -> drv.Batch:
     P = _pack(params)
     P[:, Par.N_AIRBORNE] = np.ceil(AIRBORNE_MIN_TIME / road.dt - 1e-9)
     P[:, Par.N_LANDING_WINDOW] = np.ceil(LANDING_WINDOW / road.dt - 1e-9)
     P[:, Par.N_KICK_WINDOW] = np.ceil(KICK_WINDOW / road.dt - 1e-9)
     ha = np.radians(params.head_angle)
     P[:, Par.MU_COT] = road.friction * np.cos(ha) / np.sin(ha)
-    bsz = P.shape[0]
-    fail = np.zeros(bsz, dtype=np.int64)
-    for o, wheel in ((_F, params.front), (_R, params.rear)):
-        fail[drv.static_failures(P[:, o + End.S0], wheel.travel, wheel.travel_grid[0])] = (
-            c.FAIL_STATIC
-        )
-    acc = np.zeros((bsz, _NACC))
-    c.init_wheel_acc(acc, _ACC_F)
-    c.init_wheel_acc(acc, _ACC_R)
-    acc[:, _ACC_CAR + Car.DIVE_TRAVEL] = -np.inf
-    acc[:, _ACC_CAR + Car.DIVE_PITCH] = -np.inf
-    every, m = drv.trace_layout(road.samples, trace_every)
-
-    def table(a: FloatArray) -> FloatArray:
-        return np.ascontiguousarray(a, dtype=np.float64)
-
-    return _Prepared(
-        P=P,
-        tables=(
-            table(params.front.spring_force),
-            table(params.front.damper_force),
-            table(params.rear.spring_force),
-            table(params.rear.damper_force),
-        ),
-        acc=acc,
-        hist=np.zeros((bsz, 2, c.HIST_BINS)),
-        fail=fail,
-        trace=np.zeros((bsz, _NTRACE, m)),
-        every=every,
-        sos=weighting_sos("Wk", 1.0 / road.dt),
-        relax_f=relaxation_factor(road.speed, road.dt, params.front.relaxation_length),
-        relax_r=relaxation_factor(road.speed, road.dt, params.rear.relaxation_length),
+    P[:, Par.MU] = road.friction
+    channels = drv.channels(
+        road.front_z, road.front_zdot, road.rear_z, road.rear_zdot, road.decel,
+        road.lateral_accel,
+        relaxation_factor(road.speed, road.dt, params.front.relaxation_length),
+        relaxation_factor(road.speed, road.dt, params.rear.relaxation_length),
     )
+    batch = drv.prepare_batch(P, channels, road, [(_F, _ACC_F), (_R, _ACC_R)],
+                              [params.front, params.rear], _NACC, _NTRACE, trace_every)
+    batch.acc[:, _ACC_CAR + Car.DIVE_TRAVEL] = -np.inf
+    batch.acc[:, _ACC_CAR + Car.DIVE_PITCH] = -np.inf
+    return batch
 
 
-def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> HalfCarResult:
-    failed = prep.fail != 0
-    P, acc = prep.P, prep.acc
+def _finish(batch: drv.Batch, road: RoadInput, trace_every: int | None) -> HalfCarResult:
+    failed = batch.fail != 0
+    P, acc = batch.P, batch.acc
     n, dt = road.samples, road.dt
     n_brake = acc[:, _ACC_CAR + Car.N_BRAKE]
     n_corner = acc[:, _ACC_CAR + Car.N_CORNER]
-    wheels = [
-        wheel_metrics(acc, off, prep.hist[:, i], n, dt, P[:, o + End.F_STATIC], P[:, o + End.S0],
-                      P[:, o + End.HIST_W], n_brake, n_corner, failed)
-        for i, (off, o) in enumerate(((_ACC_F, _F), (_ACC_R, _R)))
-    ]
+    wheels = drv.wheel_results(batch, road, n_brake, n_corner)
     with np.errstate(invalid="ignore"):
         pitch = PitchMetrics(
             pitch_rate_rms=np.sqrt(acc[:, _ACC_CAR + Car.SUM_W2] / n),
@@ -250,10 +204,9 @@ def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> HalfCa
         value[failed] = np.nan
     traces = None
     if trace_every:
-        tr = prep.trace.copy()
-        tr[failed] = np.nan
+        time, tr = drv.traces(batch, dt)
         traces = HalfCarTraces(
-            time=np.arange(tr.shape[2], dtype=np.float64) * (prep.every * dt),
+            time=time,
             front_tyre_load=tr[:, Out.LOAD_F],
             rear_tyre_load=tr[:, Out.LOAD_R],
             front_travel=tr[:, Out.TRAVEL_F],
@@ -289,15 +242,9 @@ def _finish(prep: _Prepared, road: RoadInput, trace_every: int | None) -> HalfCa
         static_load_rear=P[:, _R + End.F_STATIC].copy(),
         duration=road.duration,
         failed=failed,
-        failure=failure_reasons(prep.fail),
+        failure=failure_reasons(batch.fail),
         traces=traces,
     )
-
-
-def _road_arrays(road: RoadInput) -> tuple[FloatArray, ...]:
-    """The road's channels in the order the kernels take them."""
-    return (road.front_z, road.front_zdot, road.rear_z, road.rear_zdot, road.decel,
-            road.lateral_accel)
 
 
 def simulate_halfcar(
@@ -307,47 +254,18 @@ def simulate_halfcar(
 
     trace_every: keep time series every that many samples (None: metrics only).
     """
-    prep = _prepare(params, road, trace_every)
-    with c.kernel_threads(prep.P.shape[0]):
-        _run(prep.P, prep.tables, _road_arrays(road), road.friction,
-             (prep.relax_f, prep.relax_r), road.dt, prep.sos, prep.acc, prep.hist, prep.fail,
-             prep.trace, prep.every)
-    return _finish(prep, road, trace_every)
+    batch = _prepare(params, road, trace_every)
+    drv.run_batch(_run, batch, road.dt)
+    return _finish(batch, road, trace_every)
 
 
 def simulate_halfcar_reference(
-    params: HalfCarParams,
-    road: RoadInput,
-    *,
-    rtol: float = 1e-8,
-    atol: float = 1e-10,
-    max_step: float | None = None,
-    method: str = "RK45",
-    trace_every: int | None = None,
+    params: HalfCarParams, road: RoadInput, *, trace_every: int | None = None,
+    **solver: Unpack[ReferenceOptions],
 ) -> HalfCarResult:
-    """The same equations integrated by scipy.integrate.solve_ivp, one setup at a time.
-
-    States come from the solver's dense output at the sample times and go through the same
-    metric accumulation as the RK4 kernel. max_step [s] defaults to the road's dt.
-    """
-    prep = _prepare(params, road, trace_every)
-    arrays = _road_arrays(road)
-    relax = (prep.relax_f, prep.relax_r)
-
-    def setup(b: int) -> tuple[Callable[[float, FloatArray], FloatArray], FloatArray]:
-        p = prep.P[b]
-        tables = tuple(tab[b] for tab in prep.tables)
-
-        def fun(tt: float, yy: FloatArray) -> FloatArray:
-            return _rhs_at_time(tt, yy, arrays, road.dt, p, tables)
-
-        return fun, _initial_state(p, road.front_z[0], road.rear_z[0])
-
-    def replay(b: int, Y: FloatArray) -> int:
-        tables = tuple(tab[b] for tab in prep.tables)
-        return int(_replay(Y, arrays, road.friction, relax, prep.P[b], tables, prep.sos,
-                           prep.acc[b], prep.hist[b], prep.trace[b], prep.every))
-
-    drv.solve_reference(road, prep.fail, setup, replay, rtol=rtol, atol=atol,
-                        max_step=max_step, method=method)
-    return _finish(prep, road, trace_every)
+    """The same equations integrated by scipy.integrate.solve_ivp one setup at a time (solver:
+    rtol, atol, max_step [s], method: ``tuneopt.sim.params.ReferenceOptions``), its
+    states at the sample times fed through the RK4 kernel's metric accumulation."""
+    batch = _prepare(params, road, trace_every)
+    drv.solve_reference(batch, road, _rhs_at_time, _start, _replay, **solver)
+    return _finish(batch, road, trace_every)

@@ -9,11 +9,12 @@ tables, only forces at the wheel, which keeps the compiled loops small.
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
+from typing import TypedDict
 
 import numpy as np
 from numpy.typing import NDArray
 
-__all__ = ["WheelEnd", "RiderBody", "HalfCarParams", "QuarterCarParams"]
+__all__ = ["WheelEnd", "RiderBody", "HalfCarParams", "QuarterCarParams", "ReferenceOptions"]
 
 FloatArray = NDArray[np.float64]
 
@@ -148,3 +149,13 @@ class QuarterCarParams:
     def take(self, idx: slice | NDArray[np.intp]) -> QuarterCarParams:
         """The setups idx of the batch."""
         return replace(self, wheel=self.wheel.take(idx), sprung_mass=self.sprung_mass[idx])
+
+
+class ReferenceOptions(TypedDict, total=False):
+    """scipy.integrate.solve_ivp's settings for the simulators' reference runs: rtol (default
+    1e-8), atol (1e-10), max_step [s] (None, the default: the road's dt), method ("RK45")."""
+
+    rtol: float
+    atol: float
+    max_step: float | None
+    method: str
