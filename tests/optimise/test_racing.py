@@ -12,7 +12,7 @@ from scipy import stats
 
 from tuneopt.model import Scenario
 from tuneopt.optimise.edges import edge_flags
-from tuneopt.optimise.evaluate import Evaluator, RacePolicy, paired_interval
+from tuneopt.optimise.evaluate import Evaluator, RacePolicy, paired_interval, realisation_seeds
 from tuneopt.optimise.runner import leader_scores
 from tuneopt.optimise.sag_windows import sag_windows
 from tuneopt.optimise.space import build_space
@@ -111,13 +111,27 @@ def test_a_pure_noise_difference_is_called_within_noise() -> None:
 
 def test_validation_realisations_are_never_searched() -> None:
     for seed in (0, 3, 11, 2**31 - 5):
-        search = set(range(seed, seed + 32))
+        search = set(realisation_seeds(seed, 32))
         fresh = validation_seeds(seed, 24)
         chosen = selection_seeds(seed, 24)
-        assert len(set(fresh)) == 24 and len(set(chosen)) == 24
+        assert len(search) == 32 and len(set(fresh)) == 24 and len(set(chosen)) == 24
         assert not search & set(fresh) and not search & set(chosen)
         assert not set(fresh) & set(chosen)  # the figures never come from the choosing set
         assert all(0 <= s < 2**31 for s in fresh + chosen)
+
+
+def test_studies_with_neighbouring_seeds_share_no_realisation() -> None:
+    """Seeds 1, 2 and 3 are three independent studies: none of their search, validation or
+    selection realisations is another's (consecutive course seeds used to share all but one of
+    a study's search realisations). The first search realisation is the seed itself."""
+    sets = [
+        set(realisation_seeds(s, 8)) | set(validation_seeds(s, 24)) | set(selection_seeds(s, 24))
+        for s in (1, 2, 3)
+    ]
+    assert all(len(one) == 8 + 24 + 24 for one in sets)
+    assert not sets[0] & sets[1] and not sets[0] & sets[2] and not sets[1] & sets[2]
+    assert [realisation_seeds(s, 3)[0] for s in (0, 1, 7)] == [0, 1, 7]
+    assert realisation_seeds(5, 4) == realisation_seeds(5, 6)[:4]  # a prefix is a prefix
 
 
 def test_a_setup_with_its_damping_closed_is_dropped_early(small_scenario: Scenario) -> None:

@@ -38,13 +38,43 @@ __all__ = [
     "Evaluator",
     "Outcome",
     "RacePolicy",
+    "SEARCH",
+    "SELECTION",
+    "VALIDATION",
     "paired_interval",
+    "realisation_seeds",
 ]
 
 # Terrain realisations a study's setups are scored on by default: enough that the differences
 # being ranked stand out of the course-to-course noise once racing has dropped the clear losers
 # (chosen by the trust benchmark, benchmarks/bench_trust.py).
 DEFAULT_REALISATIONS = 8
+# The three sets of course realisations a study draws from its seed: the search's, the
+# validation set that gives every figure, and the selection set that orders the finalists.
+SEARCH, VALIDATION, SELECTION = 0, 1, 2
+_SEED_LIMIT = 2**31
+
+
+def realisation_seeds(study_seed: int, count: int, stream: int = SEARCH) -> tuple[int, ...]:
+    """Course seeds of ``count`` realisations of one of a study's sets (``SEARCH``,
+    ``VALIDATION`` or ``SELECTION``).
+
+    The search's first realisation is the study seed itself (the course ``tuneopt simulate``
+    rides with that seed and the report draws); every other is drawn from the study seed by
+    numpy's ``SeedSequence``, keyed by the set and the position. Studies with different seeds
+    therefore share no realisation (consecutive seeds used to share all but one of them), and
+    no set shares one with another, whatever the counts."""
+    entropy = int(study_seed) % 2**64
+    out = []
+    for k in range(count):
+        if stream == SEARCH and k == 0:
+            out.append(int(study_seed))
+            continue
+        state = np.random.SeedSequence(entropy, spawn_key=(stream, k)).generate_state(1)
+        out.append(int(state[0]) % _SEED_LIMIT)
+    return tuple(out)
+
+
 # An end whose spring cannot hold the rider has no sag: it counts as this far [% points] outside
 # its sag window, further than any sag can lie, so the search is pulled away from it first.
 NO_SAG_DISTANCE = 100.0
@@ -119,8 +149,8 @@ def _worse_beyond_doubt(diff: np.ndarray, confidence: float) -> bool:
 
 class Evaluator:
     """Evaluates batches of setups of ``scenario`` over terrain realisations built from
-    ``seeds`` (default: ``seed, seed + 1, ...``, ``realisations`` of them; default seed: the
-    course's own)."""
+    ``seeds`` (default: the search realisations of ``seed``, ``realisations`` of them, see
+    ``realisation_seeds``; default seed: the course's own)."""
 
     def __init__(
         self,
@@ -139,7 +169,7 @@ class Evaluator:
             if realisations < 1:
                 raise ValueError("realisations must be at least 1")
             first = scenario.course.seed if seed is None else seed
-            seeds = range(first, first + realisations)
+            seeds = realisation_seeds(first, realisations)
         if len(seeds) < 1:
             raise ValueError("give at least one realisation seed")
         self.scenario = scenario

@@ -20,7 +20,13 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tuneopt.model import Setup
-from tuneopt.optimise.evaluate import Evaluator, paired_interval
+from tuneopt.optimise.evaluate import (
+    SELECTION,
+    VALIDATION,
+    Evaluator,
+    paired_interval,
+    realisation_seeds,
+)
 
 __all__ = [
     "DEFAULT_VALIDATION",
@@ -37,22 +43,16 @@ __all__ = [
 # go forward to it (chosen by the trust benchmark, benchmarks/bench_trust.py).
 DEFAULT_VALIDATION = 24
 FINALISTS = 8
-# Validation courses are built from seeds this far from the study's own, so a study never
-# validates on a realisation it searched on (a study uses seed .. seed + realisations - 1).
-_VALIDATION_OFFSET = 100_000
-# The selection set, which orders the finalists, lies as far again from both.
-_SELECTION_OFFSET = 200_000
-_SEED_LIMIT = 2**31
 
 
 def validation_seeds(study_seed: int, count: int) -> tuple[int, ...]:
     """The realisations every figure comes from (never searched, never used to choose)."""
-    return tuple((study_seed + _VALIDATION_OFFSET + k) % _SEED_LIMIT for k in range(count))
+    return realisation_seeds(study_seed, count, VALIDATION)
 
 
 def selection_seeds(study_seed: int, count: int) -> tuple[int, ...]:
     """The realisations that order the finalists (never searched, never reported)."""
-    return tuple((study_seed + _SELECTION_OFFSET + k) % _SEED_LIMIT for k in range(count))
+    return realisation_seeds(study_seed, count, SELECTION)
 
 
 def validation_evaluator(
