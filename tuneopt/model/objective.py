@@ -35,6 +35,13 @@ class Objective(Strict):
     rim_strikes: float = Field(
         1.0, ge=0, description="rim strikes per minute, each weighed by its depth"
     )
+    rim_strike_risk: float = Field(
+        1.0,
+        ge=0,
+        description="how firmly a run strikes a rim, averaged over course realisations "
+        "(a run whose deepest rim strike goes 2 mm or more past the tyre's rim-strike "
+        "deflection counts one)",
+    )
     front_grip: float = Field(
         1.0, ge=0, description="share of the grip asked of the front tyre that was not there"
     )

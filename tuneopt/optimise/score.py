@@ -14,6 +14,7 @@ trails in our simulations (common practice, no source):
 | bottom_out_depth | deepest excursion past full travel, front plus rear | 5 mm |
 | bottom_out_risk | how firmly the harder-hit end bottomed out in this realisation (†) | 1 |
 | rim_strikes | rim strikes per minute, front plus rear, each weighed by its depth (†) | 1 /min |
+| rim_strike_risk | how firmly the harder-hit tyre struck its rim in this realisation (†) | 1 |
 | front_grip | share of the force asked of the front tyre that it could not give (*) | 0.05 |
 | rear_grip | the same for the rear tyre | 0.05 |
 | pack_down | ride height lost over bumps, front plus rear (losses only) (**) | 5 mm |
@@ -30,14 +31,19 @@ hands its stored energy back to the frame and the rider as it extends: too-fast 
 
 (†) Every excursion past full travel counts min(1, depth / 5 mm), past the rim-strike
 deflection min(1, depth / 2 mm) (``tuneopt.sim._common.BOTTOM_OUT_FULL_DEPTH`` and
-``RIM_STRIKE_FULL_DEPTH``); the risk is min(1, deepest excursion of either end / 5 mm). A hit
+``RIM_STRIKE_FULL_DEPTH``); the bottom-out risk is min(1, deepest excursion of either end /
+5 mm), the rim-strike risk min(1, deepest excursion of either tyre past its rim-strike
+deflection / 2 mm). A rim strike risks a pinch flat and a dented rim, so, as for the bottom-out,
+one firm strike in a run costs a whole unit whatever the rate: a low tyre pressure that rides
+well on most of a course but strikes a rim on one big hit of it is not rewarded for the rest. A hit
 that barely touches the stop costs a little, a firm one a whole unit: two similar setups then
 differ by a little where one just reaches the stop, not by a whole event, which is what made
 these terms the noisiest of the score when they were counts.
 
 ``score_terms`` takes the metrics of ONE course realisation (``CourseMetrics`` fields by name,
 each (B,)); a study averages the scores of its realisations, so the mean of
-``bottom_out_risk`` is the share of realisations in which a setup bottomed out.
+``bottom_out_risk`` is the share of realisations in which a setup bottomed out, and that of
+``rim_strike_risk`` the share in which it struck a rim.
 """
 
 from __future__ import annotations
@@ -48,7 +54,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tuneopt.model import Objective
-from tuneopt.sim import BOTTOM_OUT_FULL_DEPTH
+from tuneopt.sim import BOTTOM_OUT_FULL_DEPTH, RIM_STRIKE_FULL_DEPTH
 
 __all__ = ["SCALES", "TERMS", "score_terms", "total_score"]
 
@@ -60,6 +66,7 @@ SCALES: dict[str, float] = {
     "bottom_out_depth": 0.005,
     "bottom_out_risk": 1.0,
     "rim_strikes": 1.0,
+    "rim_strike_risk": 1.0,
     "front_grip": 0.05,
     "rear_grip": 0.05,
     "pack_down": 0.005,
@@ -76,6 +83,7 @@ def score_terms(metrics: Mapping[str, NDArray[np.float64]]) -> dict[str, NDArray
     (``CourseMetrics`` fields by name)."""
     m = {k: np.asarray(v, dtype=float) for k, v in metrics.items()}
     deepest = np.maximum(m["front_bottom_out_deepest"], m["rear_bottom_out_deepest"])
+    deepest_rim = np.maximum(m["front_rim_deepest"], m["rear_rim_deepest"])
     raw = {
         "front_load_variation": m["front_load_variation"],
         "rear_load_variation": m["rear_load_variation"],
@@ -84,6 +92,7 @@ def score_terms(metrics: Mapping[str, NDArray[np.float64]]) -> dict[str, NDArray
         "bottom_out_depth": m["front_bottom_out_deepest"] + m["rear_bottom_out_deepest"],
         "bottom_out_risk": np.minimum(deepest / BOTTOM_OUT_FULL_DEPTH, 1.0),
         "rim_strikes": m["front_rim_hits_per_min"] + m["rear_rim_hits_per_min"],
+        "rim_strike_risk": np.minimum(deepest_rim / RIM_STRIKE_FULL_DEPTH, 1.0),
         "front_grip": 0.5 * (m["front_grip_unmet_braking"] + m["front_grip_unmet_cornering"]),
         "rear_grip": 0.5 * (m["rear_grip_unmet_braking"] + m["rear_grip_unmet_cornering"]),
         "pack_down": np.maximum(m["front_pack_down"], 0.0) + np.maximum(m["rear_pack_down"], 0.0),
