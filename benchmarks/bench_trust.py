@@ -9,7 +9,9 @@ the gain measured on the fresh realisations (mean paired difference over the cur
 mean score, with a 95 % t interval), the share of fresh realisations where the recommendation
 beats the current setup, its bottom-out risk there (share of realisations with a bottom-out)
 against the current setup's, and the CPU time. Per scenario: how far apart the three seeds'
-winners are, setting by setting, in steps of the search space, and which settings spread beyond
+winners are, setting by setting, in the steps the report's robustness uses (a click, a spacer,
+a spring; 5 psi of air pressure and 0.1 bar of tyre pressure, 5 and 2 positions of their 1 psi
+and 0.05 bar grids), and which settings spread beyond
 two steps without every study's report calling them flat (the score barely moves along them).
 
     python benchmarks/bench_trust.py [--fresh 40] [--trials 600] [--scenarios a.toml b.toml]
@@ -134,6 +136,8 @@ def _one_study(path: Path, seed: int, trials: int, fresh: int) -> dict[str, Any]
         "bottom_risk_winner": float(np.mean(bottomed[ok, 0])),
         "bottom_risk_current": float(np.mean(bottomed[ok, 1])),
         "indices": winner["indices"],
+        # how many indices make "one step" of a setting in the report (5 psi on a 1 psi grid)
+        "robust_steps": {p.name: p.robust_step for p in space.parameters},
         "flat": sorted(flat),
         "settings": winner["settings"],
         "cpu_seconds": cpu_study,
@@ -180,12 +184,17 @@ def _spread(rows: list[dict[str, Any]]) -> str:
         parts, unexplained = [], []
         for k in keys:
             idx = [r["indices"][k] for r in mine]
-            spread = max(idx) - min(idx)
+            unit = mine[0].get("robust_steps", {}).get(k, 1)
+            spread = (max(idx) - min(idx)) / unit
             named = sum(k in r.get("flat", ()) for r in mine)
-            parts.append(f"{k} {spread}" + (f" (flat in {named} of {len(mine)})" if named else ""))
+            text = f"{k} {spread:g}" if unit == 1 else f"{k} {spread:.1f} (x{unit})"
+            parts.append(text + (f" (flat in {named} of {len(mine)})" if named else ""))
             if spread > 2 and named < len(mine):
                 unexplained.append(k)
-        lines.append(f"- {name}: winners' spread in steps: " + ", ".join(parts))
+        lines.append(
+            f"- {name}: winners' spread in steps (a pressure's step is the report's one step "
+            "either side, xN grid positions): " + ", ".join(parts)
+        )
         lines.append(
             f"  - spread beyond 2 steps and not called flat by every study: "
             f"{', '.join(unexplained) or 'none'}"

@@ -224,6 +224,11 @@ class Evaluator:
                 total += max(0.0, window.low - value, value - window.high)
         return total
 
+    def sag(self, setup: Setup) -> dict[str, float]:
+        """Static sag [% of travel] of ``setup`` per end ("fork", "shock"); empty when its
+        springs cannot hold the rider at all."""
+        return self._static(setup)[1]
+
     def _static(self, setup: Setup) -> tuple[StaticCheck | None, dict[str, float], str]:
         try:
             check = static_check(self.scenario, setup)

@@ -12,14 +12,10 @@ trials left RUNNING by a killed process are failed and their points enqueued aga
 
 from __future__ import annotations
 
-import datetime
 import logging
-import os
-import secrets
-import socket
 import time
 import warnings
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from contextlib import AbstractContextManager, nullcontext
 from dataclasses import dataclass
 from typing import Any
@@ -30,7 +26,14 @@ from optuna.storages import BaseStorage
 from optuna.trial import FrozenTrial, TrialState
 
 from tuneopt.optimise.evaluate import Evaluator, Outcome, RacePolicy
+from tuneopt.optimise.polish import leader, polish_points, polishing
 from tuneopt.optimise.space import SearchSpace
+from tuneopt.optimise.trial_owners import (
+    UNTAGGED_AFTER,
+    reap_stale_trials,
+    requeue_trial,
+    shard_owner,
+)
 
 __all__ = [
     "DEFAULT_TRIALS",
@@ -181,62 +184,9 @@ def create_study(
     return study
 
 
-# A trial is tagged with its owner just after it is asked; one still untagged after this long
-# was asked by a process that died in between [s].
-UNTAGGED_AFTER = 60.0
-
-
-# Told apart from any earlier process on the same host with the same PID (a restarted container
-# keeps both): trials of a dead process are never taken for this one's.
-_PROCESS_TOKEN = secrets.token_hex(4)
-
-
-def shard_owner(shard: int) -> str:
-    """The owner tag of this process's shard ``shard`` on the trials it asks."""
-    return f"{socket.gethostname()}:{os.getpid()}:{_PROCESS_TOKEN}:{shard}"
-
-
 class BatchStopped(Exception):
     """Raised between two pieces of a batch when the shard must stop (a stop request or the
     deadline): the batch's trials not yet told are queued again."""
-
-
-def _requeue(study: optuna.Study, trial_id: int, number: int, params: dict[str, Any],
-             baseline: bool) -> bool:  # fmt: skip
-    """Fail a trial that will not be told (marked ``reaped``: it does not count as finished)
-    and enqueue its point again; False when it was told meanwhile (nothing to do)."""
-    try:
-        study._storage.set_trial_user_attr(trial_id, "reaped", True)
-    except optuna.exceptions.UpdateFinishedTrialError:
-        return False  # its owner, alive after all (a paused worker), told it meanwhile
-    study.tell(number, state=TrialState.FAIL, skip_if_finished=True)
-    study.enqueue_trial(dict(params), user_attrs={"baseline": True} if baseline else None)
-    return True
-
-
-def reap_stale_trials(
-    study: optuna.Study, owner_prefix: str = "", untagged_after: float = UNTAGGED_AFTER
-) -> int:
-    """Fail trials left RUNNING (their process died) and enqueue their points again.
-
-    Call it only where no live shard can own a RUNNING trial (before a local run starts, or
-    for the trials of one dead owner, named by ``owner_prefix``). Trials that never got an
-    owner are reaped too once they are ``untagged_after`` seconds old."""
-    reaped = 0
-    now = datetime.datetime.now()
-    for t in study.get_trials(deepcopy=False, states=(TrialState.RUNNING,)):
-        owner = t.user_attrs.get("owner")
-        if owner is None:
-            started = t.datetime_start
-            if owner_prefix and (
-                started is None or (now - started).total_seconds() < untagged_after
-            ):
-                continue
-        elif not str(owner).startswith(owner_prefix):
-            continue
-        if _requeue(study, t._trial_id, t.number, t.params, bool(t.user_attrs.get("baseline"))):
-            reaped += 1
-    return reaped
 
 
 def _tell(study: optuna.Study, trial: optuna.Trial, outcome: Outcome) -> None:
@@ -271,8 +221,14 @@ def ask_batch(
     size: int,
     finished: int,
     owner: str,
+    lines: Callable[[int], list[dict[str, int]]] | None = None,
 ) -> list[optuna.Trial]:
-    """Ask ``size`` trials with a sampler seeded from (study seed, shard, finished trials)."""
+    """Ask ``size`` trials with a sampler seeded from (study seed, shard, finished trials); in
+    the budget's line-search phase (``tuneopt.optimise.polish``) the points ``lines(size)``
+    gives are queued first, so they are asked before the sampler's."""
+    if lines is not None and polishing(plan.trials, finished):
+        for point in lines(size):
+            study.enqueue_trial(point, user_attrs={"line_search": True})
     history: Sequence[FrozenTrial] = ()
     if plan.sampler == "tpe" and finished >= TPE_HANDOVER:
         history = study.get_trials(deepcopy=False, states=(TrialState.COMPLETE,))
@@ -320,14 +276,7 @@ def scenario_points(
 def leader_scores(trials: list[FrozenTrial], realisations: int) -> list[float] | None:
     """Per-realisation scores of the best trial that rode all ``realisations`` (None: none
     has yet). Racing pairs every new setup against it."""
-    best: FrozenTrial | None = None
-    for t in trials:
-        if t.state != TrialState.COMPLETE or "failure" in t.user_attrs or t.value is None:
-            continue
-        if len(t.user_attrs.get("scores", ())) != realisations:
-            continue
-        if best is None or (t.value, t.number) < (best.value, best.number):
-            best = t
+    best = leader(trials, realisations)
     return None if best is None else [float(v) for v in best.user_attrs["scores"]]
 
 
@@ -357,11 +306,13 @@ def run_shard(
     Returns the number of trials this shard finished."""
     owner = shard_owner(shard)
     realisations = 0
+    lines = None
     if isinstance(space, SearchSpace):
         dists = _distributions(space)
         assert isinstance(evaluate, Evaluator)
         realisations = evaluate.realisations
         evaluate_points = scenario_points(space, evaluate, RacePolicy() if plan.racing else None)
+        lines = _lines_through_leader(study, space, evaluate)
     else:
         dists = space
         assert not isinstance(evaluate, Evaluator)
@@ -387,8 +338,9 @@ def run_shard(
             if plan.trials is not None:
                 size = min(size, plan.trials - finished - running)
             batch = (
-                ask_batch(study, plan, dists, shard, size, finished, owner) if size > 0 else []
-            )
+                ask_batch(study, plan, dists, shard, size, finished, owner, lines)
+                if size > 0 else []
+            )  # fmt: skip
         if not batch:
             break
         points = [{k: int(v) for k, v in t.params.items()} for t in batch]
@@ -412,7 +364,7 @@ def run_shard(
                 told = hi
         except BatchStopped:
             for t in batch[told:]:
-                _requeue(study, t._trial_id, t.number, t.params,
+                requeue_trial(study, t._trial_id, t.number, t.params,
                          bool(t.user_attrs.get("baseline")))  # fmt: skip
             log.info("shard %d stopped within a batch: %d of %d trials told, the rest queued "
                      "again", shard, told, len(batch))  # fmt: skip
@@ -422,6 +374,21 @@ def run_shard(
         if told < len(batch):
             break
     return done
+
+
+def _lines_through_leader(
+    study: optuna.Study, space: SearchSpace, evaluator: Evaluator
+) -> Callable[[int], list[dict[str, int]]]:
+    """The line-search points of ``tuneopt.optimise.polish`` for the study as it stands."""
+
+    def sag_of(point: Mapping[str, int]) -> Mapping[str, float]:
+        return evaluator.sag(space.setup(point))
+
+    def lines(count: int) -> list[dict[str, int]]:
+        trials = study.get_trials(deepcopy=False)
+        return polish_points(space, trials, evaluator.realisations, count, sag_of)
+
+    return lines
 
 
 def _setups_per_piece(
