@@ -66,6 +66,13 @@ def test_optimise_writes_ranked_setups_within_the_hardware(
     assert len(data["cautions"]) == 4
     csv = (finished / "ranked.csv").read_text().splitlines()
     assert len(csv) == len(data["ranked"]) + 1
+    # every row carries the cautions, read back by the standard library's CSV reader
+    import csv as csv_module
+
+    with (finished / "ranked.csv").open(encoding="utf-8", newline="") as f:
+        rows = list(csv_module.DictReader(f))
+    assert len(rows) == len(data["ranked"])
+    assert all(all(c in row["cautions"] for c in data["cautions"]) for row in rows)
 
 
 def test_resume_with_a_larger_budget_continues(finished: Path, tmp_path: Path) -> None:

@@ -57,9 +57,8 @@ def result_data(ranking: Ranking, info: dict[str, Any]) -> dict[str, Any]:
 @dataclass(frozen=True)
 class RankedTable:
     """ranked.csv of a result: one row per ranked setup, in the result's order (rank, score,
-    robustness, the settings in trade units, the metrics in SI, the trade-off), and the
-    cautions that go with the file. The file holds the rows only; the cautions travel beside
-    it in result.json, which every ranked.csv is written or served with."""
+    robustness, the settings in trade units, the metrics in SI, the trade-off, and the
+    cautions, so that a row copied out of the file still carries them)."""
 
     rows: tuple[dict[str, Any], ...]
     cautions: tuple[str, ...]
@@ -79,6 +78,7 @@ def ranked_table(result: Mapping[str, Any]) -> RankedTable:
         row.update({f"setting:{k}": v for k, v in r["settings"].items()})
         row.update({f"metric:{k}": v for k, v in r["metrics"].items()})
         row["tradeoff"] = r["tradeoff"]
+        row["cautions"] = " ".join(result["cautions"])
         rows.append(row)
     return RankedTable(tuple(rows), tuple(result["cautions"]))
 
