@@ -14,7 +14,7 @@ a spring; 5 psi of air pressure and 0.1 bar of tyre pressure, 5 and 2 positions 
 and 0.05 bar grids), and which settings spread beyond
 two steps without every study's report calling them flat (the score barely moves along them).
 
-    python benchmarks/bench_trust.py [--fresh 40] [--trials 600] [--scenarios a.toml b.toml]
+    python benchmarks/bench_trust.py [--fresh 100] [--trials 600] [--scenarios a.toml b.toml]
                                      [--json out.json]
 
 Slow by design (a few minutes per study on 2 cores); not part of the test suite.
@@ -47,7 +47,10 @@ from tuneopt.report.run_data import read_run_folder  # noqa: E402
 
 SCENARIOS = ("scenarios/trail_air.toml", "scenarios/enduro_coil.toml")
 STUDY_SEEDS = (1, 2, 3)
-# fresh course seeds start far from any seed a study uses for its search or its own validation
+# fresh course seeds: consecutive from here (a study's own realisations, other than the first of
+# its search, are drawn by SeedSequence and never fall in a block like this but by chance).
+# 100 of them: the first 40, the benchmark's earlier set, were a lucky draw for the current
+# trail setup (its mean score 8.48 there, 8.73-9.11 in five blocks of 40 others).
 FRESH_FROM = 900_000
 
 
@@ -210,7 +213,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--scenarios", nargs="+", default=list(SCENARIOS))
     ap.add_argument("--seeds", nargs="+", type=int, default=list(STUDY_SEEDS))
     ap.add_argument("--trials", type=int, default=DEFAULT_TRIALS)
-    ap.add_argument("--fresh", type=int, default=40)
+    ap.add_argument("--fresh", type=int, default=100)
     ap.add_argument("--json", type=Path)
     args = ap.parse_args(argv)
     rows = []
