@@ -27,6 +27,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any, Unpack
 
+import numba
 import numpy as np
 from numba import njit, prange
 from numpy.typing import NDArray
@@ -84,52 +85,98 @@ def _keep(k: int, out: FloatArray, trace: FloatArray, every: int) -> None:
 
 
 @njit(error_model=c.ERRORS, inline="always")
+def _first_stage(
+    rhs: Any, record: Any, ns: int, k: int, r: Any, y: FloatArray, kk: FloatArray,
+    out: FloatArray, road: Channels, p: FloatArray, tabs: Any, acc: FloatArray, hist: FloatArray,
+    sos: FloatArray, zi: FloatArray, trace: FloatArray, every: int, fail: NDArray[np.int64],
+    b: int,
+) -> bool:
+    """Stage 0 of setup b's step from sample k (road r): its derivative is also the sample's
+    record. Whether the setup goes on (else its failure code is in fail[b])."""
+    rhs(y, r, p, tabs, kk[0], out)
+    code = c.FAIL_NONE
+    if not c.all_finite(y, kk[0], ns):
+        code = c.FAIL_NON_FINITE
+    else:
+        code = record(k, y, kk[0], out, road, p, acc, hist, sos, zi)
+    if code != c.FAIL_NONE:
+        fail[b] = code
+        return False
+    _keep(k, out, trace, every)
+    return True
+
+
+@njit(error_model=c.ERRORS, inline="always")
+def _stage(
+    rhs: Any, ns: int, st: int, step: float, r: Any, y: FloatArray, kk: FloatArray,
+    tmp: FloatArray, out: FloatArray, p: FloatArray, tabs: Any,
+) -> None:
+    """Stage st (1 to 3) of one setup's step, step [s] from y along the previous stage's rate."""
+    rk4_stage_state(tmp, y, kk, st, step, ns)
+    rhs(tmp, r, p, tabs, kk[st], out)
+
+
+@njit(error_model=c.ERRORS, inline="always")
 def rk4_batch(
     inputs: Any, rhs: Any, record: Any, start: Any, close: Any, rows: Any, ns: int, n_trace: int,
     P: FloatArray, tables: Any, road: Channels, dt: float, sos: FloatArray, acc: FloatArray,
-    hist: FloatArray, fail: NDArray[np.int64], trace: FloatArray, every: int,
+    hist: FloatArray, fail: NDArray[np.int64], trace: FloatArray, every: int, pairs: bool,
 ) -> None:
     """RK4 at the road's sample spacing dt [s] over the batch: P (B, n_par) parameter rows,
     tables the model's (rows picks a setup's), road its channels, sos the weighting filter; acc,
     hist, fail and trace (B, n_trace, M) filled in place. ns states, n_trace output slots (the
-    channels and the weighted acceleration)."""
+    channels and the weighted acceleration).
+
+    With pairs, a thread takes two setups through each stage together, so that the processor
+    overlaps their independent chains of dependent operations (each setup's arithmetic is the
+    same as alone); the second of a pair is skipped where there is none. Each setup's arrays
+    and views are made once, outside the time loop (made in it, each would be
+    reference-counted on every sample)."""
     n = road[0].shape[0]
-    for b in prange(P.shape[0]):
-        if fail[b] != 0:
-            continue
-        p = P[b]
-        tabs = rows(tables, b)
-        y = start(p, road)
-        kk = np.empty((4, ns))
-        tmp = np.empty(ns)
-        out = np.empty(n_trace)
-        zi = np.zeros((sos.shape[0], 2))
-        acc_b = acc[b]
-        hist_b = hist[b]
-        trace_b = trace[b]
+    bsz = P.shape[0]
+    per = 2 if pairs else 1
+    for g in prange((bsz + per - 1) // per):
+        b0 = g * per
+        b1 = b0 + 1 if pairs and b0 + 1 < bsz else b0
+        live0 = fail[b0] == 0
+        live1 = b1 != b0 and fail[b1] == 0
+        started0, started1 = live0, live1
+        p0, tabs0, acc0, hist0, trace0 = P[b0], rows(tables, b0), acc[b0], hist[b0], trace[b0]
+        p1, tabs1, acc1, hist1, trace1 = P[b1], rows(tables, b1), acc[b1], hist[b1], trace[b1]
+        y0, y1 = start(p0, road), start(p1, road)
+        kk0, kk1 = np.empty((4, ns)), np.empty((4, ns))
+        tmp0, tmp1 = np.empty(ns), np.empty(ns)
+        out0, out1 = np.empty(n_trace), np.empty(n_trace)
+        zi0, zi1 = np.zeros((sos.shape[0], 2)), np.zeros((sos.shape[0], 2))
         h = dt
         for k in range(n):
-            # stage 0 at sample k: its derivative is also the sample's record
-            rhs(y, inputs(road, k, k, 0.0), p, tabs, kk[0], out)
-            if not c.all_finite(y, kk[0], ns):
-                fail[b] = c.FAIL_NON_FINITE
-                break
-            code = record(k, y, kk[0], out, road, p, acc_b, hist_b, sos, zi)
-            if code != 0:
-                fail[b] = code
-                break
-            _keep(k, out, trace_b, every)
-            if k == n - 1:
+            r = inputs(road, k, k, 0.0)
+            if live0:
+                live0 = _first_stage(rhs, record, ns, k, r, y0, kk0, out0, road, p0, tabs0, acc0,
+                                     hist0, sos, zi0, trace0, every, fail, b0)
+            if live1:
+                live1 = _first_stage(rhs, record, ns, k, r, y1, kk1, out1, road, p1, tabs1, acc1,
+                                     hist1, sos, zi1, trace1, every, fail, b1)
+            if not (live0 or live1) or k == n - 1:
                 break
             # the road at the midpoint (stages 1 and 2 share it) and at sample k + 1
-            mid = inputs(road, k, k + 1, 0.5)
+            r = inputs(road, k, k + 1, 0.5)
             for st in range(1, 3):
-                rk4_stage_state(tmp, y, kk, st, 0.5 * h, ns)
-                rhs(tmp, mid, p, tabs, kk[st], out)
-            rk4_stage_state(tmp, y, kk, 3, h, ns)
-            rhs(tmp, inputs(road, k, k + 1, 1.0), p, tabs, kk[3], out)
-            rk4_update(y, kk, h, ns)
-        close(acc_b)
+                if live0:
+                    _stage(rhs, ns, st, 0.5 * h, r, y0, kk0, tmp0, out0, p0, tabs0)
+                if live1:
+                    _stage(rhs, ns, st, 0.5 * h, r, y1, kk1, tmp1, out1, p1, tabs1)
+            r = inputs(road, k, k + 1, 1.0)
+            if live0:
+                _stage(rhs, ns, 3, h, r, y0, kk0, tmp0, out0, p0, tabs0)
+                rk4_update(y0, kk0, h, ns)
+            if live1:
+                _stage(rhs, ns, 3, h, r, y1, kk1, tmp1, out1, p1, tabs1)
+                rk4_update(y1, kk1, h, ns)
+        if started0:
+            close(acc0)
+        if started1:
+            close(acc1)
 
 
 @njit(error_model=c.ERRORS, inline="always")
@@ -247,10 +294,12 @@ def prepare_batch(
 
 
 def run_batch(kernel: Callable[..., None], batch: Batch, dt: float) -> None:
-    """Call a model's RK4 kernel on the batch (no more threads than setups)."""
+    """Call a model's RK4 kernel on the batch (no more threads than setups; setups in pairs
+    where that leaves no thread idle)."""
     with c.kernel_threads(batch.size):
+        pairs = batch.size >= 2 * numba.get_num_threads()
         kernel(batch.P, batch.tables, batch.road, dt, batch.sos, batch.acc, batch.hist,
-               batch.fail, batch.trace, batch.every)
+               batch.fail, batch.trace, batch.every, pairs)
 
 
 def traces(batch: Batch, dt: float) -> tuple[FloatArray, FloatArray]:

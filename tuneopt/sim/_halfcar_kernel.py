@@ -256,11 +256,12 @@ def _rows(tables: Tables, b: int) -> Tables:
 def _run(
     P: FloatArray, tables: Tables, road: Channels, dt: float, sos: FloatArray,
     acc: FloatArray, hist: FloatArray, fail: NDArray[np.int64], trace: FloatArray, every: int,
+    pairs: bool,
 ) -> None:
     """RK4 over the batch (``tuneopt.sim._driver.rk4_batch``): tables (front spring, front
     damper, rear spring, rear damper), each (B, K); road the ROAD_CHANNELS."""
     drv.rk4_batch(_inputs, _rhs, _record, _start, _close, _rows, _NS, _NTRACE, P, tables, road,
-                  dt, sos, acc, hist, fail, trace, every)
+                  dt, sos, acc, hist, fail, trace, every, pairs)
 
 
 @njit(cache=True, error_model=c.ERRORS)

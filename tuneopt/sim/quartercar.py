@@ -189,10 +189,10 @@ def _rows(
 def _run(
     P: FloatArray, tables: tuple[FloatArray, FloatArray], road: Channels, dt: float,
     sos: FloatArray, acc: FloatArray, hist: FloatArray, fail: NDArray[np.int64],
-    trace: FloatArray, every: int,
+    trace: FloatArray, every: int, pairs: bool,
 ) -> None:
     drv.rk4_batch(_inputs, _rhs, _record, _start, _close, _rows, _NS, _NTRACE, P, tables, road,
-                  dt, sos, acc, hist, fail, trace, every)
+                  dt, sos, acc, hist, fail, trace, every, pairs)
 
 
 @njit(cache=True, error_model=c.ERRORS)
