@@ -12,7 +12,9 @@ against the current setup's, and the CPU time. Per scenario: how far apart the t
 winners are, setting by setting, in the steps the report's robustness uses (a click, a spacer,
 a spring; 5 psi of air pressure and 0.1 bar of tyre pressure, 5 and 2 positions of their 1 psi
 and 0.05 bar grids), and which settings spread beyond
-two steps without every study's report calling them flat (the score barely moves along them).
+two steps without every study's report calling them flat (the score barely moves along them;
+an air spring's pressure and spacers count as flat when the winners' sags lie within 2 % of
+travel of each other and every study found its spacer traded for pressure at that sag flat).
 
     python benchmarks/bench_trust.py [--fresh 100] [--trials 600] [--scenarios a.toml b.toml]
                                      [--json out.json]
@@ -42,11 +44,13 @@ from tuneopt.model import load_scenario  # noqa: E402
 from tuneopt.optimise.evaluate import Evaluator  # noqa: E402
 from tuneopt.optimise.runner import DEFAULT_TRIALS  # noqa: E402
 from tuneopt.optimise.space import build_space  # noqa: E402
-from tuneopt.report.fresh_terrain import flat_settings  # noqa: E402
+from tuneopt.report.fresh_terrain import flat_settings, flat_spring_trades  # noqa: E402
 from tuneopt.report.run_data import read_run_folder  # noqa: E402
 
 SCENARIOS = ("scenarios/trail_air.toml", "scenarios/enduro_coil.toml")
 STUDY_SEEDS = (1, 2, 3)
+# winners whose sags lie this close [% of travel] sit at "the same sag" for the spacer trade
+SAG_AGREES = 2.0
 # fresh course seeds: consecutive from here (a study's own realisations, other than the first of
 # its search, are drawn by SeedSequence and never fall in a block like this but by chance).
 # 100 of them: the first 40, the benchmark's earlier set, were a lucky draw for the current
@@ -110,7 +114,10 @@ def _one_study(path: Path, seed: int, trials: int, fresh: int) -> dict[str, Any]
     with tempfile.TemporaryDirectory() as tmp:
         result = _optimise(path, seed, trials, Path(tmp) / "run")
         # the settings the report calls flat (one step either side moves the score < 0.5 %)
-        flat = flat_settings(read_run_folder(Path(tmp) / "run").result)
+        read = read_run_folder(Path(tmp) / "run").result
+        flat = flat_settings(read)
+        # ends whose spacer traded for pressure at the same sag barely moves the score
+        flat_trades = flat_spring_trades(read)
     cpu_study, wall_study = _cpu_seconds() - cpu0, time.time() - wall0
     winner = result["ranked"][0]
     # the winner and the current setup, then the rest of the ranked setups (kept for analysis)
@@ -142,6 +149,8 @@ def _one_study(path: Path, seed: int, trials: int, fresh: int) -> dict[str, Any]
         # how many indices make "one step" of a setting in the report (5 psi on a 1 psi grid)
         "robust_steps": {p.name: p.robust_step for p in space.parameters},
         "flat": sorted(flat),
+        "flat_trades": sorted(flat_trades),
+        "sag": winner.get("sag", {}),
         "settings": winner["settings"],
         "cpu_seconds": cpu_study,
         "wall_seconds": wall_study,
@@ -190,6 +199,15 @@ def _spread(rows: list[dict[str, Any]]) -> str:
             unit = mine[0].get("robust_steps", {}).get(k, 1)
             spread = (max(idx) - min(idx)) / unit
             named = sum(k in r.get("flat", ()) for r in mine)
+            end, _, field = k.partition(".")
+            sags = [r.get("sag", {}).get(end) for r in mine]
+            if (field in ("pressure", "spacers") and None not in sags
+                    and max(sags) - min(sags) <= SAG_AGREES
+                    and all(end in r.get("flat_trades", ()) for r in mine)):  # fmt: skip
+                # the winners sit on one line of spacers traded for pressure at the same sag,
+                # along which every study found the score flat
+                parts.append(f"{k} {spread:g} (along a flat spacer trade at the same sag)")
+                continue
             text = f"{k} {spread:g}" if unit == 1 else f"{k} {spread:.1f} (x{unit})"
             parts.append(text + (f" (flat in {named} of {len(mine)})" if named else ""))
             if spread > 2 and named < len(mine):

@@ -155,3 +155,35 @@ def test_a_study_spends_its_last_quarter_on_lines_through_its_leader(
         changed = _changed(leader, t.params)
         assert len(changed) == 1 or changed in (["fork.pressure", "fork.spacers"],
                                                 ["shock.pressure", "shock.spacers"])  # fmt: skip
+
+
+def test_a_ranked_setup_carries_its_spacer_trades_at_the_same_sag(
+    small_scenario: Scenario,
+) -> None:
+    """One spacer either way with the pressure that keeps the end's sag, scored on the same
+    realisations as the setup itself: the trade's sag lies within a point of the setup's
+    (static check, [D]) and its score change is the paired difference."""
+    from tuneopt.optimise.robustness import robustness_fields
+
+    space = _space(small_scenario)
+    centre = space.indices(small_scenario.setup)
+    ev = Evaluator(small_scenario, seed=3, realisations=1)
+    (fields,) = robustness_fields([centre], space, ev)
+    assert fields is not None
+    own = ev.evaluate([space.setup(centre)])[0]
+    for end in ("fork", "shock"):
+        sides = fields["spring_trades"][end]
+        spacers = centre[f"{end}.spacers"]
+        expected = {"fewer"} if spacers > 0 else set()
+        if spacers < len(space[f"{end}.spacers"].values) - 1:
+            expected.add("more")
+        assert set(sides) == expected
+        for side, trade in sides.items():
+            point = {**centre, f"{end}.spacers": spacers + (1 if side == "more" else -1)}
+            point[f"{end}.pressure"] = space[f"{end}.pressure"].index_of(
+                next(v for v in space[f"{end}.pressure"].values
+                     if space[f"{end}.pressure"].shown(v) == trade["pressure"])
+            )  # fmt: skip
+            assert abs(ev.sag(space.setup(point))[end] - ev.sag(space.setup(centre))[end]) < 1.0
+            ridden = ev.evaluate([space.setup(point)])[0]
+            assert trade["score"] == pytest.approx(ridden.score - own.score, abs=1e-9)

@@ -5,7 +5,12 @@ from __future__ import annotations
 from typing import Any
 
 from tests.report.results import entry, run_result
-from tuneopt.report.fresh_terrain import FLAT, flat_settings, fresh_terrain_lines
+from tuneopt.report.fresh_terrain import (
+    FLAT,
+    flat_settings,
+    flat_spring_trades,
+    fresh_terrain_lines,
+)
 from tuneopt.report.run_data import RunResult
 
 
@@ -73,3 +78,23 @@ def test_a_winner_that_is_the_current_setup_says_so() -> None:
            "within_noise": True, "bottom_out_risk": 0.0}  # fmt: skip
     result = _result(val, {}, settings={"fork.lsc": "4"})
     assert "setup #1 is the current setup" in fresh_terrain_lines(result)[0]
+
+
+def test_a_spacer_trade_at_the_same_sag_is_said_flat_or_not() -> None:
+    """Trading a volume spacer for pressure at the same sag: flat when both trades move the
+    score by under FLAT of it; a trade that could not ride keeps the end from being flat."""
+    trades = {
+        "fork": {"fewer": {"spacers": "1", "pressure": "92 psi", "score": 0.01},
+                 "more": {"spacers": "3", "pressure": "81 psi", "score": -0.02}},
+        "shock": {"fewer": {"spacers": "0", "pressure": "270 psi", "score": 0.2},
+                  "more": {"spacers": "2", "pressure": "250 psi",
+                           "failed": "outside the sag window"}},
+    }  # fmt: skip
+    best = entry(1, score=8.0, search_score=8.0, spring_trades=trades)
+    result = run_result([best], None)
+    assert flat_spring_trades(result) == {"fork": 0.02 / 8.0}
+    lines = fresh_terrain_lines(result)
+    fork = next(x for x in lines if x.startswith("The fork's volume spacers"))
+    assert "barely matters" in fork and "1 spacers at 92 psi +0.1 %" in fork
+    shock = next(x for x in lines if x.startswith("The shock's volume spacers"))
+    assert "changes the ride" in shock and "outside the sag window" in shock

@@ -35,6 +35,7 @@ __all__ = [
     "line_points",
     "polish_points",
     "polishing",
+    "pressure_for_sag",
     "spring_points",
 ]
 
@@ -91,12 +92,12 @@ def spring_points(
         for spacers in range(len(space[sn].values)):
             if spacers != centre[sn]:
                 point = {**centre, sn: spacers}
-                point[pn] = _pressure_for_sag(point, end, target[end], n, sag_of)
+                point[pn] = pressure_for_sag(point, end, target[end], n, sag_of)
                 out.append(point)
     return out
 
 
-def _pressure_for_sag(
+def pressure_for_sag(
     point: Mapping[str, int], end: str, target: float, n: int, sag_of: SagOf
 ) -> int:
     """The index of ``end``'s pressure (of ``n``) whose sag at ``point`` lies nearest

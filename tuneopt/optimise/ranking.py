@@ -12,7 +12,8 @@ import optuna
 from optuna.trial import FrozenTrial, TrialState
 
 from tuneopt.optimise.edges import edge_flags, static_warnings
-from tuneopt.optimise.evaluate import Evaluator, Outcome, paired_interval
+from tuneopt.optimise.evaluate import Evaluator
+from tuneopt.optimise.robustness import robustness_fields
 from tuneopt.optimise.space import SearchSpace
 from tuneopt.optimise.validation import (
     DEFAULT_VALIDATION,
@@ -59,7 +60,10 @@ class RankedSetup:
     window", "failed"); ``robustness`` is the largest rise among the steps that ride.
     ``step_effects``: for each step that rides, the 95 % interval of its score change (paired
     over the same realisations), whether that holds 0 (``within_noise``), and each metric's
-    change (step − setup, in the metric's SI unit)."""
+    change (step − setup, in the metric's SI unit). ``spring_trades``: for an air spring whose
+    pressure and spacers are both searched, one spacer "fewer" and one "more", each with the
+    pressure that keeps the end's sag: its ``spacers`` and ``pressure`` as shown, and its
+    ``score`` change on the same realisations as the steps, or ``failed`` saying why not."""
 
     rank: int
     trial: int
@@ -81,6 +85,7 @@ class RankedSetup:
     warnings: list[str] = field(default_factory=list)
     steps: dict[str, dict[str, float | str]] = field(default_factory=dict)
     step_effects: dict[str, dict[str, dict[str, Any]]] = field(default_factory=dict)
+    spring_trades: dict[str, dict[str, dict[str, Any]]] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -161,81 +166,11 @@ def _entry(rank: int, t: FrozenTrial, space: SearchSpace, base: FrozenTrial | No
     )
 
 
-def _neighbours(
-    space: SearchSpace, idx: dict[str, int]
-) -> list[tuple[str, str, dict[str, int] | None]]:
-    """(setting, "down"/"up", point or None where the step would leave the range)."""
-    out: list[tuple[str, str, dict[str, int] | None]] = []
-    for p in space.parameters:
-        for sign, side in ((-1, "down"), (1, "up")):
-            j = idx[p.name] + sign * p.robust_step
-            j = min(max(j, 0), len(p.values) - 1)
-            out.append((p.name, side, {**idx, p.name: j} if j != idx[p.name] else None))
-    return out
-
-
-# Realisations of the search the robustness steps are scored on (paired with the setup itself).
-ROBUSTNESS_REALISATIONS = 4
-
-
 def _with_robustness(
     entries: Sequence[RankedSetup], space: SearchSpace, evaluator: Evaluator
 ) -> list[RankedSetup]:
-    """Score change one step either side of every setting, paired with the setup itself on the
-    search's first realisations, all in one simulator batch."""
-    ev = evaluator.first(ROBUSTNESS_REALISATIONS)
-    jobs: list[tuple[int, str, str, dict[str, int] | None]] = []
-    for e in entries:
-        jobs.append((e.rank, "", "", e.indices))
-        jobs.extend((e.rank, name, side, pt) for name, side, pt in _neighbours(space, e.indices))
-    points = [pt for *_, pt in jobs if pt is not None]
-    scored = iter(ev.evaluate([space.setup(pt) for pt in points]))
-    outcomes = [next(scored) if pt is not None else None for *_, pt in jobs]
-    out = []
-    for e in entries:
-        mine = [(j, o) for j, o in zip(jobs, outcomes, strict=True) if j[0] == e.rank]
-        own = mine[0][1]
-        if own is None or not own.ok:
-            out.append(e)
-            continue
-        worst = 0.0
-        sens: dict[str, float] = {}
-        steps: dict[str, dict[str, float | str]] = {}
-        effects: dict[str, dict[str, dict[str, Any]]] = {}
-        for (_, name, side, _), o in mine[1:]:
-            entry = steps.setdefault(name, {})
-            if o is None:
-                entry[side] = "end of range"
-                continue
-            if not o.ok:
-                # said in the step itself; the numbers stay those of the steps that ride
-                entry[side] = (
-                    "outside the sag window" if o.failure.startswith("infeasible") else "failed"
-                )
-                continue
-            delta = float(o.score) - float(own.score)  # type: ignore[arg-type]
-            entry[side] = delta
-            worst = max(worst, delta)
-            sens[name] = max(sens.get(name, 0.0), abs(delta))
-            effects.setdefault(name, {})[side] = _step_effect(o, own)
-        out.append(
-            _replace(e, robustness=worst, sensitivity=sens, steps=steps, step_effects=effects)
-        )
-    return out
-
-
-def _step_effect(step: Outcome, own: Outcome) -> dict[str, Any]:
-    """A step's score change with its paired 95 % interval, and its metrics' changes."""
-    n = min(len(step.scores), len(own.scores))
-    mean, low, high = paired_interval(np.subtract(step.scores[:n], own.scores[:n]))
-    return {
-        "score": mean,
-        "low": low,
-        "high": high,
-        "within_noise": bool(low <= 0.0 <= high),
-        "realisations": n,
-        "metrics": {k: v - own.metrics[k] for k, v in step.metrics.items() if k in own.metrics},
-    }
+    fields = robustness_fields([e.indices for e in entries], space, evaluator)
+    return [e if f is None else _replace(e, **f) for e, f in zip(entries, fields, strict=True)]
 
 
 def _replace(e: RankedSetup, **changes: object) -> RankedSetup:

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from tuneopt.report.run_data import RunResult
 
-__all__ = ["FLAT", "flat_settings", "fresh_terrain_lines", "setting_notes"]
+__all__ = ["FLAT", "flat_settings", "flat_spring_trades", "fresh_terrain_lines", "setting_notes"]
 
 # A setting whose one-step change moves the score by less than this share of it barely
 # matters on this course: the search's choice there is as good as any near it.
@@ -79,6 +79,7 @@ def fresh_terrain_lines(result: RunResult) -> list[str]:
             "These settings barely matter on this course (one step either way moves the score "
             f"by less than {100 * FLAT:.1f} %, largest change shown): " + ", ".join(parts) + "."
         )
+    lines.extend(_spring_trade_lines(result))
     for name, sides in best.steps.items():
         for side, value in sides.items():
             if value in ("outside the sag window", "failed"):
@@ -115,3 +116,47 @@ def setting_notes(result: RunResult) -> dict[str, str]:
     if not result.ranked:
         return {}
     return dict(result.ranked[0].flags)
+
+
+def flat_spring_trades(result: RunResult) -> dict[str, float]:
+    """Ends ("fork", "shock") of the winner whose spacer traded for pressure at the same sag,
+    one either way, moves the score by less than FLAT of it (every trade that exists rode),
+    with the larger relative change."""
+    if not result.ranked:
+        return {}
+    best = result.ranked[0]
+    score = abs(float(best.search_score or best.score)) or 1.0
+    out: dict[str, float] = {}
+    for end, sides in best.spring_trades.items():
+        deltas = [abs(float(t["score"])) for t in sides.values() if "score" in t]
+        if sides and len(deltas) == len(sides) and max(deltas) / score < FLAT:
+            out[end] = max(deltas) / score
+    return out
+
+
+def _spring_trade_lines(result: RunResult) -> list[str]:
+    """What trading a volume spacer for pressure at the same sag does to setup #1's score."""
+    best = result.ranked[0]
+    score = abs(float(best.search_score or best.score)) or 1.0
+    flat = flat_spring_trades(result)
+    lines = []
+    for end, sides in best.spring_trades.items():
+        parts = []
+        for t in sides.values():
+            what = f"{t['spacers']} spacers at {t['pressure']}"
+            if "score" in t:
+                parts.append(f"{what} {100 * float(t['score']) / score:+.1f} %")
+            else:
+                parts.append(f"{what} {t.get('failed', 'failed')}")
+        if not parts:
+            continue
+        verdict = (
+            "barely matters: springs along this line ride alike"
+            if end in flat else "changes the ride"
+        )
+        lines.append(
+            f"The {end}'s volume spacers traded for pressure at the same sag {verdict} "
+            f"({', '.join(parts)})."
+        )
+    return lines
+

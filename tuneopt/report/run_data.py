@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import json
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any
@@ -89,6 +89,11 @@ class SetupEntry:
     flags: Mapping[str, str]
     warnings: tuple[str, ...]
     steps: Mapping[str, Mapping[str, float | str]]
+    # an air spring's spacer traded for pressure at the same sag, by end then "fewer"/"more":
+    # spacers and pressure as shown, and the score change or why it has none ("failed")
+    spring_trades: Mapping[str, Mapping[str, Mapping[str, Any]]] = field(
+        default_factory=lambda: MappingProxyType({})
+    )
 
     @property
     def label(self) -> str:
@@ -205,6 +210,7 @@ def _validation(f: _Fields) -> Validation:
 def _entry(data: Any, where: str) -> SetupEntry:
     f = _Fields(data, where)
     steps = f.mapping("steps", {})
+    trades = f.mapping("spring_trades", {})
     return SetupEntry(
         rank=f.get("rank", (int,)),
         trial=f.get("trial", (int,)),
@@ -225,6 +231,13 @@ def _entry(data: Any, where: str) -> SetupEntry:
         steps=MappingProxyType(
             {k: _Fields(v, f"{where}.steps.{k}").view() for k, v in steps.items()}
         ),
+        spring_trades=MappingProxyType({
+            end: MappingProxyType({
+                side: _Fields(v, f"{where}.spring_trades.{end}.{side}").view()
+                for side, v in _Fields(sides, f"{where}.spring_trades.{end}").view().items()
+            })
+            for end, sides in trades.items()
+        }),  # fmt: skip
     )
 
 

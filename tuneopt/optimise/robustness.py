@@ -1,0 +1,145 @@
+"""How a ranked setup's score moves around it: one step either side of every setting, and for
+an air spring one volume spacer either way with the pressure that keeps the sag (a tuner's
+trade between the two), each paired with the setup itself on the search's first realisations."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import numpy as np
+
+from tuneopt.optimise.evaluate import Evaluator, Outcome, paired_interval
+from tuneopt.optimise.polish import pressure_for_sag
+from tuneopt.optimise.space import SearchSpace
+
+__all__ = ["ROBUSTNESS_REALISATIONS", "robustness_fields"]
+
+
+def _neighbours(
+    space: SearchSpace, idx: dict[str, int]
+) -> list[tuple[str, str, dict[str, int] | None]]:
+    """(setting, "down"/"up", point or None where the step would leave the range)."""
+    out: list[tuple[str, str, dict[str, int] | None]] = []
+    for p in space.parameters:
+        for sign, side in ((-1, "down"), (1, "up")):
+            j = idx[p.name] + sign * p.robust_step
+            j = min(max(j, 0), len(p.values) - 1)
+            out.append((p.name, side, {**idx, p.name: j} if j != idx[p.name] else None))
+    return out
+
+
+def _spring_trades(
+    space: SearchSpace, idx: dict[str, int], evaluator: Evaluator
+) -> list[tuple[str, str, dict[str, int] | None]]:
+    """("fork"/"shock", "fewer"/"more", point or None past the spacers' range): one volume
+    spacer either way with the pressure that keeps the end's sag (air springs whose pressure
+    and spacers are both searched)."""
+    target = evaluator.sag(space.setup(idx))
+
+    def sag_of(point: Mapping[str, int]) -> Mapping[str, float]:
+        return evaluator.sag(space.setup(point))
+
+    out: list[tuple[str, str, dict[str, int] | None]] = []
+    for end in ("fork", "shock"):
+        pn, sn = f"{end}.pressure", f"{end}.spacers"
+        if pn not in space.names or sn not in space.names or end not in target:
+            continue
+        for side, step in (("fewer", -1), ("more", 1)):
+            spacers = idx[sn] + step
+            if not 0 <= spacers < len(space[sn].values):
+                out.append((end, side, None))
+                continue
+            point = {**idx, sn: spacers}
+            point[pn] = pressure_for_sag(point, end, target[end], len(space[pn].values), sag_of)
+            out.append((end, side, point))
+    return out
+
+
+# Realisations of the search the robustness steps are scored on (paired with the setup itself).
+ROBUSTNESS_REALISATIONS = 4
+
+
+def robustness_fields(
+    points: Sequence[dict[str, int]], space: SearchSpace, evaluator: Evaluator
+) -> list[dict[str, Any] | None]:
+    """For each point: the score change one step either side of every setting and of each air
+    spring's trades, paired with the setup itself on the search's first realisations, all in
+    one simulator batch, as ``RankedSetup``'s fields ``robustness``, ``sensitivity``,
+    ``steps``, ``step_effects`` and ``spring_trades`` (None for a point that did not ride)."""
+    ev = evaluator.first(ROBUSTNESS_REALISATIONS)
+    jobs: list[tuple[int, str, str, dict[str, int] | None]] = []
+    for k, idx in enumerate(points):
+        jobs.append((k, "", "", idx))
+        jobs.extend((k, name, side, pt) for name, side, pt in _neighbours(space, idx))
+        jobs.extend((k, f"trade:{end}", side, pt)
+                    for end, side, pt in _spring_trades(space, idx, evaluator))  # fmt: skip
+    ridden = [pt for *_, pt in jobs if pt is not None]
+    scored = iter(ev.evaluate([space.setup(pt) for pt in ridden]))
+    outcomes = [next(scored) if pt is not None else None for *_, pt in jobs]
+    out: list[dict[str, Any] | None] = []
+    for k in range(len(points)):
+        mine = [(j, o) for j, o in zip(jobs, outcomes, strict=True) if j[0] == k]
+        own = mine[0][1]
+        if own is None or not own.ok:
+            out.append(None)
+            continue
+        worst = 0.0
+        sens: dict[str, float] = {}
+        steps: dict[str, dict[str, float | str]] = {}
+        effects: dict[str, dict[str, dict[str, Any]]] = {}
+        trades: dict[str, dict[str, dict[str, Any]]] = {}
+        for (_, name, side, pt), o in mine[1:]:
+            if name.startswith("trade:"):
+                if pt is not None:
+                    trades.setdefault(name[6:], {})[side] = _trade(space, name[6:], pt, o, own)
+                continue
+            entry = steps.setdefault(name, {})
+            if o is None:
+                entry[side] = "end of range"
+                continue
+            if not o.ok:
+                # said in the step itself; the numbers stay those of the steps that ride
+                entry[side] = (
+                    "outside the sag window" if o.failure.startswith("infeasible") else "failed"
+                )
+                continue
+            delta = float(o.score) - float(own.score)  # type: ignore[arg-type]
+            entry[side] = delta
+            worst = max(worst, delta)
+            sens[name] = max(sens.get(name, 0.0), abs(delta))
+            effects.setdefault(name, {})[side] = _step_effect(o, own)
+        out.append({"robustness": worst, "sensitivity": sens, "steps": steps,
+                    "step_effects": effects, "spring_trades": trades})  # fmt: skip
+    return out
+
+
+def _trade(
+    space: SearchSpace, end: str, point: dict[str, int], o: Outcome | None, own: Outcome
+) -> dict[str, Any]:
+    """A spring trade as result.json keeps it: its settings as shown, its score change."""
+    shown = space.describe(point)
+    out: dict[str, Any] = {"spacers": shown[f"{end}.spacers"],
+                           "pressure": shown[f"{end}.pressure"]}  # fmt: skip
+    if o is None or not o.ok:
+        out["failed"] = (
+            "outside the sag window"
+            if o is not None and o.failure.startswith("infeasible") else "failed"
+        )  # fmt: skip
+    else:
+        out["score"] = float(o.score) - float(own.score)  # type: ignore[arg-type]
+    return out
+
+
+def _step_effect(step: Outcome, own: Outcome) -> dict[str, Any]:
+    """A step's score change with its paired 95 % interval, and its metrics' changes."""
+    n = min(len(step.scores), len(own.scores))
+    mean, low, high = paired_interval(np.subtract(step.scores[:n], own.scores[:n]))
+    return {
+        "score": mean,
+        "low": low,
+        "high": high,
+        "within_noise": bool(low <= 0.0 <= high),
+        "realisations": n,
+        "metrics": {k: v - own.metrics[k] for k, v in step.metrics.items() if k in own.metrics},
+    }
