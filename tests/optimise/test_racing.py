@@ -269,3 +269,48 @@ def test_a_realisation_one_setup_cannot_ride_leaves_the_selection(
     got = v.selection_scores(Search(), [0.1, 0.2, 0.3], 4)  # type: ignore[arg-type]
     common = np.mean([8.0, 9.0, 7.0])
     assert got == pytest.approx([common + 0.1, common + 0.2, common + 0.3], rel=1e-12)
+
+
+def test_a_realisation_one_setup_cannot_ride_leaves_the_validation(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    """Every figure comes from the validation realisations that all setups riding any of them
+    rode: one on which setup 0 ran away is dropped for everyone and the paired figures come
+    from the rest; a setup that rode none (statically impossible) keeps its failure
+    [D, definition of the paired comparison]."""
+    import tuneopt.optimise.validation as v
+    from tuneopt.optimise.evaluate import Outcome
+
+    seeds = v.validation_seeds(5, 4)
+    difficulty = dict(zip(seeds, (8.0, 9.0, 30.0, 7.0), strict=True))
+
+    class OneCourse:
+        def __init__(self, scenario: object, *, seeds: tuple[int, ...], dt: float,
+                     keep_courses: bool) -> None:
+            self.seed = seeds[0]
+
+        def evaluate(self, setups: list[float | None]) -> list[Outcome]:
+            d = difficulty[self.seed]
+            out = []
+            for k, s in enumerate(setups):
+                if s is None:
+                    out.append(Outcome(None, failure="infeasible: fork sag 40 %"))
+                elif k == 0 and d == 30.0:
+                    out.append(Outcome(None, failure="simulation: runaway"))
+                else:
+                    out.append(Outcome(d + s, terms={"pitch": s}, scores=(d + s,),
+                                       bottomed=int(d == 9.0)))  # fmt: skip
+            return out
+
+    class Search:
+        scenario, seed, dt = None, 5, 1e-3
+
+    monkeypatch.setattr(v, "Evaluator", OneCourse)
+    got, ridden = v.validation_outcomes(Search(), [0.1, None, 0.3], 4)  # type: ignore[arg-type, list-item]
+    assert ridden == 3
+    assert got[1].failure.startswith("infeasible")
+    for o, s in ((got[0], 0.1), (got[2], 0.3)):
+        assert o.scores == pytest.approx((8.0 + s, 9.0 + s, 7.0 + s), rel=1e-12)
+        assert o.score == pytest.approx(8.0 + s, rel=1e-12)
+        assert o.terms == {"pitch": pytest.approx(s)} and o.bottomed == 1
+    assert compare_scores(got[0].scores, got[2].scores).gain == pytest.approx(0.2 / 8.3)

@@ -20,7 +20,7 @@ from tuneopt.optimise.validation import (
     FINALISTS,
     compare_scores,
     selection_scores,
-    validation_evaluator,
+    validation_outcomes,
 )
 
 __all__ = ["RankedSetup", "Ranking", "pareto_front", "rank_study", "tradeoff_sentence"]
@@ -210,8 +210,7 @@ def _validated(
     set, which chose nothing: the order's own pick is not flattered by the figures."""
     setups = [space.setup(e.indices) for e in entries] + [space.base]
     chosen = selection_scores(evaluator, setups, count)
-    fresh = validation_evaluator(evaluator, count)
-    outcomes = fresh.evaluate(setups)
+    outcomes, ridden = validation_outcomes(evaluator, setups, count)
     base_out = outcomes[-1]
     kept = [
         (e, o, float(c))
@@ -225,8 +224,8 @@ def _validated(
     ))
     ranked: list[RankedSetup] = []
     for rank, (e, o, c) in enumerate(kept, start=1):
-        info: dict[str, Any] = {"realisations": fresh.realisations,
-                                "bottom_out_risk": o.bottomed / fresh.realisations,
+        info: dict[str, Any] = {"realisations": ridden,
+                                "bottom_out_risk": o.bottomed / ridden,
                                 "selection_score": c if np.isfinite(c) else None,
                                 "selection_realisations": count}
         change: dict[str, float] = {}
@@ -246,8 +245,8 @@ def _validated(
         new_base = _replace(
             base, score=float(base_out.score), terms=base_out.terms,  # type: ignore[arg-type]
             metrics=base_out.metrics,
-            validation={"realisations": fresh.realisations,
-                        "bottom_out_risk": base_out.bottomed / fresh.realisations},
+            validation={"realisations": ridden,
+                        "bottom_out_risk": base_out.bottomed / ridden},
         )
     return ranked, new_base
 

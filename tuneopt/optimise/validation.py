@@ -13,6 +13,7 @@ interval holds zero is within noise and is said so.
 
 from __future__ import annotations
 
+import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -24,6 +25,7 @@ from tuneopt.optimise.evaluate import (
     SELECTION,
     VALIDATION,
     Evaluator,
+    Outcome,
     paired_interval,
     realisation_seeds,
 )
@@ -35,7 +37,7 @@ __all__ = [
     "compare_scores",
     "selection_scores",
     "selection_seeds",
-    "validation_evaluator",
+    "validation_outcomes",
     "validation_seeds",
 ]
 
@@ -55,13 +57,46 @@ def selection_seeds(study_seed: int, count: int) -> tuple[int, ...]:
     return realisation_seeds(study_seed, count, SELECTION)
 
 
-def validation_evaluator(
-    search: Evaluator, count: int = DEFAULT_VALIDATION, *, selection: bool = False
-) -> Evaluator:
-    """An evaluator for the same scenario over ``count`` fresh realisations: the validation
-    set, or with ``selection`` the selection set."""
-    seeds = (selection_seeds if selection else validation_seeds)(search.seed, count)
-    return Evaluator(search.scenario, seeds=seeds, dt=search.dt, keep_courses=False)
+def validation_outcomes(
+    search: Evaluator, setups: Sequence[Setup], count: int = DEFAULT_VALIDATION
+) -> tuple[list[Outcome], int]:
+    """Each setup's outcome over the validation realisations that every setup riding any of
+    them rode to the end, and how many those are. As on the selection set, a realisation the
+    passive rider cannot get through on some setup (a runaway over a big feature) leaves the
+    comparison rather than the setup, so the figures stay paired; a setup that rode none of
+    them (statically impossible, or a runaway everywhere) keeps its failure."""
+    per = [
+        Evaluator(search.scenario, seeds=(seed,), dt=search.dt, keep_courses=False).evaluate(
+            setups
+        )
+        for seed in validation_seeds(search.seed, count)
+    ]
+    rode = [any(row[i].ok for row in per) for i in range(len(setups))]
+    common = [row for row in per if all(o.ok for o, r in zip(row, rode, strict=True) if r)]
+    out: list[Outcome] = []
+    for i in range(len(setups)):
+        if not rode[i]:
+            out.append(per[0][i])
+            continue
+        if not common:
+            out.append(Outcome(None, failure="simulation: no validation realisation that "
+                               "every setup rode", sag=per[0][i].sag))  # fmt: skip
+            continue
+        mine = [row[i] for row in common]
+        scores = tuple(float(o.score) for o in mine)  # type: ignore[arg-type]
+        with np.errstate(invalid="ignore"), warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # a metric no realisation has
+            metrics = {k: float(np.nanmean([o.metrics.get(k, np.nan) for o in mine]))
+                       for k in mine[0].metrics}  # fmt: skip
+        out.append(Outcome(
+            float(np.mean(scores)),
+            terms={k: float(np.mean([o.terms[k] for o in mine])) for k in mine[0].terms},
+            metrics=metrics,
+            sag=mine[0].sag,
+            scores=scores,
+            bottomed=sum(o.bottomed for o in mine),
+        ))  # fmt: skip
+    return out, len(common)
 
 
 def selection_scores(
