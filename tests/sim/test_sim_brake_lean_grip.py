@@ -19,7 +19,7 @@ from sim_setups import half_car
 from tuneopt.physics.statics import GRAVITY
 from tuneopt.sim import RoadInput, simulate_halfcar, static_tyre_loads
 from tuneopt.sim import _common as c
-from tuneopt.sim.grip import relaxation_factor
+from tuneopt.sim.grip import peak_load, relaxation_factor
 
 G = GRAVITY
 
@@ -121,9 +121,10 @@ def _accumulate(loads: np.ndarray, static_load: float, mu: float, pd2: float,
     row = acc[0]
     hist = np.zeros((1, c.HIST_BINS))
     caps = np.empty(loads.shape[0])
+    peak = float(peak_load(np.array([static_load]), pd2)[0])
     for k, load in enumerate(loads):
         c.accumulate_wheel(row, 0, hist, 0, k, load, 0.03, 0.0, 0.01, 0.15, 0.03, static_load,
-                           c.HIST_LOW, 1e-4, phase, False, demand, load, mu, pd2, relax[k])
+                           c.HIST_LOW, 1e-4, phase, False, demand, load, mu, pd2, peak, relax[k])
         caps[k] = row[c.WheelAcc.CAPACITY]
     return np.concatenate((row, caps))
 

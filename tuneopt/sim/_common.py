@@ -159,14 +159,15 @@ def init_wheel_acc(acc: FloatArray, off: int) -> None:
 def table_value(row: FloatArray, x0: float, inv_dx: float, x: float) -> float:
     """Linear interpolation on a uniform grid (start x0, 1/spacing inv_dx), extrapolated with the
     end slopes; NaN for NaN (no early exit: the clamps send NaN to the first interval and f
-    carries it)."""
+    carries it). The index is unsigned (the clamps keep it in the table), which spares the
+    compiled lookups numba's handling of negative indices."""
     u = (x - x0) * inv_dx
     top = row.shape[0] - 2.0
     v = u if u > 0.0 else 0.0
     v = v if v < top else top
-    i = int(v)
-    f = u - i
-    value: float = row[i] + f * (row[i + 1] - row[i])
+    i = np.uint64(v)
+    f = u - np.float64(i)
+    value: float = row[i] + f * (row[i + np.uint64(1)] - row[i])
     return value
 
 
@@ -249,7 +250,7 @@ def accumulate_wheel(
     acc: FloatArray, off: int, hist: FloatArray, row: int, k: int, load: float, travel: float,
     travel_rate: float, tyre_defl: float, full_travel: float, rim_defl: float, static_load: float,
     hist_low: float, hist_width: float, braking: bool, cornering: bool, demand: float,
-    ground_load: float, mu: float, pd2: float, relax: float,
+    ground_load: float, mu: float, pd2: float, peak: float, relax: float,
 ) -> None:
     """Add one sample k of one wheel: its accumulator block at off, its travel histogram hist's
     row (hist (ends, bins): indexing the row in place keeps the loop free of array views).
@@ -257,8 +258,9 @@ def accumulate_wheel(
     load: tyre force in the bike's plane [N]; travel [m] and travel_rate [m/s] (compression
     positive); tyre deflection [m]; demand: the force the phase asks of this tyre along the
     ground [N]; ground_load: the ground-normal share of the tyre force [N]; mu, pd2: friction
-    coefficient at the static load and load sensitivity [-]; relax: this sample's weight of the
-    capacity's relaxation-length lag [-] (see tuneopt.sim.grip).
+    coefficient at the static load and load sensitivity [-]; peak: the load at which the
+    capacity peaks [N]; relax: this sample's weight of the capacity's relaxation-length lag [-]
+    (see tuneopt.sim.grip).
     """
     acc[off + WheelAcc.SUM_F] += load
     acc[off + WheelAcc.SUM_F2] += load * load
@@ -302,14 +304,14 @@ def accumulate_wheel(
     nb = hist.shape[1]
     u = (travel + hist_low) / hist_width
     if u < 0.0:
-        j = 0
+        j = np.uint64(0)
     elif u >= nb - 1:
-        j = nb - 1
+        j = np.uint64(nb - 1)
     else:
-        j = int(u)
+        j = np.uint64(u)  # unsigned: no handling of negative indices in the compiled code
     hist[row, j] += 1.0
     # grip capacity through the relaxation-length lag
-    steady = grip_capacity(ground_load, static_load, mu, pd2)
+    steady = grip_capacity(ground_load, static_load, mu, pd2, peak)
     cap = acc[off + WheelAcc.CAPACITY]
     if cap != cap:
         cap = steady

@@ -10,9 +10,10 @@ given and inlines them, so the calls cost what the code written out in place wou
                                       weight w from sample i towards sample j
     rhs(y, r, p, tabs, dy, out)       the derivative dy of the states y and the sample's output
                                       channels (out[:-1]) with the road r at that time
-    record(k, y, dy, out, road, p, acc, hist, sos, zi) -> failure code
-                                      checks and metrics of sample k (y, dy finite); writes the
-                                      weighted acceleration into out's last slot for the trace
+    record(k, y, dy, out, r, road, p, acc, hist, sos, zi) -> failure code
+                                      checks and metrics of sample k (y, dy finite; r the road
+                                      inputs at the sample); writes the weighted acceleration
+                                      into out's last slot for the trace
     start(p, road) -> y               the initial state
     close(acc)                        what is still open at the end of the run
     rows(tables, b) -> tabs           one setup's table rows
@@ -98,7 +99,7 @@ def _first_stage(
     if not c.all_finite(y, kk[0], ns):
         code = c.FAIL_NON_FINITE
     else:
-        code = record(k, y, kk[0], out, road, p, acc, hist, sos, zi)
+        code = record(k, y, kk[0], out, r, road, p, acc, hist, sos, zi)
     if code != c.FAIL_NONE:
         fail[b] = code
         return False
@@ -196,11 +197,12 @@ def replay(
     for k in range(Y.shape[0]):
         for i in range(ns):
             y[i] = Y[k, i]
-        rhs(y, inputs(road, k, k, 0.0), p, tabs, dy, out)
+        r = inputs(road, k, k, 0.0)
+        rhs(y, r, p, tabs, dy, out)
         if not c.all_finite(y, dy, ns):
             code = c.FAIL_NON_FINITE
             break
-        code = record(k, y, dy, out, road, p, acc, hist, sos, zi)
+        code = record(k, y, dy, out, r, road, p, acc, hist, sos, zi)
         if code != 0:
             break
         _keep(k, out, trace, every)

@@ -32,7 +32,7 @@ from tuneopt.sim._wheel import End
 FloatArray = NDArray[np.float64]
 Channels = tuple[FloatArray, ...]
 Tables = tuple[FloatArray, FloatArray, FloatArray, FloatArray]
-Inputs = tuple[float, float, float, float, float, float]
+Inputs = tuple[float, float, float, float, float, float, float, float]
 
 
 @njit(cache=True, error_model=c.ERRORS, inline="always")
@@ -46,12 +46,16 @@ def _suspension(
 
 @njit(cache=True, error_model=c.ERRORS, inline="always")
 def _inputs(road: Channels, i: int, j: int, w: float) -> Inputs:
-    """The road heights and rates, deceleration and lateral acceleration at weight w from
-    sample i towards sample j."""
+    """The road heights and rates, deceleration, lateral acceleration, the effective gravity in
+    the leaned bike's plane and the ground-normal share of a force in that plane (cos(lean)) at
+    weight w from sample i towards sample j."""
     zf, zfd, zr, zrd, dec, lat, _, _ = road
+    ay = lat[i] + w * (lat[j] - lat[i])
+    g = c.GRAVITY if ay == 0.0 else np.sqrt(c.GRAVITY * c.GRAVITY + ay * ay)
+    upright = 1.0 if ay == 0.0 else c.GRAVITY / g
     return (zf[i] + w * (zf[j] - zf[i]), zfd[i] + w * (zfd[j] - zfd[i]),
             zr[i] + w * (zr[j] - zr[i]), zrd[i] + w * (zrd[j] - zrd[i]),
-            dec[i] + w * (dec[j] - dec[i]), lat[i] + w * (lat[j] - lat[i]))
+            dec[i] + w * (dec[j] - dec[i]), ay, g, upright)
 
 
 @njit(cache=True, error_model=c.ERRORS, inline="always")
@@ -59,7 +63,7 @@ def _rhs(
     y: FloatArray, r: Inputs, p: FloatArray, tabs: Tables, dy: FloatArray, out: FloatArray
 ) -> None:
     sf, df, sr, dr = tabs
-    zf, zfd, zr, zrd, a, ay = r
+    zf, zfd, zr, zrd, a, _, g, _ = r
     lwb = p[Par.L]
     xc = p[Par.X_C]
     xd = p[Par.X_D]
@@ -91,8 +95,6 @@ def _rhs(
     e_ftd = (vc + (xft - xc) * om) - (vd + (xft - xd) * omd)
     f_h = p[Par.F_H0] + p[Par.K_A] * e_h + p[Par.C_A] * e_hd
     f_ft = p[Par.F_FT0] + p[Par.K_L] * e_ft + p[Par.C_L] * e_ftd
-    # effective gravity in the leaned bike's plane
-    g = c.GRAVITY if ay == 0.0 else np.sqrt(c.GRAVITY * c.GRAVITY + ay * ay)
     a_d = (f_h + f_ft) * p[Par.INV_M_D] - g
     for i in range(6):
         dy[i] = y[6 + i]
@@ -145,14 +147,15 @@ def _demand(fx: float, fy: float) -> float:
 
 @njit(cache=True, error_model=c.ERRORS, inline="always")
 def _record(
-    k: int, y: FloatArray, dy: FloatArray, out: FloatArray, road: Channels, p: FloatArray,
-    acc: FloatArray, hist: FloatArray, sos: FloatArray, zi: FloatArray,
+    k: int, y: FloatArray, dy: FloatArray, out: FloatArray, r: Inputs, road: Channels,
+    p: FloatArray, acc: FloatArray, hist: FloatArray, sos: FloatArray, zi: FloatArray,
 ) -> int:
-    """Checks and metric accumulation of sample k (derivative and outputs given)."""
-    # the sample's values read at once: an array of the road held across the branches below
+    """Checks and metric accumulation of sample k (derivative and outputs given, r the road
+    inputs at the sample)."""
+    zf, _, zr, _, a, ay, _, upright = r
+    # the grip lag's weights read at once: an array of the road held across the branches below
     # would be reference-counted on every sample
-    zf_, _, zr_, _, dec, lat, rf_, rr_ = road
-    zf, zr, a, ay, relax_f, relax_r = zf_[k], zr_[k], dec[k], lat[k], rf_[k], rr_[k]
+    relax_f, relax_r = road[6][k], road[7][k]
     mu = p[Par.MU]
     if _is_runaway(p, out):
         return c.FAIL_RUNAWAY
@@ -160,20 +163,19 @@ def _record(
     cornering = ay > c.CORNERING_THRESHOLD
     m_tot = p[Par.M_TOT]
     # the tyre forces lie in the leaned bike's plane; the ground-normal share is cos(lean)
-    upright = 1.0 if ay == 0.0 else c.GRAVITY / np.sqrt(c.GRAVITY * c.GRAVITY + ay * ay)
     demand = _demand(p[_F + End.BRAKE_SHARE] * m_tot * a, p[_F + End.LAT_SHARE] * m_tot * ay)
     c.accumulate_wheel(
         acc, _ACC_F, hist, 0, k, out[Out.LOAD_F], out[Out.TRAVEL_F], out[Out.RATE_F],
         out[Out.DEFL_F], p[_F + End.TRAVEL], p[_F + End.D_RIM], p[_F + End.F_STATIC], c.HIST_LOW,
         p[_F + End.HIST_W], braking, cornering, demand, out[Out.LOAD_F] * upright,
-        mu * p[_F + End.MU_FACTOR], p[_F + End.PD2], relax_f,
+        mu * p[_F + End.MU_FACTOR], p[_F + End.PD2], p[_F + End.GRIP_PEAK], relax_f,
     )
     demand = _demand(p[_R + End.BRAKE_SHARE] * m_tot * a, p[_R + End.LAT_SHARE] * m_tot * ay)
     c.accumulate_wheel(
         acc, _ACC_R, hist, 1, k, out[Out.LOAD_R], out[Out.TRAVEL_R], out[Out.RATE_R],
         out[Out.DEFL_R], p[_R + End.TRAVEL], p[_R + End.D_RIM], p[_R + End.F_STATIC], c.HIST_LOW,
         p[_R + End.HIST_W], braking, cornering, demand, out[Out.LOAD_R] * upright,
-        mu * p[_R + End.MU_FACTOR], p[_R + End.PD2], relax_r,
+        mu * p[_R + End.MU_FACTOR], p[_R + End.PD2], p[_R + End.GRIP_PEAK], relax_r,
     )
     # the kick: how fast a deep compression extends
     ck = _ACC_CAR

@@ -8,6 +8,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tuneopt.sim import _common as c
+from tuneopt.sim.grip import peak_load
 from tuneopt.sim.params import WheelEnd
 
 FloatArray = NDArray[np.float64]
@@ -32,6 +33,7 @@ class End(c.Layout):
     HIST_W = auto()
     PD2 = auto()  # load sensitivity of the tyre's friction coefficient
     MU_FACTOR = auto()  # factor on the surface's friction coefficient (tyre pressure)
+    GRIP_PEAK = auto()  # load at which the grip capacity peaks (tuneopt.sim.grip.peak_load)
 
 
 E_FIELDS = len(End)
@@ -105,6 +107,7 @@ def pack_wheel(
     p[:, off + End.HIST_W] = (c.HIST_LOW + c.HIST_HIGH * wheel.travel) / c.HIST_BINS
     p[:, off + End.PD2] = wheel.load_sensitivity
     p[:, off + End.MU_FACTOR] = 1.0 if wheel.friction_factor is None else wheel.friction_factor
+    p[:, off + End.GRIP_PEAK] = peak_load(p[:, off + End.F_STATIC], wheel.load_sensitivity)
 
 
 def check_wheel(wheel: WheelEnd) -> None:

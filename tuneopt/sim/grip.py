@@ -22,19 +22,27 @@ import numpy as np
 from numba import njit
 from numpy.typing import NDArray
 
-__all__ = ["grip_capacity", "relaxation_factor"]
+__all__ = ["grip_capacity", "peak_load", "relaxation_factor"]
+
+
+def peak_load(fz0: NDArray[np.float64], pd2: float) -> NDArray[np.float64]:
+    """Load [N] at which the capacity peaks, fz0 (1 - 1/pd2) / 2 (above fz0 for -1 < pd2 < 0);
+    infinite without load sensitivity (pd2 = 0). fz0 nominal loads [N]."""
+    if pd2 < 0.0:
+        peak: NDArray[np.float64] = 0.5 * fz0 * (1.0 - 1.0 / pd2)
+        return peak
+    return np.full_like(fz0, np.inf)
 
 
 @njit(cache=True, error_model="numpy", inline="always")
-def grip_capacity(fz: float, fz0: float, mu0: float, pd2: float) -> float:
+def grip_capacity(fz: float, fz0: float, mu0: float, pd2: float, peak: float) -> float:
     """Steady grip capacity [N] of a tyre under ground-normal load fz [N] (nominal load fz0 [N],
-    friction coefficient mu0 at fz0 [-], load sensitivity pd2 [-]); 0 when unloaded."""
+    friction coefficient mu0 at fz0 [-], load sensitivity pd2 [-], held at its peak beyond the
+    load peak [N], ``peak_load``); 0 when unloaded."""
     if fz <= 0.0:
         return 0.0
-    if pd2 < 0.0 and fz > fz0:  # the peak lies above fz0 for -1 < pd2 < 0
-        peak = 0.5 * fz0 * (1.0 - 1.0 / pd2)
-        if fz > peak:
-            fz = peak
+    if fz > peak:
+        fz = peak
     mu = mu0 * (1.0 + pd2 * (fz - fz0) / fz0)
     return mu * fz if mu > 0.0 else 0.0
 

@@ -147,8 +147,9 @@ def _rhs(
 
 @njit(cache=True, error_model=c.ERRORS, inline="always")
 def _record(
-    k: int, y: FloatArray, dy: FloatArray, out: FloatArray, road: Channels, p: FloatArray,
-    acc: FloatArray, hist: FloatArray, sos: FloatArray, zi: FloatArray,
+    k: int, y: FloatArray, dy: FloatArray, out: FloatArray, r: tuple[float, float],
+    road: Channels, p: FloatArray, acc: FloatArray, hist: FloatArray, sos: FloatArray,
+    zi: FloatArray,
 ) -> int:
     """Checks and metric accumulation of sample k (derivative and outputs given)."""
     o = _W
@@ -158,7 +159,7 @@ def _record(
     c.accumulate_wheel(
         acc, _ACC_W, hist, 0, k, out[Out.LOAD], s, y[3] - y[2], out[Out.DEFL],
         p[o + End.TRAVEL], p[o + End.D_RIM], p[o + End.F_STATIC], c.HIST_LOW, p[o + End.HIST_W],
-        False, False, 0.0, out[Out.LOAD], 0.0, 0.0, 1.0,
+        False, False, 0.0, out[Out.LOAD], 0.0, 0.0, np.inf, 1.0,
     )
     out[_NOUT] = c.accumulate_vibration(acc, _ACC_V, sos, zi, out[Out.ACCEL])
     return c.FAIL_NONE
