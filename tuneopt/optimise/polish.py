@@ -35,6 +35,7 @@ __all__ = [
     "line_points",
     "polish_points",
     "polishing",
+    "point_key",
     "pressure_for_sag",
     "spring_points",
 ]
@@ -118,7 +119,8 @@ def pressure_for_sag(
     return min({max(lo - 1, 0), lo}, key=lambda i: abs(sag(i) - target))
 
 
-def _key(params: Mapping[str, int]) -> tuple[tuple[str, int], ...]:
+def point_key(params: Mapping[str, int]) -> tuple[tuple[str, int], ...]:
+    """A point of the search space as a key: the same for trials that asked the same setup."""
     return tuple(sorted((k, int(v)) for k, v in params.items()))
 
 
@@ -149,12 +151,12 @@ def polish_points(
     if best is None or count <= 0:
         return []
     # a queued trial (WAITING) holds its point among its system attributes until it is asked
-    seen = {_key(t.params or t.system_attrs.get("fixed_params", {})) for t in trials}
+    seen = {point_key(t.params or t.system_attrs.get("fixed_params", {})) for t in trials}
     out: list[dict[str, int]] = []
     centre = {k: int(v) for k, v in best.params.items()}
     springs = spring_points(space, centre, sag_of) if sag_of is not None else []
     for point in springs + line_points(space, centre):
-        key = _key(point)
+        key = point_key(point)
         if key in seen:
             continue
         seen.add(key)

@@ -13,6 +13,7 @@ from optuna.trial import FrozenTrial, TrialState
 
 from tuneopt.optimise.edges import edge_flags, static_warnings
 from tuneopt.optimise.evaluate import Evaluator
+from tuneopt.optimise.polish import point_key
 from tuneopt.optimise.robustness import robustness_fields
 from tuneopt.optimise.space import SearchSpace
 from tuneopt.optimise.validation import (
@@ -181,7 +182,7 @@ def _replace(e: RankedSetup, **changes: object) -> RankedSetup:
 
 def _point_key(t: FrozenTrial) -> tuple[tuple[str, int], ...]:
     """A trial's point of the search space, the same for trials that asked the same setup."""
-    return tuple(sorted((k, int(v)) for k, v in t.params.items()))
+    return point_key(t.params)
 
 
 def _distinct_best(feasible: Sequence[FrozenTrial], count: int) -> list[FrozenTrial]:

@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 
 from tuneopt.optimise.evaluate import Evaluator, Outcome, paired_interval
-from tuneopt.optimise.polish import pressure_for_sag
+from tuneopt.optimise.polish import spring_points
 from tuneopt.optimise.space import SearchSpace
 
 __all__ = ["ROBUSTNESS_REALISATIONS", "robustness_fields"]
@@ -31,28 +31,19 @@ def _neighbours(
 
 def _spring_trades(
     space: SearchSpace, idx: dict[str, int], evaluator: Evaluator
-) -> list[tuple[str, str, dict[str, int] | None]]:
-    """("fork"/"shock", "fewer"/"more", point or None past the spacers' range): one volume
-    spacer either way with the pressure that keeps the end's sag (air springs whose pressure
-    and spacers are both searched)."""
-    target = evaluator.sag(space.setup(idx))
+) -> list[tuple[str, str, dict[str, int]]]:
+    """("fork"/"shock", "fewer"/"more", point): the line search's spacer moves at the same sag
+    (``polish.spring_points``) that add or take away one spacer."""
 
     def sag_of(point: Mapping[str, int]) -> Mapping[str, float]:
         return evaluator.sag(space.setup(point))
 
-    out: list[tuple[str, str, dict[str, int] | None]] = []
-    for end in ("fork", "shock"):
-        pn, sn = f"{end}.pressure", f"{end}.spacers"
-        if pn not in space.names or sn not in space.names or end not in target:
-            continue
-        for side, step in (("fewer", -1), ("more", 1)):
-            spacers = idx[sn] + step
-            if not 0 <= spacers < len(space[sn].values):
-                out.append((end, side, None))
-                continue
-            point = {**idx, sn: spacers}
-            point[pn] = pressure_for_sag(point, end, target[end], len(space[pn].values), sag_of)
-            out.append((end, side, point))
+    out: list[tuple[str, str, dict[str, int]]] = []
+    for point in spring_points(space, idx, sag_of):
+        end = "fork" if point.get("fork.spacers") != idx.get("fork.spacers") else "shock"
+        step = point[f"{end}.spacers"] - idx[f"{end}.spacers"]
+        if abs(step) == 1:
+            out.append((end, "more" if step > 0 else "fewer", point))
     return out
 
 

@@ -18,6 +18,7 @@ import warnings
 from collections.abc import Callable, Mapping, Sequence
 from contextlib import AbstractContextManager, nullcontext
 from dataclasses import dataclass
+from functools import partial
 from typing import Any
 
 import optuna
@@ -312,7 +313,7 @@ def run_shard(
         assert isinstance(evaluate, Evaluator)
         realisations = evaluate.realisations
         evaluate_points = scenario_points(space, evaluate, RacePolicy() if plan.racing else None)
-        lines = _lines_through_leader(study, space, evaluate)
+        lines = _lines_through_leader(space, evaluate)
     else:
         dists = space
         assert not isinstance(evaluate, Evaluator)
@@ -338,7 +339,8 @@ def run_shard(
             if plan.trials is not None:
                 size = min(size, plan.trials - finished - running)
             batch = (
-                ask_batch(study, plan, dists, shard, size, finished, owner, lines)
+                ask_batch(study, plan, dists, shard, size, finished, owner,
+                          None if lines is None else partial(lines, trials))
                 if size > 0 else []
             )  # fmt: skip
         if not batch:
@@ -377,15 +379,15 @@ def run_shard(
 
 
 def _lines_through_leader(
-    study: optuna.Study, space: SearchSpace, evaluator: Evaluator
-) -> Callable[[int], list[dict[str, int]]]:
-    """The line-search points of ``tuneopt.optimise.polish`` for the study as it stands."""
+    space: SearchSpace, evaluator: Evaluator
+) -> Callable[[list[FrozenTrial], int], list[dict[str, int]]]:
+    """The line-search points of ``tuneopt.optimise.polish`` for the study's trials as the
+    shard last read them (under the ask lock, just before it asks)."""
 
     def sag_of(point: Mapping[str, int]) -> Mapping[str, float]:
         return evaluator.sag(space.setup(point))
 
-    def lines(count: int) -> list[dict[str, int]]:
-        trials = study.get_trials(deepcopy=False)
+    def lines(trials: list[FrozenTrial], count: int) -> list[dict[str, int]]:
         return polish_points(space, trials, evaluator.realisations, count, sag_of)
 
     return lines
