@@ -2,7 +2,11 @@
 no port): log in with the API key, start a scenario through the form with its side files (a
 base file and a measured damper table), watch the jobs list update itself from waiting to done
 while one worker runs the job, open the job's report and setup sheets, log out. The API and the
-worker run as processes of their own on loopback; the browser reaches nothing else."""
+worker run as processes of their own on loopback; the browser reaches nothing else.
+
+A day with a ride log: the demo log with its scenario through the form, the job's page during
+the course fit and during the search, the fit's page and fitted scenario, the report; and a
+malformed log (and one too large to send) coming back on the form, starting nothing."""
 
 from __future__ import annotations
 
@@ -14,15 +18,25 @@ import shutil
 import subprocess
 import threading
 import time
+import tomllib
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
 import pytest
+from redis import Redis
 
 from tests.conftest import SCENARIOS
 from tests.service.processes import LIMIT, ApiProcess, Workers, stop
+from tests.service.test_pages_ride_log import BAD_LINE, malformed_log
+from tests.service.test_ride_log_jobs import KNOBS
+from tuneopt.cli import main
+from tuneopt.model import scenario_from_data
+from tuneopt.optimise import CAUTIONS
+from tuneopt.service import fitting
+from tuneopt.service.records import JobStore
 from tuneopt.service.settings import Settings
+from tuneopt.service.worker import make_worker
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 STEP = 30.0  # [s] no single page step waits longer than this
@@ -291,3 +305,218 @@ def test_the_shops_overnight_job_in_a_browser(
         workers.stop_all()
         if api.alive:
             api.kill()
+
+
+TRAIL = SCENARIOS / "trail_air.toml"
+LOG = SCENARIOS / "demo_ride_log.csv"  # made by the simulator on an invented course
+
+
+def _log_in(browser: Browser, api: ApiProcess) -> None:
+    browser.go(f"{api.url}/shop/")
+    browser.at("/shop/login")
+    browser.fill("#key", api.key)
+    browser.click("button[type=submit]")
+    browser.at("/shop/")
+
+
+def _download(browser: Browser, selector: str, folder: Path) -> Path:
+    """Click a link to a file the page hands over, and the file as the browser saved it."""
+    folder.mkdir()
+    browser.send("Browser.setDownloadBehavior", {"behavior": "allow", "downloadPath": str(folder)})
+    browser.click(selector)
+    deadline = time.monotonic() + STEP
+    while time.monotonic() < deadline:
+        saved = [f for f in folder.iterdir() if not f.name.endswith(".crdownload")]
+        if saved:
+            return saved[0]
+        time.sleep(0.1)
+    pytest.fail(f"{selector}: nothing was saved within {STEP:.0f} s")
+
+
+def test_a_shops_day_with_a_ride_log_in_a_browser(
+    fit_settings: Settings,
+    browser: Browser,
+    redis_client: Redis,
+    tmp_path: Path,
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    """The demo log with its scenario, through the form: a fit of 10 rides, 4 trials. The worker
+    runs in this process, so that the test looks at the job's page in the middle of the fit and
+    in the middle of the search (the worker waits while the test looks)."""
+    api = ApiProcess(fit_settings, tmp_path)
+    try:
+        api.start()
+        _log_in(browser, api)
+        browser.click("a[href='/shop/new']")
+        browser.at("/shop/new")
+        browser.choose_files("#scenario", [TRAIL])
+        browser.choose_files("#ride_log", [LOG])
+        for box, value in (("#fit_budget", "10"), ("#fit_realisations", "1"), ("#trials", "4"),
+                           ("#realisations", "1")):  # fmt: skip
+            browser.fill(box, value)
+        browser.click("button.main")
+        address = browser.at("/shop/jobs/[0-9a-f]{32}")
+        job = address.rsplit("/", 1)[-1]
+        waiting = browser.text()
+        assert "waiting for a worker" in waiting.lower()
+        assert f"The course is fitted to {LOG.name} first" in waiting
+
+        seen: dict[str, Any] = {}
+        trouble: list[BaseException] = []
+
+        def look(stage: str) -> None:
+            """The job's page as the shop would reload it now (what it says is checked after
+            the worker: a failure in here would be the worker's, not the test's)."""
+            try:
+                browser.go(address)
+                browser.at(f"/shop/jobs/{job}")
+                seen[stage] = {
+                    "text": browser.text(),
+                    "bar": browser.evaluate(
+                        "(p => [p.value, p.max])(document.querySelector('dl.status progress'))"
+                    ),
+                    "refreshes": browser.evaluate(
+                        "!!document.querySelector('meta[http-equiv=refresh]')"
+                    ),
+                }
+                if stage == "search":  # the fit has ended: its page and its scenario open
+                    browser.click("#fit-page")
+                    browser.at(f"/shop/jobs/{job}/fit/page")
+                    seen["fit page"] = browser.text()
+                    browser.go(address)
+                    browser.at(f"/shop/jobs/{job}")
+                    saved = _download(browser, "#fit-scenario", tmp_path / "downloads")
+                    seen["fitted scenario"] = (saved.name, saved.read_text())
+            except BaseException as exc:  # noqa: BLE001 - raised again after the worker
+                trouble.append(exc)
+
+        monkeypatch.setattr(fitting, "FIT_PROGRESS_SECONDS", 0.0)  # every ride reports
+        set_fields, record_progress = JobStore.set_fields, JobStore.record_progress
+
+        def on_fit(self: JobStore, job_id: str, **fields: Any) -> None:
+            set_fields(self, job_id, **fields)
+            if "fit_rides" in fields and "fit" not in seen:
+                look("fit")
+
+        def on_search(self: JobStore, *args: Any) -> None:
+            record_progress(self, *args)
+            if "search" not in seen:
+                look("search")
+
+        monkeypatch.setattr(JobStore, "set_fields", on_fit)
+        monkeypatch.setattr(JobStore, "record_progress", on_search)
+        make_worker(fit_settings, name=f"day-{time.monotonic_ns()}").work(burst=True)
+        monkeypatch.undo()
+        if trouble:
+            raise trouble[0]
+
+        # during the fit: the page said so, its bar counting the fit's rides
+        fit = seen["fit"]
+        most = 10 + 1 + 2 * KNOBS  # the search's rides, the fitted course, a step either way
+        assert f"fitting the course to {LOG.name}" in fit["text"].lower()
+        found = re.search(r"(\d+) of at most (\d+) rides of the course fit", fit["text"])
+        assert found and int(found[2]) == most and int(found[1]) >= 1, fit["text"]
+        assert fit["bar"] == [int(found[1]), most] and fit["refreshes"]
+        assert "The search starts on the fitted course when the fit ends" in fit["text"]
+        assert "The fit's page" not in fit["text"]
+
+        # during the search: trials counted, the fit's sentences and links on the page
+        search = seen["search"]
+        assert "fitting" not in search["text"].lower() and "of 4 trials" in search["text"]
+        assert search["bar"][1] == 4 and search["refreshes"]
+        fitted_in = re.search(rf"Fitted to {re.escape(LOG.name)}: (\d+) simulated rides in all",
+                              search["text"])  # fmt: skip
+        assert fitted_in and 10 < int(fitted_in[1]) <= most, search["text"]
+        assert "Distance between log and simulation:" in search["text"]
+        assert "The fit's page" in search["text"] and "fitted scenario (TOML)" in search["text"]
+        assert f"Course fitted to {LOG.name}" in seen["fit page"]
+        assert "Before you ride" in seen["fit page"]
+
+        # the fitted scenario the page hands over is the one the search ran on
+        name, text = seen["fitted scenario"]
+        assert name.endswith("_fitted.toml"), name
+        assert all(c in text for c in CAUTIONS)
+        served = scenario_from_data(tomllib.loads(text), "served").model_dump(mode="json")
+        assert served == JobStore(redis_client).scenario(job)
+
+        # the job is done: the page stops refreshing, the fit stays, the report opens
+        browser.go(address)
+        browser.at(f"/shop/jobs/{job}")
+        page = browser.text()
+        assert "DONE" in page.upper() and "Recommended setups" in page and "4 of 4 trials" in page
+        assert f"Fitted to {LOG.name}: {fitted_in[1]} simulated rides in all" in page
+        assert not browser.evaluate("!!document.querySelector('meta[http-equiv=refresh]')")
+        browser.click("#report")
+        browser.at(f"/shop/jobs/{job}/report")
+        assert browser.evaluate("!!document.getElementById('cautions')")
+
+        # the browser asked nothing of anyone but the service
+        assert all(
+            u.startswith(api.url) or u.startswith(("about:", "data:")) for u in browser.requests
+        ), [u for u in browser.requests if not u.startswith(api.url)]
+    finally:
+        if api.alive:
+            api.kill()
+
+
+def test_a_malformed_ride_log_comes_back_on_the_form(
+    fit_settings: Settings,
+    browser: Browser,
+    redis_client: Redis,
+    tmp_path: Path,
+    capsys: pytest.CaptureFixture[str],
+) -> None:
+    line = BAD_LINE
+    bad = tmp_path / "evening_ride.csv"
+    bad.write_bytes(malformed_log())
+    # what the command line says of it
+    assert main(["fit", str(bad), "--scenario", str(TRAIL), "--out", str(tmp_path / "o")]) == 2
+    cli_said = capsys.readouterr().err
+
+    api = ApiProcess(fit_settings, tmp_path)
+    try:
+        api.start()
+        _log_in(browser, api)
+        browser.go(f"{api.url}/shop/new")
+        browser.at("/shop/new")
+        browser.choose_files("#scenario", [TRAIL])
+        browser.choose_files("#ride_log", [bad])
+        browser.fill("#fit_budget", "10")
+        browser.click("button.main")
+        browser.wait("!!document.querySelector('.problems:not([hidden]) li')", "the problems")
+        assert browser.evaluate("location.pathname") == "/shop/new"
+        said = browser.evaluate(
+            "[...document.querySelectorAll('.problems:not([hidden]) li')].map(li => li.innerText)"
+        )
+        assert len(said) == 1 and said[0].startswith(f"ride_log: line {line}, fork_travel: ")
+        message = said[0].removeprefix("ride_log: ")
+        assert message in cli_said  # the command line's words
+        as_json = {"scenario": tomllib.loads(TRAIL.read_text()), "ride_log": bad.read_text()}
+        code, body = api.call("POST", "/jobs", as_json)  # the API's words for it, as JSON
+        assert code == 422 and [(e["field"], e["message"]) for e in body["errors"]] == [
+            ("ride_log", message)
+        ]
+        assert browser.evaluate("document.getElementById('fit_budget').value") == "10"
+
+        # a log larger than the service takes in a request: said on the form before sending
+        big = tmp_path / "long_ride.csv"
+        body_limit = fit_settings.max_body_bytes
+        with big.open("w") as out:
+            out.write(LOG.read_text())
+            while out.tell() <= body_limit:
+                out.write("\n".join(LOG.read_text().splitlines()[5:]) + "\n")
+        browser.choose_files("#scenario", [TRAIL])
+        browser.choose_files("#ride_log", [big])
+        loaded = browser.evaluate("performance.timeOrigin")
+        browser.click("button.main")
+        browser.wait("!document.getElementById('too_large').hidden", "the size problem")
+        shown = browser.evaluate("document.getElementById('too_large').innerText")
+        assert "ride_log: the files come to" in shown and f"limit of {body_limit} bytes" in shown
+        assert big.name in shown
+        assert browser.evaluate("performance.timeOrigin") == loaded  # nothing was sent
+    finally:
+        if api.alive:
+            api.kill()
+    # nothing was kept or queued
+    assert not list(redis_client.scan_iter(match="tuneopt:job:*"))
+    assert redis_client.llen("rq:queue:tuneopt") == 0

@@ -34,11 +34,19 @@ from tuneopt.service.pages.templates import render_page
 from tuneopt.service.pages.views import (
     api_problems,
     deadline_seconds,
+    fit_view,
     input_problems,
+    is_fitting,
     job_view,
     tz_offset,
 )
 from tuneopt.service.records import JobStore, is_job_id
+from tuneopt.service.requests import (
+    DEFAULT_FIT_BUDGET,
+    DEFAULT_FIT_REALISATIONS,
+    MAX_FIT_REALISATIONS,
+    JobRequest,
+)
 from tuneopt.service.settings import Settings
 from tuneopt.service.uploads import MAX_SIDE_FILES, UPLOAD_PARTS
 
@@ -46,6 +54,10 @@ __all__ = ["BASE", "pages_router"]
 
 BASE = "/shop"
 REFRESH_SECONDS = 5
+# the form's file parts: the scenario's, and the ride log (passed on to the API as sent)
+FILE_PARTS = (*UPLOAD_PARTS, "ride_log")
+# the form's fields the API takes as they are (the deadline is turned into the API's first)
+PASSED_ON = ("trials", "realisations", "scenario_file", "fit_budget", "fit_realisations")
 # outside fonts, scripts and styles never load: the pages work on a closed network
 _CSP = (
     "default-src 'none'; style-src 'unsafe-inline'; img-src data:; form-action 'self'; "
@@ -152,11 +164,16 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
         return page(
             request, "new", status=status, nonce=secrets.token_urlsafe(16), title="New job",
             problems=problems, token=secrets.token_hex(16),
-            form={k: form.get(k, "") for k in ("scenario_file", "trials", "deadline",
-                                                 "realisations")},
+            form={k: form.get(k, "") for k in (*PASSED_ON, "deadline")},
             max_trials=settings.max_trials, default_trials=min(200, settings.max_trials),
             max_hours=f"{settings.max_run_seconds / 3600:g}",
             default_realisations=DEFAULT_REALISATIONS,
+            min_fit_budget=_FIT_BUDGET_MIN, max_fit_rides=settings.max_fit_rides,
+            default_fit_budget=min(DEFAULT_FIT_BUDGET, settings.max_fit_rides),
+            default_fit_realisations=DEFAULT_FIT_REALISATIONS,
+            max_fit_realisations=MAX_FIT_REALISATIONS,
+            max_body_bytes=settings.max_body_bytes,
+            max_body=f"{settings.max_body_bytes / 1e6:g} MB ({settings.max_body_bytes} bytes)",
         )  # fmt: skip
 
     @router.get(BASE + "/new")
@@ -179,7 +196,7 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
             seconds = deadline_seconds(text.get("deadline", ""), now, offset)
         except InputError as exc:
             return new_form(request, 422, input_problems(exc), text)
-        fields = {k: text[k] for k in ("trials", "realisations", "scenario_file") if text.get(k)}
+        fields = {k: text[k] for k in PASSED_ON if text.get(k)}
         if seconds is not None:  # the API's absolute deadline: the job waits in the queue too
             fields["deadline"] = (now + timedelta(seconds=seconds)).isoformat()
         if not any(name == "scenario" for name, _ in files):
@@ -204,6 +221,13 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
             return _text(answer.status_code, api_problems(answer)[0][1])
         status = answer.json()
         view = job_view(status, time.time())
+        numbers, missing = None, ""
+        if status.get("fit") and status["state"] != "queued" and not is_fitting(status):
+            fit = await call(request, "GET", f"/jobs/{job_id}/fit")
+            if fit.status_code == 200:
+                numbers = fit.json()
+            else:
+                missing = api_problems(fit)[0][1]
         ranked: list[dict[str, Any]] = []
         no_result = ""
         if not view["live"]:
@@ -220,7 +244,7 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
             request, "job", title=f"Job: {status['scenario']}", j=view, ranked=ranked,
             errors=status.get("errors", []), events=status.get("events", []),
             no_result=no_result, refresh=REFRESH_SECONDS if view["live"] else 0,
-            cautions=list(CAUTIONS) if ranked else None,
+            cautions=list(CAUTIONS) if ranked else None, fit=fit_view(status, numbers, missing),
         )  # fmt: skip
 
     @router.post(BASE + "/jobs/{job_id}/cancel")
@@ -232,22 +256,34 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
             return _text(answer.status_code, api_problems(answer)[0][1])
         return RedirectResponse(f"{BASE}/jobs/{job_id}", status_code=303)
 
-    @router.get(BASE + "/jobs/{job_id}/report")
-    async def report(request: Request, job_id: str) -> Response:
+    async def from_api(
+        request: Request, job_id: str, path: str, **kwargs: Any
+    ) -> httpx2.Response | Response:
+        """The API's answer to GET of one of a job's files (``path`` under the job), or what the
+        browser gets instead: the page a refused request gets, or the API's problem in words."""
         if (no := refused(request, job_id)) is not None:
             return no
-        answer = await call(request, "GET", f"/jobs/{job_id}/report")
+        answer = await call(request, "GET", f"/jobs/{job_id}{path}", **kwargs)
         if answer.status_code != 200:
             return _text(answer.status_code, api_problems(answer)[0][1])
+        return answer
+
+    async def html_from_api(request: Request, job_id: str, path: str, **kwargs: Any) -> Response:
+        """One of a job's HTML pages as the API keeps it, under the pages' own headers."""
+        answer = await from_api(request, job_id, path, **kwargs)
+        if isinstance(answer, Response):
+            return answer
         return HTMLResponse(answer.text, headers=_headers(_CSP))
+
+    @router.get(BASE + "/jobs/{job_id}/report")
+    async def report(request: Request, job_id: str) -> Response:
+        return await html_from_api(request, job_id, "/report")
 
     @router.get(BASE + "/jobs/{job_id}/result.json")
     async def result_file(request: Request, job_id: str) -> Response:
-        if (no := refused(request, job_id)) is not None:
-            return no
-        answer = await call(request, "GET", f"/jobs/{job_id}/result")
-        if answer.status_code != 200:
-            return _text(answer.status_code, api_problems(answer)[0][1])
+        answer = await from_api(request, job_id, "/result")
+        if isinstance(answer, Response):
+            return answer
         return JSONResponse(
             answer.json(),
             headers={"Content-Disposition": f'attachment; filename="{job_id}-result.json"'},
@@ -255,23 +291,41 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
 
     @router.get(BASE + "/jobs/{job_id}/sheet")
     async def sheet(request: Request, job_id: str, rank: int | None = None) -> Response:
-        if (no := refused(request, job_id)) is not None:
-            return no
         params = {"rank": rank} if rank else {}
-        answer = await call(request, "GET", f"/jobs/{job_id}/sheet", params=params)
-        if answer.status_code != 200:
-            return _text(answer.status_code, api_problems(answer)[0][1])
-        return HTMLResponse(answer.text, headers=_headers(_CSP))
+        return await html_from_api(request, job_id, "/sheet", params=params)
+
+    @router.get(BASE + "/jobs/{job_id}/fit/page")
+    async def fit_page(request: Request, job_id: str) -> Response:
+        return await html_from_api(request, job_id, "/fit/page")
+
+    @router.get(BASE + "/jobs/{job_id}/fit/scenario")
+    async def fit_scenario(request: Request, job_id: str) -> Response:
+        """The fitted scenario, a file to save (the API shows it inline)."""
+        answer = await from_api(request, job_id, "/fit/scenario")
+        if isinstance(answer, Response):
+            return answer
+        disposition = answer.headers["content-disposition"].replace("inline;", "attachment;", 1)
+        return Response(
+            answer.content,
+            media_type=answer.headers["content-type"],
+            headers={"Content-Disposition": disposition, **_headers(_CSP)},
+        )
 
     return router
 
 
+# the least fit budget the API takes (its own bound, read from its request model)
+_FIT_BUDGET_MIN = next(
+    int(m.ge) for m in JobRequest.model_fields["fit_budget"].metadata if hasattr(m, "ge")
+)
+
+
 async def _job_form(request: Request) -> tuple[dict[str, str], list[tuple[str, Any]]]:
     """The new-job form's text fields, and its files as (part, (name, bytes)) to pass on."""
-    async with request.form(max_files=1 + MAX_SIDE_FILES, max_fields=12) as form:
+    async with request.form(max_files=2 + MAX_SIDE_FILES, max_fields=14) as form:
         text = {k: v.strip() for k, v in form.multi_items() if isinstance(v, str)}
         files = []
-        for name in UPLOAD_PARTS:
+        for name in FILE_PARTS:
             for part in form.getlist(name):
                 if not isinstance(part, str) and (part.filename or part.size):
                     files.append((name, (part.filename or "", await part.read())))

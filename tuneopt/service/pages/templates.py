@@ -91,7 +91,7 @@ runs.{% else %}No job is running.{% endif %} <a href="{{ base }}/new">Start a ne
 <li class="{{ j.state }}" data-job="{{ j.id }}">
 <div><a class="what" href="{{ base }}/jobs/{{ j.id }}">{{ j.scenario }}</a>
 <span class="state">{{ j.state_text }}</span></div>
-<div><progress max="{{ j.budget or 1 }}" value="{{ j.finished }}"></progress>
+<div><progress max="{{ j.bar_max }}" value="{{ j.bar_value }}"></progress>
 <span class="trials">{{ j.trials }}</span>
 {% if j.best %}&middot; best search score <span class="best">{{ j.best }}</span>{% endif %}
 {% if j.left %}&middot; <span class="left">{{ j.left }}</span>{% endif %}</div>
@@ -110,6 +110,8 @@ the jobs list for its progress.</p>
 {% if problems %}<div class="problems"><p>The job was not started:</p><ul>
 {% for field, message in problems %}<li><strong>{{ field }}</strong>: {{ message }}</li>{% endfor %}
 </ul></div>{% endif %}
+<div class="problems" id="too_large" hidden><p>The job was not started:</p><ul>
+<li><strong></strong><span></span></li></ul></div>
 <form method="post" action="{{ base }}/new" enctype="multipart/form-data">
 <input type="hidden" name="token" value="{{ token }}">
 <input type="hidden" name="tz_offset" id="tz_offset" value="">
@@ -124,6 +126,25 @@ the jobs list for its progress.</p>
 <code>measured_table</code>.</p>
 <label for="scenario_file">Scenario in the folder (only when the archive holds several)</label>
 <input type="text" id="scenario_file" name="scenario_file" value="{{ form.scenario_file }}">
+</fieldset>
+<fieldset><legend>Ride log (optional)</legend>
+<label for="ride_log">Ride log of this bike (.csv)</label>
+<input type="file" id="ride_log" name="ride_log" accept=".csv,.txt">
+<p class="hint">With a log, the job first fits the scenario's course to what the bike did on
+the ride, then searches on the fitted course. The log's layout is in docs/ride-logs.md; a
+setup file its header names (<code># setup: FILE</code>) goes with the files above. A log the
+service cannot read is refused here, by line, and nothing starts.</p>
+<label for="fit_budget">Rides of the course fit</label>
+<input type="number" id="fit_budget" name="fit_budget" min="{{ min_fit_budget }}"
+       max="{{ max_fit_rides }}" value="{{ form.fit_budget }}">
+<p class="hint">Empty: {{ default_fit_budget }}. From {{ min_fit_budget }} to
+{{ max_fit_rides }} simulated rides; only with a ride log.</p>
+<label for="fit_realisations">Course realisations of each ride of the fit</label>
+<input type="number" id="fit_realisations" name="fit_realisations" min="1"
+       max="{{ max_fit_realisations }}" value="{{ form.fit_realisations }}">
+<p class="hint">Empty: {{ default_fit_realisations }}. At most {{ max_fit_realisations }};
+only with a ride log.</p>
+<p class="hint">Everything sent at once, the log included, may be at most {{ max_body }}.</p>
 </fieldset>
 <fieldset><legend>Budget</legend>
 <label for="trials">Trials</label>
@@ -145,6 +166,28 @@ at its trials or at this time, whichever comes first, and then ranks what it fin
 </form>
 <script nonce="{{ nonce }}">
 document.getElementById("tz_offset").value = String(new Date().getTimezoneOffset());
+// the service refuses a request over its size limit before reading it: say so here, by field
+document.querySelector("form[enctype]").addEventListener("submit", function (e) {
+  var total = 0, largest = null;
+  document.querySelectorAll("input[type=file]").forEach(function (box) {
+    for (var i = 0; i < box.files.length; i++) {
+      total += box.files[i].size;
+      if (!largest || box.files[i].size > largest.size) {
+        largest = {field: box.name, name: box.files[i].name, size: box.files[i].size};
+      }
+    }
+  });
+  if (total <= {{ max_body_bytes }}) { return; }
+  e.preventDefault();
+  var box = document.getElementById("too_large");
+  box.querySelector("strong").textContent = largest.field;
+  box.querySelector("span").textContent = ": the files come to " + total + " bytes, above "
+    + "this service's limit of {{ max_body_bytes }} bytes for a job (" + largest.name
+    + " alone is " + largest.size + " bytes); send a shorter log or ask the operator to "
+    + "raise TUNEOPT_MAX_BODY_BYTES";
+  box.hidden = false;
+  box.scrollIntoView();
+});
 </script>
 {% endblock %}
 """
@@ -154,7 +197,8 @@ JOB = """{% extends "layout" %}{% block body %}
 <p class="lead"><span class="state" id="state">{{ j.state_text }}</span>
 {% if refresh %}&middot; this page updates itself every {{ refresh }} seconds{% endif %}</p>
 <dl class="status">
-<dt>Trials</dt><dd><progress max="{{ j.budget or 1 }}" value="{{ j.finished }}"></progress>
+<dt>{{ "Course fit" if j.fitting else "Trials" }}</dt>
+<dd><progress max="{{ j.bar_max }}" value="{{ j.bar_value }}"></progress>
 <span class="trials">{{ j.trials }}</span></dd>
 <dt>Best search score</dt><dd>{{ j.best or "none yet" }}{% if j.best %} (lower is better;
 the recommended setups below are scored again on fresh terrain){% endif %}</dd>
@@ -171,6 +215,18 @@ the recommended setups below are scored again on fresh terrain){% endif %}</dd>
 {% if j.cancel_requested %}Cancel asked for{% else %}Cancel the job{% endif %}</button>
 <span class="hint">The setups finished so far are still ranked.</span></p>
 </form>
+{% endif %}
+{% if fit %}
+<h2>Course fit</h2>
+<p id="fit">{{ fit.said }}</p>
+{% if fit.lines %}<ul class="note" id="fit-lines">{% for line in fit.lines %}<li>{{ line }}</li>
+{% endfor %}</ul>{% endif %}
+{% if fit.kept %}
+<p><a class="button" id="fit-page" href="{{ base }}/jobs/{{ j.id }}/fit/page">The fit's page</a>
+<a id="fit-scenario" href="{{ base }}/jobs/{{ j.id }}/fit/scenario">fitted scenario (TOML)</a>
+<span class="hint">the scenario with its course fitted to {{ fit.log }}: the search runs on it,
+and <code>tuneopt optimise</code> takes it as it is</span></p>
+{% endif %}
 {% endif %}
 {% if errors %}<h2>Errors</h2><ul class="findings">
 {% for e in errors %}<li>{{ e }}</li>{% endfor %}</ul>{% endif %}

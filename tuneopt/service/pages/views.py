@@ -11,7 +11,16 @@ import httpx2
 
 from tuneopt.model import InputError
 
-__all__ = ["LIVE", "api_problems", "deadline_seconds", "input_problems", "job_view", "tz_offset"]
+__all__ = [
+    "LIVE",
+    "api_problems",
+    "deadline_seconds",
+    "fit_view",
+    "input_problems",
+    "is_fitting",
+    "job_view",
+    "tz_offset",
+]
 
 LIVE = ("queued", "running", "finishing")
 _STATE_TEXT = {
@@ -107,9 +116,11 @@ def job_view(status: dict[str, Any], now: float) -> dict[str, Any]:
         ran = f"{_duration(took.total_seconds())}, ended {_ago(status['ended'], now)}"
     trials = f"{p['finished']} of {'?' if p.get('budget') is None else p['budget']} trials"
     fit = status.get("fit")
-    if state == "running" and status.get("stage") == "fit" and fit:  # fitting the course
+    bar = (p["finished"], p.get("budget") or 1)
+    if is_fitting(status) and fit:  # fitting the course
         text = f"fitting the course to {fit['log']}" + text.removeprefix("running")
         trials = f"{fit['rides']} of at most {fit['rides_at_most']} rides of the course fit"
+        bar = (fit["rides"], fit["rides_at_most"])
     best = p.get("best_score")
     pace = p.get("trials_per_minute") or 0.0
     return {
@@ -121,6 +132,9 @@ def job_view(status: dict[str, Any], now: float) -> dict[str, Any]:
         "cancel_requested": bool(status.get("cancel_requested")),
         "finished": p["finished"],
         "budget": p.get("budget"),
+        "fitting": is_fitting(status) and bool(fit),
+        "bar_value": bar[0],  # the progress bar: the fit's rides while it runs, else trials
+        "bar_max": bar[1],
         "trials": trials,
         "best": "" if best is None else f"{best:.4f}",
         "left": left,
@@ -129,6 +143,46 @@ def job_view(status: dict[str, Any], now: float) -> dict[str, Any]:
         "deadline": deadline,
         "ran": ran,
     }
+
+
+def is_fitting(status: dict[str, Any]) -> bool:
+    """Whether a job is fitting its course to its ride log now."""
+    return status["state"] == "running" and status.get("stage") == "fit"
+
+
+def fit_view(
+    status: dict[str, Any], numbers: dict[str, Any] | None, missing: str = ""
+) -> dict[str, Any] | None:
+    """The course fit of a job sent with a ride log, in the words the job's page shows: what
+    it is doing, and once it has ended its sentences (``numbers``, as GET /jobs/<id>/fit gives
+    them) and whether its page and fitted scenario can be opened; ``missing`` is the API's
+    word for a fit that is not there. None for a job without a ride log."""
+    fit = status.get("fit")
+    if not fit:
+        return None
+    lines: list[str] = []
+    if numbers is not None:
+        said = (
+            f"Fitted to {fit['log']}: {numbers['rides']} simulated rides in all, the check of "
+            "each fitted number included."
+        )
+        lines = [str(line) for line in numbers.get("lines", [])]
+    elif is_fitting(status):
+        best = fit.get("best_distance")
+        closest = "" if best is None else f"; closest to the log so far: {best:.3f}"
+        said = (
+            f"Fitting the course to {fit['log']}: {fit['rides']} of at most "
+            f"{fit['rides_at_most']} simulated rides{closest}. The search starts on the fitted "
+            "course when the fit ends."
+        )
+    elif status["state"] == "queued":
+        said = (
+            f"The course is fitted to {fit['log']} first (at most {fit['rides_at_most']} "
+            "simulated rides), then the search runs on the fitted course."
+        )
+    else:
+        said = f"No course fit to {fit['log']}: {missing or 'none was kept'}."
+    return {"log": fit["log"], "said": said, "lines": lines, "kept": numbers is not None}
 
 
 def api_problems(response: httpx2.Response) -> list[tuple[str, str]]:
