@@ -8,6 +8,12 @@ Before every simulated ride of the fit the part checks for a cancel, a delete, t
 deadline and its worker being asked to stop; one ride costs at most what one setup may
 (``TUNEOPT_MAX_SAMPLES_PER_SETUP``, checked at submission), so stops act within a ride.
 
+Every ride is kept in Redis as it is made (its name and outcome as plain data,
+tuneopt.calibrate.resume), so that an attempt taken up after a hand-back or a crash goes on
+from the rides already made: it runs the same deterministic search again, is answered the
+kept rides from Redis and rides only the rest (a crash loses at most the ride it was making).
+The fit it ends with is the uninterrupted fit's. Once the fit is kept whole, its rides go.
+
 A course may hold measured profiles (sent as side files, or inline): as in ``tuneopt fit``
 they are ridden as measured by every candidate and keep their entries and shares, and only the
 built-in entries are fitted. The fitted scenario carries each profile's samples inline, so that
@@ -24,7 +30,8 @@ import logging
 import time
 import tomllib
 import zlib
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 from redis.client import Pipeline
@@ -40,7 +47,8 @@ from tuneopt.service.records import JobRecord, JobState, JobStore, is_job_id
 from tuneopt.service.requests import _cost_problems
 
 if TYPE_CHECKING:
-    from tuneopt.calibrate import FitProblem, RideDistance, RideSamples
+    from tuneopt.calibrate import RideDistance, RideSamples
+    from tuneopt.calibrate.resume import ResumableProblem
     from tuneopt.model.course import CourseSpec
     from tuneopt.ridelog import RideLog
 
@@ -110,6 +118,16 @@ def fit_course_problems(scenario: Scenario) -> list[FieldProblem]:
     return _too_large(len(text.encode("utf-8")) + FITTED_HEADER_ROOM, course, "")
 
 
+@dataclass
+class _Rides:
+    """A fit's rides so far: ``spent`` every candidate evaluated, as an uninterrupted fit
+    counts them (those an earlier attempt made included); ``kept`` those answered from what
+    an earlier attempt kept."""
+
+    spent: int = 0
+    kept: int = 0
+
+
 class _FitStopped(Exception):
     """The fit stopped before a ride: ``why`` is "worker", "cancel" or "deadline"."""
 
@@ -157,29 +175,30 @@ def fit_job(job_id: str) -> str:
     most = int(fit["rides_at_most"])
     event(log, "job.fitting", f"fitting the course to {fit['log']}: at most {most} rides",
           job=job_id, rides=most)  # fmt: skip
-    rides = [0]
+    rides = _Rides()
     try:
         kept = _fit(store, record, fit, deadline, rides)
     except _FitStopped as stop:
-        return _stopped(store, job_id, stop.why, rides[0], most)
+        return _stopped(store, job_id, stop.why, rides.spent, most)
     except InputError as exc:
         store.add_error(job_id, f"course fit: {exc.describe()}")
         return tasks._end(store, job_id, JobState.FAILED)
     if not store.keep_fit(job_id, *kept):  # it ended meanwhile (a delete is purged by its part)
         after = store.get(job_id)
         return after.state.value if after is not None else "gone"
-    event(log, "job.fitted", f"course fitted to {fit['log']} in {rides[0]} rides: distance "
-          f"{kept[1]['before']['total']:.3f} -> {kept[1]['after']['total']:.3f}",
-          job=job_id, rides=rides[0])  # fmt: skip
+    earlier = f" ({rides.kept} of them made by an earlier attempt)" if rides.kept else ""
+    event(log, "job.fitted", f"course fitted to {fit['log']} in {rides.spent} rides{earlier}: "
+          f"distance {kept[1]['before']['total']:.3f} -> {kept[1]['after']['total']:.3f}",
+          job=job_id, rides=rides.spent, kept=rides.kept)  # fmt: skip
     return tasks.start_job(job_id)
 
 
 def _stopped(store: JobStore, job_id: str, why: str, rides: int, most: int) -> str:
     """End (or hand back) a job whose fit stopped before a ride."""
     if why == "worker":
-        # another worker fits again from the start: an event, not a failure (rq queues the
+        # another worker goes on from the rides kept: an event, not a failure (rq queues the
         # part again and the worker does not count it against its retries)
-        message = f"course fit handed back after {rides} rides: its worker is stopping"
+        message = f"course fit handed back after {rides} rides, kept: its worker is stopping"
         store.add_event(job_id, message)
         event(log, "job.fit_handed_back", message, job=job_id, rides=rides)
         raise tasks.ShardInterrupted(message)
@@ -200,31 +219,38 @@ def _watched_problem(
     setup: Setup,
     ride_log: RideLog,
     seeds: Sequence[int],
+    kept: Mapping[str, Mapping[str, Any]],
+    keep: Callable[[str, dict[str, Any]], None],
     before_ride: Callable[[], None],
     after_ride: Callable[[float], None],
-) -> FitProblem:
-    """calibrate's fit problem with a check before every simulated ride (a stop raises there)
-    and a report after it (its distance)."""
-    from tuneopt.calibrate import FitProblem
+) -> ResumableProblem:
+    """calibrate's fit problem answering the rides ``kept`` by an earlier attempt and handing
+    every new ride to ``keep``, with a check before every simulated ride (a stop raises there)
+    and a report after every candidate (its distance)."""
+    from tuneopt.calibrate.resume import ResumableProblem
 
-    class Watched(FitProblem):
+    class Watched(ResumableProblem):
+        def ride(self, spec: CourseSpec) -> RideSamples | None:
+            before_ride()
+            return super().ride(spec)
+
         def evaluate(
             self, spec: CourseSpec, *, with_ks: bool = True
         ) -> tuple[float, RideSamples | None, RideDistance | None]:
-            before_ride()
             scored = super().evaluate(spec, with_ks=with_ks)
             after_ride(scored[0])
             return scored
 
-    return Watched(scenario, setup, ride_log, seeds)
+    return Watched(scenario, setup, ride_log, seeds, kept=kept, keep=keep)
 
 
 def _fit(
-    store: JobStore, record: JobRecord, fit: dict[str, Any], deadline: float, rides: list[int]
+    store: JobStore, record: JobRecord, fit: dict[str, Any], deadline: float, rides: _Rides
 ) -> tuple[dict[str, Any], dict[str, Any], str, bytes | None]:
     """The fit of the job's course to its log: the fitted scenario (as the search reads it),
     the fit's numbers, the fitted scenario's file and the page (compressed; None when above
-    the operator's limit). ``rides`` holds the rides spent so far."""
+    the operator's limit). ``rides`` counts the rides spent so far; the rides an earlier
+    attempt kept are not ridden again."""
     from tuneopt.calibrate import fit_course, fit_space
     from tuneopt.calibrate.fit import FAILED_SCORE, knob_checks
     from tuneopt.calibrate.summary import fit_json, fit_lines, parameter_rows
@@ -260,19 +286,32 @@ def _fit(
             raise _FitStopped("deadline")
 
     def after_ride(score: float) -> None:
-        rides[0] += 1
+        rides.spent, rides.kept = problem.evaluations, problem.replayed
         best[0] = min(best[0], score)
         if time.monotonic() - told[0] >= FIT_PROGRESS_SECONDS:
             told[0] = time.monotonic()
-            store.set_fields(job_id, fit_rides=rides[0], fit_best=repr(best[0]))
+            store.set_fields(job_id, fit_rides=rides.spent, fit_best=repr(best[0]))
 
+    def keep(name: str, outcome: dict[str, Any]) -> None:
+        store.keep_fit_ride(job_id, name, outcome)
+
+    kept = store.fit_rides(job_id)
+    if kept:
+        message = (
+            f"course fit taken up again: the {len(kept)} rides an earlier attempt made are "
+            "kept and not ridden again"
+        )
+        store.add_event(job_id, message)
+        event(log, "job.fit_resumed", message, job=job_id, kept=len(kept))
     seeds = tuple(course.seed + k for k in range(int(fit["realisations"])))
-    problem = _watched_problem(scenario, setup, ride_log, seeds, before_ride, after_ride)
+    problem = _watched_problem(
+        scenario, setup, ride_log, seeds, kept, keep, before_ride, after_ride
+    )
     space = fit_space(course)
     result = fit_course(problem, space, budget=int(fit["budget"]), seed=int(record.request["seed"]))
     build_course(result.fitted, course.seed)  # InputError if it cannot be built
     checks = knob_checks(problem, result)
-    store.set_fields(job_id, fit_rides=rides[0], fit_best=repr(result.after.total))
+    store.set_fields(job_id, fit_rides=rides.spent, fit_best=repr(result.after.total))
     rows = parameter_rows(result, checks)
     lines = fit_lines(result, rows)
     header = [
@@ -324,7 +363,7 @@ def _fit(
             "scenario": scenario.name,
             "ridden_setup": setup.model_dump(mode="json"),
             "setup_label": fit["setup_label"],
-            "rides": rides[0],
+            "rides": rides.spent,
             "lines": lines,
             "cautions": list(CAUTIONS),
         }

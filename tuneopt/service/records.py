@@ -8,6 +8,7 @@ from __future__ import annotations
 import hashlib
 import json
 import time
+import zlib
 from collections.abc import Callable
 from typing import Any, TypeVar, cast
 
@@ -36,6 +37,14 @@ _KEEP_LAST_20 = """
 if redis.call('EXISTS', KEYS[1]) == 0 then return 0 end
 redis.call('RPUSH', KEYS[2], ARGV[1])
 redis.call('LTRIM', KEYS[2], -20, -1)
+local ttl = redis.call('PTTL', KEYS[1])
+if ttl > 0 then redis.call('PEXPIRE', KEYS[2], ttl) end
+return 1
+"""
+# one ride of a course fit, kept on a job that exists, expiring with the job's record
+_KEEP_FIT_RIDE = """
+if redis.call('EXISTS', KEYS[1]) == 0 then return 0 end
+redis.call('HSET', KEYS[2], ARGV[1], ARGV[2])
 local ttl = redis.call('PTTL', KEYS[1])
 if ttl > 0 then redis.call('PEXPIRE', KEYS[2], ttl) end
 return 1
@@ -75,6 +84,7 @@ class JobStore:
         self._set_if_exists = redis.register_script(_SET_IF_EXISTS)
         self._progress = redis.register_script(_PROGRESS)
         self._keep_last_20 = redis.register_script(_KEEP_LAST_20)
+        self._keep_fit_ride = redis.register_script(_KEEP_FIT_RIDE)
         self._forget_submission = redis.register_script(_FORGET_SUBMISSION)
 
     # keys
@@ -112,6 +122,12 @@ class JobStore:
         (zlib-compressed HTML)."""
         base = self.key(job_id)
         return f"{base}:fit", f"{base}:fit-scenario", f"{base}:fit-page"
+
+    def fit_rides_key(self, job_id: str) -> str:
+        """The rides of a course fit not yet kept as finished: a hash of ride name to the
+        ride's outcome (zlib-compressed JSON, tuneopt.calibrate.resume), so that an attempt
+        taken up after a stop or a crash goes on from them."""
+        return f"{self.key(job_id)}:fit-rides"
 
     # records
     def create(
@@ -192,6 +208,7 @@ class JobStore:
             self._events_key(job_id),
             self.ride_log_key(job_id),
             *self._fit_keys(job_id),
+            self.fit_rides_key(job_id),
             *(self._owner_key(job_id, k) for k in range(shards)),
         )
 
@@ -364,8 +381,30 @@ class JobStore:
             if page is not None:
                 pipe.set(page_key, page)
             pipe.hset(key, mapping={"scenario": json.dumps(scenario), "stage": "search"})
+            pipe.delete(self.fit_rides_key(job_id))  # the fit is kept whole: its rides go
 
         return self._if_live(job_id, writes)
+
+    def keep_fit_ride(self, job_id: str, name: str, outcome: dict[str, Any]) -> bool:
+        """Keep one ride of the job's course fit (its name and outcome, plain data), on a job
+        that exists; it expires with the job's record. False when the job is gone."""
+        packed = zlib.compress(json.dumps(outcome).encode("utf-8"), 6)
+        done = self._keep_fit_ride(
+            keys=[self.key(job_id), self.fit_rides_key(job_id)], args=[name, packed]
+        )
+        return bool(done)
+
+    def fit_rides(self, job_id: str) -> dict[str, dict[str, Any]]:
+        """The rides of the job's course fit kept so far, by name. A ride whose outcome cannot
+        be read back is left out (the fit rides it again)."""
+        raw: dict[bytes, bytes] = self._raw().hgetall(self.fit_rides_key(job_id))  # type: ignore[assignment]
+        out = {}
+        for name, packed in raw.items():
+            try:
+                out[name.decode("utf-8")] = dict(json.loads(zlib.decompress(packed)))
+            except (zlib.error, ValueError, TypeError):
+                continue
+        return out
 
     def get_fit(self, job_id: str) -> dict[str, Any] | None:
         text = self.redis.get(self._fit_keys(job_id)[0])
@@ -391,8 +430,8 @@ class JobStore:
         return self._raw_client
 
     def purge(self, job_id: str) -> None:
-        """The job's record, result, errors, shard owners and Idempotency-Key, in one
-        transaction."""
+        """The job's record, result, errors, shard owners, ride log, course fit (its rides
+        too) and Idempotency-Key, in one transaction."""
         request, submission = self.redis.hmget(self.key(job_id), ["request", "submission"])
         shards = int(json.loads(request).get("shards", 0)) if request else 0
         keys = self.job_keys(job_id, shards)
