@@ -1,7 +1,8 @@
 """What both models' drivers share: the fixed-step RK4 loop over a batch, the replay of given
 states through the metric accumulation, the right-hand side at any time for solve_ivp and the
-solve_ivp reference loop; on the Python side the batch's working arrays, the kernel call, the
-traces and the wheels' metrics.
+solve_ivp reference loop; on the Python side the batch's working arrays, the kernel call, what
+every result takes from the batch (wheels' metrics, vibration, statics, failures, traces) and the
+two entry points, ``simulate`` and ``simulate_reference``, over a ``Model``'s pieces.
 
 A model hands its compiled pieces to the loops (numba specialises a loop on the functions it is
 given and inlines them, so the calls cost what the code written out in place would):
@@ -26,7 +27,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
-from typing import Any, Unpack
+from typing import Any, Generic, TypeVar, Unpack
 
 import numba
 import numpy as np
@@ -37,7 +38,13 @@ from scipy.integrate import solve_ivp
 from tuneopt.sim import _common as c
 from tuneopt.sim._wheel import End
 from tuneopt.sim.iso2631 import weighting_sos
-from tuneopt.sim.metrics import WheelMetrics, wheel_metrics
+from tuneopt.sim.metrics import (
+    VibrationMetrics,
+    WheelMetrics,
+    failure_reasons,
+    vibration_metrics,
+    wheel_metrics,
+)
 from tuneopt.sim.params import ReferenceOptions, WheelEnd
 from tuneopt.sim.road import RoadInput
 
@@ -45,6 +52,8 @@ FloatArray = NDArray[np.float64]
 Channels = tuple[FloatArray, ...]
 # A wheel end of a model: its block's offset in the parameter row and in the accumulator row.
 EndSlot = tuple[int, int]
+ParamsT = TypeVar("ParamsT")
+ResultT = TypeVar("ResultT")
 
 
 @njit(cache=True, error_model=c.ERRORS, inline="always")
@@ -311,17 +320,44 @@ def traces(batch: Batch, dt: float) -> tuple[FloatArray, FloatArray]:
     return np.arange(tr.shape[2], dtype=np.float64) * (batch.every * dt), tr
 
 
-def wheel_results(
-    batch: Batch, road: RoadInput, n_brake: FloatArray, n_corner: FloatArray
-) -> list[WheelMetrics]:
-    """Each end's WheelMetrics from its accumulator block and histogram."""
+@dataclass(frozen=True)
+class Outcome:
+    """What every model's result takes from its run batch the same way: wheels, static_travel
+    [m] and static_load (tyre) [N] per wheel end, in the batch's order (each (B,)); vibration
+    the Wk metrics of one vibration block; failed (B,) bool and failure (B,) FailureReason
+    strings; traces the time (M,) [s] and channels (B, n_trace, M) of ``traces``, or None."""
+
+    wheels: list[WheelMetrics]
+    static_travel: list[FloatArray]
+    static_load: list[FloatArray]
+    vibration: VibrationMetrics
+    failed: NDArray[np.bool_]
+    failure: NDArray[np.str_]
+    traces: tuple[FloatArray, FloatArray] | None
+
+
+def outcome(
+    batch: Batch, road: RoadInput, acc_vibration: int, n_brake: FloatArray,
+    n_corner: FloatArray, trace_every: int | None,
+) -> Outcome:
+    """The Outcome of a run batch: each end's WheelMetrics from its accumulator block and
+    histogram (n_brake, n_corner (B,) the samples in each grip phase), the vibration block at
+    acc_vibration in the accumulator row, traces only with trace_every."""
     P, failed = batch.P, batch.fail != 0
-    return [
-        wheel_metrics(batch.acc, a, batch.hist[:, i], road.samples, road.dt,
-                      P[:, o + End.F_STATIC], P[:, o + End.S0], P[:, o + End.HIST_W], n_brake,
-                      n_corner, failed)
-        for i, (o, a) in enumerate(batch.ends)
-    ]
+    return Outcome(
+        wheels=[
+            wheel_metrics(batch.acc, a, batch.hist[:, i], road.samples, road.dt,
+                          P[:, o + End.F_STATIC], P[:, o + End.S0], P[:, o + End.HIST_W],
+                          n_brake, n_corner, failed)
+            for i, (o, a) in enumerate(batch.ends)
+        ],
+        static_travel=[P[:, o + End.S0].copy() for o, _ in batch.ends],
+        static_load=[P[:, o + End.F_STATIC].copy() for o, _ in batch.ends],
+        vibration=vibration_metrics(batch.acc, acc_vibration, road.samples, road.dt, failed),
+        failed=failed,
+        failure=failure_reasons(batch.fail),
+        traces=traces(batch, road.dt) if trace_every else None,
+    )
 
 
 def solve_reference(
@@ -364,3 +400,37 @@ def solve_reference(
             continue
         fail[b] = int(replay(np.ascontiguousarray(sol.y.T), batch.road, p, tabs, batch.sos,
                              batch.acc[b], batch.hist[b], batch.trace[b], batch.every))
+
+
+@dataclass(frozen=True)
+class Model(Generic[ParamsT, ResultT]):
+    """A model as the two entry points take it: prepare(params, road, trace_every) its batch,
+    run its compiled RK4 kernel (as ``run_batch`` calls it), finish(batch, road, trace_every)
+    its result from the batch; rhs_at_time, start and replay its compiled pieces for
+    ``solve_reference``."""
+
+    prepare: Callable[[ParamsT, RoadInput, int | None], Batch]
+    run: Callable[..., None]
+    finish: Callable[[Batch, RoadInput, int | None], ResultT]
+    rhs_at_time: Callable[..., FloatArray]
+    start: Callable[[FloatArray, Channels], FloatArray]
+    replay: Callable[..., int]
+
+
+def simulate(
+    model: Model[ParamsT, ResultT], params: ParamsT, road: RoadInput, trace_every: int | None
+) -> ResultT:
+    """The model's setups over the road with its fixed-step RK4 kernel (step road.dt)."""
+    batch = model.prepare(params, road, trace_every)
+    run_batch(model.run, batch, road.dt)
+    return model.finish(batch, road, trace_every)
+
+
+def simulate_reference(
+    model: Model[ParamsT, ResultT], params: ParamsT, road: RoadInput, trace_every: int | None,
+    **solver: Unpack[ReferenceOptions],
+) -> ResultT:
+    """The model's setups over the road integrated by solve_ivp (``solve_reference``)."""
+    batch = model.prepare(params, road, trace_every)
+    solve_reference(batch, road, model.rhs_at_time, model.start, model.replay, **solver)
+    return model.finish(batch, road, trace_every)

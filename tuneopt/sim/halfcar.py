@@ -65,7 +65,6 @@ from tuneopt.sim._halfcar_rows import (
     _pack,
     static_tyre_loads,
 )
-from tuneopt.sim._wheel import End
 from tuneopt.sim.grip import relaxation_factor
 from tuneopt.sim.metrics import (
     GripPhase,
@@ -73,9 +72,7 @@ from tuneopt.sim.metrics import (
     PitchMetrics,
     VibrationMetrics,
     WheelMetrics,
-    failure_reasons,
     first_short,
-    vibration_metrics,
 )
 from tuneopt.sim.params import HalfCarParams, ReferenceOptions
 from tuneopt.sim.road import RoadInput
@@ -167,12 +164,12 @@ def _prepare(params: HalfCarParams, road: RoadInput, trace_every: int | None) ->
 
 
 def _finish(batch: drv.Batch, road: RoadInput, trace_every: int | None) -> HalfCarResult:
-    failed = batch.fail != 0
-    P, acc = batch.P, batch.acc
+    acc = batch.acc
     n, dt = road.samples, road.dt
     n_brake = acc[:, _ACC_CAR + Car.N_BRAKE]
     n_corner = acc[:, _ACC_CAR + Car.N_CORNER]
-    wheels = drv.wheel_results(batch, road, n_brake, n_corner)
+    done = drv.outcome(batch, road, _ACC_V, n_brake, n_corner, trace_every)
+    failed = done.failed
     with np.errstate(invalid="ignore"):
         pitch = PitchMetrics(
             pitch_rate_rms=np.sqrt(acc[:, _ACC_CAR + Car.SUM_W2] / n),
@@ -203,8 +200,8 @@ def _finish(batch: drv.Batch, road: RoadInput, trace_every: int | None) -> HalfC
                   kick.speed_max):
         value[failed] = np.nan
     traces = None
-    if trace_every:
-        time, tr = drv.traces(batch, dt)
+    if done.traces is not None:
+        time, tr = done.traces
         traces = HalfCarTraces(
             time=time,
             front_tyre_load=tr[:, Out.LOAD_F],
@@ -221,10 +218,10 @@ def _finish(batch: drv.Batch, road: RoadInput, trace_every: int | None) -> HalfC
             rear_travel_rate=tr[:, Out.RATE_R],
         )
     return HalfCarResult(
-        front=wheels[0],
-        rear=wheels[1],
+        front=done.wheels[0],
+        rear=done.wheels[1],
         pitch=pitch,
-        rider_vibration=vibration_metrics(acc, _ACC_V, n, dt, failed),
+        rider_vibration=done.vibration,
         kick=kick,
         braking=GripPhase(
             time=n_brake * dt,
@@ -236,15 +233,19 @@ def _finish(batch: drv.Batch, road: RoadInput, trace_every: int | None) -> HalfC
             first_short=first_short(acc[:, _ACC_F + c.WheelAcc.FIRST_SHORT_CORNER],
                                     acc[:, _ACC_R + c.WheelAcc.FIRST_SHORT_CORNER]),
         ),
-        static_travel_front=P[:, _F + End.S0].copy(),
-        static_travel_rear=P[:, _R + End.S0].copy(),
-        static_load_front=P[:, _F + End.F_STATIC].copy(),
-        static_load_rear=P[:, _R + End.F_STATIC].copy(),
+        static_travel_front=done.static_travel[0],
+        static_travel_rear=done.static_travel[1],
+        static_load_front=done.static_load[0],
+        static_load_rear=done.static_load[1],
         duration=road.duration,
         failed=failed,
-        failure=failure_reasons(batch.fail),
+        failure=done.failure,
         traces=traces,
     )
+
+
+_MODEL = drv.Model(prepare=_prepare, run=_run, finish=_finish, rhs_at_time=_rhs_at_time,
+                   start=_start, replay=_replay)
 
 
 def simulate_halfcar(
@@ -254,9 +255,7 @@ def simulate_halfcar(
 
     trace_every: keep time series every that many samples (None: metrics only).
     """
-    batch = _prepare(params, road, trace_every)
-    drv.run_batch(_run, batch, road.dt)
-    return _finish(batch, road, trace_every)
+    return drv.simulate(_MODEL, params, road, trace_every)
 
 
 def simulate_halfcar_reference(
@@ -266,6 +265,4 @@ def simulate_halfcar_reference(
     """The same equations integrated by scipy.integrate.solve_ivp one setup at a time (solver:
     rtol, atol, max_step [s], method: ``tuneopt.sim.params.ReferenceOptions``), its
     states at the sample times fed through the RK4 kernel's metric accumulation."""
-    batch = _prepare(params, road, trace_every)
-    drv.solve_reference(batch, road, _rhs_at_time, _start, _replay, **solver)
-    return _finish(batch, road, trace_every)
+    return drv.simulate_reference(_MODEL, params, road, trace_every, **solver)

@@ -25,12 +25,7 @@ from tuneopt.sim import _common as c
 from tuneopt.sim import _driver as drv
 from tuneopt.sim import _wheel as w
 from tuneopt.sim._wheel import End
-from tuneopt.sim.metrics import (
-    VibrationMetrics,
-    WheelMetrics,
-    failure_reasons,
-    vibration_metrics,
-)
+from tuneopt.sim.metrics import VibrationMetrics, WheelMetrics
 from tuneopt.sim.params import QuarterCarParams, ReferenceOptions
 from tuneopt.sim.road import RoadInput
 
@@ -226,12 +221,11 @@ def _prepare(params: QuarterCarParams, road: RoadInput, trace_every: int | None)
 
 
 def _finish(batch: drv.Batch, road: RoadInput, trace_every: int | None) -> QuarterCarResult:
-    failed = batch.fail != 0
-    P = batch.P
     none = np.zeros(batch.size)
+    done = drv.outcome(batch, road, _ACC_V, none, none, trace_every)
     traces = None
-    if trace_every:
-        time, tr = drv.traces(batch, road.dt)
+    if done.traces is not None:
+        time, tr = done.traces
         traces = QuarterCarTraces(
             time=time,
             tyre_load=tr[:, Out.LOAD],
@@ -240,17 +234,20 @@ def _finish(batch: drv.Batch, road: RoadInput, trace_every: int | None) -> Quart
             body_accel=tr[:, Out.ACCEL],
             body_accel_weighted=tr[:, _NOUT],
         )
-    (wheel,) = drv.wheel_results(batch, road, none, none)
     return QuarterCarResult(
-        wheel=wheel,
-        body_vibration=vibration_metrics(batch.acc, _ACC_V, road.samples, road.dt, failed),
-        static_travel=P[:, _W + End.S0].copy(),
-        static_load=P[:, _W + End.F_STATIC].copy(),
+        wheel=done.wheels[0],
+        body_vibration=done.vibration,
+        static_travel=done.static_travel[0],
+        static_load=done.static_load[0],
         duration=road.duration,
-        failed=failed,
-        failure=failure_reasons(batch.fail),
+        failed=done.failed,
+        failure=done.failure,
         traces=traces,
     )
+
+
+_MODEL = drv.Model(prepare=_prepare, run=_run, finish=_finish, rhs_at_time=_rhs_at_time,
+                   start=_start, replay=_replay)
 
 
 def simulate_quartercar(
@@ -260,9 +257,7 @@ def simulate_quartercar(
 
     trace_every: keep time series every that many samples (None: metrics only).
     """
-    batch = _prepare(params, road, trace_every)
-    drv.run_batch(_run, batch, road.dt)
-    return _finish(batch, road, trace_every)
+    return drv.simulate(_MODEL, params, road, trace_every)
 
 
 def simulate_quartercar_reference(
@@ -272,6 +267,4 @@ def simulate_quartercar_reference(
     """The same equations integrated by scipy.integrate.solve_ivp one setup at a time (solver:
     rtol, atol, max_step [s], method: ``tuneopt.sim.params.ReferenceOptions``), its
     states at the sample times fed through the RK4 kernel's metric accumulation."""
-    batch = _prepare(params, road, trace_every)
-    drv.solve_reference(batch, road, _rhs_at_time, _start, _replay, **solver)
-    return _finish(batch, road, trace_every)
+    return drv.simulate_reference(_MODEL, params, road, trace_every, **solver)
