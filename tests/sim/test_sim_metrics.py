@@ -101,6 +101,8 @@ def test_streaming_metrics_match_traces() -> None:
             hits, any_depth = _weighed_hits(defl[b] - rim[b], 2e-3)
             assert_allclose(m.rim_hits_per_min[b], hits / minutes, rtol=1e-12)
             assert_allclose(m.rim_deepest[b], any_depth, rtol=1e-12)
+            # how close the tyre came to its rim: the largest deflection less the rim-strike one
+            assert_allclose(m.rim_closest[b], np.max(defl[b] - rim[b]), rtol=1e-12)
     assert res.front.bottom_outs_per_min.max() > 0
     # some excursions are grazes that count less than one
     assert np.any(res.front.bottom_out_hits_per_min < res.front.bottom_outs_per_min)

@@ -38,9 +38,9 @@ class Objective(Strict):
     rim_strike_risk: float = Field(
         1.0,
         ge=0,
-        description="how firmly a run strikes a rim, averaged over course realisations "
-        "(a run whose deepest rim strike goes 2 mm or more past the tyre's rim-strike "
-        "deflection counts one)",
+        description="the chance that a run strikes a rim, averaged over course realisations "
+        "(the rim-strike deflection taken as known to 2 mm: a tyre that reached it counts "
+        "one half, 2 mm short of it about one sixth, 2 mm past it about five sixths)",
     )
     front_grip: float = Field(
         1.0, ge=0, description="share of the grip asked of the front tyre that was not there"

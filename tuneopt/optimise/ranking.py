@@ -35,7 +35,7 @@ TERM_WORDS = {
     "bottom_out_depth": ("depth of its deepest bottom-out", "less", "more"),
     "bottom_out_risk": ("firm bottom-outs on a run", "fewer", "more"),
     "rim_strikes": ("rim strikes", "fewer", "more"),
-    "rim_strike_risk": ("firm rim strikes on a run", "fewer", "more"),
+    "rim_strike_risk": ("rim strikes and near misses on a run", "fewer", "more"),
     "front_grip": ("grip asked of the front tyre and not there", "less", "more"),
     "rear_grip": ("grip asked of the rear tyre and not there", "less", "more"),
     "pack_down": ("ride height lost over repeated bumps", "less", "more"),

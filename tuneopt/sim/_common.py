@@ -120,6 +120,7 @@ class WheelAcc(Layout):
     RIM_HIT_MAX = auto()
     RIM_HIT_SUM = auto()
     RIM_DEEPEST = auto()  # deepest excursion past the rim-strike deflection [m]
+    RIM_CLOSEST = auto()  # largest tyre deflection less the rim-strike deflection [m] (< 0: missed)
 
 
 W_FIELDS = len(WheelAcc)
@@ -150,6 +151,7 @@ def kernel_threads(batch: int) -> Iterator[None]:
 def init_wheel_acc(acc: FloatArray, off: int) -> None:
     """Set the starting values that are not zero (runs in numpy before the kernel)."""
     acc[:, off + WheelAcc.S_MAX] = -np.inf
+    acc[:, off + WheelAcc.RIM_CLOSEST] = -np.inf
     acc[:, off + WheelAcc.FIRST_SHORT_BRAKE] = -1.0
     acc[:, off + WheelAcc.FIRST_SHORT_CORNER] = -1.0
     acc[:, off + WheelAcc.CAPACITY] = np.nan  # set from the first sample's load
@@ -280,6 +282,8 @@ def accumulate_wheel(
         acc[off + WheelAcc.N_BOTTOM] += 1.0
         acc[off + WheelAcc.EVENT_MAX] = depth
     rim = tyre_defl - rim_defl
+    if rim > acc[off + WheelAcc.RIM_CLOSEST]:
+        acc[off + WheelAcc.RIM_CLOSEST] = rim
     if acc[off + WheelAcc.IN_RIM] > 0.0:
         if rim < 0.0:
             acc[off + WheelAcc.IN_RIM] = 0.0

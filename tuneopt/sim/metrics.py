@@ -69,7 +69,9 @@ class WheelMetrics:
     bottom_out_hits_per_min / rim_hits_per_min: every excursion past full travel (past the
     rim-strike deflection) per minute, each weighed by its depth, min(1, depth /
     BOTTOM_OUT_FULL_DEPTH or RIM_STRIKE_FULL_DEPTH) [1/min]; bottom_out_deepest / rim_deepest:
-    the deepest such excursion, of any depth [m] (0 without any);
+    the deepest such excursion, of any depth [m] (0 without any); rim_closest: the largest tyre
+    deflection less the rim-strike deflection [m] (how close the tyre came to its rim: negative
+    when it never reached it, positive as rim_deepest);
     topouts_per_min: top-out strikes per minute, the end reaching full extension while
     extending faster than TOPOUT_MIN_SPEED [1/min];
     travel_median, travel_p95, travel_max: vertical wheel travel [m] (0 = fully extended);
@@ -93,6 +95,7 @@ class WheelMetrics:
     bottom_out_deepest: FloatArray
     rim_hits_per_min: FloatArray
     rim_deepest: FloatArray
+    rim_closest: FloatArray
     topouts_per_min: FloatArray
     travel_median: FloatArray
     travel_p95: FloatArray
@@ -214,6 +217,7 @@ def wheel_metrics(
             bottom_out_deepest=acc[:, off + c.WheelAcc.DEEPEST].copy(),
             rim_hits_per_min=acc[:, off + c.WheelAcc.RIM_HIT_SUM] / minutes,
             rim_deepest=acc[:, off + c.WheelAcc.RIM_DEEPEST].copy(),
+            rim_closest=acc[:, off + c.WheelAcc.RIM_CLOSEST].copy(),
             topouts_per_min=acc[:, off + c.WheelAcc.N_TOPOUT] / minutes,
             travel_median=_quantile_from_hist(hist, 0.5, low, hist_width),
             travel_p95=_quantile_from_hist(hist, 0.95, low, hist_width),

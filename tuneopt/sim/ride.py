@@ -94,7 +94,8 @@ class CourseMetrics:
     bottom_out_depth_max (deepest bottom-out past full travel, 0 without any) [m] are the
     maxima over the segments. bottom_out_hits_per_min and rim_hits_per_min (every excursion
     past the stop or the rim, weighed by its depth) [1/min] are mix-weighted means;
-    bottom_out_deepest and rim_deepest (the deepest excursion of any depth) [m] are maxima.
+    bottom_out_deepest and rim_deepest (the deepest excursion of any depth) [m] and
+    rim_closest (the largest tyre deflection less the rim-strike deflection) [m] are maxima.
     *_grip_unmet_braking / _cornering: the share of the force the braking or cornering phases
     asked of that tyre that its grip capacity (load sensitivity and
     relaxation length included) could not give [-], averaged with the mix weights over the
@@ -125,6 +126,8 @@ class CourseMetrics:
     rear_bottom_out_deepest: FloatArray
     front_rim_deepest: FloatArray
     rear_rim_deepest: FloatArray
+    front_rim_closest: FloatArray
+    rear_rim_closest: FloatArray
     front_travel_p95: FloatArray
     rear_travel_p95: FloatArray
     front_pack_down: FloatArray
@@ -177,7 +180,8 @@ def ride_course(params: HalfCarParams, course: PreparedCourse) -> CourseMetrics:
     for end in ("front", "rear"):
         for name in _MEAN_FIELDS:
             agg[f"{end}_{name}"] = _weighted([getattr(getattr(r, end), name) for r in results], w)
-        for name in ("travel_max", "bottom_out_depth_max", "bottom_out_deepest", "rim_deepest"):
+        for name in ("travel_max", "bottom_out_depth_max", "bottom_out_deepest", "rim_deepest",
+                     "rim_closest"):
             agg[f"{end}_{name}"] = np.max(
                 np.stack([getattr(getattr(r, end), name) for r in results]), axis=0
             )
