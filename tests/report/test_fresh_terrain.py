@@ -98,3 +98,24 @@ def test_a_spacer_trade_at_the_same_sag_is_said_flat_or_not() -> None:
     assert "barely matters" in fork and "1 spacers at 92 psi +0.1 %" in fork
     shock = next(x for x in lines if x.startswith("The shock's volume spacers"))
     assert "changes the ride" in shock and "outside the sag window" in shock
+
+
+def test_the_leeway_is_said_setting_by_setting_as_result_json_keeps_it() -> None:
+    """The sentence names each setting's band as shown, says a band that reaches its range's
+    end, and a setting that may not move at all (a step either way costs FLAT or more)."""
+    room = {
+        "fork.lsc": {"low": 2, "high": 16, "low_shown": "2", "high_shown": "16",
+                     "rise": 0.0031, "fall": 0.012, "down": "score", "up": "end of range"},
+        "fork.pressure": {"low": 40, "high": 40, "low_shown": "80 psi", "high_shown": "80 psi",
+                          "rise": 0.0, "fall": 0.0, "down": "score",
+                          "up": "outside the sag window"},
+    }  # fmt: skip
+    best = entry(1, score=8.0, search_score=8.0, leeway=room,
+                 settings={"fork.lsc": "9", "fork.pressure": "80 psi"})  # fmt: skip
+    result = run_result([best], None, labels={"fork.lsc": "fork LSC",
+                                              "fork.pressure": "fork pressure"})  # fmt: skip
+    assert result.ranked[0].leeway["fork.lsc"]["high_shown"] == "16"
+    (line,) = [x for x in fresh_terrain_lines(result) if x.startswith("How far each setting")]
+    assert f"before the score rises by {100 * FLAT:.1f} %" in line
+    assert "fork LSC 2 to 16 (its range's end) (-1.2 to +0.3 %)" in line
+    assert "fork pressure only at 80 psi" in line

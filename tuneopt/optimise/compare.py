@@ -38,6 +38,7 @@ from tuneopt.model import InputError, Scenario, Setup, setup_problems
 from tuneopt.optimise.evaluate import Evaluator, Outcome, paired_interval
 from tuneopt.optimise.local import load_run
 from tuneopt.optimise.ranking import TERM_WORDS
+from tuneopt.optimise.robustness import FLAT
 from tuneopt.optimise.space import Parameter, build_space
 from tuneopt.optimise.validation import validation_seeds
 
@@ -45,8 +46,8 @@ from tuneopt.optimise.validation import validation_seeds
 TERM_NAMES = {term: words[0] for term, words in TERM_WORDS.items()}
 TYRE_PRESSURES = ("front_tyre_pressure", "rear_tyre_pressure")
 # A score change under this share of the own winner's score is too small to matter, even when
-# it is beyond noise: the share the run report calls a flat setting (report.fresh_terrain.FLAT).
-SMALL = 0.005
+# it is beyond noise: the share the run report calls a flat setting.
+SMALL = FLAT
 
 __all__ = ["TERM_NAMES", "Comparison", "Paired", "SettingDifference", "Swap", "compare_runs"]
 

@@ -14,7 +14,7 @@ from optuna.trial import FrozenTrial, TrialState
 from tuneopt.optimise.edges import edge_flags, static_warnings
 from tuneopt.optimise.evaluate import Evaluator
 from tuneopt.optimise.polish import point_key
-from tuneopt.optimise.robustness import robustness_fields
+from tuneopt.optimise.robustness import leeway, robustness_fields
 from tuneopt.optimise.space import SearchSpace
 from tuneopt.optimise.validation import (
     DEFAULT_VALIDATION,
@@ -64,7 +64,9 @@ class RankedSetup:
     change (step − setup, in the metric's SI unit). ``spring_trades``: for an air spring whose
     pressure and spacers are both searched, one spacer "fewer" and one "more", each with the
     pressure that keeps the end's sag: its ``spacers`` and ``pressure`` as shown, and its
-    ``score`` change on the same realisations as the steps, or ``failed`` saying why not."""
+    ``score`` change on the same realisations as the steps, or ``failed`` saying why not.
+    ``leeway`` (#1 only): how far each setting may move, every other held, before the score
+    rises by ``robustness.FLAT`` of it (``robustness.leeway``)."""
 
     rank: int
     trial: int
@@ -87,6 +89,7 @@ class RankedSetup:
     steps: dict[str, dict[str, float | str]] = field(default_factory=dict)
     step_effects: dict[str, dict[str, dict[str, Any]]] = field(default_factory=dict)
     spring_trades: dict[str, dict[str, dict[str, Any]]] = field(default_factory=dict)
+    leeway: dict[str, dict[str, Any]] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -301,6 +304,7 @@ def rank_study(
     entries = entries[:top]
     if evaluator is not None and entries:
         entries = _with_robustness(entries, space, evaluator)
+        entries[0] = _replace(entries[0], leeway=leeway(entries[0].indices, space, evaluator))
         entries = [
             _replace(
                 e,

@@ -13,7 +13,7 @@ from tuneopt.optimise.evaluate import Evaluator, Outcome, paired_interval
 from tuneopt.optimise.polish import spring_points
 from tuneopt.optimise.space import SearchSpace
 
-__all__ = ["ROBUSTNESS_REALISATIONS", "robustness_fields"]
+__all__ = ["FLAT", "LEEWAY_STEPS", "ROBUSTNESS_REALISATIONS", "leeway", "robustness_fields"]
 
 
 def _neighbours(
@@ -49,6 +49,12 @@ def _spring_trades(
 
 # Realisations of the search the robustness steps are scored on (paired with the setup itself).
 ROBUSTNESS_REALISATIONS = 4
+# A change of the score by less than this share of it barely matters on the course: the search's
+# choice there is as good as any near it (common practice, no source: about a tenth of the gain
+# a study typically states on the demo bikes, and within the noise of a validation set).
+FLAT = 0.005
+# How far the leeway walks from a setup, in robustness steps either side of each setting.
+LEEWAY_STEPS = 8
 
 
 def robustness_fields(
@@ -134,3 +140,68 @@ def _step_effect(step: Outcome, own: Outcome) -> dict[str, Any]:
         "realisations": n,
         "metrics": {k: v - own.metrics[k] for k, v in step.metrics.items() if k in own.metrics},
     }
+
+
+def leeway(
+    point: dict[str, int], space: SearchSpace, evaluator: Evaluator
+) -> dict[str, dict[str, Any]]:
+    """How far each setting of ``point`` may move, every other setting held, before the score
+    rises by ``FLAT`` of it or more: walked one robustness step at a time either side (at most
+    ``LEEWAY_STEPS``), each step paired with the setup itself on the search's first
+    realisations, as the robustness steps are. By setting: ``low`` and ``high``, the indices of
+    the band's ends, ``low_shown`` and ``high_shown`` as the report shows them, ``rise`` and
+    ``fall``, the largest relative rise and fall of the score inside the band (a fall: a point
+    that scores better than the setup on these realisations), and ``down`` and ``up``,
+    why the walk stopped on that side ("end of range", "score", "outside the sag window",
+    "failed", "walk limit"). Empty when the setup itself does not ride."""
+    ev = evaluator.first(ROBUSTNESS_REALISATIONS)
+    own = ev.evaluate([space.setup(point)])[0]
+    if not own.ok:
+        return {}
+    base = float(own.score)  # type: ignore[arg-type]
+    scale = abs(base) or 1.0
+    reached = {(p.name, sign): int(point[p.name]) for p in space.parameters for sign in (-1, 1)}
+    stopped: dict[tuple[str, int], str] = {}
+    rise = {p.name: 0.0 for p in space.parameters}
+    fall = dict(rise)
+    for _ in range(LEEWAY_STEPS):
+        jobs: list[tuple[tuple[str, int], dict[str, int]]] = []
+        for key, at in reached.items():
+            if key in stopped:
+                continue
+            p = space[key[0]]
+            j = at + key[1] * p.robust_step
+            if not 0 <= j < len(p.values):
+                stopped[key] = "end of range"
+                continue
+            jobs.append((key, {**point, key[0]: j}))
+        if not jobs:
+            break
+        for (key, pt), o in zip(jobs, ev.evaluate([space.setup(pt) for _, pt in jobs]),
+                                strict=True):  # fmt: skip
+            if not o.ok:
+                stopped[key] = (
+                    "outside the sag window" if o.failure.startswith("infeasible") else "failed"
+                )
+                continue
+            rel = (float(o.score) - base) / scale  # type: ignore[arg-type]
+            if rel >= FLAT:
+                stopped[key] = "score"
+                continue
+            reached[key] = pt[key[0]]
+            rise[key[0]] = max(rise[key[0]], rel)
+            fall[key[0]] = max(fall[key[0]], -rel)
+    out: dict[str, dict[str, Any]] = {}
+    for p in space.parameters:
+        low, high = reached[(p.name, -1)], reached[(p.name, 1)]
+        out[p.name] = {
+            "low": low,
+            "high": high,
+            "low_shown": p.shown(p.values[low]),
+            "high_shown": p.shown(p.values[high]),
+            "rise": rise[p.name],
+            "fall": fall[p.name],
+            "down": stopped.get((p.name, -1), "walk limit"),
+            "up": stopped.get((p.name, 1), "walk limit"),
+        }
+    return out

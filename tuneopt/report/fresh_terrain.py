@@ -7,13 +7,17 @@ the edge of what was searched, and the static check's warnings about the recomme
 
 from __future__ import annotations
 
+from tuneopt.optimise import FLAT
 from tuneopt.report.run_data import RunResult
 
-__all__ = ["FLAT", "flat_settings", "flat_spring_trades", "fresh_terrain_lines", "setting_notes"]
-
-# A setting whose one-step change moves the score by less than this share of it barely
-# matters on this course: the search's choice there is as good as any near it.
-FLAT = 0.005
+__all__ = [
+    "FLAT",
+    "flat_settings",
+    "flat_spring_trades",
+    "fresh_terrain_lines",
+    "leeway_lines",
+    "setting_notes",
+]
 
 
 def _pct(v: float) -> str:
@@ -79,6 +83,7 @@ def fresh_terrain_lines(result: RunResult) -> list[str]:
             "These settings barely matter on this course (one step either way moves the score "
             f"by less than {100 * FLAT:.1f} %, largest change shown): " + ", ".join(parts) + "."
         )
+    lines.extend(leeway_lines(result))
     lines.extend(_spring_trade_lines(result))
     for name, sides in best.steps.items():
         for side, value in sides.items():
@@ -160,3 +165,28 @@ def _spring_trade_lines(result: RunResult) -> list[str]:
         )
     return lines
 
+
+
+def leeway_lines(result: RunResult) -> list[str]:
+    """One sentence: how far each setting of #1 may move on its own before the score rises by
+    FLAT of it, and how far the score moves inside that band (empty without a leeway)."""
+    if not result.ranked or not result.ranked[0].leeway:
+        return []
+    best = result.ranked[0]
+    parts = []
+    for name, room in best.leeway.items():
+        label = result.label(name)
+        if room["low"] == room["high"]:
+            parts.append(f"{label} only at {best.settings.get(name, room['low_shown'])}")
+            continue
+        ends = {side: " (its range's end)" if room[side] == "end of range" else ""
+                for side in ("down", "up")}  # fmt: skip
+        parts.append(
+            f"{label} {room['low_shown']}{ends['down']} to {room['high_shown']}{ends['up']} "
+            f"({-100 * float(room['fall']):+.1f} to {100 * float(room['rise']):+.1f} %)"
+        )
+    return [
+        f"How far each setting of #1 may move on its own, every other held, before the score "
+        f"rises by {100 * FLAT:.1f} % (the score's lowest and highest change inside, on the "
+        f"search's first realisations): " + "; ".join(parts) + "."
+    ]

@@ -94,6 +94,9 @@ class SetupEntry:
     spring_trades: Mapping[str, Mapping[str, Mapping[str, Any]]] = field(
         default_factory=lambda: MappingProxyType({})
     )
+    # #1 only: how far each setting may move, every other held, before the score rises by
+    # FLAT of it: low/high (indices), low_shown/high_shown, change, and why each side stopped
+    leeway: Mapping[str, Mapping[str, Any]] = field(default_factory=lambda: MappingProxyType({}))
 
     @property
     def label(self) -> str:
@@ -211,6 +214,7 @@ def _entry(data: Any, where: str) -> SetupEntry:
     f = _Fields(data, where)
     steps = f.mapping("steps", {})
     trades = f.mapping("spring_trades", {})
+    room = f.mapping("leeway", {})
     return SetupEntry(
         rank=f.get("rank", (int,)),
         trial=f.get("trial", (int,)),
@@ -238,6 +242,9 @@ def _entry(data: Any, where: str) -> SetupEntry:
             })
             for end, sides in trades.items()
         }),  # fmt: skip
+        leeway=MappingProxyType(
+            {k: _Fields(v, f"{where}.leeway.{k}").view() for k, v in room.items()}
+        ),
     )
 
 
