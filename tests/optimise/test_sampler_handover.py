@@ -42,3 +42,20 @@ def test_other_samplers_never_hand_over(monkeypatch: pytest.MonkeyPatch) -> None
     plan = StudyPlan("r", trials=32, batch_size=8, seed=3, sampler="random")
     run_shard(study, plan, {"x": IntDistribution(0, 40), "y": IntDistribution(0, 40)}, _bowl)
     assert not any(_asked_by_cma(t) for t in study.trials)
+
+
+def test_tpe_starts_from_a_tenth_of_the_budget_at_random() -> None:
+    """TPE's random start is STARTUP_SHARE of the study's trial budget (of the default budget
+    for a study run to a deadline alone), never fewer than a batch or optuna's own 10; the
+    share was chosen by the trust benchmark (docs/benchmarks.md)."""
+
+    def startup(budget: int | None, batch: int = 16) -> int:
+        sampler = runner.make_sampler("tpe", 0, batch, budget=budget)
+        assert isinstance(sampler, optuna.samplers.TPESampler)
+        return int(sampler._n_startup_trials)
+
+    assert runner.STARTUP_SHARE == 0.1
+    assert startup(600) == 60
+    assert startup(3000) == 300
+    assert startup(None) == runner.DEFAULT_TRIALS // 10
+    assert startup(40) == 16 and startup(40, batch=4) == 10

@@ -77,6 +77,12 @@ TPE_HANDOVER = 1000
 # better than the current setup on 80, 40 and 88 % of fresh realisations); 600 found 92, 88 and
 # 95 % (benchmarks/bench_trust.py, docs/benchmarks.md), in about a minute on 2 cores.
 DEFAULT_TRIALS = 600
+# The trials TPE draws at random before it models anything, as a share of the trial budget (of
+# DEFAULT_TRIALS for a study run to a deadline alone). With optuna's default of 10, one of three
+# demo trail studies settled on a stiff fork (101-102 psi) in three runs out of three and never
+# came back to the 75-90 psi setups that score better on its own realisations; with 60 of 600
+# the three seeds' forks agreed within 4 psi (docs/benchmarks.md).
+STARTUP_SHARE = 0.1
 
 
 def make_sampler(
@@ -86,9 +92,11 @@ def make_sampler(
     *,
     finished: int = 0,
     history: Sequence[FrozenTrial] = (),
+    budget: int | None = None,
 ) -> optuna.samplers.BaseSampler:
-    """The sampler for one batch. Past TPE_HANDOVER ``finished`` trials, "tpe" hands over to
-    CMA-ES warm-started from ``history`` (the study's completed trials)."""
+    """The sampler for one batch. "tpe" starts from ``STARTUP_SHARE`` of the trial ``budget``
+    drawn at random; past TPE_HANDOVER ``finished`` trials it hands over to CMA-ES
+    warm-started from ``history`` (the study's completed trials)."""
     if kind == "tpe" and finished >= TPE_HANDOVER and history:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", optuna.exceptions.ExperimentalWarning)
@@ -100,7 +108,7 @@ def make_sampler(
             seed=seed,
             multivariate=True,
             constant_liar=True,
-            n_startup_trials=max(10, batch_size),
+            n_startup_trials=max(10, batch_size, int(STARTUP_SHARE * (budget or DEFAULT_TRIALS))),
         )
     if kind == "cmaes":
         return optuna.samplers.CmaEsSampler(seed=seed, with_margin=True)
@@ -239,6 +247,7 @@ def ask_batch(
         size,
         finished=finished,
         history=history,
+        budget=plan.trials,
     )
     batch = []
     for _ in range(size):
