@@ -21,6 +21,7 @@ from dataclasses import dataclass
 from functools import partial
 from typing import Any
 
+import numpy as np
 import optuna
 from optuna.distributions import BaseDistribution, IntDistribution
 from optuna.storages import BaseStorage
@@ -123,6 +124,13 @@ def make_sampler(
             raise ValueError("the gp sampler needs torch, which is not installed") from None
         return optuna.samplers.GPSampler(seed=seed)
     raise ValueError(f"unknown sampler {kind!r}; choose from {', '.join(SAMPLERS)}")
+
+
+def _sampler_seed(study_seed: int, shard: int, finished: int) -> int:
+    """The seed of one batch's sampler: numpy's SeedSequence mixes the study seed, the shard
+    and the trials finished so far into independent streams (a shard that asks again after a
+    restart, at the same count, draws the same points)."""
+    return int(np.random.SeedSequence([study_seed % 2**63, shard, finished]).generate_state(1)[0])
 
 
 @dataclass(frozen=True)
@@ -243,7 +251,7 @@ def ask_batch(
         history = study.get_trials(deepcopy=False, states=(TrialState.COMPLETE,))
     study.sampler = make_sampler(
         plan.sampler,
-        (plan.seed * 1_000_003 + shard * 10_007 + finished) % 2**32,
+        _sampler_seed(plan.seed, shard, finished),
         size,
         finished=finished,
         history=history,
