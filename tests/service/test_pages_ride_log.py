@@ -183,3 +183,23 @@ def test_the_course_fit_in_words() -> None:
     view = fit_view(status | {"state": "failed"}, None, missing)
     assert view is not None and not view["kept"]
     assert view["said"] == f"No course fit to evening.csv: {missing}."
+
+
+def test_a_form_over_the_body_limit_is_refused_on_the_form_and_the_api_in_json(
+    shop: TestClient, fit_client: TestClient, fit_settings: Settings
+) -> None:
+    """A request larger than TUNEOPT_MAX_BODY_BYTES (the demo log padded past it): the form
+    answers 413 with its page saying the limit, not the JSON problem the API answers for the
+    same bytes at once; nothing is recorded."""
+    big = LOG.read_bytes() + b"#" * (fit_settings.max_body_bytes + 1)
+    answer = shop.post("/shop/new", files=_parts(big))
+    assert answer.status_code == 413
+    assert answer.headers["content-type"].startswith("text/html")
+    said = _problems(answer.text)
+    assert said == [f"form: the request body is larger than this service accepts "
+                    f"({fit_settings.max_body_bytes} bytes)"], said  # fmt: skip
+    api = fit_client.post("/jobs", files=_parts(big))
+    assert api.status_code == 413 and api.headers["content-type"].startswith(
+        "application/problem+json"
+    ), api.headers
+    assert _store(fit_settings).list(10) == []

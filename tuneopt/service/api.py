@@ -22,7 +22,7 @@ from tuneopt.service.access import key_guard
 from tuneopt.service.jobs import jobs_router
 from tuneopt.service.limits import BodyLimit
 from tuneopt.service.monitoring import monitoring_router
-from tuneopt.service.pages import pages_router
+from tuneopt.service.pages import FORM_PAGES, pages_router
 from tuneopt.service.problems import Problem, install_handlers
 from tuneopt.service.records import JobStore
 from tuneopt.service.results import results_router
@@ -99,7 +99,7 @@ def create_app(settings: Settings) -> FastAPI:
     _serve_docs(app)
     body_schema, form_schema, components = body_schemas()
     _with_components(app, components)
-    app.add_middleware(BodyLimit, max_bytes=settings.max_body_bytes)
+    app.add_middleware(BodyLimit, max_bytes=settings.max_body_bytes, pages=FORM_PAGES)
     guarded = key_guard(settings)
     app.include_router(
         jobs_router(settings, store, queue, raw, guarded, body_schema, form_schema)

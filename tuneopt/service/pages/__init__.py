@@ -3,6 +3,6 @@ start a job (a scenario with its side files, a ride log to fit its course to, tr
 deadline), a job's page with its course fit, its report, its setup sheets and a cancel button.
 Served by the job API under ``/shop``; see docs/shop-pages.md."""
 
-from tuneopt.service.pages.router import BASE, pages_router
+from tuneopt.service.pages.router import BASE, FORM_PAGES, pages_router
 
-__all__ = ["BASE", "pages_router"]
+__all__ = ["BASE", "FORM_PAGES", "pages_router"]

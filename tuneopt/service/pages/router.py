@@ -50,9 +50,12 @@ from tuneopt.service.requests import (
 from tuneopt.service.settings import Settings
 from tuneopt.service.uploads import MAX_SIDE_FILES, UPLOAD_PARTS
 
-__all__ = ["BASE", "pages_router"]
+__all__ = ["BASE", "FORM_PAGES", "pages_router"]
 
 BASE = "/shop"
+# the pages a browser sends a form with files to: a request over the body limit reaches them,
+# and they say so on the form (tuneopt.service.limits.BodyLimit)
+FORM_PAGES = (BASE + "/new",)
 REFRESH_SECONDS = 5
 # the form's file parts: the scenario's, and the ride log (passed on to the API as sent)
 FILE_PARTS = (*UPLOAD_PARTS, "ride_log")
