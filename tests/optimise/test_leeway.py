@@ -96,6 +96,26 @@ def test_the_leeway_of_a_separable_function_is_its_band_under_the_flat_share() -
     assert room["gentle"]["low_shown"] == "0" and room["gentle"]["high_shown"] == "8"
 
 
+def test_a_wide_step_stops_at_the_range_end_and_a_walk_that_reaches_it_says_so() -> None:
+    """A pressure stepped 5 grid positions at a time from index 2 of 0-60 reaches index 0 (the
+    range's end), not index 2; a flat setting whose walk ends on the range's end at its last
+    step says "end of range", not "walk limit" [D]."""
+    space = _PointSpace(
+        (
+            Parameter("pressure", tuple(float(v) for v in range(61)), "clicks", robust_step=5),
+            Parameter("clicks", tuple(float(v) for v in range(2 * LEEWAY_STEPS + 1)), "clicks"),
+        ),
+        base=None,  # type: ignore[arg-type]  (only the parameters are used)
+    )
+    centre = {"pressure": 2, "clicks": LEEWAY_STEPS}
+    room = leeway(centre, space, cast(Evaluator, _Fake(lambda p: 10.0)))
+    assert (room["pressure"]["low"], room["pressure"]["down"]) == (0, "end of range")
+    assert room["pressure"]["high"] == 2 + 5 * LEEWAY_STEPS
+    assert room["pressure"]["up"] == "walk limit"
+    assert (room["clicks"]["low"], room["clicks"]["high"]) == (0, 2 * LEEWAY_STEPS)
+    assert room["clicks"]["down"] == room["clicks"]["up"] == "end of range"
+
+
 def test_a_ranked_winner_carries_its_leeway(small_scenario: Scenario) -> None:
     """On the simulator: every setting's band holds the setup's own value, and stepping just
     outside a band that ended on the score costs at least FLAT of it [D: the walk's rule]."""

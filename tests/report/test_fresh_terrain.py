@@ -106,16 +106,20 @@ def test_the_leeway_is_said_setting_by_setting_as_result_json_keeps_it() -> None
     room = {
         "fork.lsc": {"low": 2, "high": 16, "low_shown": "2", "high_shown": "16",
                      "rise": 0.0031, "fall": 0.012, "down": "score", "up": "end of range"},
+        "fork.hsc": {"low": 0, "high": 8, "low_shown": "0", "high_shown": "8",
+                     "rise": 0.0, "fall": 0.0, "down": "end of range", "up": "walk limit"},
         "fork.pressure": {"low": 40, "high": 40, "low_shown": "80 psi", "high_shown": "80 psi",
                           "rise": 0.0, "fall": 0.0, "down": "score",
                           "up": "outside the sag window"},
     }  # fmt: skip
     best = entry(1, score=8.0, search_score=8.0, leeway=room,
                  settings={"fork.lsc": "9", "fork.pressure": "80 psi"})  # fmt: skip
-    result = run_result([best], None, labels={"fork.lsc": "fork LSC",
+    result = run_result([best], None, labels={"fork.lsc": "fork LSC", "fork.hsc": "fork HSC",
                                               "fork.pressure": "fork pressure"})  # fmt: skip
     assert result.ranked[0].leeway["fork.lsc"]["high_shown"] == "16"
     (line,) = [x for x in fresh_terrain_lines(result) if x.startswith("How far each setting")]
     assert f"before the score rises by {100 * FLAT:.1f} %" in line
     assert "fork LSC 2 to 16 (its range's end) (-1.2 to +0.3 %)" in line
     assert "fork pressure only at 80 psi" in line
+    # a side the walk left at its limit may reach further; no score fell: +0.0, never -0.0
+    assert "fork HSC 0 (its range's end) to 8 (or further) (+0.0 to +0.0 %)" in line

@@ -4,7 +4,7 @@ from tuneopt.optimise.evaluate import Evaluator, Outcome
 from tuneopt.optimise.local import LocalRun, load_run, run_local, start_run
 from tuneopt.optimise.ranking import RankedSetup, Ranking, pareto_front, rank_study
 from tuneopt.optimise.result import CAUTIONS, result_data, write_result
-from tuneopt.optimise.robustness import FLAT
+from tuneopt.optimise.robustness import FLAT, LEEWAY_STEPS
 from tuneopt.optimise.runner import (
     DEFAULT_TRIALS,
     SAMPLERS,
@@ -22,6 +22,7 @@ __all__ = [
     "CAUTIONS",
     "DEFAULT_TRIALS",
     "FLAT",
+    "LEEWAY_STEPS",
     "SAMPLERS",
     "SCALES",
     "Evaluator",

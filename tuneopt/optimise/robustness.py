@@ -11,7 +11,7 @@ import numpy as np
 
 from tuneopt.optimise.evaluate import Evaluator, Outcome, paired_interval
 from tuneopt.optimise.polish import spring_points
-from tuneopt.optimise.space import SearchSpace
+from tuneopt.optimise.space import Parameter, SearchSpace
 
 __all__ = ["FLAT", "LEEWAY_STEPS", "ROBUSTNESS_REALISATIONS", "leeway", "robustness_fields"]
 
@@ -142,6 +142,11 @@ def _step_effect(step: Outcome, own: Outcome) -> dict[str, Any]:
     }
 
 
+def _range_end(p: Parameter, sign: int) -> int:
+    """The index of the end of ``p``'s range a walk in direction ``sign`` (-1, +1) meets."""
+    return 0 if sign < 0 else len(p.values) - 1
+
+
 def leeway(
     point: dict[str, int], space: SearchSpace, evaluator: Evaluator
 ) -> dict[str, dict[str, Any]]:
@@ -170,10 +175,11 @@ def leeway(
             if key in stopped:
                 continue
             p = space[key[0]]
-            j = at + key[1] * p.robust_step
-            if not 0 <= j < len(p.values):
+            if at == _range_end(p, key[1]):
                 stopped[key] = "end of range"
                 continue
+            # a step past the end stops at the end (as the robustness steps do)
+            j = min(max(at + key[1] * p.robust_step, 0), len(p.values) - 1)
             jobs.append((key, {**point, key[0]: j}))
         if not jobs:
             break
@@ -191,6 +197,9 @@ def leeway(
             reached[key] = pt[key[0]]
             rise[key[0]] = max(rise[key[0]], rel)
             fall[key[0]] = max(fall[key[0]], -rel)
+    for (name, sign), at in reached.items():  # a walk that reached the end on its last step
+        if _range_end(space[name], sign) == at and (name, sign) not in stopped:
+            stopped[(name, sign)] = "end of range"
     out: dict[str, dict[str, Any]] = {}
     for p in space.parameters:
         low, high = reached[(p.name, -1)], reached[(p.name, 1)]

@@ -79,11 +79,14 @@ TPE_HANDOVER = 1000
 # 95 % (benchmarks/bench_trust.py, docs/benchmarks.md), in about a minute on 2 cores.
 DEFAULT_TRIALS = 600
 # The trials TPE draws at random before it models anything, as a share of the trial budget (of
-# DEFAULT_TRIALS for a study run to a deadline alone). With optuna's default of 10, one of three
-# demo trail studies settled on a stiff fork (101-102 psi) in three runs out of three and never
-# came back to the 75-90 psi setups that score better on its own realisations; with 60 of 600
-# the three seeds' forks agreed within 4 psi (docs/benchmarks.md).
+# DEFAULT_TRIALS for a study run to a deadline alone), and at most a quarter of the trials TPE
+# runs before its hand-over (so that a long study still models most of its TPE phase). With
+# optuna's default of 10, one of three demo trail studies settled on a stiff fork (101-102 psi)
+# in three runs out of three and never came back to the 75-90 psi setups that score better on
+# its own realisations; with 60 of 600 the three seeds' forks lay within 8 psi of each other in
+# each of three runs (docs/benchmarks.md).
 STARTUP_SHARE = 0.1
+STARTUP_MAX = TPE_HANDOVER // 4
 
 
 def make_sampler(
@@ -96,8 +99,8 @@ def make_sampler(
     budget: int | None = None,
 ) -> optuna.samplers.BaseSampler:
     """The sampler for one batch. "tpe" starts from ``STARTUP_SHARE`` of the trial ``budget``
-    drawn at random; past TPE_HANDOVER ``finished`` trials it hands over to CMA-ES
-    warm-started from ``history`` (the study's completed trials)."""
+    drawn at random (at most ``STARTUP_MAX``); past TPE_HANDOVER ``finished`` trials it hands
+    over to CMA-ES warm-started from ``history`` (the study's completed trials)."""
     if kind == "tpe" and finished >= TPE_HANDOVER and history:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", optuna.exceptions.ExperimentalWarning)
@@ -109,7 +112,9 @@ def make_sampler(
             seed=seed,
             multivariate=True,
             constant_liar=True,
-            n_startup_trials=max(10, batch_size, int(STARTUP_SHARE * (budget or DEFAULT_TRIALS))),
+            n_startup_trials=max(
+                10, batch_size, min(STARTUP_MAX, int(STARTUP_SHARE * (budget or DEFAULT_TRIALS)))
+            ),
         )
     if kind == "cmaes":
         return optuna.samplers.CmaEsSampler(seed=seed, with_margin=True)

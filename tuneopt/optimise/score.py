@@ -71,7 +71,8 @@ __all__ = [
 ]
 
 # The standard deviation of the deflection at which a tyre strikes its rim about the scenario's
-# value [m] (an estimate: the allowances for the rim's edge and the casing, docs/scenarios.md).
+# value [m]: an estimate of ours, no source (the allowances for the rim's edge, from memory, and
+# the casing, an estimate, docs/scenarios.md, are each uncertain by a millimetre or two).
 RIM_STRIKE_SPREAD = 2e-3
 
 SCALES: dict[str, float] = {

@@ -7,7 +7,7 @@ the edge of what was searched, and the static check's warnings about the recomme
 
 from __future__ import annotations
 
-from tuneopt.optimise import FLAT
+from tuneopt.optimise import FLAT, LEEWAY_STEPS
 from tuneopt.report.run_data import RunResult
 
 __all__ = [
@@ -179,14 +179,15 @@ def leeway_lines(result: RunResult) -> list[str]:
         if room["low"] == room["high"]:
             parts.append(f"{label} only at {best.settings.get(name, room['low_shown'])}")
             continue
-        ends = {side: " (its range's end)" if room[side] == "end of range" else ""
-                for side in ("down", "up")}  # fmt: skip
+        said = {"end of range": " (its range's end)", "walk limit": " (or further)"}
+        ends = {side: said.get(str(room[side]), "") for side in ("down", "up")}
         parts.append(
             f"{label} {room['low_shown']}{ends['down']} to {room['high_shown']}{ends['up']} "
-            f"({-100 * float(room['fall']):+.1f} to {100 * float(room['rise']):+.1f} %)"
+            f"({0.0 - 100 * float(room['fall']):+.1f} to {100 * float(room['rise']):+.1f} %)"
         )
     return [
         f"How far each setting of #1 may move on its own, every other held, before the score "
-        f"rises by {100 * FLAT:.1f} % (the score's lowest and highest change inside, on the "
-        f"search's first realisations): " + "; ".join(parts) + "."
+        f"rises by {100 * FLAT:.1f} % (walked up to {LEEWAY_STEPS} steps either way; the "
+        f"score's lowest and highest change inside, on the search's first realisations): "
+        + "; ".join(parts) + "."
     ]
