@@ -20,7 +20,7 @@ def _optimise(scenario: dict[str, Any], folder: Path) -> Path:
     path.write_text(write_toml(scenario))
     out = folder / "run"
     argv = [
-        "optimise", str(path), "--out", str(out), "--trials", "12", "--batch", "6",
+        "optimise", str(path), "--out", str(out), "--trials", "24", "--batch", "6",
         "--realisations", "1", "--top", "3",
     ]  # fmt: skip
     assert main(argv) == 0

@@ -687,8 +687,11 @@ def test_worker_api_and_redis_killed_in_one_job_lose_nothing(
         workers.wait_listening(*roles)
         supervisor = Supervisor(workers, roles, api)
         victim = workers.procs["one"]
+        # two realisations: a batch of trials RUNNING long enough for the reads every POLL to
+        # find the victim's (with one, the job once ended first, its setups quick or outside
+        # the sag windows)
         job_id = api.submit(
-            _body("400 m", {"trials": budget, "shards": 2, "batch_size": 4, "realisations": 1})
+            _body("400 m", {"trials": budget, "shards": 2, "batch_size": 4, "realisations": 2})
         )
         watch = Watch(settings, store, job_id)
         # both workers busy with the job's shards: jobs submitted now wait in the queue

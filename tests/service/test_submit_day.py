@@ -109,9 +109,10 @@ def _job_of(out: str) -> str:
 
 
 def _dialled(sheet: str) -> dict[str, str]:
-    """The first sheet's settings as printed on it, by setting name."""
+    """The first sheet's settings as printed on it, by setting name (the value before any note
+    inside the entry, such as the current setup's value beside a changed one)."""
     found: dict[str, str] = {}
-    for key, text in re.findall(r'<dd data-key="([^"]+)">([^<]*)</dd>', sheet):
+    for key, text in re.findall(r'<dd data-key="([^"]+)">([^<]*)', sheet):
         found.setdefault(key, html.unescape(text))
     return found
 
