@@ -6,6 +6,7 @@ unless traces are asked for; the same accumulator serves the RK4 kernels and the
 reference (fed with the reference's states at the same sample times).
 """
 
+# compiled against: 7e955ffbdf1177c6 (see tests/sim/test_kernel_cache_stamps.py)
 from __future__ import annotations
 
 from collections.abc import Iterator

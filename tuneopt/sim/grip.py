@@ -16,6 +16,7 @@ step of distance ds = v dt with the load held, the exact update is
     C <- C + (1 - exp(-ds / sigma)) (C_ss - C).
 """
 
+# compiled against: e3b0c44298fc1c14 (see tests/sim/test_kernel_cache_stamps.py)
 from __future__ import annotations
 
 import numpy as np
