@@ -14,7 +14,7 @@ from optuna.trial import FrozenTrial, TrialState
 from tuneopt.optimise.edges import edge_flags, static_warnings
 from tuneopt.optimise.evaluate import Evaluator
 from tuneopt.optimise.polish import point_key
-from tuneopt.optimise.robustness import leeway, robustness_fields
+from tuneopt.optimise.robustness import Ridden, leeway, robustness_fields
 from tuneopt.optimise.space import SearchSpace
 from tuneopt.optimise.validation import (
     DEFAULT_VALIDATION,
@@ -171,9 +171,9 @@ def _entry(rank: int, t: FrozenTrial, space: SearchSpace, base: FrozenTrial | No
 
 
 def _with_robustness(
-    entries: Sequence[RankedSetup], space: SearchSpace, evaluator: Evaluator
+    entries: Sequence[RankedSetup], space: SearchSpace, evaluator: Evaluator, ridden: Ridden
 ) -> list[RankedSetup]:
-    fields = robustness_fields([e.indices for e in entries], space, evaluator)
+    fields = robustness_fields([e.indices for e in entries], space, evaluator, ridden)
     return [e if f is None else _replace(e, **f) for e, f in zip(entries, fields, strict=True)]
 
 
@@ -303,8 +303,11 @@ def rank_study(
         entries, baseline_entry = _validated(entries, baseline_entry, space, evaluator, validation)
     entries = entries[:top]
     if evaluator is not None and entries:
-        entries = _with_robustness(entries, space, evaluator)
-        entries[0] = _replace(entries[0], leeway=leeway(entries[0].indices, space, evaluator))
+        ridden: Ridden = {}  # the leeway's first steps are the robustness steps of #1
+        entries = _with_robustness(entries, space, evaluator, ridden)
+        entries[0] = _replace(
+            entries[0], leeway=leeway(entries[0].indices, space, evaluator, ridden)
+        )
         entries = [
             _replace(
                 e,

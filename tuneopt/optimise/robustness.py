@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 
 from tuneopt.optimise.evaluate import Evaluator, Outcome, paired_interval
-from tuneopt.optimise.polish import spring_points
+from tuneopt.optimise.polish import point_key, spring_points
 from tuneopt.optimise.space import Parameter, SearchSpace
 
 __all__ = ["FLAT", "LEEWAY_STEPS", "ROBUSTNESS_REALISATIONS", "leeway", "robustness_fields"]
@@ -57,22 +57,42 @@ FLAT = 0.005
 LEEWAY_STEPS = 8
 
 
+# Outcomes on the robustness realisations by point (``polish.point_key``): what the robustness
+# steps rode, the leeway does not ride again.
+Ridden = dict[tuple[tuple[str, int], ...], Outcome]
+
+
+def _ride(
+    ev: Evaluator, space: SearchSpace, points: Sequence[dict[str, int]], ridden: Ridden
+) -> list[Outcome]:
+    """Each point's outcome on ``ev``'s realisations, riding (in one batch) only those
+    ``ridden`` does not hold yet, and keeping them there."""
+    new = list({point_key(p): p for p in points if point_key(p) not in ridden}.values())
+    for p, o in zip(new, ev.evaluate([space.setup(p) for p in new]), strict=True):
+        ridden[point_key(p)] = o
+    return [ridden[point_key(p)] for p in points]
+
+
 def robustness_fields(
-    points: Sequence[dict[str, int]], space: SearchSpace, evaluator: Evaluator
+    points: Sequence[dict[str, int]],
+    space: SearchSpace,
+    evaluator: Evaluator,
+    ridden: Ridden | None = None,
 ) -> list[dict[str, Any] | None]:
     """For each point: the score change one step either side of every setting and of each air
     spring's trades, paired with the setup itself on the search's first realisations, all in
     one simulator batch, as ``RankedSetup``'s fields ``robustness``, ``sensitivity``,
-    ``steps``, ``step_effects`` and ``spring_trades`` (None for a point that did not ride)."""
+    ``steps``, ``step_effects`` and ``spring_trades`` (None for a point that did not ride).
+    ``ridden`` keeps every outcome, for the leeway."""
     ev = evaluator.first(ROBUSTNESS_REALISATIONS)
+    ridden = {} if ridden is None else ridden
     jobs: list[tuple[int, str, str, dict[str, int] | None]] = []
     for k, idx in enumerate(points):
         jobs.append((k, "", "", idx))
         jobs.extend((k, name, side, pt) for name, side, pt in _neighbours(space, idx))
         jobs.extend((k, f"trade:{end}", side, pt)
                     for end, side, pt in _spring_trades(space, idx, evaluator))  # fmt: skip
-    ridden = [pt for *_, pt in jobs if pt is not None]
-    scored = iter(ev.evaluate([space.setup(pt) for pt in ridden]))
+    scored = iter(_ride(ev, space, [pt for *_, pt in jobs if pt is not None], ridden))
     outcomes = [next(scored) if pt is not None else None for *_, pt in jobs]
     out: list[dict[str, Any] | None] = []
     for k in range(len(points)):
@@ -148,7 +168,10 @@ def _range_end(p: Parameter, sign: int) -> int:
 
 
 def leeway(
-    point: dict[str, int], space: SearchSpace, evaluator: Evaluator
+    point: dict[str, int],
+    space: SearchSpace,
+    evaluator: Evaluator,
+    ridden: Ridden | None = None,
 ) -> dict[str, dict[str, Any]]:
     """How far each setting of ``point`` may move, every other setting held, before the score
     rises by ``FLAT`` of it or more: walked one robustness step at a time either side (at most
@@ -158,9 +181,11 @@ def leeway(
     ``fall``, the largest relative rise and fall of the score inside the band (a fall: a point
     that scores better than the setup on these realisations), and ``down`` and ``up``,
     why the walk stopped on that side ("end of range", "score", "outside the sag window",
-    "failed", "walk limit"). Empty when the setup itself does not ride."""
+    "failed", "walk limit"). Empty when the setup itself does not ride. Points ``ridden``
+    holds (from ``robustness_fields`` on the same realisations) are not ridden again."""
     ev = evaluator.first(ROBUSTNESS_REALISATIONS)
-    own = ev.evaluate([space.setup(point)])[0]
+    ridden = {} if ridden is None else ridden
+    (own,) = _ride(ev, space, [point], ridden)
     if not own.ok:
         return {}
     base = float(own.score)  # type: ignore[arg-type]
@@ -183,7 +208,7 @@ def leeway(
             jobs.append((key, {**point, key[0]: j}))
         if not jobs:
             break
-        for (key, pt), o in zip(jobs, ev.evaluate([space.setup(pt) for _, pt in jobs]),
+        for (key, pt), o in zip(jobs, _ride(ev, space, [pt for _, pt in jobs], ridden),
                                 strict=True):  # fmt: skip
             if not o.ok:
                 stopped[key] = (

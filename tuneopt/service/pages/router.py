@@ -17,7 +17,7 @@ from typing import Any
 
 import httpx2
 from fastapi import APIRouter, Request
-from fastapi.responses import HTMLResponse, JSONResponse, RedirectResponse, Response
+from fastapi.responses import HTMLResponse, RedirectResponse, Response
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from tuneopt.model import InputError, scenario_from_data
@@ -282,15 +282,27 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
     async def report(request: Request, job_id: str) -> Response:
         return await html_from_api(request, job_id, "/report")
 
-    @router.get(BASE + "/jobs/{job_id}/result.json")
-    async def result_file(request: Request, job_id: str) -> Response:
-        answer = await from_api(request, job_id, "/result")
+    async def file_from_api(
+        request: Request, job_id: str, path: str, filename: str | None = None
+    ) -> Response:
+        """One of a job's files as the API keeps it, as a file to save: under ``filename``, or
+        under the name the API gives it."""
+        answer = await from_api(request, job_id, path)
         if isinstance(answer, Response):
             return answer
-        return JSONResponse(
-            answer.json(),
-            headers={"Content-Disposition": f'attachment; filename="{job_id}-result.json"'},
+        disposition = (
+            f'attachment; filename="{filename}"' if filename is not None
+            else answer.headers["content-disposition"].replace("inline;", "attachment;", 1)
+        )  # fmt: skip
+        return Response(
+            answer.content,
+            media_type=answer.headers["content-type"],
+            headers={"Content-Disposition": disposition, **_headers(_CSP)},
         )
+
+    @router.get(BASE + "/jobs/{job_id}/result.json")
+    async def result_file(request: Request, job_id: str) -> Response:
+        return await file_from_api(request, job_id, "/result", f"{job_id}-result.json")
 
     @router.get(BASE + "/jobs/{job_id}/sheet")
     async def sheet(request: Request, job_id: str, rank: int | None = None) -> Response:
@@ -304,15 +316,7 @@ def pages_router(settings: Settings, store: JobStore) -> APIRouter:
     @router.get(BASE + "/jobs/{job_id}/fit/scenario")
     async def fit_scenario(request: Request, job_id: str) -> Response:
         """The fitted scenario, a file to save (the API shows it inline)."""
-        answer = await from_api(request, job_id, "/fit/scenario")
-        if isinstance(answer, Response):
-            return answer
-        disposition = answer.headers["content-disposition"].replace("inline;", "attachment;", 1)
-        return Response(
-            answer.content,
-            media_type=answer.headers["content-type"],
-            headers={"Content-Disposition": disposition, **_headers(_CSP)},
-        )
+        return await file_from_api(request, job_id, "/fit/scenario")
 
     return router
 
