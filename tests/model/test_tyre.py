@@ -29,3 +29,22 @@ def test_pressure_sensitivity_is_bounded() -> None:
     with pytest.raises(ValidationError, match="friction_reference_pressure"):
         Tyre(size="29x2.4", pressure_min=1.2e5, pressure_max=2.4e5,
              friction_reference_pressure=0)
+
+
+def test_load_sensitivity_may_be_set_per_surface() -> None:
+    # [D] the value for the course's surface is the one the simulator and the brake balance use
+    one = Tyre(size="29x2.4", pressure_min=1.2e5, pressure_max=2.4e5, load_sensitivity=-0.12)
+    assert one.load_sensitivity_on("dry") == one.load_sensitivity_on("wet") == -0.12
+    both = Tyre.model_validate({"size": "29x2.4", "pressure_min": 1.2e5, "pressure_max": 2.4e5,
+                                "load_sensitivity": {"dry": -0.05, "wet": -0.2}})
+    assert both.load_sensitivity_on("dry") == -0.05
+    assert both.load_sensitivity_on("wet") == -0.2
+    with pytest.raises(ValueError, match="surface"):
+        both.load_sensitivity_on("icy")
+    # bounds hold on each surface's value: p_D2 in (-1, 0]
+    with pytest.raises(ValidationError, match=r"load_sensitivity\.[\w-]*\.?wet"):
+        Tyre.model_validate({"size": "29x2.4", "pressure_min": 1.2e5, "pressure_max": 2.4e5,
+                             "load_sensitivity": {"dry": -0.05, "wet": 0.3}})
+    with pytest.raises(ValidationError, match="load_sensitivity"):
+        Tyre.model_validate({"size": "29x2.4", "pressure_min": 1.2e5, "pressure_max": 2.4e5,
+                             "load_sensitivity": {"dry": -0.05}})

@@ -129,7 +129,7 @@ def test_travel_under_braking_carries_the_fork_axis_term() -> None:
     c = static_check(s)
     lay = layout(s)
     fe = front_end(s, s.setup.fork)
-    brake = s.braking.front_share * c.total_mass * s.braking.deceleration
+    brake = c.brake_front_share * c.total_mass * s.braking.deceleration
     cot = 1 / np.tan(np.radians(s.bike.head_angle))
     want = c.braking_front_load - lay.unsprung_front * GRAVITY + brake * cot
     assert_allclose(c.fork_brake_load, brake * cot, rtol=1e-12)

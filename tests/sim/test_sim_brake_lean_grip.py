@@ -16,9 +16,12 @@ from numpy.testing import assert_allclose
 from scipy.stats import norm
 from sim_setups import half_car
 
+from tests.conftest import SCENARIOS, scenario_data
+from tuneopt.model import scenario_from_data
 from tuneopt.physics.statics import GRAVITY
 from tuneopt.sim import RoadInput, simulate_halfcar, static_tyre_loads
 from tuneopt.sim import _common as c
+from tuneopt.sim.build import halfcar_params
 from tuneopt.sim.grip import peak_load, relaxation_factor
 
 G = GRAVITY
@@ -215,3 +218,33 @@ def test_tyre_pressure_scales_the_grip_capacity_through_the_friction_factor() ->
     # the rear tyre is untouched
     assert_allclose(runs["soft"].rear.grip_capacity_mean, runs["plain"].rear.grip_capacity_mean,
                     rtol=1e-12)
+
+
+def test_each_setup_brakes_with_its_own_front_share() -> None:
+    # [D] statics of the fork term, as above, per setup of one batch: the front travel under
+    # steady braking is (dF + share m a cot HA) / k with each setup's own share
+    a, ha, rate = 5.0, 65.0, 14e3
+    shares = np.array([0.5, 0.9])
+    params = replace(half_car(2, front=dict(rate=rate)), head_angle=ha, brake_front_share=shares)
+    dt, n = 1e-3, 5001
+    res = simulate_halfcar(params, _flat(n, dt, decel=_smooth_ramp(n, dt, a)), trace_every=1)
+    tr = res.traces
+    assert tr is not None and not res.failed.any()
+    transfer = _transfer(params, a)
+    cot = np.cos(np.radians(ha)) / np.sin(np.radians(ha))
+    want = (transfer + shares * _bodies_mass(params) * a * cot) / rate
+    assert_allclose(tr.front_travel[:, -1] - res.static_travel_front, want, rtol=1e-4)
+    # and a batch cut keeps each setup's share
+    assert params.take(np.array([1])).brake_front_share[0] == 0.9  # type: ignore[index]
+
+
+def test_the_surface_picks_the_tyres_load_sensitivity() -> None:
+    # [D] the scenario's per-surface value reaches the simulator's wheel ends
+    for surface, want in (("dry", -0.04), ("wet", -0.25)):
+        data = scenario_data("trail_air")
+        data["course"]["surface"] = surface
+        data["front_tyre"]["load_sensitivity"] = {"dry": -0.04, "wet": -0.25}
+        s = scenario_from_data(data, "scenario", SCENARIOS)
+        p = halfcar_params(s, [s.setup])
+        assert p.front.load_sensitivity == want
+        assert p.rear.load_sensitivity == -0.1  # not set: the estimate on both surfaces

@@ -35,6 +35,11 @@ class Scenario(Strict):
     objective: Objective = Objective()
     search: Search = Search()
 
+    @property
+    def surface(self) -> str:
+        """The course's surface condition; "dry" for a scenario without a course."""
+        return "dry" if self.course is None else self.course.surface
+
 
 def _within(value: float, low: float, high: float) -> bool:
     """``low <= value <= high`` up to float rounding: the optimiser's pressure grid (k pump

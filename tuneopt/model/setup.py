@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
-from pydantic import Field
+from typing import Literal
+
+from pydantic import Field, field_validator
 
 from tuneopt.model._base import Strict
 from tuneopt.model._quantity import Acceleration, Pressure, Stiffness
@@ -31,7 +33,21 @@ class Setup(Strict):
 
 
 class Braking(Strict):
-    """The braking case the static check reports (and the simulator's braking zones default to)."""
+    """The braking case the static check reports (and the simulator's braking zones default to).
+    ``front_share``: the front tyre's share of the braking force, a number, or "grip" (the
+    default) for the share that asks both tyres the same fraction of their grip at this
+    deceleration (``tuneopt.physics.brake_balance``)."""
 
     deceleration: Acceleration = Field(5.0, ge=0, le=12)
-    front_share: float = Field(0.7, ge=0, le=1, description="share of braking force at the front")
+    front_share: float | Literal["grip"] = Field(
+        "grip",
+        description='share of braking force at the front, 0 to 1, or "grip": each tyre asked '
+        "the same fraction of its grip",
+    )
+
+    @field_validator("front_share")
+    @classmethod
+    def _share(cls, v: float | str) -> float | str:
+        if isinstance(v, float) and not 0.0 <= v <= 1.0:
+            raise ValueError('give a share from 0 to 1, or "grip"')
+        return v

@@ -3,14 +3,14 @@
 from __future__ import annotations
 
 import re
-from typing import Literal
+from typing import Annotated, Literal
 
 from pydantic import Field, field_validator, model_validator
 
 from tuneopt.model._base import Strict
 from tuneopt.model._quantity import Damping, Length, Pressure, Stiffness
 
-__all__ = ["StiffnessPoint", "Tyre", "parse_tyre_size"]
+__all__ = ["LoadSensitivity", "StiffnessPoint", "SurfaceLoadSensitivity", "Tyre", "parse_tyre_size"]
 
 MAX_TYRE_PRESSURE = 1e6  # [Pa] 10 bar, above any bicycle tyre's limit
 # The rim strike's default deflection: a rim's edge stands about 6 mm above its bead seat (from
@@ -46,6 +46,16 @@ class StiffnessPoint(Strict):
     stiffness: Stiffness = Field(gt=0)
 
 
+LoadSensitivity = Annotated[float, Field(gt=-1, le=0)]
+
+
+class SurfaceLoadSensitivity(Strict):
+    """The friction coefficient's load sensitivity set per surface condition (p_D2 on each)."""
+
+    dry: LoadSensitivity = Field(description="p_D2 on a dry surface")
+    wet: LoadSensitivity = Field(description="p_D2 on a wet surface")
+
+
 class Tyre(Strict):
     """A tyre. ``stiffness`` is "estimate" (a membrane estimate from pressure and size, an
     assumption to be replaced by measurements) or measured points of pressure and radial
@@ -69,12 +79,11 @@ class Tyre(Strict):
         le=1.0,
         description="rolled distance over which grip follows a change of load; estimate 0.15 m",
     )
-    load_sensitivity: float = Field(
+    load_sensitivity: LoadSensitivity | SurfaceLoadSensitivity = Field(
         -0.1,
-        gt=-1,
-        le=0,
         description="p_D2: relative fall of the friction coefficient per relative load above "
-        "static; estimate -0.1 (car tyres -0.05 to -0.15)",
+        "static, one value or one per surface ({ dry = ..., wet = ... }); estimate -0.1 on "
+        "both (car tyres -0.05 to -0.15)",
     )
     friction_reference_pressure: Pressure = Field(
         1.8e5,
@@ -112,6 +121,15 @@ class Tyre(Strict):
         if self.pressure_min >= self.pressure_max:
             raise ValueError("pressure range inverted: pressure_min must be below pressure_max")
         return self
+
+    def load_sensitivity_on(self, surface: str) -> float:
+        """p_D2 on the course's surface ("dry" or "wet")."""
+        ls = self.load_sensitivity
+        if isinstance(ls, SurfaceLoadSensitivity):
+            if surface not in ("dry", "wet"):
+                raise ValueError(f"surface must be 'dry' or 'wet', got {surface!r}")
+            return float(getattr(ls, surface))
+        return float(ls)
 
     @property
     def bead_seat_diameter(self) -> float:

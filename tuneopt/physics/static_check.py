@@ -8,7 +8,14 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from tuneopt.model import InputError, Scenario, Setup
-from tuneopt.physics.hardware import SuspensionEnd, front_end, rear_end, tyre_stiffness
+from tuneopt.physics.brake_balance import grip_front_share
+from tuneopt.physics.hardware import (
+    SuspensionEnd,
+    front_end,
+    rear_end,
+    tyre_friction_factor,
+    tyre_stiffness,
+)
 from tuneopt.physics.layout import Layout, layout
 from tuneopt.physics.practice import BASIS, bike_kind, usual_sag
 from tuneopt.physics.statics import (
@@ -82,6 +89,7 @@ class StaticCheck:
     braking_front_load: float
     braking_rear_load: float
     load_transfer: float
+    brake_front_share: float  # the front tyre's share of the braking force, set or from grip
     fork_brake_load: float  # front brake's push along the fork, at the wheel's travel [N]
     rear_lift_deceleration: float
     braking_sag_front: float
@@ -187,10 +195,9 @@ def static_check(scenario: Scenario, setup: Setup | None = None) -> StaticCheck:
     a = scenario.braking.deceleration
     dF = load_transfer(m, a, lay.com_height, L)
     bf, br = f_load + dF, max(r_load - dF, 0.0)
+    share = brake_front_share(scenario, setup, f_load, r_load, dF)
     # the front brake's force also pushes along the inclined fork axis (F_b cos HA)
-    fork_brake = fork_brake_load(
-        scenario.braking.front_share * m * a, scenario.bike.head_angle
-    )
+    fork_brake = fork_brake_load(share * m * a, scenario.bike.head_angle)
     z_fb = _braking_sag(front.riding(z_f), bf - lay.unsprung_front * GRAVITY + fork_brake, z_f)
     z_rb = _braking_sag(rear.riding(z_r), br - lay.unsprung_rear * GRAVITY, z_r)
     findings = _findings(scenario, lay, fs, rs, a)
@@ -207,6 +214,7 @@ def static_check(scenario: Scenario, setup: Setup | None = None) -> StaticCheck:
         braking_front_load=bf,
         braking_rear_load=br,
         load_transfer=dF,
+        brake_front_share=share,
         fork_brake_load=fork_brake,
         rear_lift_deceleration=rear_lift_deceleration(lay.com_x, lay.com_height, L),
         braking_sag_front=z_fb,
@@ -217,6 +225,27 @@ def static_check(scenario: Scenario, setup: Setup | None = None) -> StaticCheck:
         findings=findings,
     )
     return check
+
+
+def brake_front_share(
+    scenario: Scenario, setup: Setup, front_load: float, rear_load: float, transfer: float
+) -> float:
+    """The front tyre's share of the braking force: the scenario's number, or with "grip" the
+    share that asks both tyres the same fraction of their grip under the braking case's loads
+    (their load sensitivity on the course's surface, their pressures' friction factors)."""
+    share = scenario.braking.front_share
+    if share != "grip":
+        return float(share)
+    surface = scenario.surface
+    front, rear = scenario.front_tyre, scenario.rear_tyre
+    return grip_front_share(
+        front_load,
+        rear_load,
+        transfer,
+        (front.load_sensitivity_on(surface), rear.load_sensitivity_on(surface)),
+        (tyre_friction_factor(front, setup.front_tyre_pressure),
+         tyre_friction_factor(rear, setup.rear_tyre_pressure)),
+    )
 
 
 def _braking_sag(end: SuspensionEnd, load: float, z_static: float) -> float:

@@ -101,6 +101,11 @@ def check_table(c: StaticCheck) -> list[Row]:
             f"{c.braking_rear_load:.0f} N",
         ),
         (
+            "  share of the braking force",
+            f"{c.brake_front_share:.0%}",
+            f"{1.0 - c.brake_front_share:.0%}",
+        ),
+        (
             "  travel used",
             f"{c.braking_sag_front / fr.wheel_travel:.0%}",
             f"{c.braking_sag_rear / rr.wheel_travel:.0%}",

@@ -166,6 +166,11 @@ def _pack(params: HalfCarParams) -> FloatArray:
     P[:, Par.M_TOT] = m_fr + m_d + fw.unsprung_mass + rw.unsprung_mass
     if not 0.0 < params.head_angle <= 90.0:
         raise ValueError("head_angle must be in (0, 90] degrees")
+    share = params.brake_front_share
+    if np.ndim(share) not in (0, 1) or (np.ndim(share) == 1 and np.shape(share) != (bsz,)):
+        raise ValueError(f"brake_front_share must be one number or have shape ({bsz},)")
+    if not np.all((np.asarray(share) >= 0.0) & (np.asarray(share) <= 1.0)):
+        raise ValueError("brake_front_share must be in [0, 1]")
     ha = np.radians(params.head_angle)
     P[:, Par.FB_COT] = params.brake_front_share * P[:, Par.M_TOT] * np.cos(ha) / np.sin(ha)
     sprung_weight = (m_fr + m_d) * g

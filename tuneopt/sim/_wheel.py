@@ -85,7 +85,7 @@ def pack_wheel(
     off: int,
     wheel: WheelEnd,
     spring_load: FloatArray,
-    brake_share: float,
+    brake_share: float | FloatArray,
     lateral_share: FloatArray,
 ) -> None:
     """Fill the end's columns of the parameter rows p (B, n) for a static spring load [N]."""

@@ -104,7 +104,7 @@ def wheel_end(
         rim_strike_deflection=np.full(b, tyre.rim_strike),
         wheel_radius=tyre.outer_radius,
         relaxation_length=tyre.relaxation_length,
-        load_sensitivity=tyre.load_sensitivity,
+        load_sensitivity=tyre.load_sensitivity_on(scenario.surface),
         friction_factor=np.array([tyre_friction_factor(tyre, p) for p in pressures]),
     )
 
@@ -144,7 +144,7 @@ def halfcar_params(
         frame_com_x=lay.frame_com_x,
         frame_com_height=lay.frame_com_height,
         wheelbase=lay.wheelbase,
-        brake_front_share=scenario.braking.front_share,
+        brake_front_share=np.array([c.brake_front_share for c in checks]),
         head_angle=scenario.bike.head_angle,
     )
 

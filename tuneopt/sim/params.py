@@ -105,10 +105,11 @@ class HalfCarParams:
     Geometry in the side view at static ride height, x from the rear axle forward [m].
     frame_mass [kg] and frame_pitch_inertia [kg m^2] are the sprung bike without the rider;
     frame_com_x / frame_com_height [m]. wheelbase [m]. brake_front_share: share of the braking
-    force taken by the front tyre (0..1). head_angle: the fork axis from horizontal [deg]; the
-    front brake force F_b pushes along it with F_b cos(HA), which at the wheel's vertical travel
-    is a compressing force F_b cot(HA) between the front unsprung mass and the frame (the
-    default 90 deg, a vertical axis, leaves it out; ``build`` takes the bike's head angle).
+    force taken by the front tyre (0..1), one for the batch or (B,) one per setup. head_angle:
+    the fork axis from horizontal [deg]; the front brake force F_b pushes along it with
+    F_b cos(HA), which at the wheel's vertical travel is a compressing force F_b cot(HA)
+    between the front unsprung mass and the frame (the default 90 deg, a vertical axis, leaves
+    it out; ``build`` takes the bike's head angle).
     """
 
     front: WheelEnd
@@ -119,7 +120,7 @@ class HalfCarParams:
     frame_com_x: float
     frame_com_height: float
     wheelbase: float
-    brake_front_share: float = 0.6
+    brake_front_share: float | FloatArray = 0.6
     head_angle: float = 90.0
 
     @property
@@ -128,7 +129,12 @@ class HalfCarParams:
 
     def take(self, idx: slice | NDArray[np.intp]) -> HalfCarParams:
         """The setups idx of the batch, every other field as it is."""
-        return replace(self, front=self.front.take(idx), rear=self.rear.take(idx))
+        share = self.brake_front_share
+        if isinstance(share, np.ndarray):
+            share = share[idx]
+        return replace(
+            self, front=self.front.take(idx), rear=self.rear.take(idx), brake_front_share=share
+        )
 
 
 @dataclass(frozen=True)
