@@ -41,7 +41,8 @@ def register(sub: Any) -> None:
         "--validation",
         type=int,
         default=None,
-        help="fresh realisations the finalists are re-scored on (default 24)",
+        help="fresh realisations the figures come from (default 40; the finalists are ordered "
+        "on as many others, at most 24)",
     )
     p.add_argument("--sampler", default="tpe", help="tpe (default), cmaes, nsga2 or random")
     p.add_argument("--top", type=int, default=5, help="ranked setups to report (default 5)")

@@ -14,12 +14,13 @@ from optuna.trial import FrozenTrial, TrialState
 from tuneopt.optimise.edges import edge_flags, static_warnings
 from tuneopt.optimise.evaluate import Evaluator
 from tuneopt.optimise.polish import point_key
-from tuneopt.optimise.robustness import Ridden, leeway, robustness_fields
+from tuneopt.optimise.robustness import FLAT, Ridden, leeway, robustness_fields
 from tuneopt.optimise.space import SearchSpace
 from tuneopt.optimise.validation import (
     DEFAULT_VALIDATION,
     FINALISTS,
     compare_scores,
+    selection_count,
     selection_scores,
     validation_outcomes,
 )
@@ -213,7 +214,8 @@ def _validated(
     take every figure (scores, against the current setup and the winner) from the validation
     set, which chose nothing: the order's own pick is not flattered by the figures."""
     setups = [space.setup(e.indices) for e in entries] + [space.base]
-    chosen = selection_scores(evaluator, setups, count)
+    picked = selection_count(count)
+    chosen = selection_scores(evaluator, setups, picked)
     outcomes, ridden = validation_outcomes(evaluator, setups, count)
     base_out = outcomes[-1]
     kept = [
@@ -231,7 +233,7 @@ def _validated(
         info: dict[str, Any] = {"realisations": ridden,
                                 "bottom_out_risk": o.bottomed / ridden,
                                 "selection_score": c if np.isfinite(c) else None,
-                                "selection_realisations": count}
+                                "selection_realisations": picked}
         change: dict[str, float] = {}
         if base_out.ok:
             info.update(compare_scores(o.scores, base_out.scores).as_dict())
@@ -253,6 +255,48 @@ def _validated(
                         "bottom_out_risk": base_out.bottomed / ridden},
         )
     return ranked, new_base
+
+
+def with_end_reasons(e: RankedSetup, flags: dict[str, str]) -> dict[str, str]:
+    """Each flag of a setting at an end of its range, with why the end was chosen: what one step
+    back into the range did on the robustness realisations (its score change as a share of the
+    setup's, and the weighted term that grew most), or that it barely mattered (within noise,
+    or under ``robustness.FLAT`` of the score)."""
+    out = dict(flags)
+    for name, flag in flags.items():
+        sides = e.steps.get(name, {})
+        inward = [side for side, v in sides.items() if v == "end of range"]
+        if len(inward) != 1:
+            continue  # not at an end (a sag flag), or a one-value range
+        side = "up" if inward[0] == "down" else "down"
+        step = sides.get(side)
+        effect = e.step_effects.get(name, {}).get(side)
+        if effect is None:
+            if isinstance(step, str):
+                out[name] = f"{flag}. One step back in: {step}"
+            continue
+        rel = float(effect.get("relative", 0.0))
+        n = int(effect.get("realisations", 0))
+        if effect.get("within_noise") or abs(rel) < FLAT:
+            out[name] = (
+                f"{flag}. One step back in moves the score {100 * rel:+.1f} % on {n} realisations, "
+                f"{'within noise' if effect.get('within_noise') else 'under 0.5 %'}: "
+                "the end is no strong preference"
+            )
+            continue
+        if rel < 0:
+            out[name] = (
+                f"{flag}. One step back in scores {-100 * rel:.1f} % better on {n} realisations: "
+                "the end is no strong preference"
+            )
+            continue
+        grew = {k: v for k, v in effect.get("terms", {}).items() if v > 0}
+        why = ""
+        if grew:
+            worst = max(grew, key=lambda k: grew[k])
+            why = f", most of it in {TERM_WORDS.get(worst, (worst,))[0]}"
+        out[name] = f"{flag}. One step back in costs {100 * rel:+.1f} % on {n} realisations{why}"
+    return out
 
 
 def _within_noise_sentence(e: RankedSetup) -> str:
@@ -311,7 +355,7 @@ def rank_study(
         entries = [
             _replace(
                 e,
-                flags=edge_flags(space, e.indices, e.sag, evaluator.windows),
+                flags=with_end_reasons(e, edge_flags(space, e.indices, e.sag, evaluator.windows)),
                 warnings=static_warnings(evaluator.scenario, space.setup(e.indices)),
             )
             for e in entries

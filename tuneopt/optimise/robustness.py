@@ -149,16 +149,20 @@ def _trade(
 
 
 def _step_effect(step: Outcome, own: Outcome) -> dict[str, Any]:
-    """A step's score change with its paired 95 % interval, and its metrics' changes."""
+    """A step's score change with its paired 95 % interval, as a share of the setup's own score
+    on the same realisations (``relative``), and its metrics' and weighted terms' changes."""
     n = min(len(step.scores), len(own.scores))
     mean, low, high = paired_interval(np.subtract(step.scores[:n], own.scores[:n]))
+    base = float(np.mean(own.scores[:n])) if n else float(own.score)  # type: ignore[arg-type]
     return {
         "score": mean,
         "low": low,
         "high": high,
         "within_noise": bool(low <= 0.0 <= high),
+        "relative": mean / abs(base) if base else 0.0,
         "realisations": n,
         "metrics": {k: v - own.metrics[k] for k, v in step.metrics.items() if k in own.metrics},
+        "terms": {k: v - own.terms[k] for k, v in step.terms.items() if k in own.terms},
     }
 
 
