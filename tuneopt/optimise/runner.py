@@ -29,6 +29,7 @@ from optuna.trial import FrozenTrial, TrialState
 
 from tuneopt.optimise.evaluate import Evaluator, Outcome, RacePolicy
 from tuneopt.optimise.polish import leader, polish_points, polishing
+from tuneopt.optimise.redis_storage import AskTurnLost
 from tuneopt.optimise.space import SearchSpace
 from tuneopt.optimise.trial_owners import (
     UNTAGGED_AFTER,
@@ -262,9 +263,18 @@ def ask_batch(
         history=history,
         budget=plan.trials,
     )
-    batch = []
+    batch: list[optuna.Trial] = []
     for _ in range(size):
-        trial = study.ask(distributions)
+        try:
+            trial = study.ask(distributions)
+        except AskTurnLost:
+            # the ask lock lapsed before this ask was written (a paused process): Redis refused
+            # it, and another shard may have counted since; what was asked before stands
+            if not batch:
+                raise
+            log.warning("shard %d: the ask lock lapsed after %d of %d trials", shard,
+                        len(batch), size)  # fmt: skip
+            break
         try:
             trial.set_user_attr("owner", owner)
         except optuna.exceptions.UpdateFinishedTrialError:
@@ -320,7 +330,10 @@ def run_shard(
     ``space`` is a scenario's search space (then ``evaluate`` is its Evaluator), or plain
     optuna distributions with a function scoring a list of points. ``ask_lock`` makes a lock
     that the shards of one study share: counting the trials and asking the next batch happen
-    under it, so shards asking at the same moment never ask past the budget.
+    under it, so shards asking at the same moment never ask past the budget. A lock that
+    yields False did not give this shard its turn in time: it asks nothing, checks its stops
+    and the deadline, and takes the lock again; an ask refused because the lock lapsed
+    (``AskTurnLost``) is treated the same way.
 
     ``piece_steps`` (simulated time steps x setups) makes stops act within a batch: the batch
     is evaluated in pieces of about that cost (sub-batches of setups, one terrain realisation
@@ -353,18 +366,25 @@ def run_shard(
         now = clock()
         if plan.deadline is not None and now >= plan.deadline:
             break
-        with ask_lock() if ask_lock is not None else nullcontext():
-            trials = study.get_trials(deepcopy=False)
-            finished = sum(_is_finished(t) for t in trials)
-            running = sum(t.state == TrialState.RUNNING for t in trials)
-            size = plan.batch_size
-            if plan.trials is not None:
-                size = min(size, plan.trials - finished - running)
-            batch = (
-                ask_batch(study, plan, dists, shard, size, finished, owner,
-                          None if lines is None else partial(lines, trials))
-                if size > 0 else []
-            )  # fmt: skip
+        try:
+            with ask_lock() if ask_lock is not None else nullcontext() as turn:
+                if turn is False:
+                    continue  # not this shard's turn yet: check the stops, then wait again
+                trials = study.get_trials(deepcopy=False)
+                finished = sum(_is_finished(t) for t in trials)
+                running = sum(t.state == TrialState.RUNNING for t in trials)
+                size = plan.batch_size
+                if plan.trials is not None:
+                    size = min(size, plan.trials - finished - running)
+                batch = (
+                    ask_batch(study, plan, dists, shard, size, finished, owner,
+                              None if lines is None else partial(lines, trials))
+                    if size > 0 else []
+                )  # fmt: skip
+        except AskTurnLost:
+            log.warning("shard %d: the ask lock lapsed before its ask; it waits its turn "
+                        "again", shard)  # fmt: skip
+            continue
         if not batch:
             break
         points = [{k: int(v) for k, v in t.params.items()} for t in batch]

@@ -40,9 +40,13 @@ def requeue_trial(study: optuna.Study, trial_id: int, number: int, params: dict[
     and enqueue its point again; False when it was told meanwhile (nothing to do)."""
     try:
         study._storage.set_trial_user_attr(trial_id, "reaped", True)
+        told = study.tell(number, state=TrialState.FAIL, skip_if_finished=True)
     except optuna.exceptions.UpdateFinishedTrialError:
         return False  # its owner, alive after all (a paused worker), told it meanwhile
-    study.tell(number, state=TrialState.FAIL, skip_if_finished=True)
+    if told.state != TrialState.FAIL:
+        # told by its owner between the mark and the fail: it finished and counts (reaped or
+        # not), so its point is not asked again
+        return False
     study.enqueue_trial(dict(params), user_attrs={"baseline": True} if baseline else None)
     return True
 

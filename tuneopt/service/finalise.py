@@ -130,7 +130,7 @@ def _finish_budget(store: JobStore, job: _Job) -> int:
             job.evaluator,
             int(record.request["shards"]),
             should_stop=lambda: store.is_cancel_requested(job.id),
-            ask_lock=lambda: tasks._ask_lock(store, job.id),
+            ask_lock=lambda: tasks._ask_lock(store, job.id, job.study),
             piece_steps=tasks._current().piece_steps,
         )
     except Exception as exc:  # rank what finished rather than lose it

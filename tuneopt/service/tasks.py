@@ -7,6 +7,7 @@ a shard number). Each shard runs the same study runner as a local run, on a jour
 from __future__ import annotations
 
 import logging
+import secrets
 import shutil
 import threading
 import time
@@ -35,7 +36,12 @@ from tuneopt.optimise import (
     reap_stale_trials,
     run_shard,
 )
-from tuneopt.optimise.redis_storage import delete_study_keys, expire_study_keys, redis_storage
+from tuneopt.optimise.redis_storage import (
+    delete_study_keys,
+    expire_study_keys,
+    journal_of,
+    redis_storage,
+)
 from tuneopt.optimise.runner import BatchStopped, count_finished, shard_owner
 from tuneopt.service.logs import event
 from tuneopt.service.records import JobState, JobStore, is_job_id
@@ -136,34 +142,37 @@ def enqueue_start(queue: Queue, job_id: str, retries: int, pipeline: Pipeline | 
 # Counting a job's trials and asking the next batch is a short step (about a second with a
 # long study); a lock left by a killed worker lapses after this long [s].
 ASK_LOCK_SECONDS = 60
+# A shard waits this long at a time for its turn to ask, then checks its stops and the deadline
+# before it waits again [s].
+ASK_WAIT_SECONDS = 2.0
 
 
 @contextmanager
-def _ask_lock(store: JobStore, job_id: str) -> Iterator[None]:
+def _ask_lock(store: JobStore, job_id: str, study: optuna.Study | None = None) -> Iterator[bool]:
     """The lock a job's shards share while they count trials and ask a batch, so that shards
-    asking at the same moment never ask past the budget. A lock that cannot be had in time, or
-    that lapsed before it was released, costs at most one batch over the budget, never the
-    shard: it is logged and the shard goes on."""
-    lock = store.redis.lock(
-        f"{store.study_prefix(job_id)}:ask-lock",
-        timeout=ASK_LOCK_SECONDS,
-        blocking_timeout=ASK_LOCK_SECONDS,
-    )
-    held = False
+    asking at the same moment never ask past the budget. Yields whether this shard has its
+    turn: False after ASK_WAIT_SECONDS without it (the shard checks its stops and comes back;
+    it never asks without the lock). With ``study``, its asks are fenced by the lock's token
+    (``RedisJsonJournal.fenced``): a lock that lapses before the ask is written (a paused
+    worker) makes Redis refuse the ask instead of letting it pass another shard's count."""
+    key = f"{store.study_prefix(job_id)}:ask-lock"
+    lock = store.redis.lock(key, timeout=ASK_LOCK_SECONDS, blocking_timeout=ASK_WAIT_SECONDS)
+    token = secrets.token_hex(16)
+    if not lock.acquire(token=token):
+        yield False
+        return
+    journal = journal_of(study) if study is not None else None
     try:
-        held = bool(lock.acquire())
-    except LockError:
-        pass
-    if not held:
-        log.warning("job %s: asking a batch without the ask lock (not had in time)", job_id)
-    try:
-        yield
+        if journal is None:
+            yield True
+        else:
+            with journal.fenced(key, token):
+                yield True
     finally:
-        if held:
-            try:
-                lock.release()
-            except LockError:  # it lapsed while held: another shard may have asked meanwhile
-                log.warning("job %s: the ask lock lapsed before it was released", job_id)
+        try:
+            lock.release()
+        except LockError:  # it lapsed while held: an ask after that was refused by the fence
+            log.warning("job %s: the ask lock lapsed before it was released", job_id)
 
 
 def _plan(job_id: str, request: dict[str, Any], deadline: float) -> StudyPlan:
@@ -314,7 +323,7 @@ def run_shard_job(job_id: str, shard: int) -> int:
             shard,
             should_stop=stop_requested,
             on_batch=report,
-            ask_lock=lambda: _ask_lock(store, job_id),
+            ask_lock=lambda: _ask_lock(store, job_id, study),
             piece_steps=_current().piece_steps,
         )
     except Exception as exc:
