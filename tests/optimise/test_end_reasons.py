@@ -67,6 +67,7 @@ def test_an_end_that_barely_matters_is_said_to_be_no_strong_preference() -> None
     for effect, words in (
         (_effect(0.012, True, {"kick": 0.1}), "within noise"),
         (_effect(0.003, False, {"kick": 0.1}), "under 0.5 %"),
+        (_effect(-0.0001, False, {"kick": 0.1}), "moves the score +0.0 %"),  # never "-0.0 %"
         (_effect(-0.02, False, {"kick": -0.1}), "2.0 % better"),
     ):
         e = _ranked({"fork.lsc": {"down": "end of range", "up": 0.1}},

@@ -276,6 +276,7 @@ def with_end_reasons(e: RankedSetup, flags: dict[str, str]) -> dict[str, str]:
                 out[name] = f"{flag}. One step back in: {step}"
             continue
         rel = float(effect.get("relative", 0.0))
+        rel = rel if round(100 * rel, 1) else 0.0  # "-0.0 %" reads as a change
         n = int(effect.get("realisations", 0))
         if effect.get("within_noise") or abs(rel) < FLAT:
             out[name] = (

@@ -50,7 +50,8 @@ def sag_windows(scenario: Scenario) -> SagWindows:
             out[end] = Window(given.low, given.high, "scenario")
             continue
         low, high = usual[end].low, usual[end].high
-        basis = f"usual for a {kind} bike ({BASIS})"
+        article = "an" if kind[:1] in "aeiou" else "a"
+        basis = f"usual for {article} {kind} bike ({BASIS})"
         sag = current.get(end)
         if sag is not None and not low <= sag <= high:
             low, high = min(low, sag - _MARGIN), max(high, sag + _MARGIN)
