@@ -96,6 +96,15 @@ class Workers:
         self.history.append(proc)
         return proc
 
+    def ensure(self, *names: str) -> None:
+        """Start each named worker that is not running (never started, or exited), then wait
+        until every one of them listens."""
+        for name in names:
+            proc = self.procs.get(name)
+            if proc is None or proc.poll() is not None:
+                self.start(name)
+        self.wait_listening(*names)
+
     def wait_listening(self, *names: str) -> None:
         """Wait until the latest worker of each role is listening, so that every one gets a
         shard (workers of earlier rounds may still be listed: the names are new each start)."""

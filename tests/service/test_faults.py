@@ -531,10 +531,7 @@ def test_redis_restart_mid_job_keeps_every_completed_trial(
     roles = ["one", "two"]
 
     def one(n: int) -> dict[str, Any]:
-        for role in roles:
-            if role not in workers.procs or workers.procs[role].poll() is not None:
-                workers.start(role)
-        workers.wait_listening(*roles)
+        workers.ensure(*roles)
         supervisor = Supervisor(workers, roles)
         job_id = _submit(settings, trials=budget, shards=2, batch_size=4, realisations=1)
         watch = Watch(settings, store, job_id)
@@ -586,10 +583,7 @@ def test_eight_shards_racing_with_a_worker_killed_finish_exactly_the_budget(
     roles = [f"w{k}" for k in range(8)]
 
     def one(n: int) -> dict[str, Any]:
-        for role in roles:
-            if role not in workers.procs or workers.procs[role].poll() is not None:
-                workers.start(role)
-        workers.wait_listening(*roles)
+        workers.ensure(*roles)
         supervisor = Supervisor(workers, roles)
         job_id = _submit(settings, "200 m", trials=budget, shards=8, batch_size=4, realisations=1)
         watch = Watch(settings, store, job_id)
@@ -771,10 +765,7 @@ def test_worker_api_and_redis_killed_in_one_job_lose_nothing(
     budget = 40
 
     def one(n: int) -> dict[str, Any]:
-        for role in roles:
-            if workers.procs.get(role) is None or workers.procs[role].poll() is not None:
-                workers.start(role)
-        workers.wait_listening(*roles)
+        workers.ensure(*roles)
         supervisor = Supervisor(workers, roles, api)
         victim = workers.procs["one"]
         # two realisations: a batch of trials RUNNING long enough for the reads every POLL to

@@ -265,10 +265,10 @@ def with_end_reasons(e: RankedSetup, flags: dict[str, str]) -> dict[str, str]:
     out = dict(flags)
     for name, flag in flags.items():
         sides = e.steps.get(name, {})
-        inward = [side for side, v in sides.items() if v == "end of range"]
-        if len(inward) != 1:
+        at_end = [side for side, v in sides.items() if v == "end of range"]
+        if len(at_end) != 1:
             continue  # not at an end (a sag flag), or a one-value range
-        side = "up" if inward[0] == "down" else "down"
+        side = "up" if at_end[0] == "down" else "down"  # the step back into the range
         step = sides.get(side)
         effect = e.step_effects.get(name, {}).get(side)
         if effect is None:
