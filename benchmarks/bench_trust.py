@@ -157,6 +157,8 @@ def _one_study(path: Path, seed: int, trials: int, fresh: int) -> dict[str, Any]
         "leeway": {k: (int(v["low"]), int(v["high"])) for k, v in leeway.items()},
         "sag": winner.get("sag", {}),
         "settings": winner["settings"],
+        # the winner's moves on the selection realisations, when it was moved (refine.refine)
+        "refined": winner.get("refined") or {},
         "cpu_seconds": cpu_study,
         "wall_seconds": wall_study,
         # for analysis: every ranked setup's study figures, and each fresh realisation's scores

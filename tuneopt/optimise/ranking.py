@@ -9,11 +9,14 @@ from typing import Any
 
 import numpy as np
 import optuna
+from numpy.typing import NDArray
 from optuna.trial import FrozenTrial, TrialState
 
+from tuneopt.model import Setup
 from tuneopt.optimise.edges import edge_flags, static_warnings
 from tuneopt.optimise.evaluate import Evaluator
 from tuneopt.optimise.polish import point_key
+from tuneopt.optimise.refine import refine
 from tuneopt.optimise.robustness import FLAT, Ridden, leeway, robustness_fields
 from tuneopt.optimise.space import SearchSpace
 from tuneopt.optimise.validation import (
@@ -21,7 +24,9 @@ from tuneopt.optimise.validation import (
     FINALISTS,
     compare_scores,
     selection_count,
-    selection_scores,
+    selection_means,
+    selection_seeds,
+    selection_table,
     validation_outcomes,
 )
 
@@ -67,7 +72,10 @@ class RankedSetup:
     pressure that keeps the end's sag: its ``spacers`` and ``pressure`` as shown, and its
     ``score`` change on the same realisations as the steps, or ``failed`` saying why not.
     ``leeway`` (#1 only): how far each setting may move, every other held, before the score
-    rises by ``robustness.FLAT`` of it (``robustness.leeway``)."""
+    rises by ``robustness.FLAT`` of it (``robustness.leeway``). ``refined``: for a setup the
+    selection realisations moved away from a search's pick (``refine.refine``), the pick's
+    ``from_trial``, the ``moves`` made, the points ``tried`` and the selection
+    ``realisations``; empty otherwise."""
 
     rank: int
     trial: int
@@ -91,6 +99,7 @@ class RankedSetup:
     step_effects: dict[str, dict[str, dict[str, Any]]] = field(default_factory=dict)
     spring_trades: dict[str, dict[str, dict[str, Any]]] = field(default_factory=dict)
     leeway: dict[str, dict[str, Any]] = field(default_factory=dict)
+    refined: dict[str, Any] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -203,6 +212,57 @@ def _distinct_best(feasible: Sequence[FrozenTrial], count: int) -> list[FrozenTr
     return best
 
 
+def _with_refined_pick(
+    entries: list[RankedSetup],
+    setups: list[Setup],
+    table: NDArray[np.float64],
+    space: SearchSpace,
+    evaluator: Evaluator,
+) -> tuple[list[RankedSetup], list[Setup], NDArray[np.float64]]:
+    """The finalists (``entries``, then the current setup last in ``setups`` and ``table``)
+    with the selection set's first moved by ``refine.refine`` on the selection realisations,
+    when a move gained beyond doubt: the moved setup joins the finalists as one more (or, when
+    it is one of them already, that one records the moves)."""
+    means = selection_means(table)[: len(entries)]
+    if not np.isfinite(means).any():
+        return entries, setups, table
+    first = int(np.nanargmin(means))
+    selection = Evaluator(
+        evaluator.scenario,
+        seeds=selection_seeds(evaluator.seed, table.shape[1]),
+        dt=evaluator.dt,
+        keep_courses=False,
+    )
+    got = refine(entries[first].indices, table[first], space, selection)
+    if not got.moves:
+        return entries, setups, table
+    note = {"from_trial": entries[first].trial, "moves": got.moves, "tried": got.tried,
+            "realisations": table.shape[1]}  # fmt: skip
+    key = point_key(got.point)
+    for i, e in enumerate(entries):
+        if point_key(e.indices) == key:
+            entries = list(entries)
+            entries[i] = _replace(e, refined=note)
+            return entries, setups, table
+    setup = space.setup(got.point)
+    moved = _replace(
+        entries[first],
+        indices=dict(got.point),
+        settings=space.describe(got.point),
+        settings_si=space.values(got.point),
+        sag=evaluator.sag(setup),
+        search_score=None,
+        baseline=False,
+        refined=note,
+    )
+    row = np.asarray(got.scores, dtype=float)[None, :]
+    return (
+        [*entries, moved],
+        [*setups[:-1], setup, setups[-1]],
+        np.vstack([table[:-1], row, table[-1:]]),
+    )
+
+
 def _validated(
     entries: list[RankedSetup],
     base: RankedSetup | None,
@@ -215,7 +275,9 @@ def _validated(
     set, which chose nothing: the order's own pick is not flattered by the figures."""
     setups = [space.setup(e.indices) for e in entries] + [space.base]
     picked = selection_count(count)
-    chosen = selection_scores(evaluator, setups, picked)
+    table = selection_table(evaluator, setups, picked)
+    entries, setups, table = _with_refined_pick(entries, setups, table, space, evaluator)
+    chosen = selection_means(table)
     outcomes, ridden = validation_outcomes(evaluator, setups, count)
     base_out = outcomes[-1]
     kept = [

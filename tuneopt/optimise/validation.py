@@ -38,7 +38,9 @@ __all__ = [
     "Comparison",
     "compare_scores",
     "selection_count",
+    "selection_means",
     "selection_scores",
+    "selection_table",
     "selection_seeds",
     "validation_outcomes",
     "validation_seeds",
@@ -112,19 +114,25 @@ def validation_outcomes(
     return out, len(common)
 
 
-def selection_scores(
+def selection_table(
     search: Evaluator, setups: Sequence[Setup], count: int = DEFAULT_VALIDATION
 ) -> NDArray[np.float64]:
-    """Each setup's mean score over the selection realisations that every one of them rode to
-    the end, (S,); NaN for a setup that rode none of them. A realisation the passive rider
-    cannot get through on some setup (a runaway over a big feature) leaves the comparison
-    rather than the setups: the others are still compared on the same realisations."""
+    """Each setup's score on each selection realisation, (S, count), in the selection set's
+    order; NaN where a setup did not ride a realisation to the end (or at all)."""
     table = np.full((len(setups), count), np.nan)
     for r, seed in enumerate(selection_seeds(search.seed, count)):
         one = Evaluator(search.scenario, seeds=(seed,), dt=search.dt, keep_courses=False)
         for i, o in enumerate(one.evaluate(setups)):
             if o.ok:
                 table[i, r] = float(o.score)  # type: ignore[arg-type]
+    return table
+
+
+def selection_means(table: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Each row's mean over the realisations (columns) that every row rode to the end, (S,);
+    NaN for a row that rode none. A realisation the passive rider cannot get through on some
+    setup (a runaway over a big feature) leaves the comparison rather than the setups: the
+    others are still compared on the same realisations."""
     common = np.all(np.isfinite(table), axis=0)
     if common.any():
         means: NDArray[np.float64] = np.mean(table[:, common], axis=1)
@@ -136,6 +144,14 @@ def selection_scores(
             ridden > 0, np.nansum(table, axis=1) / np.maximum(ridden, 1), np.nan
         )
     return fallback
+
+
+def selection_scores(
+    search: Evaluator, setups: Sequence[Setup], count: int = DEFAULT_VALIDATION
+) -> NDArray[np.float64]:
+    """Each setup's mean score over the selection realisations that every one of them rode to
+    the end, (S,) (``selection_means`` of ``selection_table``)."""
+    return selection_means(selection_table(search, setups, count))
 
 
 @dataclass(frozen=True)

@@ -16,6 +16,7 @@ __all__ = [
     "flat_spring_trades",
     "fresh_terrain_lines",
     "leeway_lines",
+    "refined_lines",
     "setting_notes",
 ]
 
@@ -83,6 +84,7 @@ def fresh_terrain_lines(result: RunResult) -> list[str]:
             "These settings barely matter on this course (one step either way moves the score "
             f"by less than {100 * FLAT:.1f} %, largest change shown): " + ", ".join(parts) + "."
         )
+    lines.extend(refined_lines(result))
     lines.extend(leeway_lines(result))
     lines.extend(_spring_trade_lines(result))
     for name, sides in best.steps.items():
@@ -165,6 +167,27 @@ def _spring_trade_lines(result: RunResult) -> list[str]:
         )
     return lines
 
+
+
+def refined_lines(result: RunResult) -> list[str]:
+    """One sentence when #1 is a search's pick moved on the selection realisations: from which
+    trial, each move with its score change and interval (empty otherwise)."""
+    if not result.ranked or not result.ranked[0].refined:
+        return []
+    note = result.ranked[0].refined
+    parts = [
+        f"{result.label(m['setting'])} {m['from_shown']} to {m['to_shown']} "
+        f"({100 * float(m['relative']):+.1f} %, interval {100 * float(m['low']):+.1f} to "
+        f"{100 * float(m['high']):+.1f} %)"
+        for m in note.get("moves", ())
+    ]
+    return [
+        f"Setup #1 is the search's trial {note.get('from_trial')} with "
+        f"{'a setting' if len(parts) == 1 else 'settings'} moved one at a time on "
+        f"{note.get('realisations')} realisations that the search never rode and that give no "
+        f"figure here ({note.get('tried')} moves tried; a move kept only when it improved the "
+        "score beyond doubt): " + "; then ".join(parts) + "."
+    ]
 
 
 def leeway_lines(result: RunResult) -> list[str]:

@@ -97,6 +97,9 @@ class SetupEntry:
     # #1 only: how far each setting may move, every other held, before the score rises by
     # FLAT of it: low/high (indices), low_shown/high_shown, change, and why each side stopped
     leeway: Mapping[str, Mapping[str, Any]] = field(default_factory=lambda: MappingProxyType({}))
+    # a setup the selection realisations moved away from a search's pick: from_trial, the
+    # moves made (setting, from/to as shown, relative score change and its interval), tried
+    refined: Mapping[str, Any] = field(default_factory=lambda: MappingProxyType({}))
 
     @property
     def label(self) -> str:
@@ -245,6 +248,7 @@ def _entry(data: Any, where: str) -> SetupEntry:
         leeway=MappingProxyType(
             {k: _Fields(v, f"{where}.leeway.{k}").view() for k, v in room.items()}
         ),
+        refined=f.mapping("refined", {}),
     )
 
 
