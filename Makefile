@@ -24,8 +24,10 @@ lint: $(STAMP)
 typecheck: $(STAMP)
 	$(BIN)/mypy tuneopt
 
+# two test processes (a file stays on one of them: its fixtures and services are its own)
+TEST_WORKERS ?= 2
 unit: $(STAMP)
-	$(BIN)/python -m pytest -q
+	$(BIN)/python -m pytest -q -n $(TEST_WORKERS) --dist loadfile
 
 # redis-server and chromium: installed when missing (Debian, as root), else named
 system:
