@@ -43,9 +43,13 @@ class BilinearCurve:
     knee: float
 
     def magnitude(self, speed: FloatArray) -> FloatArray:
-        return self.low * np.minimum(speed, self.knee) + self.high * np.clip(
-            speed - self.knee, 0.0, None
-        )
+        # a runaway's speeds may be inf or NaN: the force follows (the simulators report the
+        # run as failed) without a floating-point warning
+        with np.errstate(invalid="ignore", over="ignore"):
+            out: FloatArray = self.low * np.minimum(speed, self.knee) + self.high * np.clip(
+                speed - self.knee, 0.0, None
+            )
+        return out
 
 
 @dataclass(frozen=True)

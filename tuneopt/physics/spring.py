@@ -28,9 +28,13 @@ FloatArray = NDArray[np.float64]
 def air_chamber_pressure(
     volume_change: ArrayLike, p0_abs: float, v0: float, n: float
 ) -> FloatArray:
-    """Polytropic law p = p0·(V0/(V0 − ΔV))^n for a chamber swept by ΔV [m^3]; absolute [Pa]."""
+    """Polytropic law p = p0·(V0/(V0 − ΔV))^n for a chamber swept by ΔV [m^3]; absolute [Pa].
+    A chamber swept to or past its whole volume has no finite pressure: NaN or inf there, which
+    the simulators report as a failed run."""
     dv = np.asarray(volume_change, dtype=float)
-    return p0_abs * (v0 / (v0 - dv)) ** n
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        out: FloatArray = p0_abs * (v0 / (v0 - dv)) ** n
+    return out
 
 
 @dataclass(frozen=True)

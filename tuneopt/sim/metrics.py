@@ -201,10 +201,11 @@ def wheel_metrics(
     n = float(samples)
     minutes = max(samples - 1, 1) * dt / 60.0
     mean = acc[:, off + c.WheelAcc.SUM_F] / n
-    var = np.maximum(acc[:, off + c.WheelAcc.SUM_F2] / n - mean**2, 0.0)
     nb = acc[:, off + c.WheelAcc.N_BOTTOM]
     low = np.full(len(mean), c.HIST_LOW)
-    with np.errstate(invalid="ignore", divide="ignore"):
+    # a failed run's sums may be huge or non-finite: its metrics are not read as figures
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        var = np.maximum(acc[:, off + c.WheelAcc.SUM_F2] / n - mean**2, 0.0)
         fields = dict(
             load_mean=mean,
             load_variation=np.sqrt(var) / mean,
