@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import zlib
 from collections.abc import Mapping, Sequence
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -174,3 +175,30 @@ def test_the_report_says_where_a_moved_pick_came_from() -> None:
     (line,) = refined_lines(read_result(data))
     assert "trial 84" in line and "24 realisations" in line and "66 moves tried" in line
     assert "fork LSR 3 to 7 (-2.4 %, interval -2.8 to -2.0 %)" in line
+
+
+@pytest.mark.parametrize("trials, moved", [(12, False), (40, True)])
+def test_only_a_study_with_line_searches_has_its_pick_moved(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch, trials: int, moved: bool
+) -> None:
+    """A quick look (under polish.MIN_BUDGET finished trials) is ranked without the moves,
+    a study of that budget or more with them (the moves' function is watched, not replaced)."""
+    from tests.conftest import write_toml
+    from tests.optimise.conftest import small_data
+    from tuneopt.cli import main
+    from tuneopt.optimise import ranking
+
+    calls: list[int] = []
+    real = ranking.refine
+
+    def watched(*args: Any, **kwargs: Any) -> Any:
+        calls.append(1)
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(ranking, "refine", watched)
+    path = tmp_path / "small.toml"
+    path.write_text(write_toml(small_data()))
+    code = main(["optimise", str(path), "--out", str(tmp_path / "run"), "--trials", str(trials),
+                 "--realisations", "2", "--validation", "4"])  # fmt: skip
+    assert code == 0
+    assert bool(calls) is moved

@@ -15,7 +15,7 @@ from optuna.trial import FrozenTrial, TrialState
 from tuneopt.model import Setup
 from tuneopt.optimise.edges import edge_flags, static_warnings
 from tuneopt.optimise.evaluate import Evaluator
-from tuneopt.optimise.polish import point_key
+from tuneopt.optimise.polish import MIN_BUDGET, point_key
 from tuneopt.optimise.refine import refine
 from tuneopt.optimise.robustness import FLAT, Ridden, leeway, robustness_fields
 from tuneopt.optimise.space import SearchSpace
@@ -269,14 +269,17 @@ def _validated(
     space: SearchSpace,
     evaluator: Evaluator,
     count: int,
+    move: bool = True,
 ) -> tuple[list[RankedSetup], RankedSetup | None]:
-    """Order the finalists and the current setup by their scores on the selection set, then
+    """Order the finalists and the current setup by their scores on the selection set (the
+    first moved by ``refine.refine`` when ``move``), then
     take every figure (scores, against the current setup and the winner) from the validation
     set, which chose nothing: the order's own pick is not flattered by the figures."""
     setups = [space.setup(e.indices) for e in entries] + [space.base]
     picked = selection_count(count)
     table = selection_table(evaluator, setups, picked)
-    entries, setups, table = _with_refined_pick(entries, setups, table, space, evaluator)
+    if move:
+        entries, setups, table = _with_refined_pick(entries, setups, table, space, evaluator)
     chosen = selection_means(table)
     outcomes, ridden = validation_outcomes(evaluator, setups, count)
     base_out = outcomes[-1]
@@ -407,7 +410,12 @@ def rank_study(
     )
     if validate and entries:
         assert evaluator is not None
-        entries, baseline_entry = _validated(entries, baseline_entry, space, evaluator, validation)
+        # a study too short for line searches (a quick look) is not moved either: the moves
+        # would cost more than its search did
+        entries, baseline_entry = _validated(
+            entries, baseline_entry, space, evaluator, validation,
+            move=len(complete) >= MIN_BUDGET,
+        )
     entries = entries[:top]
     if evaluator is not None and entries:
         ridden: Ridden = {}  # the leeway's first steps are the robustness steps of #1
