@@ -23,7 +23,7 @@ p is the setup's parameter row, tabs its tables, road the model's tuple of chann
 (N,), one type: see ``channels``).
 """
 
-# compiled against: 5706507c16cfb9c9 (see tests/sim/test_kernel_cache_stamps.py)
+# compiled against: 8a2be35a69f276ea (see tests/sim/test_kernel_cache_stamps.py)
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence

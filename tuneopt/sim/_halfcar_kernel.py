@@ -3,7 +3,7 @@
 handed to the shared drivers of ``tuneopt.sim._driver`` for the fixed-step RK4 loop over a batch
 and the pieces the ``solve_ivp`` reference calls."""
 
-# compiled against: 37c040d83882e80a (see tests/sim/test_kernel_cache_stamps.py)
+# compiled against: c2dd2022190ac0e7 (see tests/sim/test_kernel_cache_stamps.py)
 from __future__ import annotations
 
 import numpy as np

@@ -11,7 +11,7 @@ Integrated with fixed-step RK4 at the road's sample spacing; the road is linear 
 (the midpoint stage uses the mean of two samples).
 """
 
-# compiled against: c15a7be5ca820a8c (see tests/sim/test_kernel_cache_stamps.py)
+# compiled against: 30b0d607c79ab410 (see tests/sim/test_kernel_cache_stamps.py)
 from __future__ import annotations
 
 from dataclasses import dataclass
