@@ -266,7 +266,7 @@ def test_a_realisation_one_setup_cannot_ride_leaves_the_selection(
         scenario, seed, dt = None, 5, 1e-3
 
     monkeypatch.setattr(v, "Evaluator", OneCourse)
-    got = v.selection_scores(Search(), [0.1, 0.2, 0.3], 4)  # type: ignore[arg-type]
+    got = v.selection_means(v.selection_table(Search(), [0.1, 0.2, 0.3], 4))  # type: ignore[arg-type]
     common = np.mean([8.0, 9.0, 7.0])
     assert got == pytest.approx([common + 0.1, common + 0.2, common + 0.3], rel=1e-12)
 

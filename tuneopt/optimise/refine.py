@@ -58,8 +58,7 @@ def _candidates(
     out: list[tuple[str, dict[str, int]]] = []
     for p in space.parameters:
         for m in MULTIPLES:
-            j = min(max(int(point[p.name]) + m * p.robust_step, 0), len(p.values) - 1)
-            q = {**point, p.name: j}
+            q = {**point, p.name: p.stepped(point[p.name], m)}
             key = point_key(q)
             if key not in seen:
                 seen.add(key)

@@ -23,8 +23,7 @@ def _neighbours(
     out: list[tuple[str, str, dict[str, int] | None]] = []
     for p in space.parameters:
         for sign, side in ((-1, "down"), (1, "up")):
-            j = idx[p.name] + sign * p.robust_step
-            j = min(max(j, 0), len(p.values) - 1)
+            j = p.stepped(idx[p.name], sign)
             out.append((p.name, side, {**idx, p.name: j} if j != idx[p.name] else None))
     return out
 
@@ -208,7 +207,7 @@ def leeway(
                 stopped[key] = "end of range"
                 continue
             # a step past the end stops at the end (as the robustness steps do)
-            j = min(max(at + key[1] * p.robust_step, 0), len(p.values) - 1)
+            j = p.stepped(at, key[1])
             jobs.append((key, {**point, key[0]: j}))
         if not jobs:
             break

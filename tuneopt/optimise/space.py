@@ -37,6 +37,11 @@ class Parameter:
     robust_step: int = 1
     note: str = ""
 
+    def stepped(self, index: int, steps: int) -> int:
+        """The index ``steps`` robustness steps from ``index`` (negative: down), stopped at the
+        range's ends."""
+        return min(max(int(index) + steps * self.robust_step, 0), len(self.values) - 1)
+
     def shown(self, value: float) -> str:
         if self.unit == "psi":
             return f"{convert(value, 'Pa', 'psi'):.0f} psi"

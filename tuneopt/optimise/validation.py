@@ -39,7 +39,6 @@ __all__ = [
     "compare_scores",
     "selection_count",
     "selection_means",
-    "selection_scores",
     "selection_table",
     "selection_seeds",
     "validation_outcomes",
@@ -144,14 +143,6 @@ def selection_means(table: NDArray[np.float64]) -> NDArray[np.float64]:
             ridden > 0, np.nansum(table, axis=1) / np.maximum(ridden, 1), np.nan
         )
     return fallback
-
-
-def selection_scores(
-    search: Evaluator, setups: Sequence[Setup], count: int = DEFAULT_VALIDATION
-) -> NDArray[np.float64]:
-    """Each setup's mean score over the selection realisations that every one of them rode to
-    the end, (S,) (``selection_means`` of ``selection_table``)."""
-    return selection_means(selection_table(search, setups, count))
 
 
 @dataclass(frozen=True)
