@@ -4,6 +4,14 @@ Each simulator takes plain parameter objects with a leading batch axis B (one ro
 one ``RoadInput``, and returns a frozen result with named (B,) metric arrays.
 """
 
+import os
+
+# The kernels' OpenMP threads sleep while they wait for work instead of spinning: a spinning
+# thread burns a core the other worker processes of a study (and the service's other workers on
+# the machine) need. Read by the OpenMP runtime when the first parallel kernel starts; an
+# operator's own setting is kept. Measured in docs/benchmarks.md ("Simulator speed").
+os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
+
 from tuneopt.sim._common import (
     BOTTOM_OUT_FULL_DEPTH,
     BRAKING_THRESHOLD,
