@@ -26,6 +26,8 @@ class _PointSpace(SearchSpace):
 class _Fake:
     """An evaluator scoring each point with ``f`` (None: outside the sag window), counting rides."""
 
+    realisations = 1
+
     def __init__(self, f: Score) -> None:
         self.f, self.asked = f, 0
 

@@ -13,6 +13,7 @@ from scipy import stats
 from tuneopt.model import Scenario
 from tuneopt.optimise.edges import edge_flags
 from tuneopt.optimise.evaluate import Evaluator, RacePolicy, paired_interval, realisation_seeds
+from tuneopt.optimise.robustness import FLAT
 from tuneopt.optimise.runner import leader_scores
 from tuneopt.optimise.sag_windows import sag_windows
 from tuneopt.optimise.space import build_space
@@ -226,6 +227,19 @@ def test_ranking_comes_from_the_fresh_realisations(
     for e in ranking.ranked:
         assert set(e.steps) == set(space.names)  # every setting has both steps or a reason
         assert all(set(v) == {"down", "up"} for v in e.steps.values())
+    # #1's leeway was walked on the selection set: a step just past a band the score ended
+    # costs FLAT or more of #1's score there
+    own = float(picked.evaluate([space.setup(best.indices)])[0].score)  # type: ignore[arg-type]
+    assert set(best.leeway) == set(space.names)
+    past = []
+    for name, r in best.leeway.items():
+        assert r["realisations"] == 4
+        for side, end, sign in (("down", "low", -1), ("up", "high", 1)):
+            if r[side] == "score":
+                past.append({**best.indices, name: space[name].stepped(r[end], sign)})
+    assert past, "some setting should matter on the small course"
+    for o in picked.evaluate([space.setup(p) for p in past]):
+        assert (float(o.score) - own) / abs(own) >= FLAT  # type: ignore[arg-type]
 
 
 def test_realisations_built_on_the_way_score_as_kept_ones(small_scenario: Scenario) -> None:

@@ -123,3 +123,19 @@ def test_the_leeway_is_said_setting_by_setting_as_result_json_keeps_it() -> None
     assert "fork pressure only at 80 psi" in line
     # a side the walk left at its limit may reach further; no score fell: +0.0, never -0.0
     assert "fork HSC 0 (its range's end) to 8 (or further) (+0.0 to +0.0 %)" in line
+
+
+def test_the_leeway_sentence_says_how_many_realisations_the_walk_rode() -> None:
+    """A walk that kept its count says it; a result written before the count was kept says the
+    search's first realisations, as those walks rode."""
+    room = {"fork.lsc": {"low": 2, "high": 16, "low_shown": "2", "high_shown": "16",
+                         "rise": 0.0031, "fall": 0.012, "down": "score", "up": "end of range"}}
+
+    def line(r: dict[str, Any]) -> str:
+        best = entry(1, score=8.0, search_score=8.0, leeway={"fork.lsc": r})
+        result = run_result([best], None, labels={"fork.lsc": "fork LSC"})
+        (said,) = [x for x in fresh_terrain_lines(result) if x.startswith("How far each")]
+        return said
+
+    assert "on 24 realisations paired with #1" in line({**room["fork.lsc"], "realisations": 24})
+    assert "on the search's first realisations" in line(room["fork.lsc"])

@@ -178,15 +178,18 @@ def leeway(
 ) -> dict[str, dict[str, Any]]:
     """How far each setting of ``point`` may move, every other setting held, before the score
     rises by ``FLAT`` of it or more: walked one robustness step at a time either side (at most
-    ``LEEWAY_STEPS``), each step paired with the setup itself on the search's first
-    realisations, as the robustness steps are. By setting: ``low`` and ``high``, the indices of
+    ``LEEWAY_STEPS``), each step paired with the setup itself on every realisation of
+    ``evaluator`` (the caller picks them: a study ranked on a selection set walks on that set,
+    which says a rise of ``FLAT`` apart from the noise better than the search's first few). By
+    setting: ``low`` and ``high``, the indices of
     the band's ends, ``low_shown`` and ``high_shown`` as the report shows them, ``rise`` and
     ``fall``, the largest relative rise and fall of the score inside the band (a fall: a point
-    that scores better than the setup on these realisations), and ``down`` and ``up``,
+    that scores better than the setup on these realisations), ``down`` and ``up``,
     why the walk stopped on that side ("end of range", "score", "outside the sag window",
-    "failed", "walk limit"). Empty when the setup itself does not ride. Points ``ridden``
-    holds (from ``robustness_fields`` on the same realisations) are not ridden again."""
-    ev = evaluator.first(ROBUSTNESS_REALISATIONS)
+    "failed", "walk limit"), and ``realisations``, how many the walk rode. Empty when the setup
+    itself does not ride. Points ``ridden`` holds (outcomes on the same realisations) are not
+    ridden again."""
+    ev = evaluator
     ridden = {} if ridden is None else ridden
     (own,) = _ride(ev, space, [point], ridden)
     if not own.ok:
@@ -240,5 +243,6 @@ def leeway(
             "fall": fall[p.name],
             "down": stopped.get((p.name, -1), "walk limit"),
             "up": stopped.get((p.name, 1), "walk limit"),
+            "realisations": ev.realisations,
         }
     return out

@@ -208,9 +208,14 @@ def leeway_lines(result: RunResult) -> list[str]:
             f"{label} {room['low_shown']}{ends['down']} to {room['high_shown']}{ends['up']} "
             f"({0.0 - 100 * float(room['fall']):+.1f} to {100 * float(room['rise']):+.1f} %)"
         )
+    rode = {room.get("realisations") for room in best.leeway.values()}
+    on = (
+        f"on {rode.pop()} realisations paired with #1"
+        if len(rode) == 1 and None not in rode else "on the search's first realisations"
+    )  # results written before the count was kept rode the search's first 4
     return [
         f"How far each setting of #1 may move on its own, every other held, before the score "
         f"rises by {100 * FLAT:.1f} % (walked up to {LEEWAY_STEPS} steps either way; the "
-        f"score's lowest and highest change inside, on the search's first realisations): "
+        f"score's lowest and highest change inside, {on}): "
         + "; ".join(parts) + "."
     ]
