@@ -98,7 +98,8 @@ def _broken_logs(draw: st.DrawFn) -> bytes:
             fill = "" if action == "nan_run" else draw(st.sampled_from(["40.0", "0.000", "75"]))
             for k in range(i, min(n, i + length)):
                 row = lines[k].split(",")
-                if col < len(row):
+                # never the time column; a row cut to fewer cells keeps what it has
+                if max(col, 1) < len(row):
                     row[max(col, 1)] = fill
                     lines[k] = ",".join(row)
         elif action == "huge":
