@@ -30,8 +30,8 @@ from tuneopt.optimise.validation import (
     FINALISTS,
     compare_scores,
     selection_count,
+    selection_evaluator,
     selection_means,
-    selection_seeds,
     selection_table,
     validation_outcomes,
 )
@@ -233,13 +233,8 @@ def _with_refined_pick(
     if not np.isfinite(means).any():
         return entries, setups, table
     first = int(np.nanargmin(means))
-    selection = Evaluator(
-        evaluator.scenario,
-        seeds=selection_seeds(evaluator.seed, table.shape[1]),
-        dt=evaluator.dt,
-        keep_courses=False,
-    )
-    got = refine(entries[first].indices, table[first], space, selection)
+    got = refine(entries[first].indices, table[first], space,
+                 selection_evaluator(evaluator, table.shape[1]))  # fmt: skip
     if not got.moves:
         return entries, setups, table
     note = {"from_trial": entries[first].trial, "moves": got.moves, "tried": got.tried,
@@ -424,16 +419,14 @@ def rank_study(
         )
     entries = entries[:top]
     if evaluator is not None and entries:
-        ridden: Ridden = {}  # the leeway's first steps are the robustness steps of #1
+        ridden: Ridden = {}  # the robustness steps' rides, on the search's first realisations
         entries = _with_robustness(entries, space, evaluator, ridden)
         if validate:
             # walked on the selection set: 24 paired realisations tell a rise of FLAT from the
             # noise where the robustness steps' 4 could not
-            walk = Evaluator(evaluator.scenario,
-                             seeds=selection_seeds(evaluator.seed, selection_count(validation)),
-                             dt=evaluator.dt, keep_courses=False)  # fmt: skip
-            room = leeway(entries[0].indices, space, walk)
-        else:
+            room = leeway(entries[0].indices, space,
+                          selection_evaluator(evaluator, selection_count(validation)))  # fmt: skip
+        else:  # its first steps are the robustness steps of #1
             room = leeway(entries[0].indices, space,
                           evaluator.first(ROBUSTNESS_REALISATIONS), ridden)  # fmt: skip
         entries[0] = _replace(entries[0], leeway=room)

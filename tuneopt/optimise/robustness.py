@@ -189,9 +189,8 @@ def leeway(
     "failed", "walk limit"), and ``realisations``, how many the walk rode. Empty when the setup
     itself does not ride. Points ``ridden`` holds (outcomes on the same realisations) are not
     ridden again."""
-    ev = evaluator
     ridden = {} if ridden is None else ridden
-    (own,) = _ride(ev, space, [point], ridden)
+    (own,) = _ride(evaluator, space, [point], ridden)
     if not own.ok:
         return {}
     base = float(own.score)  # type: ignore[arg-type]
@@ -214,7 +213,7 @@ def leeway(
             jobs.append((key, {**point, key[0]: j}))
         if not jobs:
             break
-        for (key, pt), o in zip(jobs, _ride(ev, space, [pt for _, pt in jobs], ridden),
+        for (key, pt), o in zip(jobs, _ride(evaluator, space, [pt for _, pt in jobs], ridden),
                                 strict=True):  # fmt: skip
             if not o.ok:
                 stopped[key] = (
@@ -243,6 +242,6 @@ def leeway(
             "fall": fall[p.name],
             "down": stopped.get((p.name, -1), "walk limit"),
             "up": stopped.get((p.name, 1), "walk limit"),
-            "realisations": ev.realisations,
+            "realisations": evaluator.realisations,
         }
     return out

@@ -38,6 +38,7 @@ __all__ = [
     "Comparison",
     "compare_scores",
     "selection_count",
+    "selection_evaluator",
     "selection_means",
     "selection_table",
     "selection_seeds",
@@ -69,6 +70,13 @@ def validation_seeds(study_seed: int, count: int) -> tuple[int, ...]:
 def selection_seeds(study_seed: int, count: int) -> tuple[int, ...]:
     """The realisations that order the finalists (never searched, never reported)."""
     return realisation_seeds(study_seed, count, SELECTION)
+
+
+def selection_evaluator(search: Evaluator, count: int) -> Evaluator:
+    """An evaluator over the ``count`` realisations of ``search``'s study's selection set, built
+    again for each batch (a long course's realisations are not all kept in memory)."""
+    return Evaluator(search.scenario, seeds=selection_seeds(search.seed, count), dt=search.dt,
+                     keep_courses=False)
 
 
 def validation_outcomes(

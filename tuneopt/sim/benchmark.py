@@ -86,13 +86,15 @@ class ModelBench:
 
 @dataclass(frozen=True)
 class BenchResult:
-    """Both models' figures and the conditions: simulated duration [s], batch size, number of
-    setups run through the reference, its rtol, and the CPUs the process may use."""
+    """Both models' figures and the conditions: simulated duration [s], batch size, warm calls
+    timed per batch size, number of setups run through the reference, its rtol, and the CPUs
+    the process may use."""
 
     quartercar: ModelBench
     halfcar: ModelBench
     duration: float
     batch: int
+    calls: int
     reference_setups: int
     reference_rtol: float
     cpus: int
@@ -333,5 +335,6 @@ def bench(
                       reference_rtol, "halfcar", cold)
     cpus = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()
     return BenchResult(quartercar=qc, halfcar=hc, duration=road.duration, batch=batch,
+                       calls=BATCH_CALLS,
                        reference_setups=reference_setups, reference_rtol=reference_rtol,
                        cpus=int(cpus or 1))
