@@ -33,6 +33,7 @@ from tuneopt.optimise.validation import (
     selection_evaluator,
     selection_means,
     selection_table,
+    validation_evaluator,
     validation_outcomes,
 )
 
@@ -422,10 +423,12 @@ def rank_study(
         ridden: Ridden = {}  # the robustness steps' rides, on the search's first realisations
         entries = _with_robustness(entries, space, evaluator, ridden)
         if validate:
-            # walked on the selection set: 24 paired realisations tell a rise of FLAT from the
+            # walked on the validation set, which chose nothing: on the selection set #1 was
+            # picked as the best, so it scores there with its luck and every step away from it
+            # looks dearer than it is; 40 paired realisations also tell a rise of FLAT from the
             # noise where the robustness steps' 4 could not
             room = leeway(entries[0].indices, space,
-                          selection_evaluator(evaluator, selection_count(validation)))  # fmt: skip
+                          validation_evaluator(evaluator, validation))  # fmt: skip
         else:  # its first steps are the robustness steps of #1
             room = leeway(entries[0].indices, space,
                           evaluator.first(ROBUSTNESS_REALISATIONS), ridden)  # fmt: skip

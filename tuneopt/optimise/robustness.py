@@ -179,12 +179,12 @@ def leeway(
     """How far each setting of ``point`` may move, every other setting held, before the score
     rises by ``FLAT`` of it or more: walked one robustness step at a time either side (at most
     ``LEEWAY_STEPS``), each step paired with the setup itself on every realisation of
-    ``evaluator`` (the caller picks them: a study ranked on a selection set walks on that set,
-    which says a rise of ``FLAT`` apart from the noise better than the search's first few). By
-    setting: ``low`` and ``high``, the indices of
-    the band's ends, ``low_shown`` and ``high_shown`` as the report shows them, ``rise`` and
-    ``fall``, the largest relative rise and fall of the score inside the band (a fall: a point
-    that scores better than the setup on these realisations), ``down`` and ``up``,
+    ``evaluator`` (the caller picks them: a validated study walks on its validation set, which
+    chose nothing, so the setup has no favour there, and which says a rise of ``FLAT`` apart
+    from the noise better than the search's first few). By setting: ``low`` and ``high``, the
+    indices of the band's ends, ``low_shown`` and ``high_shown`` as the report shows them,
+    ``rise`` and ``fall``, the largest relative rise and fall of the score inside the band (a
+    fall: a point that scores better than the setup on these realisations), ``down`` and ``up``,
     why the walk stopped on that side ("end of range", "score", "outside the sag window",
     "failed", "walk limit"), and ``realisations``, how many the walk rode. Empty when the setup
     itself does not ride. Points ``ridden`` holds (outcomes on the same realisations) are not

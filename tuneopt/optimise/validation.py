@@ -42,6 +42,7 @@ __all__ = [
     "selection_means",
     "selection_table",
     "selection_seeds",
+    "validation_evaluator",
     "validation_outcomes",
     "validation_seeds",
 ]
@@ -76,6 +77,14 @@ def selection_evaluator(search: Evaluator, count: int) -> Evaluator:
     """An evaluator over the ``count`` realisations of ``search``'s study's selection set, built
     again for each batch (a long course's realisations are not all kept in memory)."""
     return Evaluator(search.scenario, seeds=selection_seeds(search.seed, count), dt=search.dt,
+                     keep_courses=False)
+
+
+def validation_evaluator(search: Evaluator, count: int) -> Evaluator:
+    """An evaluator over the ``count`` realisations of ``search``'s study's validation set
+    (for figures about a setup already chosen: they chose nothing, so the chosen setup scores
+    there without the favour of having been picked on them)."""
+    return Evaluator(search.scenario, seeds=validation_seeds(search.seed, count), dt=search.dt,
                      keep_courses=False)
 
 
