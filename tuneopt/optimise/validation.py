@@ -73,19 +73,22 @@ def selection_seeds(study_seed: int, count: int) -> tuple[int, ...]:
     return realisation_seeds(study_seed, count, SELECTION)
 
 
-def selection_evaluator(search: Evaluator, count: int) -> Evaluator:
-    """An evaluator over the ``count`` realisations of ``search``'s study's selection set, built
+def _riding(search: Evaluator, seeds: tuple[int, ...]) -> Evaluator:
+    """An evaluator of ``search``'s scenario and time step over ``seeds``, its courses built
     again for each batch (a long course's realisations are not all kept in memory)."""
-    return Evaluator(search.scenario, seeds=selection_seeds(search.seed, count), dt=search.dt,
-                     keep_courses=False)
+    return Evaluator(search.scenario, seeds=seeds, dt=search.dt, keep_courses=False)
+
+
+def selection_evaluator(search: Evaluator, count: int) -> Evaluator:
+    """An evaluator over the ``count`` realisations of ``search``'s study's selection set."""
+    return _riding(search, selection_seeds(search.seed, count))
 
 
 def validation_evaluator(search: Evaluator, count: int) -> Evaluator:
     """An evaluator over the ``count`` realisations of ``search``'s study's validation set
     (for figures about a setup already chosen: they chose nothing, so the chosen setup scores
     there without the favour of having been picked on them)."""
-    return Evaluator(search.scenario, seeds=validation_seeds(search.seed, count), dt=search.dt,
-                     keep_courses=False)
+    return _riding(search, validation_seeds(search.seed, count))
 
 
 def validation_outcomes(
@@ -97,9 +100,7 @@ def validation_outcomes(
     comparison rather than the setup, so the figures stay paired; a setup that rode none of
     them (statically impossible, or a runaway everywhere) keeps its failure."""
     per = [
-        Evaluator(search.scenario, seeds=(seed,), dt=search.dt, keep_courses=False).evaluate(
-            setups
-        )
+        _riding(search, (seed,)).evaluate(setups)
         for seed in validation_seeds(search.seed, count)
     ]
     rode = [any(row[i].ok for row in per) for i in range(len(setups))]
@@ -137,7 +138,7 @@ def selection_table(
     order; NaN where a setup did not ride a realisation to the end (or at all)."""
     table = np.full((len(setups), count), np.nan)
     for r, seed in enumerate(selection_seeds(search.seed, count)):
-        one = Evaluator(search.scenario, seeds=(seed,), dt=search.dt, keep_courses=False)
+        one = _riding(search, (seed,))
         for i, o in enumerate(one.evaluate(setups)):
             if o.ok:
                 table[i, r] = float(o.score)  # type: ignore[arg-type]
