@@ -14,9 +14,12 @@ a spring; 5 psi of air pressure and 0.1 bar of tyre pressure, 5 and 2 positions 
 and 0.05 bar grids), and which settings spread beyond two steps with some seed's winner
 outside the leeway another study's report gives (the band where that study's winner scores
 within 0.5 % as the setting moves alone, so that the report shows by how much the setting
-barely matters there); an air spring's pressure and spacers count as agreeing when the
-winners' sags lie within 2 % of travel of each other and every study found its spacer traded
-for pressure at that sag flat.
+barely matters there) or outside the span the setups a study found as good as its #1 give
+(several settings moved together, each within 0.5 % of #1 at the high end of its interval);
+an air spring's pressure and spacers count as agreeing when the winners' sags lie within 2 %
+of travel of each other and every study found its spacer traded for pressure at that sag flat.
+Then each pair of seeds' winners against each other on the same fresh realisations: whether
+their disagreement costs anything the course can tell.
 
     python benchmarks/bench_trust.py [--fresh 100] [--trials 600] [--scenarios a.toml b.toml]
                                      [--json out.json]
@@ -43,10 +46,16 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from tuneopt.model import load_scenario  # noqa: E402
+from tuneopt.optimise import FLAT  # noqa: E402
 from tuneopt.optimise.evaluate import Evaluator  # noqa: E402
 from tuneopt.optimise.runner import DEFAULT_TRIALS  # noqa: E402
 from tuneopt.optimise.space import build_space  # noqa: E402
-from tuneopt.report.fresh_terrain import flat_settings, flat_spring_trades  # noqa: E402
+from tuneopt.optimise.validation import compare_scores  # noqa: E402
+from tuneopt.report.fresh_terrain import (  # noqa: E402
+    as_good_spans,
+    flat_settings,
+    flat_spring_trades,
+)
 from tuneopt.report.run_data import read_run_folder  # noqa: E402
 
 SCENARIOS = ("scenarios/trail_air.toml", "scenarios/enduro_coil.toml")
@@ -121,6 +130,9 @@ def _one_study(path: Path, seed: int, trials: int, fresh: int) -> dict[str, Any]
         # ends whose spacer traded for pressure at the same sag barely moves the score
         flat_trades = flat_spring_trades(read)
         leeway = read.ranked[0].leeway if read.ranked else {}
+        # where #1 and the finalists within FLAT of it beyond doubt differ: (lowest, highest)
+        joint = {k: (lo, hi) for k, (lo, hi, _, _) in as_good_spans(read).items()}
+        as_good = len(read.ranked[0].as_good) if read.ranked else 0
     cpu_study, wall_study = _cpu_seconds() - cpu0, time.time() - wall0
     winner = result["ranked"][0]
     # the winner and the current setup, then the rest of the ranked setups (kept for analysis)
@@ -155,6 +167,9 @@ def _one_study(path: Path, seed: int, trials: int, fresh: int) -> dict[str, Any]
         "flat_trades": sorted(flat_trades),
         # the report's leeway of the winner: (lowest, highest) index by setting
         "leeway": {k: (int(v["low"]), int(v["high"])) for k, v in leeway.items()},
+        # the span of each setting over #1 and the setups as good as it (moved together)
+        "as_good_span": joint,
+        "as_good": as_good,
         "sag": winner.get("sag", {}),
         "settings": winner["settings"],
         # the winner's moves on the selection realisations, when it was moved (refine.refine)
@@ -195,6 +210,32 @@ def _table(rows: list[dict[str, Any]]) -> str:
     return "\n".join(lines)
 
 
+def _holds(band: Any, idx: list[int]) -> bool:
+    """Whether ``band`` (lowest, highest index, or None) holds every index of ``idx``."""
+    return band is not None and band[0] <= min(idx) and max(idx) <= band[1]
+
+
+def _pairs(mine: list[dict[str, Any]]) -> list[str]:
+    """Each pair of seeds' winners on the fresh realisations (the same course seeds for every
+    study of a scenario, so paired): how much better the first rides, its 95 % interval, and
+    whether that is under FLAT at the interval's ends (their disagreement barely matters)."""
+    out = []
+    for i, a in enumerate(mine):
+        for b in mine[i + 1:]:
+            sa = np.array([row[0] if row[0] is not None else np.nan for row in a["fresh_scores"]])
+            sb = np.array([row[0] if row[0] is not None else np.nan for row in b["fresh_scores"]])
+            ok = np.isfinite(sa) & np.isfinite(sb)
+            if ok.sum() < 2:
+                continue
+            c = compare_scores(sa[ok], sb[ok])
+            near = max(abs(c.gain_low), abs(c.gain_high)) < FLAT
+            out.append(
+                f"seed {a['seed']} vs {b['seed']} {_pct(c.gain)} ({_pct(c.gain_low)} to "
+                f"{_pct(c.gain_high)}{', within FLAT' if near else ''})"
+            )
+    return out
+
+
 def _spread(rows: list[dict[str, Any]]) -> str:
     lines = []
     for name in dict.fromkeys(r["scenario"] for r in rows):
@@ -217,15 +258,16 @@ def _spread(rows: list[dict[str, Any]]) -> str:
                 continue
             # the studies whose report's leeway (the band where the score stays within FLAT
             # of its winner's, the setting moved alone) holds every seed's winner
-            held = sum(
-                k in r.get("leeway", {})
-                and r["leeway"][k][0] <= min(idx) and max(idx) <= r["leeway"][k][1]
-                for r in mine
-            )  # fmt: skip
+            alone = [_holds(r.get("leeway", {}).get(k), idx) for r in mine]
+            # or the setups a study found as good as its #1 (several settings moved together)
+            joint = [_holds(r.get("as_good_span", {}).get(k), idx) for r in mine]
+            held = sum(a or j for a, j in zip(alone, joint, strict=True))
             text = f"{k} {spread:g}" if unit == 1 else f"{k} {spread:.1f} (x{unit})"
             notes = [f"flat one step either side in {named}"] if named else []
-            if held:
-                notes.append(f"all winners inside the leeway of {held}")
+            if any(alone):
+                notes.append(f"all winners inside the leeway of {sum(alone)}")
+            if any(joint):
+                notes.append(f"inside the span of the setups as good as #1 of {sum(joint)}")
             parts.append(text + (f" ({'; '.join(notes)} of {len(mine)})" if notes else ""))
             if spread > 2 and held < len(mine):
                 unexplained.append(k)
@@ -237,6 +279,8 @@ def _spread(rows: list[dict[str, Any]]) -> str:
             f"  - spread beyond 2 steps with a winner outside some study's leeway: "
             f"{', '.join(unexplained) or 'none'}"
         )
+        lines.append("  - the winners against each other on the same fresh realisations: "
+                     + "; ".join(_pairs(mine)))
         for r in mine:
             lines.append(f"  - seed {r['seed']}: " + ", ".join(
                 f"{k} {v}" for k, v in r["settings"].items()))

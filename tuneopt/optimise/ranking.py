@@ -37,7 +37,14 @@ from tuneopt.optimise.validation import (
     validation_outcomes,
 )
 
-__all__ = ["RankedSetup", "Ranking", "pareto_front", "rank_study", "tradeoff_sentence"]
+__all__ = [
+    "RankedSetup",
+    "Ranking",
+    "as_good",
+    "pareto_front",
+    "rank_study",
+    "tradeoff_sentence",
+]
 
 # How each score term reads in a sentence: (noun phrase, "better" adjective, "worse" adjective).
 TERM_WORDS = {
@@ -82,7 +89,9 @@ class RankedSetup:
     rises by ``robustness.FLAT`` of it (``robustness.leeway``). ``refined``: for a setup the
     selection realisations moved away from a search's pick (``refine.refine``), the pick's
     ``from_trial``, the ``moves`` made, the points ``tried`` and the selection
-    ``realisations``; empty otherwise."""
+    ``realisations``; empty otherwise. ``as_good`` (#1 only, validated studies): the other
+    finalists that score within ``robustness.FLAT`` of it on the validation set beyond doubt
+    (``as_good``): several settings moved together at a cost too small to matter."""
 
     rank: int
     trial: int
@@ -107,6 +116,7 @@ class RankedSetup:
     spring_trades: dict[str, dict[str, dict[str, Any]]] = field(default_factory=dict)
     leeway: dict[str, dict[str, Any]] = field(default_factory=dict)
     refined: dict[str, Any] = field(default_factory=dict)
+    as_good: list[dict[str, Any]] = field(default_factory=list)
 
 
 @dataclass(frozen=True)
@@ -324,6 +334,33 @@ def _validated(
     return ranked, new_base
 
 
+def as_good(entries: Sequence[RankedSetup]) -> list[dict[str, Any]]:
+    """The validated finalists after #1 whose cost against #1 on the validation set stays under
+    ``FLAT`` of #1's score at the high end of its paired 95 % interval (so the course cannot
+    tell them from #1 by as much as that, and 40 realisations say so, not a lack of them):
+    each one's ``rank``, ``trial``, ``baseline``, ``indices``, ``settings`` as shown, and its
+    ``cost`` with ``cost_low``/``cost_high`` (shares of #1's score; below 0: it rode better
+    there) over ``realisations``. One setting at a time, #1's leeway says how far each may
+    move; these say how far several may move together."""
+    out: list[dict[str, Any]] = []
+    for e in entries[1:]:
+        vs = e.validation.get("vs_winner")
+        if not vs or -float(vs["gain_low"]) >= FLAT:
+            continue
+        out.append({
+            "rank": e.rank,
+            "trial": e.trial,
+            "baseline": e.baseline,
+            "indices": dict(e.indices),
+            "settings": dict(e.settings),
+            "cost": -float(vs["gain"]),
+            "cost_low": -float(vs["gain_high"]),
+            "cost_high": -float(vs["gain_low"]),
+            "realisations": int(vs["realisations"]),
+        })  # fmt: skip
+    return out
+
+
 def with_end_reasons(e: RankedSetup, flags: dict[str, str]) -> dict[str, str]:
     """Each flag of a setting at an end of its range, with why the end was chosen: what one step
     back into the range did on the robustness realisations (its score change as a share of the
@@ -418,6 +455,8 @@ def rank_study(
             entries, baseline_entry, space, evaluator, validation,
             move=len(complete) >= MIN_BUDGET,
         )
+        if entries:  # every validated finalist, before the list is cut to ``top``
+            entries[0] = _replace(entries[0], as_good=as_good(entries))
     entries = entries[:top]
     if evaluator is not None and entries:
         ridden: Ridden = {}  # the robustness steps' rides, on the search's first realisations

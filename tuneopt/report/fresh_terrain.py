@@ -12,6 +12,8 @@ from tuneopt.report.run_data import RunResult
 
 __all__ = [
     "FLAT",
+    "as_good_lines",
+    "as_good_spans",
     "flat_settings",
     "flat_spring_trades",
     "fresh_terrain_lines",
@@ -86,6 +88,7 @@ def fresh_terrain_lines(result: RunResult) -> list[str]:
         )
     lines.extend(refined_lines(result))
     lines.extend(leeway_lines(result))
+    lines.extend(as_good_lines(result))
     lines.extend(_spring_trade_lines(result))
     for name, sides in best.steps.items():
         for side, value in sides.items():
@@ -219,3 +222,61 @@ def leeway_lines(result: RunResult) -> list[str]:
         f"score's lowest and highest change inside, {on}): "
         + "; ".join(parts) + "."
     ]
+
+
+def as_good_spans(result: RunResult) -> dict[str, tuple[int, int, str, str]]:
+    """By setting on which #1 and the setups as good as it (``RankedSetup.as_good``) differ:
+    the lowest and highest index among them and those values as shown."""
+    if not result.ranked or not result.ranked[0].as_good:
+        return {}
+    best = result.ranked[0]
+    points = [(best.indices, best.settings)] + [
+        (other["indices"], other["settings"]) for other in best.as_good
+    ]
+    out: dict[str, tuple[int, int, str, str]] = {}
+    for name in best.indices:
+        at = sorted(((int(idx[name]), str(shown[name])) for idx, shown in points
+                     if name in idx and name in shown), key=lambda v: v[0])  # fmt: skip
+        if at and at[0][0] != at[-1][0]:
+            out[name] = (at[0][0], at[-1][0], at[0][1], at[-1][1])
+    return out
+
+
+def as_good_lines(result: RunResult) -> list[str]:
+    """Two sentences when other finalists score within FLAT of #1 on the validation set beyond
+    doubt: each with the settings where it differs from #1 and its cost's interval, then how
+    far the settings range over them (empty otherwise)."""
+    if not result.ranked or not result.ranked[0].as_good:
+        return []
+    best = result.ranked[0]
+    listed = len(result.ranked)
+    parts = []
+    for other in best.as_good:
+        rank = int(other["rank"])
+        name = (
+            "the current setup" if other.get("baseline")
+            else f"#{rank}" if rank <= listed else f"finalist {rank} (not listed)"
+        )  # fmt: skip
+        moved = [
+            f"{result.label(k)} {v}" for k, v in other["settings"].items()
+            if best.settings.get(k) != v
+        ]  # fmt: skip
+        parts.append(
+            f"{name} ({', '.join(moved) or 'the same settings'}: "
+            f"{100 * float(other['cost_low']):+.1f} to {100 * float(other['cost_high']):+.1f} %)"
+        )
+    spans = as_good_spans(result)
+    n = best.as_good[0].get("realisations")
+    lines = [
+        f"Setups the course cannot tell from #1 by {100 * FLAT:.1f} % of its score (the high "
+        f"end of the 95 % interval of their cost below that, on {n} fresh realisations; "
+        "several settings moved together): " + "; ".join(parts) + "."
+    ]
+    if spans:
+        lines.append(
+            "So these settings are not pinned down by the course, when moved together as one of "
+            "those setups moves them: " + ", ".join(
+                f"{result.label(k)} {lo} to {hi}" for k, (_, _, lo, hi) in spans.items()
+            ) + "."
+        )
+    return lines

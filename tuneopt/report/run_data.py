@@ -100,6 +100,9 @@ class SetupEntry:
     # a setup the selection realisations moved away from a search's pick: from_trial, the
     # moves made (setting, from/to as shown, relative score change and its interval), tried
     refined: Mapping[str, Any] = field(default_factory=lambda: MappingProxyType({}))
+    # #1 only: the finalists within FLAT of it on the validation set beyond doubt: rank, trial,
+    # baseline, indices, settings (as shown), cost with cost_low/cost_high, realisations
+    as_good: tuple[Mapping[str, Any], ...] = ()
 
     @property
     def label(self) -> str:
@@ -249,6 +252,10 @@ def _entry(data: Any, where: str) -> SetupEntry:
             {k: _Fields(v, f"{where}.leeway.{k}").view() for k, v in room.items()}
         ),
         refined=f.mapping("refined", {}),
+        as_good=tuple(
+            _Fields(v, f"{where}.as_good[{i}]").view()
+            for i, v in enumerate(f.get("as_good", (list, tuple), ()))
+        ),
     )
 
 

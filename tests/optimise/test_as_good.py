@@ -1,0 +1,80 @@
+"""The setups as good as #1: finalists whose cost against it on the validation set stays under
+FLAT of its score at the high end of the paired 95 % t interval. The interval is checked
+against scipy's t distribution [D; scipy docs, scipy.stats.t.interval]."""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy import stats
+
+from tests.report.results import entry, run_result
+from tuneopt.optimise.ranking import RankedSetup, as_good
+from tuneopt.optimise.robustness import FLAT
+from tuneopt.optimise.validation import compare_scores
+from tuneopt.report.fresh_terrain import as_good_lines, as_good_spans
+
+
+def _setup(rank: int, indices: dict[str, int], validation: dict[str, object]) -> RankedSetup:
+    return RankedSetup(
+        rank=rank, trial=100 + rank, indices=indices,
+        settings={k: f"{v} clicks" for k, v in indices.items()}, settings_si={}, score=8.0,
+        terms={}, metrics={}, sag={}, change_vs_baseline={}, validation=validation,
+    )  # fmt: skip
+
+
+def _cost_high(theirs: np.ndarray, winner: np.ndarray) -> float:
+    """The high end of the 95 % t interval of the mean paired cost, as a share of the
+    winner's mean score (scipy, independent of the project's own interval)."""
+    d = theirs - winner
+    low, high = stats.t.interval(0.95, d.size - 1, loc=d.mean(), scale=stats.sem(d))
+    return float(high) / float(winner.mean())
+
+
+def test_only_finalists_within_flat_beyond_doubt_are_as_good() -> None:
+    rng = np.random.default_rng(4)
+    n = 40
+    course = rng.normal(8.0, 0.8, size=n)  # realisation-to-realisation spread, shared
+    winner = course + rng.normal(0.0, 0.01, size=n)
+    cases = {
+        "alike": course + rng.normal(0.0, 0.01, size=n),  # same mean, tight: as good
+        "worse": course + 0.12 + rng.normal(0.0, 0.01, size=n),  # 1.5 % dearer: not
+        "unsure": course + rng.normal(0.0, 0.4, size=n),  # same mean, noisy: not shown
+    }
+    entries = [_setup(1, {"fork.lsc": 5}, {})]
+    for rank, (_, s) in enumerate(cases.items(), start=2):
+        vs = compare_scores(s, winner).as_dict()
+        entries.append(_setup(rank, {"fork.lsc": 5 + rank}, {"vs_winner": vs}))
+    got = as_good(entries)
+    expected = [k for k, s in cases.items() if _cost_high(s, winner) < FLAT]
+    assert expected == ["alike"]
+    assert [g["rank"] for g in got] == [2]
+    assert abs(got[0]["cost_high"] - _cost_high(cases["alike"], winner)) < 1e-12
+    assert got[0]["cost_low"] <= got[0]["cost"] <= got[0]["cost_high"]
+    assert got[0]["realisations"] == n and got[0]["indices"] == {"fork.lsc": 7}
+
+
+def test_a_setting_moved_by_an_as_good_setup_is_said_with_its_span() -> None:
+    """The report names each as-good setup by the settings where it differs from #1 and its
+    cost's interval, then the span of each such setting over #1 and them."""
+    other = {"rank": 3, "trial": 40, "baseline": False,
+             "indices": {"fork.hsc": 7, "fork.lsr": 20, "shock.lsc": 3},
+             "settings": {"fork.hsc": "7", "fork.lsr": "20", "shock.lsc": "3"},
+             "cost": 0.001, "cost_low": -0.002, "cost_high": 0.004, "realisations": 40}
+    far = {**other, "rank": 7, "trial": 41, "indices": {"fork.hsc": 1, "fork.lsr": 14,
+                                                          "shock.lsc": 3},
+           "settings": {"fork.hsc": "1", "fork.lsr": "14", "shock.lsc": "3"}}  # fmt: skip
+    best = entry(1, indices={"fork.hsc": 3, "fork.lsr": 14, "shock.lsc": 3},
+                 settings={"fork.hsc": "3", "fork.lsr": "14", "shock.lsc": "3"},
+                 as_good=[other, far])  # fmt: skip
+    labels = {"fork.hsc": "fork HSC", "fork.lsr": "fork LSR", "shock.lsc": "shock LSC"}
+    result = run_result([best, entry(2), entry(3)], None, labels=labels)
+    assert as_good_spans(result) == {"fork.hsc": (1, 7, "1", "7"), "fork.lsr": (14, 20, "14", "20")}
+    first, second = as_good_lines(result)
+    assert "on 40 fresh realisations" in first
+    assert "#3 (fork HSC 7, fork LSR 20: -0.2 to +0.4 %)" in first
+    assert "finalist 7 (not listed) (fork HSC 1: -0.2 to +0.4 %)" in first
+    assert "fork HSC 1 to 7, fork LSR 14 to 20." in second and "shock LSC" not in second
+
+
+def test_no_as_good_setup_says_nothing() -> None:
+    assert as_good_lines(run_result([entry(1)], None)) == []
