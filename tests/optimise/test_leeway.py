@@ -138,3 +138,88 @@ def test_a_ranked_winner_carries_its_leeway(small_scenario: Scenario) -> None:
     assert outside, "some setting should matter on the small course"
     for o in ev.evaluate([space.setup(p) for p in outside]):
         assert (float(o.score) - own) / own >= FLAT  # type: ignore[arg-type]
+
+
+class _Noisy:
+    """An evaluator over ``n`` realisations: realisation i of point p scores course_i + f(p) +
+    noise(p, i), noise drawn from a generator seeded by the point and i (so a point scores the
+    same on a realisation however it is asked), its sd ``sd(p)``; counts realisations ridden
+    by point."""
+
+    def __init__(self, f: Score, sd: Callable[[dict[str, int]], float], n: int = 40,
+                 start: int = 0, rides: dict[tuple[int, ...], int] | None = None) -> None:
+        self.f, self.sd, self.n, self.start = f, sd, n, start
+        self.course = np.random.default_rng(0).normal(10.0, 1.0, size=200)
+        self.rides = {} if rides is None else rides
+
+    @property
+    def realisations(self) -> int:
+        return self.n
+
+    def first(self, n: int) -> _Noisy:
+        return self.part(0, n)
+
+    def part(self, a: int, b: int) -> _Noisy:
+        return _Noisy(self.f, self.sd, min(b, self.n) - a, self.start + a, self.rides)
+
+    def score(self, p: dict[str, int], i: int) -> float:
+        rng = np.random.default_rng([*(v for _, v in sorted(p.items())), i])
+        return float(self.course[i] + self.f(p) + rng.normal(0.0, self.sd(p)))  # type: ignore[operator]
+
+    def evaluate(self, setups: Sequence[dict[str, int]]) -> list[Outcome]:
+        out = []
+        for p in setups:
+            key = tuple(sorted(p.items()))
+            self.rides[key] = self.rides.get(key, 0) + self.n  # type: ignore[index]
+            s = [self.score(p, self.start + i) for i in range(self.n)]
+            out.append(Outcome(float(np.mean(s)), scores=tuple(s)))
+        return out
+
+
+def test_steps_beyond_doubt_settle_after_one_look_and_the_rest_ride_every_realisation() -> None:
+    """On 40 realisations ridden 8 at a time: steps whose rise is far under or over FLAT with
+    little noise are settled after the first look; a step with a rise just under FLAT and
+    much noise rides all 40 and is judged by its mean. Every band equals the one the mean rise
+    over all 40 realisations gives, step by step from the centre (the brute-force reference;
+    the interval that settles a step is scipy's t interval [D; scipy.stats.t])."""
+    from tuneopt.optimise.robustness import LOOK
+
+    names = ("steep", "flat", "noisy")
+    space = _PointSpace(
+        tuple(Parameter(n, tuple(float(v) for v in range(21)), "clicks") for n in names),
+        base=None,  # type: ignore[arg-type]
+    )
+    centre = {"steep": 10, "flat": 10, "noisy": 10}
+
+    def f(p: dict[str, int]) -> float:
+        noisy = 0.045 if p["noisy"] == 11 else 0.2 * abs(p["noisy"] - 10)
+        return 10.0 + 0.3 * abs(p["steep"] - 10) + 0.0 * p["flat"] + noisy
+
+    def sd(p: dict[str, int]) -> float:
+        return 0.15 if p["noisy"] == 11 else 0.001
+
+    ev = _Noisy(f, sd)
+    room = leeway(centre, space, cast(Evaluator, ev))
+    own = np.array([ev.score(centre, i) for i in range(40)])
+
+    def mean_rise(p: dict[str, int]) -> float:
+        return float(np.mean([ev.score(p, i) for i in range(40)] - own) / np.mean(own))
+
+    for name in names:
+        for sign, end in ((-1, "low"), (1, "high")):
+            at = centre[name]
+            for _ in range(LEEWAY_STEPS):
+                nxt = at + sign
+                if not 0 <= nxt <= 20 or mean_rise({**centre, name: nxt}) >= FLAT:
+                    break
+                at = nxt
+            assert room[name][end] == at, (name, end)
+    assert (room["steep"]["low"], room["steep"]["high"]) == (10, 10)
+    assert room["flat"]["low"] == 10 - LEEWAY_STEPS and room["flat"]["high"] == 10 + LEEWAY_STEPS
+
+    def rode(name: str, at: int) -> int:
+        return ev.rides[tuple(sorted({**centre, name: at}.items()))]
+
+    assert rode("steep", 11) == rode("flat", 11) == rode("noisy", 9) == LOOK
+    assert rode("noisy", 11) == 40  # in doubt at every look: judged by its mean over all 40
+    assert room["noisy"]["high"] == (11 if mean_rise({**centre, "noisy": 11}) < FLAT else 10)

@@ -13,6 +13,7 @@ from scipy import stats
 from tuneopt.model import Scenario
 from tuneopt.optimise.edges import edge_flags
 from tuneopt.optimise.evaluate import Evaluator, RacePolicy, paired_interval, realisation_seeds
+from tuneopt.optimise.polish import MIN_BUDGET
 from tuneopt.optimise.robustness import FLAT
 from tuneopt.optimise.runner import leader_scores
 from tuneopt.optimise.sag_windows import sag_windows
@@ -200,7 +201,9 @@ def test_ranking_comes_from_the_fresh_realisations(
     from tuneopt.optimise import StudyPlan
     from tuneopt.optimise.local import run_local, start_run
 
-    plan = StudyPlan("study", trials=12, batch_size=6, seed=3)
+    # a study of MIN_BUDGET trials: its leeway walks on the validation set (a quick look's on
+    # the search's first realisations, below)
+    plan = StudyPlan("study", trials=MIN_BUDGET, batch_size=8, seed=3)
     run = start_run(small_scenario, tmp_path / "run", plan, realisations=2, validation=4)
     ranking = run_local(run, top=3)
     # the order comes from the selection set, every figure from the validation set
@@ -248,6 +251,32 @@ def test_ranking_comes_from_the_fresh_realisations(
         high = stats.t.interval(0.95, d.size - 1, loc=d.mean(), scale=stats.sem(d))[1]
         assert high / np.mean(w.scores) == pytest.approx(other["cost_high"], rel=1e-9)
         assert other["cost_high"] < FLAT
+
+
+def test_a_quick_look_walks_its_leeway_on_the_search_realisations(
+    small_scenario: Scenario, tmp_path: Path
+) -> None:
+    """A study too short for line searches walks #1's leeway on the search's own first
+    realisations (its robustness steps'): a step just past a band the score ended costs FLAT
+    or more there [D: the walk's rule]."""
+    from tuneopt.optimise import StudyPlan
+    from tuneopt.optimise.local import run_local, start_run
+
+    plan = StudyPlan("study", trials=12, batch_size=6, seed=3)
+    run = start_run(small_scenario, tmp_path / "run", plan, realisations=2, validation=4)
+    best = run_local(run, top=3).ranked[0]
+    space = build_space(small_scenario)
+    search = Evaluator(small_scenario, seed=3, realisations=2)
+    (own,) = search.evaluate([space.setup(best.indices)])
+    past = []
+    for name, r in best.leeway.items():
+        assert r["realisations"] == 2
+        for side, end, sign in (("down", "low", -1), ("up", "high", 1)):
+            if r[side] == "score":
+                past.append({**best.indices, name: space[name].stepped(r[end], sign)})
+    assert past, "some setting should matter on the small course"
+    for o in search.evaluate([space.setup(p) for p in past]):
+        assert (float(o.score) - float(own.score)) / abs(float(own.score)) >= FLAT  # type: ignore[arg-type]
 
 
 def test_realisations_built_on_the_way_score_as_kept_ones(small_scenario: Scenario) -> None:

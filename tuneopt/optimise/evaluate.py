@@ -185,10 +185,17 @@ class Evaluator:
 
     def first(self, n: int) -> Evaluator:
         """An evaluator over this one's first ``n`` realisations (the courses are shared)."""
+        return self.part(0, n)
+
+    def part(self, start: int, stop: int) -> Evaluator:
+        """An evaluator over this one's realisations ``start`` to ``stop`` (not included), in
+        order (the courses are shared; built on the way when this one builds them so)."""
+        if not 0 <= start < min(stop, self.realisations):
+            raise ValueError(f"no realisations from {start} to {stop} of {self.realisations}")
         other = object.__new__(Evaluator)
         other.scenario, other.dt = self.scenario, self.dt
-        other.seeds = self.seeds[:n]
-        other._kept = None if self._kept is None else self._kept[:n]
+        other.seeds = self.seeds[start:stop]
+        other._kept = None if self._kept is None else self._kept[start:stop]
         other.seed, other.windows = self.seed, self.windows
         return other
 

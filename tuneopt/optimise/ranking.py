@@ -461,14 +461,17 @@ def rank_study(
     if evaluator is not None and entries:
         ridden: Ridden = {}  # the robustness steps' rides, on the search's first realisations
         entries = _with_robustness(entries, space, evaluator, ridden)
-        if validate:
+        if validate and len(complete) >= MIN_BUDGET:
             # walked on the validation set, which chose nothing: on the selection set #1 was
             # picked as the best, so it scores there with its luck and every step away from it
             # looks dearer than it is; 40 paired realisations also tell a rise of FLAT from the
             # noise where the robustness steps' 4 could not
             room = leeway(entries[0].indices, space,
                           validation_evaluator(evaluator, validation))  # fmt: skip
-        else:  # its first steps are the robustness steps of #1
+        else:
+            # its first steps are the robustness steps of #1; a quick look (too short for line
+            # searches, as for the moves) walks there too: on the validation set the walk would
+            # cost several times what its search did
             room = leeway(entries[0].indices, space,
                           evaluator.first(ROBUSTNESS_REALISATIONS), ridden)  # fmt: skip
         entries[0] = _replace(entries[0], leeway=room)
