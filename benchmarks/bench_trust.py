@@ -15,7 +15,7 @@ and 0.05 bar grids), and which settings spread beyond two steps with some seed's
 outside the leeway another study's report gives (the band where that study's winner scores
 within 0.5 % as the setting moves alone, so that the report shows by how much the setting
 barely matters there) or outside the span the setups a study found as good as its #1 give
-(several settings moved together, each within 0.5 % of #1 at the high end of its interval);
+(several settings moved together, each within 0.5 % of #1 on average over its validation set);
 an air spring's pressure and spacers count as agreeing when the winners' sags lie within 2 %
 of travel of each other and every study found its spacer traded for pressure at that sag flat.
 Then each pair of seeds' winners against each other on the same fresh realisations: whether
@@ -130,7 +130,7 @@ def _one_study(path: Path, seed: int, trials: int, fresh: int) -> dict[str, Any]
         # ends whose spacer traded for pressure at the same sag barely moves the score
         flat_trades = flat_spring_trades(read)
         leeway = read.ranked[0].leeway if read.ranked else {}
-        # where #1 and the finalists within FLAT of it beyond doubt differ: (lowest, highest)
+        # where #1 and the finalists within FLAT of it on average differ: (lowest, highest)
         joint = {k: (lo, hi) for k, (lo, hi, _, _) in as_good_spans(read).items()}
         as_good = len(read.ranked[0].as_good) if read.ranked else 0
     cpu_study, wall_study = _cpu_seconds() - cpu0, time.time() - wall0

@@ -90,7 +90,7 @@ class RankedSetup:
     selection realisations moved away from a search's pick (``refine.refine``), the pick's
     ``from_trial``, the ``moves`` made, the points ``tried`` and the selection
     ``realisations``; empty otherwise. ``as_good`` (#1 only, validated studies): the other
-    finalists that score within ``robustness.FLAT`` of it on the validation set beyond doubt
+    finalists whose mean cost against it on the validation set is under ``robustness.FLAT``
     (``as_good``): several settings moved together at a cost too small to matter."""
 
     rank: int
@@ -335,17 +335,16 @@ def _validated(
 
 
 def as_good(entries: Sequence[RankedSetup]) -> list[dict[str, Any]]:
-    """The validated finalists after #1 whose cost against #1 on the validation set stays under
-    ``FLAT`` of #1's score at the high end of its paired 95 % interval (so the course cannot
-    tell them from #1 by as much as that, and 40 realisations say so, not a lack of them):
-    each one's ``rank``, ``trial``, ``baseline``, ``indices``, ``settings`` as shown, and its
-    ``cost`` with ``cost_low``/``cost_high`` (shares of #1's score; below 0: it rode better
-    there) over ``realisations``. One setting at a time, #1's leeway says how far each may
-    move; these say how far several may move together."""
+    """The validated finalists after #1 whose mean cost against #1 on the validation set is
+    under ``FLAT`` of #1's score (the leeway's rule, for several settings moved together where
+    the leeway moves one): each one's ``rank``, ``trial``, ``baseline``, ``indices``,
+    ``settings`` as shown, and its ``cost`` with its paired 95 % interval ``cost_low`` and
+    ``cost_high`` (shares of #1's score; below 0: it rode better there) over
+    ``realisations``, for the report to show how sure that is."""
     out: list[dict[str, Any]] = []
     for e in entries[1:]:
         vs = e.validation.get("vs_winner")
-        if not vs or -float(vs["gain_low"]) >= FLAT:
+        if not vs or -float(vs["gain"]) >= FLAT:
             continue
         out.append({
             "rank": e.rank,

@@ -243,9 +243,9 @@ def as_good_spans(result: RunResult) -> dict[str, tuple[int, int, str, str]]:
 
 
 def as_good_lines(result: RunResult) -> list[str]:
-    """Two sentences when other finalists score within FLAT of #1 on the validation set beyond
-    doubt: each with the settings where it differs from #1 and its cost's interval, then how
-    far the settings range over them (empty otherwise)."""
+    """Two sentences when other finalists ride within FLAT of #1 on average on the validation
+    set: each with the settings where it differs from #1 and its cost's interval, then how far
+    the settings range over them (empty otherwise)."""
     if not result.ranked or not result.ranked[0].as_good:
         return []
     best = result.ranked[0]
@@ -263,14 +263,15 @@ def as_good_lines(result: RunResult) -> list[str]:
         ]  # fmt: skip
         parts.append(
             f"{name} ({', '.join(moved) or 'the same settings'}: "
+            f"{100 * float(other['cost']):+.1f} %, interval "
             f"{100 * float(other['cost_low']):+.1f} to {100 * float(other['cost_high']):+.1f} %)"
         )
     spans = as_good_spans(result)
     n = best.as_good[0].get("realisations")
     lines = [
-        f"Setups the course cannot tell from #1 by {100 * FLAT:.1f} % of its score (the high "
-        f"end of the 95 % interval of their cost below that, on {n} fresh realisations; "
-        "several settings moved together): " + "; ".join(parts) + "."
+        f"Setups that ride within {100 * FLAT:.1f} % of #1 on average over the {n} fresh "
+        "realisations, with several settings moved together (each with the settings where it "
+        "differs and the 95 % interval of its cost): " + "; ".join(parts) + "."
     ]
     if spans:
         lines.append(
