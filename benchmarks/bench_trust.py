@@ -215,6 +215,11 @@ def _holds(band: Any, idx: list[int]) -> bool:
     return band is not None and band[0] <= min(idx) and max(idx) <= band[1]
 
 
+def _winner_scores(row: dict[str, Any]) -> np.ndarray:
+    """A study's winner's score on each fresh realisation (NaN where it could not ride)."""
+    return np.array([np.nan if r[0] is None else r[0] for r in row["fresh_scores"]])
+
+
 def _pairs(mine: list[dict[str, Any]]) -> list[str]:
     """Each pair of seeds' winners on the fresh realisations (the same course seeds for every
     study of a scenario, so paired): how much better the first rides, its 95 % interval, and
@@ -222,8 +227,7 @@ def _pairs(mine: list[dict[str, Any]]) -> list[str]:
     out = []
     for i, a in enumerate(mine):
         for b in mine[i + 1:]:
-            sa = np.array([row[0] if row[0] is not None else np.nan for row in a["fresh_scores"]])
-            sb = np.array([row[0] if row[0] is not None else np.nan for row in b["fresh_scores"]])
+            sa, sb = _winner_scores(a), _winner_scores(b)
             ok = np.isfinite(sa) & np.isfinite(sb)
             if ok.sum() < 2:
                 continue

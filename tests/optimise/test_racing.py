@@ -5,6 +5,7 @@ Statistical checks are against scipy's t distribution and paired t-test [D; scip
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pytest
@@ -17,7 +18,7 @@ from tuneopt.optimise.polish import MIN_BUDGET
 from tuneopt.optimise.robustness import FLAT
 from tuneopt.optimise.runner import leader_scores
 from tuneopt.optimise.sag_windows import sag_windows
-from tuneopt.optimise.space import build_space
+from tuneopt.optimise.space import SearchSpace, build_space
 from tuneopt.optimise.validation import compare_scores, selection_seeds, validation_seeds
 
 
@@ -193,6 +194,18 @@ def test_edges_are_flagged(small_scenario: Scenario) -> None:
     assert "fork.lsc" not in flags
 
 
+def _past_the_band(
+    room: Any, indices: dict[str, int], space: SearchSpace
+) -> list[dict[str, int]]:
+    """The points one step past each end of a leeway band that the score ended."""
+    past = []
+    for name, r in room.items():
+        for side, end, sign in (("down", "low", -1), ("up", "high", 1)):
+            if r[side] == "score":
+                past.append({**indices, name: space[name].stepped(r[end], sign)})
+    return past
+
+
 def test_ranking_comes_from_the_fresh_realisations(
     small_scenario: Scenario, tmp_path: Path
 ) -> None:
@@ -234,12 +247,8 @@ def test_ranking_comes_from_the_fresh_realisations(
     # the score ended costs FLAT or more of #1's score there
     own = float(w.score)  # type: ignore[arg-type]
     assert set(best.leeway) == set(space.names)
-    past = []
-    for name, r in best.leeway.items():
-        assert r["realisations"] == 4
-        for side, end, sign in (("down", "low", -1), ("up", "high", 1)):
-            if r[side] == "score":
-                past.append({**best.indices, name: space[name].stepped(r[end], sign)})
+    assert {r["realisations"] for r in best.leeway.values()} == {4}
+    past = _past_the_band(best.leeway, best.indices, space)
     assert past, "some setting should matter on the small course"
     for o in fresh.evaluate([space.setup(p) for p in past]):
         assert (float(o.score) - own) / abs(own) >= FLAT  # type: ignore[arg-type]
@@ -268,12 +277,8 @@ def test_a_quick_look_walks_its_leeway_on_the_search_realisations(
     space = build_space(small_scenario)
     search = Evaluator(small_scenario, seed=3, realisations=2)
     (own,) = search.evaluate([space.setup(best.indices)])
-    past = []
-    for name, r in best.leeway.items():
-        assert r["realisations"] == 2
-        for side, end, sign in (("down", "low", -1), ("up", "high", 1)):
-            if r[side] == "score":
-                past.append({**best.indices, name: space[name].stepped(r[end], sign)})
+    assert {r["realisations"] for r in best.leeway.values()} == {2}
+    past = _past_the_band(best.leeway, best.indices, space)
     assert past, "some setting should matter on the small course"
     for o in search.evaluate([space.setup(p) for p in past]):
         assert (float(o.score) - float(own.score)) / abs(float(own.score)) >= FLAT  # type: ignore[arg-type]

@@ -90,8 +90,8 @@ class RankedSetup:
     selection realisations moved away from a search's pick (``refine.refine``), the pick's
     ``from_trial``, the ``moves`` made, the points ``tried`` and the selection
     ``realisations``; empty otherwise. ``as_good`` (#1 only, validated studies): the other
-    finalists whose mean cost against it on the validation set is under ``robustness.FLAT``
-    (``as_good``): several settings moved together at a cost too small to matter."""
+    finalists whose mean cost against it on the validation set is under ``robustness.FLAT``:
+    several settings moved together at a cost too small to matter."""
 
     rank: int
     trial: int
@@ -434,6 +434,9 @@ def rank_study(
     )
     base = next((t for t in complete if t.user_attrs.get("baseline")), None)
     validate = evaluator is not None and validation >= 2
+    # a study too short for line searches (a quick look) is not moved, and walks its leeway on
+    # the search's realisations: either on the fresh sets would cost more than its search did
+    quick = len(complete) < MIN_BUDGET
     best = _distinct_best(feasible, max(top, FINALISTS) if validate else top)
     if validate and base is not None and "failure" not in base.user_attrs:
         # the current setup always competes on the fresh realisations: when it rides best
@@ -448,11 +451,9 @@ def rank_study(
     )
     if validate and entries:
         assert evaluator is not None
-        # a study too short for line searches (a quick look) is not moved either: the moves
-        # would cost more than its search did
         entries, baseline_entry = _validated(
             entries, baseline_entry, space, evaluator, validation,
-            move=len(complete) >= MIN_BUDGET,
+            move=not quick,
         )
         if entries:  # every validated finalist, before the list is cut to ``top``
             entries[0] = _replace(entries[0], as_good=as_good(entries))
@@ -460,17 +461,14 @@ def rank_study(
     if evaluator is not None and entries:
         ridden: Ridden = {}  # the robustness steps' rides, on the search's first realisations
         entries = _with_robustness(entries, space, evaluator, ridden)
-        if validate and len(complete) >= MIN_BUDGET:
+        if validate and not quick:
             # walked on the validation set, which chose nothing: on the selection set #1 was
             # picked as the best, so it scores there with its luck and every step away from it
             # looks dearer than it is; 40 paired realisations also tell a rise of FLAT from the
             # noise where the robustness steps' 4 could not
             room = leeway(entries[0].indices, space,
                           validation_evaluator(evaluator, validation))  # fmt: skip
-        else:
-            # its first steps are the robustness steps of #1; a quick look (too short for line
-            # searches, as for the moves) walks there too: on the validation set the walk would
-            # cost several times what its search did
+        else:  # its first steps are the robustness steps of #1
             room = leeway(entries[0].indices, space,
                           evaluator.first(ROBUSTNESS_REALISATIONS), ridden)  # fmt: skip
         entries[0] = _replace(entries[0], leeway=room)

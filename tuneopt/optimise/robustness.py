@@ -133,9 +133,7 @@ def robustness_fields(
                 continue
             if not o.ok:
                 # said in the step itself; the numbers stay those of the steps that ride
-                entry[side] = (
-                    "outside the sag window" if o.failure.startswith("infeasible") else "failed"
-                )
+                entry[side] = _failure(o)
                 continue
             delta = float(o.score) - float(own.score)  # type: ignore[arg-type]
             entry[side] = delta
@@ -155,10 +153,7 @@ def _trade(
     out: dict[str, Any] = {"spacers": shown[f"{end}.spacers"],
                            "pressure": shown[f"{end}.pressure"]}  # fmt: skip
     if o is None or not o.ok:
-        out["failed"] = (
-            "outside the sag window"
-            if o is not None and o.failure.startswith("infeasible") else "failed"
-        )  # fmt: skip
+        out["failed"] = "failed" if o is None else _failure(o)
     else:
         out["score"] = float(o.score) - float(own.score)  # type: ignore[arg-type]
     return out
@@ -197,6 +192,7 @@ def _looks(evaluator: Evaluator, ridden: Ridden | None) -> list[tuple[Evaluator,
 
 
 def _failure(o: Outcome) -> str:
+    """Why a step that did not ride stops there, as the report says it."""
     return "outside the sag window" if o.failure.startswith("infeasible") else "failed"
 
 

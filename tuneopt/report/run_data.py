@@ -100,7 +100,7 @@ class SetupEntry:
     # a setup the selection realisations moved away from a search's pick: from_trial, the
     # moves made (setting, from/to as shown, relative score change and its interval), tried
     refined: Mapping[str, Any] = field(default_factory=lambda: MappingProxyType({}))
-    # #1 only: the finalists within FLAT of it on the validation set beyond doubt: rank, trial,
+    # #1 only: the finalists within FLAT of it on average on the validation set: rank, trial,
     # baseline, indices, settings (as shown), cost with cost_low/cost_high, realisations
     as_good: tuple[Mapping[str, Any], ...] = ()
 
