@@ -7,6 +7,9 @@ the edge of what was searched, and the static check's warnings about the recomme
 
 from __future__ import annotations
 
+from collections.abc import Mapping
+from typing import Any
+
 from tuneopt.optimise import FLAT, LEEWAY_STEPS
 from tuneopt.report.run_data import RunResult
 
@@ -162,7 +165,8 @@ def _spring_trade_lines(result: RunResult) -> list[str]:
             continue
         verdict = (
             "barely matters: springs along this line ride alike"
-            if end in flat else "changes the ride"
+            if end in flat
+            else "changes the ride"
         )
         lines.append(
             f"The {end}'s volume spacers traded for pressure at the same sag {verdict} "
@@ -171,22 +175,28 @@ def _spring_trade_lines(result: RunResult) -> list[str]:
     return lines
 
 
-
 def refined_lines(result: RunResult) -> list[str]:
     """One sentence when #1 is a search's pick moved on the selection realisations: from which
     trial, each move with its score change and interval (empty otherwise)."""
     if not result.ranked or not result.ranked[0].refined:
         return []
     note = result.ranked[0].refined
+
+    def moved(m: Mapping[str, Any]) -> str:
+        return f"{result.label(m['setting'])} {m['from_shown']} to {m['to_shown']}"
+
     parts = [
-        f"{result.label(m['setting'])} {m['from_shown']} to {m['to_shown']} "
-        f"({100 * float(m['relative']):+.1f} %, interval {100 * float(m['low']):+.1f} to "
+        moved(m)
+        + (f" with {moved(m['with'])}" if m.get("with") else "")
+        + f" ({100 * float(m['relative']):+.1f} %, interval {100 * float(m['low']):+.1f} to "
         f"{100 * float(m['high']):+.1f} %)"
         for m in note.get("moves", ())
     ]
+    paired = any(m.get("with") for m in note.get("moves", ()))
     return [
         f"Setup #1 is the search's trial {note.get('from_trial')} with "
-        f"{'a setting' if len(parts) == 1 else 'settings'} moved one at a time on "
+        f"{'a setting' if len(parts) == 1 and not paired else 'settings'} moved one at a time"
+        f"{' (or a spring with another setting of its end)' if paired else ''} on "
         f"{note.get('realisations')} realisations that the search never rode and that give no "
         f"figure here ({note.get('tried')} moves tried; a move kept only when it improved the "
         "score beyond doubt): " + "; then ".join(parts) + "."
@@ -214,13 +224,13 @@ def leeway_lines(result: RunResult) -> list[str]:
     rode = {room.get("realisations") for room in best.leeway.values()}
     on = (
         f"on {rode.pop()} realisations paired with #1"
-        if len(rode) == 1 and None not in rode else "on the search's first realisations"
+        if len(rode) == 1 and None not in rode
+        else "on the search's first realisations"
     )  # results written before the count was kept rode the search's first 4
     return [
         f"How far each setting of #1 may move on its own, every other held, before the score "
         f"rises by {100 * FLAT:.1f} % (walked up to {LEEWAY_STEPS} steps either way; the "
-        f"score's lowest and highest change inside, {on}): "
-        + "; ".join(parts) + "."
+        f"score's lowest and highest change inside, {on}): " + "; ".join(parts) + "."
     ]
 
 
@@ -276,8 +286,8 @@ def as_good_lines(result: RunResult) -> list[str]:
     if spans:
         lines.append(
             "So these settings are not pinned down by the course, when moved together as one of "
-            "those setups moves them: " + ", ".join(
-                f"{result.label(k)} {lo} to {hi}" for k, (_, _, lo, hi) in spans.items()
-            ) + "."
+            "those setups moves them: "
+            + ", ".join(f"{result.label(k)} {lo} to {hi}" for k, (_, _, lo, hi) in spans.items())
+            + "."
         )
     return lines
