@@ -153,8 +153,8 @@ def refine(
 ) -> Refined:
     """Move ``point``, whose per-realisation ``scores`` on ``selection``'s realisations are
     given (in its order, every one of them), while a single-setting move, or else a spring's
-    move with another setting of its end, gains beyond doubt (see the module's docstring). Points that fail, leave a sag window or miss a realisation
-    are never moved to."""
+    move with another setting of its end, gains beyond doubt (see the module's docstring).
+    Points that fail, leave a sag window or miss a realisation are never moved to."""
     own = np.asarray(scores, dtype=float)
     if own.size != selection.realisations or not np.all(np.isfinite(own)):
         return Refined(dict(point), tuple(float(v) for v in own))
