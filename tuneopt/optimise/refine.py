@@ -76,9 +76,10 @@ def _best(
     space: SearchSpace,
     selection: Evaluator,
     own: np.ndarray,
-) -> tuple[float, tuple[str, ...], dict[str, int], np.ndarray, float, float] | None:
+) -> tuple[tuple[str, ...], dict[str, int], np.ndarray, dict[str, Any]] | None:
     """The candidate whose gain over the pick (scores ``own``) is largest, at least FLAT of
-    the score and beyond doubt; None when none is."""
+    the score and beyond doubt: its settings moved, point, scores and the move's figures (the
+    mean change and its interval as shares of the pick's score); None when none is."""
     if not cands:
         return None
     outs = selection.evaluate(
@@ -93,7 +94,12 @@ def _best(
         mean, low, high = paired_interval(theirs - own, CONFIDENCE)
         if high < 0.0 and mean / scale <= -FLAT and (best is None or mean < best[0]):
             best = (mean, names, q, theirs, low, high)
-    return best
+    if best is None:
+        return None
+    mean, names, q, theirs, low, high = best
+    figures = {"relative": mean / scale, "low": low / scale, "high": high / scale,
+               "realisations": int(own.size)}  # fmt: skip
+    return names, q, theirs, figures
 
 
 def _end(name: str) -> str:
@@ -172,13 +178,10 @@ def refine(
                 break
         if best is None:
             break
-        mean, names, q, theirs, low, high = best
-        scale = abs(float(np.mean(own))) or 1.0
+        names, q, theirs, figures = best
         move = _move(space, names[0], here, q)
         if len(names) > 1:
             move["with"] = _move(space, names[1], here, q)
-        move.update(relative=mean / scale, low=low / scale, high=high / scale,
-                    realisations=int(own.size))  # fmt: skip
-        moves.append(move)
+        moves.append({**move, **figures})
         here, own = q, theirs
     return Refined(here, tuple(float(v) for v in own), moves, tried)
