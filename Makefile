@@ -24,9 +24,12 @@ lint: $(STAMP)
 typecheck: $(STAMP)
 	$(BIN)/mypy tuneopt
 
-# two test processes (a file stays on one of them: its fixtures and services are its own)
-TEST_WORKERS ?= 2
+# four test processes on two cores: the service tests spend much of their time waiting on the
+# processes they start (a file stays on one test process: its fixtures and services are its
+# own). The simulator's kernels are compiled once first, not by every test process at once.
+TEST_WORKERS ?= 4
 unit: $(STAMP)
+	$(BIN)/python tools/compile_kernels.py
 	$(BIN)/python -m pytest -q -n $(TEST_WORKERS) --dist loadfile
 
 # redis-server and chromium: installed when missing (Debian, as root), else named
