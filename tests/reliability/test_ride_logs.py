@@ -175,9 +175,14 @@ _SCENARIO_PATH = Path(__file__).resolve().parents[2] / "scenarios" / "trail_air.
 
 @pytest.fixture
 def _scenario_once(monkeypatch: pytest.MonkeyPatch) -> None:
-    """The command reads the same scenario every time: read it once (the log is under test)."""
+    """The command reads the same scenario every time: read it once (the log is under test).
+    Only the ridelog command, which looks the function up when it runs, sees the stand-in: the
+    command modules are imported first, so that none binds it at its own import (check.py
+    does, and kept it for the rest of the test process when first imported here)."""
     import tuneopt.model
+    from tuneopt.cli import build_parser
 
+    build_parser()  # imports every command module with the real function
     loaded = trail()
 
     def load(path: Any) -> Any:
