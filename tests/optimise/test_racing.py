@@ -15,7 +15,7 @@ from tuneopt.model import Scenario
 from tuneopt.optimise.edges import edge_flags
 from tuneopt.optimise.evaluate import Evaluator, RacePolicy, paired_interval, realisation_seeds
 from tuneopt.optimise.polish import MIN_BUDGET
-from tuneopt.optimise.robustness import FLAT
+from tuneopt.optimise.robustness import FLAT, LEEWAY_DEPTH
 from tuneopt.optimise.runner import leader_scores
 from tuneopt.optimise.sag_windows import sag_windows
 from tuneopt.optimise.space import SearchSpace, build_space
@@ -243,14 +243,16 @@ def test_ranking_comes_from_the_fresh_realisations(
     for e in ranking.ranked:
         assert set(e.steps) == set(space.names)  # every setting has both steps or a reason
         assert all(set(v) == {"down", "up"} for v in e.steps.values())
-    # #1's leeway was walked on the validation set (it chose nothing): a step just past a band
-    # the score ended costs FLAT or more of #1's score there
-    own = float(w.score)  # type: ignore[arg-type]
+    # #1's leeway was walked on the validation stream (it chose nothing), LEEWAY_DEPTH times as
+    # deep as the validation set: a step just past a band the score ended costs FLAT or more of
+    # #1's score there
+    deep = Evaluator(small_scenario, seeds=validation_seeds(3, LEEWAY_DEPTH * 4))
+    own = float(deep.evaluate([space.setup(best.indices)])[0].score)  # type: ignore[arg-type]
     assert set(best.leeway) == set(space.names)
-    assert {r["realisations"] for r in best.leeway.values()} == {4}
+    assert {r["realisations"] for r in best.leeway.values()} == {LEEWAY_DEPTH * 4}
     past = _past_the_band(best.leeway, best.indices, space)
     assert past, "some setting should matter on the small course"
-    for o in fresh.evaluate([space.setup(p) for p in past]):
+    for o in deep.evaluate([space.setup(p) for p in past]):
         assert (float(o.score) - own) / abs(own) >= FLAT  # type: ignore[arg-type]
     # the setups as good as #1 ride within FLAT of it on the validation set on average (the
     # leeway's rule): ridden there again, their mean cost is under FLAT, and their cost's 95 %

@@ -19,6 +19,7 @@ from tuneopt.optimise.polish import MIN_BUDGET, point_key
 from tuneopt.optimise.refine import refine
 from tuneopt.optimise.robustness import (
     FLAT,
+    LEEWAY_DEPTH,
     ROBUSTNESS_REALISATIONS,
     Ridden,
     leeway,
@@ -465,9 +466,10 @@ def rank_study(
             # walked on the validation set, which chose nothing: on the selection set #1 was
             # picked as the best, so it scores there with its luck and every step away from it
             # looks dearer than it is; 40 paired realisations also tell a rise of FLAT from the
-            # noise where the robustness steps' 4 could not
+            # noise where the robustness steps' 4 could not, and a step still in doubt after
+            # them rides on further ones of the same stream (LEEWAY_DEPTH)
             room = leeway(entries[0].indices, space,
-                          validation_evaluator(evaluator, validation))  # fmt: skip
+                          validation_evaluator(evaluator, LEEWAY_DEPTH * validation))  # fmt: skip
         else:  # its first steps are the robustness steps of #1
             room = leeway(entries[0].indices, space,
                           evaluator.first(ROBUSTNESS_REALISATIONS), ridden)  # fmt: skip

@@ -223,7 +223,8 @@ def leeway_lines(result: RunResult) -> list[str]:
         )
     rode = {room.get("realisations") for room in best.leeway.values()}
     on = (
-        f"on {rode.pop()} realisations paired with #1"
+        f"on up to {rode.pop()} realisations paired with #1, a step riding more of them only "
+        "while its rise is in doubt"
         if len(rode) == 1 and None not in rode
         else "on the search's first realisations"
     )  # results written before the count was kept rode the search's first 4
