@@ -14,7 +14,7 @@ the moves are tried again from there, at most ``ROUNDS`` times. ``MIN_GAIN`` lie
 ``robustness.FLAT``, the change the report calls flat: on common realisations a click's change
 is measured closely (sd of a paired difference 0.1-0.8 % of the score a realisation), and
 measured on 200 fresh realisations, one enduro seed's winner trailed another's by 1.5 % made
-of single moves worth 0.25-0.45 % each (fork pressure, fork and shock low-speed rebound), each
+of single moves worth 0.25-0.44 % each (fork pressure, fork HSC, fork and shock LSR), each
 under FLAT, so a FLAT threshold stopped the moves there. When no single-setting
 move gains, a spring (air pressure or coil rate) is moved one step together with each other
 setting of its end of the bike, one step either way: a stiffer spring wants more damping for the
