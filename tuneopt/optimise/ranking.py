@@ -89,10 +89,11 @@ class RankedSetup:
     ``leeway`` (#1 only): how far each setting may move, every other held, before the score
     rises by ``robustness.FLAT`` of it (``robustness.leeway``). ``refined``: for a setup the
     selection realisations moved away from a search's pick (``refine.refine``), the pick's
-    ``from_trial``, the ``moves`` made, the points ``tried`` and the selection
-    ``realisations``; empty otherwise. ``as_good`` (#1 only, validated studies): the other
-    finalists whose mean cost against it on the validation set is under ``robustness.FLAT``:
-    several settings moved together at a cost too small to matter."""
+    ``from_trial``, the ``moves`` made, the points ``tried``, the selection
+    ``realisations`` and the ``further`` ones a move in doubt could ride; empty otherwise.
+    ``as_good`` (#1 only, validated studies): the other finalists whose mean cost against it
+    on the validation set is under ``robustness.FLAT``: several settings moved together at a
+    cost too small to matter."""
 
     rank: int
     trial: int
@@ -238,19 +239,23 @@ def _with_refined_pick(
     evaluator: Evaluator,
 ) -> tuple[list[RankedSetup], list[Setup], NDArray[np.float64]]:
     """The finalists (``entries``, then the current setup last in ``setups`` and ``table``)
-    with the selection set's first moved by ``refine.refine`` on the selection realisations,
-    when a move gained beyond doubt: the moved setup joins the finalists as one more (or, when
+    with the selection set's first moved by ``refine.refine`` on the selection realisations
+    (and as many further ones of their stream for a move in doubt), when a move gained beyond
+    doubt: the moved setup joins the finalists as one more (or, when
     it is one of them already, that one records the moves)."""
     means = selection_means(table)[: len(entries)]
     if not np.isfinite(means).any():
         return entries, setups, table
     first = int(np.nanargmin(means))
+    n = table.shape[1]
+    # a move in doubt there rides as many further realisations of the selection set's stream
+    further = selection_evaluator(evaluator, 2 * n).part(n, 2 * n)
     got = refine(entries[first].indices, table[first], space,
-                 selection_evaluator(evaluator, table.shape[1]))  # fmt: skip
+                 selection_evaluator(evaluator, n), further=further)  # fmt: skip
     if not got.moves:
         return entries, setups, table
     note = {"from_trial": entries[first].trial, "moves": got.moves, "tried": got.tried,
-            "realisations": table.shape[1]}  # fmt: skip
+            "realisations": n, "further": n}  # fmt: skip
     key = point_key(got.point)
     for i, e in enumerate(entries):
         if point_key(e.indices) == key:

@@ -185,21 +185,32 @@ def refined_lines(result: RunResult) -> list[str]:
     def moved(m: Mapping[str, Any]) -> str:
         return f"{result.label(m['setting'])} {m['from_shown']} to {m['to_shown']}"
 
+    first = note.get("realisations")
+
+    def on(m: Mapping[str, Any]) -> str:
+        n = m.get("realisations", first)
+        return "" if n == first else f", on {n} realisations"
+
     parts = [
         moved(m)
         + (f" with {moved(m['with'])}" if m.get("with") else "")
         + f" ({100 * float(m['relative']):+.1f} %, interval {100 * float(m['low']):+.1f} to "
-        f"{100 * float(m['high']):+.1f} %)"
+        f"{100 * float(m['high']):+.1f} %{on(m)})"
         for m in note.get("moves", ())
     ]
     paired = any(m.get("with") for m in note.get("moves", ()))
+    further = (
+        f"; a move in doubt there rode {note['further']} more of them, and was kept when it "
+        "gained beyond doubt on both together and on the more alone"
+        if note.get("further") else ""
+    )  # fmt: skip
     return [
         f"Setup #1 is the search's trial {note.get('from_trial')} with "
         f"{'a setting' if len(parts) == 1 and not paired else 'settings'} moved one at a time"
         f"{' (or a spring with another setting of its end)' if paired else ''} on "
-        f"{note.get('realisations')} realisations that the search never rode and that give no "
+        f"{first} realisations that the search never rode and that give no "
         f"figure here ({note.get('tried')} moves tried; a move kept only when it improved the "
-        "score beyond doubt): " + "; then ".join(parts) + "."
+        f"score beyond doubt{further}): " + "; then ".join(parts) + "."
     ]
 
 
