@@ -32,8 +32,9 @@ is made when, on both sets together, it clears the same rule, and the further re
 also show a gain (they chose nothing, so the first set's favour for the moves it ranked first
 is not all the evidence). Measured on the trail demo bike (paired sd of a spring step about
 2 % of the score a realisation): one study's #1 gained 0.6 % with its shock 20 psi softer on
-its 40 selection realisations (t = -1.8, in doubt), 0.85 % on 48 further ones, and on 100 fresh
-realisations the move gained 0.9 %; the first set alone could not settle it.
+its 40 selection realisations (t = -1.8, in doubt) and 0.85 % on 48 further ones; moved 26 psi
+softer, to another seed's pressure, it gained 0.9 % on 100 fresh realisations. The first set
+alone could not settle such a move.
 """
 
 from __future__ import annotations
