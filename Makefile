@@ -5,7 +5,7 @@ BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 DEMO ?= scenarios/trail_air.toml
 
-.PHONY: demo test lint typecheck unit bench clean reliability system
+.PHONY: demo test lint typecheck kernels unit bench clean reliability system
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -24,19 +24,26 @@ lint: $(STAMP)
 typecheck: $(STAMP)
 	$(BIN)/mypy tuneopt
 
+# The simulator's kernels compiled into numba's cache once (loaded from it when it is current),
+# not by every test process at once.
+kernels: $(STAMP)
+	$(BIN)/python tools/compile_kernels.py
+
 # four test processes on two cores: the service tests spend much of their time waiting on the
 # processes they start (a file stays on one test process: its fixtures and services are its
-# own). The simulator's kernels are compiled once first, not by every test process at once.
+# own).
 TEST_WORKERS ?= 4
-unit: $(STAMP)
-	$(BIN)/python tools/compile_kernels.py
+unit: kernels
 	$(BIN)/python -m pytest -q -n $(TEST_WORKERS) --dist loadfile
 
 # redis-server and chromium: installed when missing (Debian, as root), else named
 system:
 	sh tools/system-packages.sh
 
-test: system lint typecheck unit
+# ruff and mypy run while the kernels compile (the half-car's compile alone takes minutes)
+test: system
+	$(MAKE) --no-print-directory -j 3 --output-sync=target lint typecheck kernels
+	$(MAKE) --no-print-directory unit
 
 # The reliability and security suites at full size (bad input through files, the command line and
 # the API; schema-driven API fuzzing; load; faults), each test recording what it measured;
