@@ -3,9 +3,9 @@
 Each test process that rides the simulator would otherwise compile the kernels itself on a
 fresh clone (three to four minutes each, all of them at once on the same cores). Every kernel
 is run once on a short demo road: the batch run with and without kept traces, and the
-solve_ivp reference (which calls the kernels' right-hand side and replay). The quarter-car and
-the half-car compile in a process each, at the same time (numba writes each cache file whole,
-under a temporary name it then renames, so the two never read half a file).
+solve_ivp reference (which calls the kernels' right-hand side and replay). One process compiles
+both models, one after the other: the two share functions whose cache index numba reads, adds
+to and writes back, which two processes at once could each overwrite with their own entry.
 
     .venv/bin/python tools/compile_kernels.py
 """
@@ -13,7 +13,6 @@ under a temporary name it then renames, so the two never read half a file).
 from __future__ import annotations
 
 import time
-from concurrent.futures import ProcessPoolExecutor
 
 MODELS = ("quarter-car", "half-car")
 
@@ -45,8 +44,7 @@ def _compile(model: str) -> float:
 
 def main() -> int:
     t0 = time.perf_counter()
-    with ProcessPoolExecutor(len(MODELS)) as pool:
-        took = dict(zip(MODELS, pool.map(_compile, MODELS), strict=True))
+    took = {model: _compile(model) for model in MODELS}
     each = ", ".join(f"{m} {s:.0f} s" for m, s in took.items())
     print(f"simulator kernels compiled or loaded from cache in {time.perf_counter() - t0:.0f} s "
           f"({each})")  # fmt: skip
