@@ -249,9 +249,9 @@ def _with_refined_pick(
     first = int(np.nanargmin(means))
     n = table.shape[1]
     # a move in doubt there rides as many further realisations of the selection set's stream
-    further = selection_evaluator(evaluator, 2 * n).part(n, 2 * n)
-    got = refine(entries[first].indices, table[first], space,
-                 selection_evaluator(evaluator, n), further=further)  # fmt: skip
+    stream = selection_evaluator(evaluator, 2 * n)
+    got = refine(entries[first].indices, table[first], space, stream.first(n),
+                 further=stream.part(n, 2 * n))  # fmt: skip
     if not got.moves:
         return entries, setups, table
     note = {"from_trial": entries[first].trial, "moves": got.moves, "tried": got.tried,

@@ -199,10 +199,11 @@ def refined_lines(result: RunResult) -> list[str]:
         for m in note.get("moves", ())
     ]
     paired = any(m.get("with") for m in note.get("moves", ()))
+    looked = any(m.get("realisations", first) != first for m in note.get("moves", ()))
     further = (
-        f"; a move in doubt there rode {note['further']} more of them, and was kept when it "
-        "gained beyond doubt on both together and on the more alone"
-        if note.get("further") else ""
+        f"; a move still in doubt there rode {note['further']} further realisations, and was "
+        "kept when it improved the score beyond doubt on both sets together"
+        if looked and note.get("further") else ""
     )  # fmt: skip
     return [
         f"Setup #1 is the search's trial {note.get('from_trial')} with "
