@@ -25,7 +25,7 @@ from tuneopt.service import finalise, tasks
 from tuneopt.service.api import create_app
 from tuneopt.service.records import JobStore
 from tuneopt.service.settings import Settings
-from tuneopt.service.worker import make_worker
+from tuneopt.service.worker import LISTEN_SECONDS, make_worker
 
 # [s] the bound docs/service.md states for a stop to act; asserted with a generous margin (a
 # loaded test machine), as a functional bound, not a speed figure
@@ -258,3 +258,25 @@ def test_a_stopping_worker_hands_its_shard_back_within_the_bound(
         f"{STOP_BOUND:.0f} s), as an event, with no retry spent",
         "pytest tests/service/test_stops.py -k stopping_worker",
     )
+
+
+def test_a_workers_end_does_not_wait_a_minute_on_its_command_listener(settings: Settings) -> None:
+    """At its end an rq worker stops the thread listening on its command channel and waits
+    for it (redis-py's PubSubWorkerThread.stop joins it), and rq's own listener waits 60 s at a
+    time for a message: one that had just gone back to waiting held the worker's end for up to
+    a minute (seen on a loaded machine: several service tests took 60 s instead of one, the
+    stack in that join). Ours waits LISTEN_SECONDS at a time: stopped while waiting on an idle
+    channel, it ends within that (a functional bound, with the module's margin for a loaded
+    machine, well under rq's 60 s)."""
+    worker = make_worker(settings, name=f"listen-{time.monotonic_ns()}")
+    worker.subscribe()
+    thread = worker.pubsub_thread
+    assert thread is not None
+    time.sleep(0.5)  # the listener is waiting for a message that does not come
+    started = time.monotonic()
+    thread.stop()
+    took = time.monotonic() - started
+    assert worker.pubsub is not None
+    worker.pubsub.close()
+    assert not thread.is_alive()
+    assert took < LISTEN_SECONDS + MARGIN < 60.0, f"the listener ended {took:.1f} s after its stop"

@@ -30,6 +30,10 @@ __all__ = ["ShardWorker", "make_worker"]
 
 log = logging.getLogger(__name__)
 
+# How long the listener on a worker's command channel waits for a message at a time [s]: the
+# longest a worker's end waits for that thread to notice it is stopped.
+LISTEN_SECONDS = 1.0
+
 
 class ShardWorker(SimpleWorker):
     """rq's in-process worker with a heartbeat thread during each job."""
@@ -40,6 +44,19 @@ class ShardWorker(SimpleWorker):
         self.beat_ttl = int(kwargs.pop("heartbeat_ttl", settings.heartbeat_ttl))
         kwargs.setdefault("serializer", JSONSerializer)
         super().__init__(*args, **kwargs)
+
+    def subscribe(self) -> None:
+        """rq's own, with the listener thread on this worker's command channel waking every
+        ``LISTEN_SECONDS`` instead of every 60 s: the worker's teardown stops that thread and
+        waits for it, so a thread that had just gone back to sleep held the worker's end (a
+        handed-back shard, the end of a burst) for up to a minute."""
+        self.log.info("Worker %s: subscribing to channel %s", self.name, self.pubsub_channel_name)
+        self.pubsub = self.connection.pubsub()
+        self.pubsub.subscribe(**{self.pubsub_channel_name: self.handle_payload})
+        self.pubsub_thread = self.pubsub.run_in_thread(  # type: ignore[assignment]
+            sleep_time=LISTEN_SECONDS, daemon=True,
+            exception_handler=self._pubsub_exception_handler,
+        )  # fmt: skip
 
     def handle_warm_shutdown_request(self) -> None:
         # a shard may run for hours: stop it between batches and let another worker go on
