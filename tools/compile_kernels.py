@@ -14,31 +14,31 @@ from __future__ import annotations
 
 import time
 
-MODELS = ("quarter-car", "half-car")
+from tuneopt.sim import benchmark as demo
+from tuneopt.sim import (
+    simulate_halfcar,
+    simulate_halfcar_reference,
+    simulate_quartercar,
+    simulate_quartercar_reference,
+)
+
+# each model's batch run, its solve_ivp reference and its demo parameters
+MODELS = {
+    "quarter-car": (simulate_quartercar, simulate_quartercar_reference,
+                    demo.demo_quartercar_params),
+    "half-car": (simulate_halfcar, simulate_halfcar_reference, demo.demo_halfcar_params),
+}  # fmt: skip
 
 
 def _compile(model: str) -> float:
     """Run every kernel of ``model`` once; the seconds it took."""
-    from tuneopt.sim import benchmark as demo
-    from tuneopt.sim import (
-        simulate_halfcar,
-        simulate_halfcar_reference,
-        simulate_quartercar,
-        simulate_quartercar_reference,
-    )
-
+    sim, ref, params_of = MODELS[model]
     t0 = time.perf_counter()
     road = demo.demo_road(0.2)
-    if model == "quarter-car":
-        quarter = demo.demo_quartercar_params(1)
-        simulate_quartercar(quarter, road)
-        simulate_quartercar(quarter, road, trace_every=10)
-        simulate_quartercar_reference(quarter, road, rtol=1e-3, atol=1e-6, max_step=0.01)
-    else:
-        half = demo.demo_halfcar_params(1)
-        simulate_halfcar(half, road)
-        simulate_halfcar(half, road, trace_every=10)
-        simulate_halfcar_reference(half, road, rtol=1e-3, atol=1e-6, max_step=0.01)
+    params = params_of(1)
+    sim(params, road)  # type: ignore[operator]
+    sim(params, road, trace_every=10)  # type: ignore[operator]
+    ref(params, road, rtol=1e-3, atol=1e-6, max_step=0.01)  # type: ignore[operator]
     return time.perf_counter() - t0
 
 

@@ -47,7 +47,7 @@ from typing import Any
 
 import numpy as np
 
-from tuneopt.optimise.evaluate import Evaluator, RacePolicy, paired_interval
+from tuneopt.optimise.evaluate import Evaluator, Outcome, RacePolicy, paired_interval
 from tuneopt.optimise.polish import point_key
 from tuneopt.optimise.space import SearchSpace
 
@@ -118,10 +118,17 @@ def _ride(
     if not cands:
         return []
     outs = ev.evaluate([space.setup(q) for _, q in cands], race=RacePolicy(), reference=tuple(own))
+    return _complete(cands, outs, own.size)
+
+
+def _complete(
+    cands: list[tuple[tuple[str, ...], dict[str, int]]], outs: list[Outcome], n: int
+) -> list[Ridden]:
+    """The candidates whose outcome rode all ``n`` realisations, with their scores."""
     return [
         (names, q, np.asarray(o.scores, dtype=float))
         for (names, q), o in zip(cands, outs, strict=True)
-        if o.ok and len(o.scores) == own.size
+        if o.ok and len(o.scores) == n
     ]
 
 
@@ -189,11 +196,7 @@ def _second_look(
         if not outs[0].ok or len(outs[0].scores) != further.realisations:
             return None, None
         own_further = np.asarray(outs[0].scores, dtype=float)
-        rode = [
-            (names, q, np.asarray(o.scores, dtype=float))
-            for (names, q), o in zip(moves, outs[1:], strict=True)
-            if o.ok and len(o.scores) == own_further.size
-        ]
+        rode = _complete(moves, outs[1:], own_further.size)
     else:
         rode = _ride(moves, space, further, own_further)
     first = {point_key(q): theirs for _, q, theirs in promising}
