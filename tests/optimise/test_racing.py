@@ -226,7 +226,10 @@ def test_ranking_comes_from_the_fresh_realisations(
     assert best.validation["realisations"] == 4
     assert best.validation["selection_realisations"] == 4
     space = build_space(small_scenario)
-    picked = Evaluator(small_scenario, seeds=selection_seeds(3, 4))
+    # from the stream's first 4, or, after moves (chosen on its first 8), from the next 4
+    start = best.validation["selection_start"]
+    assert start in (0, 8) and (start == 8) is any(e.refined for e in ranking.ranked)
+    picked = Evaluator(small_scenario, seeds=selection_seeds(3, start + 4)[start:])
     assert best.validation["selection_score"] == pytest.approx(
         picked.evaluate([space.setup(best.indices)])[0].score, rel=1e-12
     )
@@ -297,6 +300,19 @@ def test_realisations_built_on_the_way_score_as_kept_ones(small_scenario: Scenar
     a, b = kept.evaluate(setups)[0], lazy.evaluate(setups)[0]
     assert a.scores == b.scores
     assert kept.simulated_seconds == lazy.simulated_seconds
+    # built now and kept on request, within a memory bound: the same scores, and the courses
+    # are not built again for the next batch
+    now = lazy.kept(max_bytes=2**40)
+    assert now is not lazy and now._kept is not None and len(now._kept) == 3
+    assert now.evaluate(setups)[0].scores == a.scores
+    course = now._kept[0]
+    assert course.nbytes == sum(
+        getattr(r, f).nbytes for r in course.roads
+        for f in ("front_z", "front_zdot", "rear_z", "rear_zdot", "decel", "lateral_accel", "speed")
+    )  # fmt: skip
+    # over the bound, or kept already: the evaluator itself
+    assert lazy.kept(max_bytes=3 * course.nbytes - 1) is lazy
+    assert kept.kept(max_bytes=0) is kept
 
 
 def test_a_realisation_one_setup_cannot_ride_leaves_the_selection(

@@ -34,7 +34,7 @@ from redis.exceptions import RedisError
 from tests.conftest import write_toml
 from tests.figures import record
 from tests.service.conftest import RedisServer, small_scenario
-from tests.service.processes import LIMIT, ApiProcess, Supervisor, Workers, kill, stop
+from tests.service.processes import JOB_LIMIT, ApiProcess, Supervisor, Workers, kill, stop
 from tuneopt.cli import main
 from tuneopt.cli import submit as submit_command
 from tuneopt.cli.service_client import Patience
@@ -193,8 +193,8 @@ class Watch:
         while True:
             if self.poll() and done():
                 return time.monotonic() - started
-            if time.monotonic() - started > LIMIT:
-                pytest.fail(f"waited {LIMIT:.0f} s for {what}")
+            if time.monotonic() - started > JOB_LIMIT:
+                pytest.fail(f"waited {JOB_LIMIT:.0f} s for {what}")
             if step is not None:
                 step()
             time.sleep(POLL)

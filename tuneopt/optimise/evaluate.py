@@ -199,6 +199,20 @@ class Evaluator:
         other.seed, other.windows = self.seed, self.windows
         return other
 
+    def kept(self, max_bytes: int) -> Evaluator:
+        """This evaluator with its courses built now and kept for every batch after, when all
+        of them take no more than ``max_bytes`` (judged by the first: a course's realisations
+        are of one length); itself when they are kept already or would take more."""
+        if self._kept is not None:
+            return self
+        built = iter(self.courses)
+        first = next(built)
+        if first.nbytes * self.realisations > max_bytes:
+            return self
+        other = self.part(0, self.realisations)
+        other._kept = (first, *built)
+        return other
+
     @property
     def courses(self) -> Iterator[PreparedCourse]:
         """The realisations in order (built on the way when they are not kept)."""

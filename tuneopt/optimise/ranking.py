@@ -75,7 +75,9 @@ class RankedSetup:
     the fresh validation realisations and ``search_score`` is what the search told; otherwise
     both are the search's. ``validation``: its comparison with the current setup
     (``Comparison.as_dict``) plus its bottom-out risk (share of validation realisations with a
-    bottom-out) and, from the 2nd on, ``vs_winner``. ``flags``: settings at the end of their
+    bottom-out), the mean score that ordered it (``selection_score``, over
+    ``selection_realisations`` from position ``selection_start`` of the selection set's stream)
+    and, from the 2nd on, ``vs_winner``. ``flags``: settings at the end of their
     range or a sag on its window's edge, by setting. ``warnings``: the static check's about this
     setup. ``steps``: the score change one robustness step down and up of every setting on the
     search's first realisations, or why there is none ("end of range", "outside the sag
@@ -231,54 +233,71 @@ def _distinct_best(feasible: Sequence[FrozenTrial], count: int) -> list[FrozenTr
     return best
 
 
+# Finalists moved by ``refine.refine``: the selection set's first few (each costs about as much
+# as the search's own ranking of them; a second start reaches a setup the first one's moves stop
+# short of, where the selection set's luck put the first in a lesser basin).
+REFINE_STARTS = 2
+# The moves' realisations are built once and kept while every start is moved, when they fit in
+# this much memory (the trail demo's 40 take 142 MiB, the enduro demo's 246 MiB; built again
+# for each batch, they took a fifth of the moves' time on the trail demo); a longer course's
+# are built again for each batch, as the validation's are.
+REFINE_COURSES_BYTES = 512 * 2**20
+
+
 def _with_refined_pick(
     entries: list[RankedSetup],
     setups: list[Setup],
     table: NDArray[np.float64],
     space: SearchSpace,
     evaluator: Evaluator,
+    starts: int = REFINE_STARTS,
 ) -> tuple[list[RankedSetup], list[Setup], NDArray[np.float64]]:
     """The finalists (``entries``, then the current setup last in ``setups`` and ``table``)
-    with the selection set's first moved by ``refine.refine`` on the selection realisations
-    (and as many further ones of their stream for a move in doubt), when a move gained beyond
-    doubt: the moved setup joins the finalists as one more (or, when
-    it is one of them already, that one records the moves)."""
+    with the selection set's first ``starts`` each moved by ``refine.refine`` on the selection
+    realisations (and as many further ones of their stream for a move in doubt), when a move
+    gained beyond doubt: a moved setup joins the finalists as one more (or, when it is one of
+    them already, that one records the moves)."""
     means = selection_means(table)[: len(entries)]
     if not np.isfinite(means).any():
         return entries, setups, table
-    first = int(np.nanargmin(means))
+    order = [int(i) for i in np.argsort(np.where(np.isfinite(means), means, np.inf))]
     n = table.shape[1]
     # a move in doubt there rides as many further realisations of the selection set's stream
     stream = selection_evaluator(evaluator, 2 * n)
-    got = refine(entries[first].indices, table[first], space, stream.first(n),
-                 further=stream.part(n, 2 * n))  # fmt: skip
-    if not got.moves:
-        return entries, setups, table
-    note = {"from_trial": entries[first].trial, "moves": got.moves, "tried": got.tried,
-            "realisations": n, "further": n}  # fmt: skip
-    key = point_key(got.point)
-    for i, e in enumerate(entries):
-        if point_key(e.indices) == key:
-            entries = list(entries)
-            entries[i] = _replace(e, refined=note)
-            return entries, setups, table
-    setup = space.setup(got.point)
-    moved = _replace(
-        entries[first],
-        indices=dict(got.point),
-        settings=space.describe(got.point),
-        settings_si=space.values(got.point),
-        sag=evaluator.sag(setup),
-        search_score=None,
-        baseline=False,
-        refined=note,
-    )
-    row = np.asarray(got.scores, dtype=float)[None, :]
-    return (
-        [*entries, moved],
-        [*setups[:-1], setup, setups[-1]],
-        np.vstack([table[:-1], row, table[-1:]]),
-    )
+    moves_on = stream.first(n).kept(REFINE_COURSES_BYTES)
+    for row in [i for i in order[:starts] if np.isfinite(means[i])]:
+        start = entries[row]  # rows keep their place: a moved setup joins at the end
+        if start.refined:  # an earlier start's moves ended here: no move gained from it
+            continue
+        got = refine(start.indices, table[row], space, moves_on,
+                     further=stream.part(n, 2 * n))  # fmt: skip
+        if not got.moves:
+            continue
+        note = {"from_trial": start.trial, "moves": got.moves, "tried": got.tried,
+                "realisations": n, "further": n}  # fmt: skip
+        key = point_key(got.point)
+        same = [i for i, e in enumerate(entries) if point_key(e.indices) == key]
+        if same:  # moved onto another finalist (or onto the first start's end)
+            if not entries[same[0]].refined:
+                entries = list(entries)
+                entries[same[0]] = _replace(entries[same[0]], refined=note)
+            continue
+        setup = space.setup(got.point)
+        moved = _replace(
+            start,
+            indices=dict(got.point),
+            settings=space.describe(got.point),
+            settings_si=space.values(got.point),
+            sag=evaluator.sag(setup),
+            search_score=None,
+            baseline=False,
+            refined=note,
+        )
+        scores = np.asarray(got.scores, dtype=float)[None, :]
+        entries = [*entries, moved]
+        setups = [*setups[:-1], setup, setups[-1]]
+        table = np.vstack([table[:-1], scores, table[-1:]])
+    return entries, setups, table
 
 
 def _validated(
@@ -290,14 +309,23 @@ def _validated(
     move: bool = True,
 ) -> tuple[list[RankedSetup], RankedSetup | None]:
     """Order the finalists and the current setup by their scores on the selection set (the
-    first moved by ``refine.refine`` when ``move``), then
-    take every figure (scores, against the current setup and the winner) from the validation
-    set, which chose nothing: the order's own pick is not flattered by the figures."""
+    first ``REFINE_STARTS`` moved by ``refine.refine`` when ``move``; after a move, on further
+    realisations of the selection set's stream that no move rode), then take every figure
+    (scores, against the current setup and the winner) from the validation set, which chose
+    nothing: the order's own pick is not flattered by the figures."""
     setups = [space.setup(e.indices) for e in entries] + [space.base]
     picked = selection_count(count)
     table = selection_table(evaluator, setups, picked)
+    start = 0  # the position in the selection set's stream of the realisations that order
     if move:
         entries, setups, table = _with_refined_pick(entries, setups, table, space, evaluator)
+        if any(e.refined for e in entries):
+            # the moves were chosen on the stream's first 2 x picked realisations, where a
+            # moved setup scores with the luck of every move made on them: the order comes from
+            # the next ones, which chose nothing (a setup moved further on noise would otherwise
+            # lead a better one moved less)
+            start = 2 * picked
+            table = selection_table(evaluator, setups, picked, start=start)
     chosen = selection_means(table)
     outcomes, ridden = validation_outcomes(evaluator, setups, count)
     base_out = outcomes[-1]
@@ -316,7 +344,8 @@ def _validated(
         info: dict[str, Any] = {"realisations": ridden,
                                 "bottom_out_risk": o.bottomed / ridden,
                                 "selection_score": c if np.isfinite(c) else None,
-                                "selection_realisations": picked}
+                                "selection_realisations": picked,
+                                "selection_start": start}
         change: dict[str, float] = {}
         if base_out.ok:
             info.update(compare_scores(o.scores, base_out.scores).as_dict())

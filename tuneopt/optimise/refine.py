@@ -5,12 +5,13 @@ effect on them differs from its effect on the course at large ends where those r
 put it: measured on the enduro demo bike, one study seed's winner scored 1.6-2.1 % better on 40
 fresh realisations with only its fork's low-speed rebound moved from 10 to 15 or 18 clicks, and
 another 0.9 % better with its fork's high-speed rebound moved from 3 to 0, though the search's
-line searches had been through both. So the finalist the selection set ranks first is moved,
-on the selection realisations (which the search never rode and which give no figure the user
-reads: the validation set does), one setting at a time by 1, 2 and 4 robustness steps either
-way; the move that improves the score most, when it does so by at least ``MIN_GAIN`` of it
-and beyond doubt (a paired t interval at ``CONFIDENCE`` that excludes no gain), is made, and
-the moves are tried again from there, at most ``ROUNDS`` times. ``MIN_GAIN`` lies well under
+line searches had been through both. So the finalists the selection set ranks first
+(``ranking.REFINE_STARTS``) are moved, each in turn, on the selection realisations (which the
+search never rode and which give no figure the user reads: the validation set does), one
+setting at a time by 1, 2 and 4 robustness steps either way; the move that improves the score
+most, when it does so by at least ``MIN_GAIN`` of it and beyond doubt (a paired t interval at
+``CONFIDENCE`` that excludes no gain), is made, and the moves are tried again from there, at
+most ``ROUNDS`` times. ``MIN_GAIN`` lies well under
 ``robustness.FLAT``, the change the report calls flat: on common realisations a click's change
 is measured closely (sd of a paired difference 0.1-0.8 % of the score a realisation), and
 measured on 200 fresh realisations, one enduro seed's winner trailed another's by 1.5 % made

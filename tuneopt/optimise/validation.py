@@ -136,12 +136,13 @@ def validation_outcomes(
 
 
 def selection_table(
-    search: Evaluator, setups: Sequence[Setup], count: int = DEFAULT_VALIDATION
+    search: Evaluator, setups: Sequence[Setup], count: int = DEFAULT_VALIDATION, start: int = 0
 ) -> NDArray[np.float64]:
-    """Each setup's score on each selection realisation, (S, count), in the selection set's
-    order; NaN where a setup did not ride a realisation to the end (or at all)."""
+    """Each setup's score on each of ``count`` selection realisations from position ``start``
+    of the selection set's stream, (S, count), in its order; NaN where a setup did not ride a
+    realisation to the end (or at all)."""
     table = np.full((len(setups), count), np.nan)
-    for r, seed in enumerate(selection_seeds(search.seed, count)):
+    for r, seed in enumerate(selection_seeds(search.seed, start + count)[start:]):
         one = _riding(search, (seed,))
         for i, o in enumerate(one.evaluate(setups)):
             if o.ok:

@@ -42,6 +42,13 @@ class PreparedCourse:
         """Simulated time of one run over the course [s]."""
         return float(sum(r.duration for r in self.roads))
 
+    @property
+    def nbytes(self) -> int:
+        """Memory its sampled road inputs take [bytes]."""
+        return sum(
+            a.nbytes for r in self.roads for a in vars(r).values() if isinstance(a, np.ndarray)
+        )
+
 
 def prepare_course(
     course: Course, front_radius: float, rear_radius: float, wheelbase: float, dt: float = 1e-3
