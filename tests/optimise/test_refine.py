@@ -361,8 +361,8 @@ class TwoBasins(KnownScores):
     """Two basins along one setting: penalty min(w·(x − a)² + lift, w·(x − b)²), the one at
     ``b`` the better by ``lift``."""
 
-    def __init__(self, setting: str, a: int, b: int, lift: float, seed: int):
-        super().__init__(setting, b, 0.02, noise=0.04, seed=seed)
+    def __init__(self, setting: str, a: int, b: int, lift: float, seed: int, noise: float = 0.04):
+        super().__init__(setting, b, 0.02, noise=noise, seed=seed)
         self.a, self.lift = a, lift
 
     def penalty(self, point: Mapping[str, int]) -> float:
@@ -394,6 +394,24 @@ class Described(PointSpace):
         return {k: float(v) for k, v in point.items()}
 
 
+class _Sags:
+    """The evaluator's sags, for a moved setup's entry (the stand-ins have no bike)."""
+
+    def sag(self, setup: Any) -> dict[str, float]:
+        return {}
+
+
+def _finalists(points: Sequence[dict[str, int]]) -> list[Any]:
+    """Ranked entries for ``points``, trial k for the k-th, with no figures yet."""
+    from tuneopt.optimise.ranking import RankedSetup
+
+    return [
+        RankedSetup(rank=0, trial=k, indices=dict(p), settings={}, settings_si={}, score=0.0,
+                    terms={}, metrics={}, sag={}, change_vs_baseline={})
+        for k, p in enumerate(points)
+    ]  # fmt: skip
+
+
 @pytest.mark.parametrize("starts", [1, 2])
 def test_a_second_start_reaches_the_better_basin_the_first_cannot(
     space: SearchSpace, monkeypatch: pytest.MonkeyPatch, starts: int
@@ -414,21 +432,13 @@ def test_a_second_start_reaches_the_better_basin_the_first_cannot(
     further = TwoBasins(name, a, b, lift=0.3, seed=8021)
     monkeypatch.setattr(ranking, "selection_evaluator", lambda *_: Stream(known, further))
 
-    class Sags:
-        def sag(self, setup: Any) -> dict[str, float]:
-            return {}
-
     base = _start(space)
     points = [{**base, name: a}, {**base, name: b - 6}]
-    entries = [
-        ranking.RankedSetup(rank=0, trial=k, indices=p, settings={}, settings_si={}, score=0.0,
-                            terms={}, metrics={}, sag={}, change_vs_baseline={})
-        for k, p in enumerate(points)
-    ]  # fmt: skip
+    entries = _finalists(points)
     setups = [*points, base]
     table = np.vstack([known.scores(p) for p in setups])
     got, got_setups, got_table = ranking._with_refined_pick(
-        entries, setups, table, Described(space), Sags(), starts=starts,  # type: ignore[arg-type]
+        entries, setups, table, Described(space), _Sags(), starts=starts,  # type: ignore[arg-type]
     )
     assert len(got) == len(got_setups) - 1 == got_table.shape[0] - 1
     assert got_setups[-1] == base  # the current setup stays last
@@ -485,8 +495,8 @@ def test_the_order_after_moves_comes_from_realisations_no_move_chose_on(
     space: SearchSpace, monkeypatch: pytest.MonkeyPatch
 ) -> None:
     """On the realisations the moves choose on, a setting's best lies at 4 clicks; on every
-    other realisation at 14 (a stand-in for the luck of a set a setup was moved on). Both
-    finalists start 5 clicks from either best; the moves take them to 4 or near it, where
+    other realisation at 14 (a stand-in for the luck of a set a setup was moved on). The
+    finalists sit at 9 and at 14; the moves take them to 4 or near it, where
     they lead the finalists on the realisations they were moved on. The order, and so #1, comes
     from the stream's next realisations, which chose nothing: there the unmoved finalist at 14
     leads, and #1 is it."""
@@ -509,22 +519,14 @@ def test_the_order_after_moves_comes_from_realisations_no_move_chose_on(
 
     monkeypatch.setattr(ranking, "validation_outcomes", validation_outcomes)
 
-    class Sags:
-        def sag(self, setup: Any) -> dict[str, float]:
-            return {}
-
     class WithBase(Described):
         base = {**_start(space), name: 0}
 
     base = _start(space)
     points = [{**base, name: 9}, {**base, name: 14}]
-    entries = [
-        ranking.RankedSetup(rank=0, trial=k, indices=p, settings={}, settings_si={}, score=0.0,
-                            terms={}, metrics={}, sag={}, change_vs_baseline={})
-        for k, p in enumerate(points)
-    ]  # fmt: skip
+    entries = _finalists(points)
     ranked, _ = ranking._validated(
-        entries, None, WithBase(space), Sags(), REALISATIONS,  # type: ignore[arg-type]
+        entries, None, WithBase(space), _Sags(), REALISATIONS,  # type: ignore[arg-type]
     )
     moved = [e for e in ranked if e.refined]
     assert moved and all(abs(e.indices[name] - 4) <= 1 for e in moved)
@@ -534,3 +536,41 @@ def test_the_order_after_moves_comes_from_realisations_no_move_chose_on(
         world.scores(points[1], 0, n)
     )
     assert ranked[0].indices == points[1] and not ranked[0].refined
+
+
+def test_a_start_that_an_earlier_start_moved_onto_is_not_moved_again(
+    space: SearchSpace, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """One basin at ``b`` (no lift anywhere): the first finalist, 2 clicks off it, is moved onto
+    the second, which sits at its floor. That finalist records the first start's moves, is not
+    moved again, and no setup is added."""
+    from tuneopt.optimise import ranking
+
+    name = _clicks(space)
+    b = len(space[name].values) // 2
+    # noise 0.004 a ride: a move on noise alone would need a mean gain of MIN_GAIN (0.008 here),
+    # seven standard errors of 24 paired realisations, so only the setting moves
+    known = TwoBasins(name, b, b, lift=0.0, seed=41, noise=0.004)
+    further = TwoBasins(name, b, b, lift=0.0, seed=8041, noise=0.004)
+    monkeypatch.setattr(ranking, "selection_evaluator", lambda *_: Stream(known, further))
+    calls: list[dict[str, int]] = []
+    real = ranking.refine
+
+    def watched(point: dict[str, int], *args: Any, **kwargs: Any) -> Any:
+        calls.append(dict(point))
+        return real(point, *args, **kwargs)
+
+    monkeypatch.setattr(ranking, "refine", watched)
+    base = _start(space)
+    # the weight makes 2 clicks cost 0.08, 1 % of the score: the first start moves to the floor
+    points = [{**base, name: b - 2}, {**base, name: b}]
+    setups = [*points, {**base, name: 0}]
+    table = np.vstack([known.scores(p) for p in setups])
+    table[1] += 0.2  # the finalist at the floor second on the selection set (its luck there)
+    got, got_setups, got_table = ranking._with_refined_pick(
+        _finalists(points), setups, table, Described(space), _Sags(), starts=2,  # type: ignore[arg-type]
+    )
+    assert calls == [points[0]]
+    assert len(got) == 2 and len(got_setups) == 3 and got_table.shape[0] == 3
+    assert got[1].refined["from_trial"] == 0 and got[1].indices == points[1]
+    assert not got[0].refined

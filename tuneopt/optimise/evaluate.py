@@ -201,8 +201,9 @@ class Evaluator:
 
     def kept(self, max_bytes: int) -> Evaluator:
         """This evaluator with its courses built now and kept for every batch after, when all
-        of them take no more than ``max_bytes`` (judged by the first: a course's realisations
-        are of one length); itself when they are kept already or would take more."""
+        of them take about ``max_bytes`` or less (judged by the first times their count: a
+        course's realisations differ in length only by where their corners fall); itself when
+        they are kept already or would take more."""
         if self._kept is not None:
             return self
         built = iter(self.courses)

@@ -256,7 +256,8 @@ def _with_refined_pick(
     with the selection set's first ``starts`` each moved by ``refine.refine`` on the selection
     realisations (and as many further ones of their stream for a move in doubt), when a move
     gained beyond doubt: a moved setup joins the finalists as one more (or, when it is one of
-    them already, that one records the moves)."""
+    them already, that one records the moves, unless an earlier start's moves ended there:
+    it keeps that start's record)."""
     means = selection_means(table)[: len(entries)]
     if not np.isfinite(means).any():
         return entries, setups, table

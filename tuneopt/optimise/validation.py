@@ -53,7 +53,7 @@ __all__ = [
 # past the gain on 100 fresh ones in every run.
 DEFAULT_VALIDATION = 40
 FINALISTS = 8
-# The selection set that orders the finalists and on which refine.refine moves the first: as
+# The selection set that orders the finalists and on which refine.refine moves the first few: as
 # many realisations as the validation set, at most this many. Was 24: on the trail bike (paired
 # sd of a tyre or spring step 1.8-2.7 % of the score a realisation) 24 could not settle moves
 # worth 1.4 and 0.6 %; measured from one run's #1 (trail seed 2, 3.3 % worse than seed 1's),
