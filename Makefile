@@ -34,7 +34,7 @@ kernels: $(STAMP)
 # own).
 TEST_WORKERS ?= 4
 unit: kernels
-	$(BIN)/python -m pytest -q -n $(TEST_WORKERS) --dist loadfile
+	$(BIN)/python -m pytest -q -n $(TEST_WORKERS) --dist loadfile --durations=15
 
 # redis-server and chromium: installed when missing (Debian, as root), else named
 system:

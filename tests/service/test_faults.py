@@ -767,7 +767,6 @@ def test_worker_api_and_redis_killed_in_one_job_lose_nothing(
     def one(n: int) -> dict[str, Any]:
         workers.ensure(*roles)
         supervisor = Supervisor(workers, roles, api)
-        victim = workers.procs["one"]
         # two realisations: a batch of trials RUNNING long enough for the reads every POLL to
         # find the victim's (with one, the job once ended first, its setups quick or outside
         # the sag windows)
@@ -783,13 +782,14 @@ def test_worker_api_and_redis_killed_in_one_job_lose_nothing(
         def step() -> None:
             study = watch.study(job_id)
             if not faults and study is not None and watch.latest(job_id) >= 8:
-                mine = [
-                    t.number
-                    for t in _running(study)
-                    if f":{victim.pid}:" in str(t.user_attrs.get("owner", ""))
-                ]
-                if not mine:
-                    return  # between two of its batches: try at the next read
+                # the victim: whichever worker has trials of the job running (one worker may
+                # hold both shards, the other not having taken one yet)
+                owners = " ".join(str(t.user_attrs.get("owner", "")) for t in _running(study))
+                victim = next(
+                    (workers.procs[r] for r in roles if f":{workers.procs[r].pid}:" in owners), None
+                )
+                if victim is None:
+                    return  # between two batches: try at the next read
                 kill(victim)
                 faults["at_kill"] = watch.latest(job_id)
                 fresh = _study(settings, store, job_id)  # what the dead worker left behind
