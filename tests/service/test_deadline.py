@@ -123,7 +123,7 @@ def test_a_job_that_waited_in_the_queue_stops_at_its_deadline(
 
     The times are sized on this machine as loaded now (a fixed second or two is spent before
     the first ride ends on a loaded one): the worker starts with ``RUN_FACTOR`` times what a
-    worker took to come up and finish one trial of the same job left before the deadline, after
+    worker took to come up and finish one batch of the same job left before the deadline, after
     the job waited in the queue twice that (at least 2 s). Counted from the start instead, the
     deadline would let the shard ride on for that long past it. The worker stops between two
     setups (pieces of one setup), so a trial is told as soon as its ride ends."""
@@ -209,7 +209,7 @@ def _waited_in_the_queue(
     record(
         f"a job submitted with a deadline {wait + window:.1f} s ahead, taken up by a worker "
         f"{wait:.1f} s later ({RUN_FACTOR:g} times the {first:.2f} s a worker took to come up "
-        "and finish one trial; batches of 16 setups riding 100 m at walking pace)",
+        "and finish one batch; batches of 16 setups riding 100 m at walking pace)",
         f"its shard stopped and the finaliser started {late:.2f} s after the deadline; "
         f"{result['trials']['finished']} trials finished; its last batch asked "
         f"{deadline - max(asks):.2f} s and its last ride started "
