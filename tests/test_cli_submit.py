@@ -92,7 +92,7 @@ def test_a_folder_goes_with_the_profiles_its_course_names(
     # tuneopt submit FOLDER: the archive it sends holds the profile
     args = argparse.Namespace(
         scenario=str(folder), scenario_file="ride.toml", trials=None, seed=None,
-        realisations=None,
+        realisations=None, validation=None,
     )  # fmt: skip
     request = submit._submission(args, None)
     assert request["data"]["scenario_file"] == "ride.toml"
@@ -155,6 +155,8 @@ def test_a_scenario_in_a_subfolder_keeps_its_path(tmp_path: Path) -> None:
     [
         (["--trials", "0"], "--trials"),
         (["--realisations", "40"], "--realisations"),
+        (["--validation", "1"], "--validation"),  # an interval needs two
+        (["--validation", "201"], "--validation"),
         (["--seed", "-1"], "--seed"),
         (["--out", "somewhere"], "--out"),  # without --wait
         (["--scenario-file", "x.toml"], "--scenario-file"),  # a file has nothing to choose

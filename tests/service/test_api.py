@@ -57,6 +57,8 @@ def test_request_fields_types_and_limits(client: TestClient, redis_client: Redis
         ({"scenario": scenario, "run_seconds": 10_000}, "run_seconds"),
         ({"scenario": scenario, "shards": 99}, "shards"),
         ({"scenario": scenario, "sampler": "guess"}, "sampler"),
+        ({"scenario": scenario, "validation": 1}, "validation"),  # an interval needs two
+        ({"scenario": scenario, "validation": 201}, "validation"),
         ({"scenario": scenario, "budget": 5}, "budget"),
         ({"trials": 5}, "scenario"),
         ({"scenario": "not a table"}, "scenario"),

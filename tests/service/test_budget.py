@@ -22,7 +22,7 @@ from optuna.trial import TrialState
 from redis import Redis
 
 from tests.figures import record
-from tests.service.conftest import small_scenario
+from tests.service.conftest import TRIALS_ONLY_VALIDATION, small_scenario
 from tuneopt.optimise import runner
 from tuneopt.optimise.redis_storage import redis_storage
 from tuneopt.optimise.runner import count_finished
@@ -40,7 +40,8 @@ def _configured(settings: Settings, monkeypatch: pytest.MonkeyPatch) -> None:
 
 
 def _job(client: TestClient, **fields: Any) -> str:
-    body = {"scenario": small_scenario(), "realisations": 1, **fields}
+    body = {"scenario": small_scenario(), "realisations": 1,
+            "validation": TRIALS_ONLY_VALIDATION, **fields}  # fmt: skip
     response = client.post("/jobs", json=body)
     assert response.status_code == 202, response.text
     job_id = str(response.json()["id"])

@@ -16,7 +16,7 @@ import os
 import signal
 import threading
 import time
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 from typing import Any
@@ -33,7 +33,7 @@ from redis.exceptions import RedisError
 
 from tests.conftest import write_toml
 from tests.figures import record
-from tests.service.conftest import RedisServer, small_scenario
+from tests.service.conftest import TRIALS_ONLY_VALIDATION, RedisServer, small_scenario
 from tests.service.processes import JOB_LIMIT, ApiProcess, Supervisor, Workers, kill, stop
 from tuneopt.cli import main
 from tuneopt.cli import submit as submit_command
@@ -93,14 +93,15 @@ def _submit(settings: Settings, length: str = "40 m", **fields: object) -> str:
     with TestClient(create_app(settings)) as client:
         assert settings.api_key is not None
         client.headers["X-API-Key"] = settings.api_key.get_secret_value()
-        body = {"scenario": small_scenario(length), **fields}
+        body = _body(length, fields)
         response = client.post("/jobs", json=body)
         assert response.status_code == 202, response.text
         return str(response.json()["id"])
 
 
-def _body(length: str, fields: dict[str, Any], **more: Any) -> dict[str, Any]:
-    return {"scenario": small_scenario(length), **fields, **more}
+def _body(length: str, fields: Mapping[str, Any], **more: Any) -> dict[str, Any]:
+    return {"scenario": small_scenario(length), "validation": TRIALS_ONLY_VALIDATION,
+            **fields, **more}  # fmt: skip
 
 
 def _study(settings: Settings, store: JobStore, job_id: str) -> optuna.Study | None:

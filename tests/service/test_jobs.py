@@ -57,7 +57,8 @@ def _submit(client: TestClient, **fields: Any) -> str:
 def test_submitted_job_runs_to_a_ranked_result_equal_to_a_local_run(
     client: TestClient, settings: Settings, tmp_path: Path
 ) -> None:
-    job_id = _submit(client, trials=12, seed=4, shards=2, batch_size=4, realisations=1)
+    job_id = _submit(client, trials=12, seed=4, shards=2, batch_size=4, realisations=1,
+                     validation=6)  # fmt: skip
     _work(settings)
     status = client.get(f"/jobs/{job_id}").json()
     assert status["state"] == "done", status
@@ -67,12 +68,15 @@ def test_submitted_job_runs_to_a_ranked_result_equal_to_a_local_run(
     assert result["stopped"] == "budget"
     assert result["trials"]["finished"] == 12
     assert result["ranked"] and result["cautions"]
+    assert result["validation_realisations"] == 6  # the job's own, not the default 40
+    assert {r["validation"]["realisations"] for r in result["ranked"]} == {6}
     assert not settings.results_dir.exists()  # kept in Redis only: no folder to share
 
     # the same seed and budget on this machine's runner gives the same ranked setups
     scenario = scenario_from_data(small_scenario())
     plan = StudyPlan("study", trials=12, batch_size=4, seed=4)
-    local = run_local(start_run(scenario, tmp_path / "local", plan, realisations=1))
+    local = run_local(start_run(scenario, tmp_path / "local", plan, realisations=1,
+                                validation=6))  # fmt: skip
     assert [r.settings for r in local.ranked] == [r["settings"] for r in result["ranked"]]
     assert [r.score for r in local.ranked] == pytest.approx(
         [r["score"] for r in result["ranked"]], rel=1e-9

@@ -52,7 +52,6 @@ def register(sub: Any) -> None:
 # Every search realisation is held in memory by each worker process; the validation's are
 # built one at a time, but each costs a ride of every finalist.
 MAX_REALISATIONS = 64
-MAX_VALIDATION = 200
 
 
 def parse_deadline(text: str, now: dt.datetime | None = None) -> float:
@@ -99,6 +98,8 @@ def _baseline(path: Path, scenario: Any) -> Setup:
 
 
 def _arguments(args: argparse.Namespace) -> None:
+    from tuneopt.optimise.validation import MAX_VALIDATION
+
     problems = []
     if args.trials is not None and args.trials < 1:
         problems.append(("--trials", "must be at least 1"))

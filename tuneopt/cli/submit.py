@@ -39,10 +39,12 @@ OPTIONS = {
     "trials": "--trials",
     "seed": "--seed",
     "realisations": "--realisations",
+    "validation": "--validation",
     "deadline": "--until",
     "scenario_file": "--scenario-file",
 }
 MAX_REALISATIONS = 32  # the API's own limit (tuneopt.service.requests.JobRequest)
+MAX_VALIDATION = 200  # the API's own limit (tuneopt.optimise.validation.MAX_VALIDATION)
 ARCHIVES = (".zip", ".tar.gz", ".tgz")
 # a job id the service made: used as a folder name, so nothing else is taken
 _PLAIN_ID = re.compile(r"[A-Za-z0-9_-]{1,128}")
@@ -68,6 +70,11 @@ def register(sub: Any) -> None:
     p.add_argument("--seed", type=int, help="study seed")
     p.add_argument(
         "--realisations", type=int, help="terrain realisations each setup is raced over"
+    )
+    p.add_argument(
+        "--validation",
+        type=int,
+        help="fresh realisations the ranking's figures come from (the service's default 40)",
     )
     p.add_argument(
         "--scenario-file",
@@ -197,6 +204,12 @@ def _check_submit(args: argparse.Namespace) -> float | None:
         problems.append(
             FieldProblem("--realisations", f"must be between 1 and {MAX_REALISATIONS}")
         )
+    if args.validation is not None and not 2 <= args.validation <= MAX_VALIDATION:
+        problems.append(
+            FieldProblem(
+                "--validation", f"must be between 2 (an interval needs two) and {MAX_VALIDATION}"
+            )
+        )
     if args.out is not None and not args.wait:
         problems.append(
             FieldProblem(
@@ -235,6 +248,7 @@ def _submission(args: argparse.Namespace, deadline: str | None) -> dict[str, Any
             ("trials", args.trials),
             ("seed", args.seed),
             ("realisations", args.realisations),
+            ("validation", args.validation),
             ("deadline", deadline),
         )
         if v is not None

@@ -34,6 +34,7 @@ from tuneopt.optimise.evaluate import (
 __all__ = [
     "DEFAULT_VALIDATION",
     "FINALISTS",
+    "MAX_VALIDATION",
     "MAX_SELECTION",
     "Comparison",
     "compare_scores",
@@ -52,6 +53,8 @@ __all__ = [
 # realisations, where 24 had let one study's luck of the draw carry its stated gain two points
 # past the gain on 100 fresh ones in every run.
 DEFAULT_VALIDATION = 40
+# the most validation realisations a run may ask for (each costs a ride of every finalist)
+MAX_VALIDATION = 200
 FINALISTS = 8
 # The selection set that orders the finalists and on which refine.refine moves the first few: as
 # many realisations as the validation set, at most this many. Was 24: on the trail bike (paired

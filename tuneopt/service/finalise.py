@@ -24,6 +24,7 @@ from tuneopt.optimise import (
 )
 from tuneopt.optimise.redis_storage import delete_study_keys
 from tuneopt.optimise.runner import count_finished, run_shard
+from tuneopt.optimise.validation import DEFAULT_VALIDATION
 from tuneopt.service import tasks
 from tuneopt.service.logs import event
 from tuneopt.service.records import JobRecord, JobState, JobStore, is_job_id
@@ -64,7 +65,10 @@ def finalise_job(job_id: str) -> str:
     # rides cost as much simulation as many batches on a long course
     job = _load(store, job_id, record, simulate=not cancelled)
     topped_up = _finish_budget(store, job)
-    ranking = rank_study(job.study, job.space, job.evaluator, top=settings.top)
+    # a job recorded before the request had the field ranks on the default
+    validation = int(record.request.get("validation", DEFAULT_VALIDATION))
+    ranking = rank_study(job.study, job.space, job.evaluator, top=settings.top,
+                         validation=validation)  # fmt: skip
     stopped = _why_stopped(job.record, ranking.finished, cancelled)
     info = _info(job, ranking.validation_realisations, stopped, topped_up)
     fit = store.get_fit(job_id) if record.fit is not None else None

@@ -17,6 +17,7 @@ from tuneopt.model.errors import FieldProblem
 from tuneopt.model.loading import problems_from_validation
 from tuneopt.optimise.evaluate import DEFAULT_REALISATIONS, Evaluator
 from tuneopt.optimise.space import build_space
+from tuneopt.optimise.validation import DEFAULT_VALIDATION, MAX_VALIDATION
 from tuneopt.service.ride_logs import JSON_LOG_NAME, RideLogUpload, check_ride_log
 from tuneopt.service.settings import Settings
 from tuneopt.terrain import LEAD_IN, terrain_type
@@ -61,6 +62,13 @@ class JobRequest(BaseModel):
     realisations: int = Field(
         default=DEFAULT_REALISATIONS, ge=1, le=32, description="terrain realisations"
     )
+    validation: int = Field(
+        default=DEFAULT_VALIDATION,
+        ge=2,
+        le=MAX_VALIDATION,
+        description="fresh terrain realisations the ranking's figures come from (the "
+        "finalists are ordered on as many others, at most 24); an interval needs two",
+    )
     ride_log: str | None = Field(
         default=None,
         description="a ride log's text (docs/ride-logs.md), ridden on this scenario's bike: "
@@ -94,6 +102,7 @@ class ValidJob(BaseModel):
     sampler: str
     batch_size: int | None
     realisations: int
+    validation: int = DEFAULT_VALIDATION
     fit: dict[str, Any] | None = None  # the course fit: budget, realisations, the log's facts
     ride_log: bytes | None = Field(default=None, exclude=True)  # the log's file as sent
 
@@ -205,6 +214,7 @@ def validate_job(
         sampler=request.sampler,
         batch_size=request.batch_size,
         realisations=request.realisations,
+        validation=request.validation,
     )
 
 
