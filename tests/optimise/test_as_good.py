@@ -84,3 +84,22 @@ def test_a_setting_moved_by_an_as_good_setup_is_said_with_its_span() -> None:
 
 def test_no_as_good_setup_says_nothing() -> None:
     assert as_good_lines(run_result([entry(1)], None)) == []
+
+
+def test_a_setup_found_past_the_leeway_is_named_by_what_moved_and_followed() -> None:
+    """A setup the walks past #1's leeway found (``together.together``: no rank) is named by
+    the setting walked and the one that followed it, then counted in the spans like a
+    finalist."""
+    found = {"rank": None, "trial": None, "baseline": False,
+             "indices": {"shock.lsc": 0, "shock.lsr": 7}, "settings": {"shock.lsc": "0",
+                                                                       "shock.lsr": "7"},
+             "cost": 0.002, "cost_low": -0.001, "cost_high": 0.005, "realisations": 40,
+             "moved": "shock.lsr", "steps": 2, "followed_by": ["shock.lsc"]}  # fmt: skip
+    best = entry(1, indices={"shock.lsc": 3, "shock.lsr": 14},
+                 settings={"shock.lsc": "3", "shock.lsr": "14"}, as_good=[found])  # fmt: skip
+    labels = {"shock.lsc": "shock LSC", "shock.lsr": "shock LSR"}
+    result = run_result([best, entry(2)], None, labels=labels)
+    first, second = as_good_lines(result)
+    assert ("shock LSR taken past its leeway with shock LSC following (shock LSC 0, "
+            "shock LSR 7: +0.2 %, interval -0.1 to +0.5 %)") in first  # fmt: skip
+    assert "shock LSC 0 to 3, shock LSR 7 to 14." in second

@@ -26,6 +26,7 @@ from tuneopt.optimise.robustness import (
     robustness_fields,
 )
 from tuneopt.optimise.space import SearchSpace
+from tuneopt.optimise.together import together
 from tuneopt.optimise.validation import (
     DEFAULT_VALIDATION,
     FINALISTS,
@@ -95,7 +96,9 @@ class RankedSetup:
     ``realisations`` and the ``further`` ones a move in doubt could ride; empty otherwise.
     ``as_good`` (#1 only, validated studies): the other finalists whose mean cost against it
     on the validation set is under ``robustness.FLAT``: several settings moved together at a
-    cost too small to matter."""
+    cost too small to matter; after them, the setups the walks past #1's leeway with another
+    setting following found as good (``together.together``: ``rank`` None, with ``moved``,
+    ``steps`` and ``followed_by``)."""
 
     rank: int
     trial: int
@@ -509,6 +512,14 @@ def rank_study(
             room = leeway(entries[0].indices, space,
                           evaluator.first(ROBUSTNESS_REALISATIONS), ridden)  # fmt: skip
         entries[0] = _replace(entries[0], leeway=room)
+        if validate and not quick:
+            # past the leeway's ends with another setting following: the setups as good as #1
+            # that settle the span of settings that trade (a quick look's leeway walked on
+            # the search's realisations: nothing there to walk on from)
+            listed = {point_key(a["indices"]) for a in entries[0].as_good}
+            found = [f for f in together(entries[0].indices, room, space, evaluator, validation)
+                     if point_key(f["indices"]) not in listed]  # fmt: skip
+            entries[0] = _replace(entries[0], as_good=[*entries[0].as_good, *found])
         entries = [
             _replace(
                 e,

@@ -59,6 +59,7 @@ __all__ = [
     "ROUNDS",
     "SECOND_LOOKS",
     "Refined",
+    "end_of",
     "refine",
     "spring_pairs",
 ]
@@ -210,7 +211,7 @@ def _second_look(
     return (names, q, both[:n], both[n:], figures), own_further
 
 
-def _end(name: str) -> str:
+def end_of(name: str) -> str:
     """The end of the bike a setting belongs to ("" for none)."""
     if name.startswith(("fork.", "front_")):
         return "front"
@@ -226,7 +227,7 @@ def spring_pairs(space: SearchSpace) -> list[tuple[str, str]]:
         (s, p.name)
         for s in springs
         for p in space.parameters
-        if p.name != s and _end(p.name) == _end(s) != ""
+        if p.name != s and end_of(p.name) == end_of(s) != ""
     ]
 
 

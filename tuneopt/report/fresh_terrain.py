@@ -266,20 +266,27 @@ def as_good_spans(result: RunResult) -> dict[str, tuple[int, int, str, str]]:
 
 
 def as_good_lines(result: RunResult) -> list[str]:
-    """Two sentences when other finalists ride within FLAT of #1 on average on the validation
-    set: each with the settings where it differs from #1 and its cost's interval, then how far
-    the settings range over them (empty otherwise)."""
+    """Two sentences when other finalists, or setups found past #1's leeway with another
+    setting following (``together.together``), ride within FLAT of #1 on average on the
+    validation set: each with the settings where it differs from #1 and its cost's interval,
+    then how far the settings range over them (empty otherwise)."""
     if not result.ranked or not result.ranked[0].as_good:
         return []
     best = result.ranked[0]
     listed = len(result.ranked)
     parts = []
     for other in best.as_good:
-        rank = int(other["rank"])
-        name = (
-            "the current setup" if other.get("baseline")
-            else f"#{rank}" if rank <= listed else f"finalist {rank} (not listed)"
-        )  # fmt: skip
+        if other.get("moved"):  # found past #1's leeway with other settings following
+            followers = " and ".join(result.label(k) for k in other.get("followed_by", ()))
+            name = (
+                f"{result.label(other['moved'])} taken past its leeway"
+                + (f" with {followers} following" if followers else "")
+            )
+        elif other.get("baseline"):
+            name = "the current setup"
+        else:
+            rank = int(other["rank"])
+            name = f"#{rank}" if rank <= listed else f"finalist {rank} (not listed)"
         moved = [
             f"{result.label(k)} {v}" for k, v in other["settings"].items()
             if best.settings.get(k) != v

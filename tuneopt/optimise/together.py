@@ -1,0 +1,175 @@
+"""Past #1's leeway with another setting following: setups as good as #1 that the one-setting
+leeway cannot see.
+
+The leeway (``robustness.leeway``) moves one setting with every other held. Where two settings
+trade, the score rises as either moves alone while it stays flat as both move together, and the
+leeway says the setting is pinned where it is not: on the trail demo bike three study seeds'
+winners rode within 0.2 % of one another on 100 fresh realisations with the shock's low-speed
+rebound at 7, 10 and 14 clicks and its low-speed compression at 0, 0 and 3, while one study's
+leeway kept its rebound to 9-14.
+
+So each walk of the leeway that ended on the score is taken on past that end, one robustness
+step at a time (at most ``TOGETHER_STEPS``), with one other setting of the same end of the
+bike (``refine.spring_pairs``' ends: the fork's settings and the front tyre, the shock's and
+the rear tyre) moved one step either way. The follower is chosen on the first ``CHOOSE``
+realisations of the selection set (the best mean score there), and judged on the validation
+set, which chose nothing, by the rule of ``ranking.as_good``: its mean cost against #1 under
+``robustness.FLAT`` of #1's score. A walk goes on from a setup found as good, and ends at the
+first that is not. The farthest setup each walk found as good joins #1's ``as_good`` setups,
+with what moved it: the report shows them with their costs, and the span of the settings over
+them says how far the course leaves a setting free when another follows it.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from tuneopt.optimise.evaluate import Evaluator, Outcome
+from tuneopt.optimise.polish import point_key
+from tuneopt.optimise.refine import end_of
+from tuneopt.optimise.robustness import FLAT, MAX_BATCH
+from tuneopt.optimise.space import SearchSpace
+from tuneopt.optimise.validation import (
+    compare_scores,
+    selection_evaluator,
+    validation_outcomes,
+)
+
+__all__ = ["CHOOSE", "TOGETHER_STEPS", "together"]
+
+# Steps past the leeway's end a walk with a follower takes at most (each costs a choice among
+# some ten followers and a ride of the validation set).
+TOGETHER_STEPS = 3
+# Selection realisations a follower is chosen on (as many as a leeway look, ``robustness.LOOK``:
+# the choice needs no proof, the validation set judges it).
+CHOOSE = 8
+# The choosing realisations' courses are kept while every walk chooses, when they fit in this
+# (8 realisations of the enduro demo's course take about 50 MiB).
+CHOOSE_COURSES_BYTES = 256 * 2**20
+
+
+@dataclass
+class _Walk:
+    setting: str
+    sign: int
+    at: dict[str, int]  # the last point found as good (#1 with the setting at its band's end)
+    found: dict[str, Any] | None = None  # the farthest as-good entry so far
+    steps: int = 0
+
+
+def _followers(space: SearchSpace, point: dict[str, int], moved: str) -> list[dict[str, int]]:
+    """``point`` with each other setting of ``moved``'s end stepped once either way (a step
+    that would leave the range is no follower)."""
+    end = end_of(moved)
+    out = []
+    for p in space.parameters:
+        if p.name == moved or end_of(p.name) != end or end == "":
+            continue
+        for sign in (-1, 1):
+            j = p.stepped(point[p.name], sign)
+            if j != point[p.name]:
+                out.append({**point, p.name: j})
+    return out
+
+
+def _ride(ev: Evaluator, space: SearchSpace, points: list[dict[str, int]]) -> list[Outcome]:
+    out: list[Outcome] = []
+    for a in range(0, len(points), MAX_BATCH):
+        out.extend(ev.evaluate([space.setup(p) for p in points[a : a + MAX_BATCH]]))
+    return out
+
+
+def _chosen(outs: list[Outcome], n: int) -> int | None:
+    """The follower with the lowest mean score over all ``n`` choosing realisations."""
+    means = [
+        float(np.mean(o.scores)) if o.ok and len(o.scores) == n else np.inf for o in outs
+    ]
+    best = int(np.argmin(means)) if means else 0
+    return best if means and np.isfinite(means[best]) else None
+
+
+def together(
+    point: Mapping[str, int],
+    room: Mapping[str, Mapping[str, Any]],
+    space: SearchSpace,
+    evaluator: Evaluator,
+    validation: int,
+    steps: int = TOGETHER_STEPS,
+) -> list[dict[str, Any]]:
+    """The farthest setup as good as ``point`` (#1, whose leeway is ``room``) that each walk
+    past a leeway end found with one other setting following (see the module's docstring), as
+    ``ranking.as_good`` gives its entries (``rank`` and ``trial`` None), with ``moved`` (the
+    setting walked), ``steps`` (how many robustness steps past the band's end) and
+    ``followed_by`` (the settings that moved with it); one entry per setup (two walks may end
+    on the same one). ``evaluator`` is the search's: these ride its study's selection and
+    validation sets."""
+    here = {k: int(v) for k, v in point.items()}
+    walks = [
+        _Walk(name, sign, {**here, name: int(band["low" if sign < 0 else "high"])})
+        for name, band in room.items()
+        for sign in (-1, 1)
+        if band.get("down" if sign < 0 else "up") == "score" and name in here
+    ]
+    if not walks:
+        return []
+    every = list(walks)
+    choose = selection_evaluator(evaluator, CHOOSE).kept(CHOOSE_COURSES_BYTES)
+    chosen_on: dict[tuple[tuple[str, int], ...], Outcome] = {}  # rides on the choosing set
+    for _ in range(steps):
+        asked: list[tuple[_Walk, list[dict[str, int]]]] = []
+        for w in walks:
+            j = space[w.setting].stepped(w.at[w.setting], w.sign)
+            if j != w.at[w.setting]:  # not at the range's end
+                asked.append((w, _followers(space, {**w.at, w.setting: j}, w.setting)))
+        new = list({point_key(q): q for _, cands in asked for q in cands
+                    if point_key(q) not in chosen_on}.values())  # fmt: skip
+        for q, o in zip(new, _ride(choose, space, new), strict=True):
+            chosen_on[point_key(q)] = o
+        picks = [
+            (w, cands[k]) for w, cands in asked
+            if cands and (k := _chosen([chosen_on[point_key(q)] for q in cands], CHOOSE))
+            is not None
+        ]  # fmt: skip
+        if not picks:
+            break
+        judged_points = list({point_key(q): q for _, q in picks}.values())
+        judged, ridden = validation_outcomes(
+            evaluator, [space.setup(p) for p in [here, *judged_points]], validation
+        )
+        own = judged[0]
+        if not own.ok:  # #1 itself rode none of them: nothing to judge against
+            break
+        on_validation = dict(zip([point_key(p) for p in judged_points], judged[1:], strict=True))
+        going: list[_Walk] = []
+        for w, q in picks:
+            o = on_validation[point_key(q)]
+            if not o.ok:
+                continue
+            vs = compare_scores(o.scores, own.scores)
+            if -vs.gain >= FLAT:
+                continue
+            w.at, w.steps = q, w.steps + 1
+            w.found = {
+                "rank": None,
+                "trial": None,
+                "baseline": False,
+                "indices": dict(q),
+                "settings": space.describe(q),
+                "cost": -vs.gain,
+                "cost_low": -vs.gain_high,
+                "cost_high": -vs.gain_low,
+                "realisations": ridden,
+                "moved": w.setting,
+                "steps": w.steps,
+                "followed_by": sorted(k for k in q if k != w.setting and q[k] != here[k]),
+            }
+            going.append(w)
+        walks = going
+        if not walks:
+            break
+    found = {point_key(w.found["indices"]): w.found for w in every if w.found is not None}
+    return list(found.values())
