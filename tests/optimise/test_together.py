@@ -11,7 +11,7 @@ import pytest
 
 from tuneopt.optimise import Evaluator, together
 from tuneopt.optimise.evaluate import Outcome
-from tuneopt.optimise.robustness import FLAT, leeway
+from tuneopt.optimise.robustness import FLAT, LOOK, leeway
 from tuneopt.optimise.space import Parameter, SearchSpace
 from tuneopt.optimise.together import CHOOSE, TOGETHER_STEPS
 
@@ -36,23 +36,33 @@ def _space() -> SearchSpace:
 
 
 class _Rides:
-    """Scores BASE + penalty(point) on each of ``n`` realisations, each with a difficulty of
-    its own that every point shares (common random numbers: it cancels in a paired
-    difference); counts the rides."""
+    """Scores BASE + penalty(point) on each realisation, each with a difficulty of its own that
+    every point shares (common random numbers: it cancels in a paired difference); counts the
+    rides, its parts' included."""
 
     def __init__(self, penalty: Penalty, n: int, seed: int) -> None:
-        self.penalty, self.realisations = penalty, n
+        self.penalty = penalty
         self.difficulty = np.random.default_rng(seed).normal(0.0, 0.5, size=n)
-        self.rides = 0
+        self.rides = [0]
+
+    @property
+    def realisations(self) -> int:
+        return int(self.difficulty.size)
 
     def kept(self, max_bytes: int) -> _Rides:
         return self
 
+    def part(self, a: int, b: int) -> _Rides:
+        other = object.__new__(_Rides)
+        other.penalty, other.rides = self.penalty, self.rides
+        other.difficulty = self.difficulty[a:b]
+        return other
+
     def first(self, n: int) -> _Rides:
-        return self
+        return self.part(0, n)
 
     def evaluate(self, setups: Sequence[Mapping[str, int]], **_: Any) -> list[Outcome]:
-        self.rides += len(setups) * self.realisations
+        self.rides[0] += len(setups) * self.realisations
         out = []
         for p in setups:
             scores = tuple(BASE + self.penalty(p) + self.difficulty)
@@ -60,23 +70,23 @@ class _Rides:
         return out
 
 
-def _wired(
+def _together(
     monkeypatch: pytest.MonkeyPatch, choosing: Penalty, judging: Penalty
-) -> tuple[_Rides, _Rides]:
-    """``together``'s selection set scored by ``choosing``, its validation set by ``judging``."""
+) -> tuple[list[dict[str, Any]], _Rides]:
+    """``together`` from the centre, its leeway walked on ``choosing`` noise-free, the
+    followers chosen on a selection set scored by ``choosing`` and judged on a validation set
+    of 40 scored by ``judging``; what it found, and the validation set."""
     chooser, judge = _Rides(choosing, CHOOSE, seed=1), _Rides(judging, 40, seed=2)
 
     def selection(search: Any, count: int) -> _Rides:
         assert count == CHOOSE
         return chooser
 
-    def validation(search: Any, setups: Sequence[Any], count: int) -> tuple[list[Outcome], int]:
-        assert count == 40
-        return judge.evaluate(setups), 40
-
     monkeypatch.setattr(together, "selection_evaluator", selection)
-    monkeypatch.setattr(together, "validation_outcomes", validation)
-    return chooser, judge
+    found = together.together(
+        _centre(), _room(choosing), _space(), cast(Evaluator, None), cast(Evaluator, judge)
+    )
+    return found, judge
 
 
 def _valley(p: Mapping[str, int]) -> float:
@@ -111,8 +121,7 @@ def test_a_trade_the_leeway_calls_pinned_is_walked_with_its_follower(
         assert (room[name]["low"], room[name]["high"]) == (CENTRE, CENTRE)
         assert room[name]["down"] == room[name]["up"] == "score"
     assert room["shock.lsc"]["down"] == room["shock.lsc"]["up"] == "walk limit"
-    _wired(monkeypatch, _valley, _valley)
-    found = together.together(_centre(), room, _space(), cast(Evaluator, None), 40)
+    found, _ = _together(monkeypatch, _valley, _valley)
     ends = {(f["indices"]["fork.lsc"], f["indices"]["fork.lsr"]) for f in found}
     far = TOGETHER_STEPS
     assert ends == {(CENTRE - far, CENTRE - far), (CENTRE + far, CENTRE + far)}
@@ -127,11 +136,11 @@ def test_a_trade_the_leeway_calls_pinned_is_walked_with_its_follower(
 def test_a_bowl_has_no_setup_as_good_past_its_leeway(monkeypatch: pytest.MonkeyPatch) -> None:
     """A bowl: every follower of a step past the leeway costs at least 0.2 + 0.2 (4 % of the
     score): nothing is found, and each walk is judged once [D]."""
-    room = _room(_bowl)
-    _, judge = _wired(monkeypatch, _bowl, _bowl)
-    assert together.together(_centre(), room, _space(), cast(Evaluator, None), 40) == []
-    # one round: #1 and the distinct picks of the four walks that ended on the score
-    assert judge.rides <= 40 * (1 + 4)
+    found, judge = _together(monkeypatch, _bowl, _bowl)
+    assert found == []
+    # one round: #1 on all 40, and the distinct picks of the four walks that ended on the
+    # score, each dropped after its first look of LOOK (its cost, 4 %, over FLAT beyond doubt)
+    assert judge.rides[0] == 40 + LOOK * 3
 
 
 def test_the_follower_chosen_on_the_selection_set_is_judged_on_the_validation_set(
@@ -141,9 +150,8 @@ def test_the_follower_chosen_on_the_selection_set_is_judged_on_the_validation_se
     set there is no valley (a bowl). The followers chosen on the first are judged on the
     second, which finds them dear: nothing is called as good, however good they looked where
     they were chosen [D]."""
-    room = _room(_valley)
-    _wired(monkeypatch, _valley, _bowl)
-    assert together.together(_centre(), room, _space(), cast(Evaluator, None), 40) == []
+    found, _ = _together(monkeypatch, _valley, _bowl)
+    assert found == []
 
 
 def test_a_cost_just_under_flat_counts_and_just_over_does_not(
@@ -158,9 +166,7 @@ def test_a_cost_just_under_flat_counts_and_just_over_does_not(
         cost = {0: 0.0, 1: 0.9 * FLAT, 2: 1.1 * FLAT}.get(off, 1.0)
         return _valley(p) + BASE * cost
 
-    room = _room(gentle)
-    _, judge = _wired(monkeypatch, gentle, gentle)
-    found = together.together(_centre(), room, _space(), cast(Evaluator, None), 40)
+    found, judge = _together(monkeypatch, gentle, gentle)
     assert found and all(f["steps"] == 1 for f in found)
     assert {abs(f["indices"]["fork.lsc"] - CENTRE) for f in found} == {1}
     # a cost is a share of #1's mean score over the validation realisations

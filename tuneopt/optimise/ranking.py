@@ -242,8 +242,10 @@ def _distinct_best(feasible: Sequence[FrozenTrial], count: int) -> list[FrozenTr
 REFINE_STARTS = 2
 # The moves' realisations are built once and kept while every start is moved, when they fit in
 # this much memory (the trail demo's 40 take 142 MiB, the enduro demo's 246 MiB; built again
-# for each batch, they took a fifth of the moves' time on the trail demo); a longer course's
-# are built again for each batch, as the validation's are.
+# for each batch, they took a fifth of the moves' time on the trail demo), with the further
+# ones the second looks ride when all 80 fit (on a heavy trail demo study the moves took 50
+# instead of 55 s); a longer course's are built again for each batch, as the validation's
+# are. The leeway's validation stream (80) and the walks past it keep theirs by this bound too.
 REFINE_COURSES_BYTES = 512 * 2**20
 
 
@@ -268,7 +270,13 @@ def _with_refined_pick(
     n = table.shape[1]
     # a move in doubt there rides as many further realisations of the selection set's stream
     stream = selection_evaluator(evaluator, 2 * n)
-    moves_on = stream.first(n).kept(REFINE_COURSES_BYTES)
+    # the whole stream's courses kept when they fit (the second looks ride the further ones
+    # again in every round that reaches them), else the moves' own
+    whole = stream.kept(REFINE_COURSES_BYTES)
+    if whole is not stream:
+        stream, moves_on = whole, whole.first(n)
+    else:
+        moves_on = stream.first(n).kept(REFINE_COURSES_BYTES)
     for row in [i for i in order[:starts] if np.isfinite(means[i])]:
         start = entries[row]  # rows keep their place: a moved setup joins at the end
         if start.refined:  # an earlier start's moves ended here: no move gained from it
@@ -506,8 +514,11 @@ def rank_study(
             # looks dearer than it is; 40 paired realisations also tell a rise of FLAT from the
             # noise where the robustness steps' 4 could not, and a step still in doubt after
             # them rides on further ones of the same stream (LEEWAY_DEPTH)
-            room = leeway(entries[0].indices, space,
-                          validation_evaluator(evaluator, LEEWAY_DEPTH * validation))  # fmt: skip
+            # its courses kept while the leeway and the walks past it ride them (when they fit)
+            stream = validation_evaluator(evaluator, LEEWAY_DEPTH * validation).kept(
+                REFINE_COURSES_BYTES
+            )
+            room = leeway(entries[0].indices, space, stream)
         else:  # its first steps are the robustness steps of #1
             room = leeway(entries[0].indices, space,
                           evaluator.first(ROBUSTNESS_REALISATIONS), ridden)  # fmt: skip
@@ -517,8 +528,9 @@ def rank_study(
             # that settle the span of settings that trade (a quick look's leeway walked on
             # the search's realisations: nothing there to walk on from)
             listed = {point_key(a["indices"]) for a in entries[0].as_good}
-            found = [f for f in together(entries[0].indices, room, space, evaluator, validation)
-                     if point_key(f["indices"]) not in listed]  # fmt: skip
+            found = together(entries[0].indices, room, space, evaluator,
+                             stream.first(validation))  # fmt: skip
+            found = [f for f in found if point_key(f["indices"]) not in listed]
             entries[0] = _replace(entries[0], as_good=[*entries[0].as_good, *found])
         entries = [
             _replace(

@@ -14,10 +14,13 @@ bike (``refine.spring_pairs``' ends: the fork's settings and the front tyre, the
 the rear tyre) moved one step either way. The follower is chosen on the first ``CHOOSE``
 realisations of the selection set (the best mean score there), and judged on the validation
 set, which chose nothing, by the rule of ``ranking.as_good``: its mean cost against #1 under
-``robustness.FLAT`` of #1's score. A walk goes on from a setup found as good, and ends at the
-first that is not. The farthest setup each walk found as good joins #1's ``as_good`` setups,
-with what moved it: the report shows them with their costs, and the span of the settings over
-them says how far the course leaves a setting free when another follows it.
+``robustness.FLAT`` of #1's score over all of it, ridden ``robustness.LOOK`` realisations at a
+time, a setup whose cost is over FLAT beyond doubt after a look (the leeway's
+``LOOK_CONFIDENCE``) riding no more of them. A walk goes on from a setup found as good, and
+ends at the first that is not. The farthest setup each walk found as good joins #1's
+``as_good`` setups, with what moved it: the report shows them with their costs, and the span
+of the settings over them says how far the course leaves a setting free when another follows
+it.
 """
 
 from __future__ import annotations
@@ -28,15 +31,15 @@ from typing import Any
 
 import numpy as np
 
-from tuneopt.optimise.evaluate import Evaluator, Outcome
+from tuneopt.optimise.evaluate import Evaluator, Outcome, paired_interval
 from tuneopt.optimise.polish import point_key
 from tuneopt.optimise.refine import end_of
-from tuneopt.optimise.robustness import FLAT, MAX_BATCH
+from tuneopt.optimise.robustness import FLAT, LOOK, LOOK_CONFIDENCE, MAX_BATCH
 from tuneopt.optimise.space import SearchSpace
 from tuneopt.optimise.validation import (
+    Comparison,
     compare_scores,
     selection_evaluator,
-    validation_outcomes,
 )
 
 __all__ = ["CHOOSE", "TOGETHER_STEPS", "together"]
@@ -44,11 +47,12 @@ __all__ = ["CHOOSE", "TOGETHER_STEPS", "together"]
 # Steps past the leeway's end a walk with a follower takes at most (each costs a choice among
 # some ten followers and a ride of the validation set).
 TOGETHER_STEPS = 3
-# Selection realisations a follower is chosen on (as many as a leeway look, ``robustness.LOOK``:
-# the choice needs no proof, the validation set judges it).
-CHOOSE = 8
+# Selection realisations a follower is chosen on (the choice needs no proof, the validation set
+# judges it; on the trail demo the choice of some ten followers for each of 16 walks on 8
+# realisations took 5 of the walks' 8.6 s).
+CHOOSE = 4
 # The choosing realisations' courses are kept while every walk chooses, when they fit in this
-# (8 realisations of the enduro demo's course take about 50 MiB).
+# (4 realisations of the enduro demo's course take about 25 MiB).
 CHOOSE_COURSES_BYTES = 256 * 2**20
 
 
@@ -92,12 +96,52 @@ def _chosen(outs: list[Outcome], n: int) -> int | None:
     return best if means and np.isfinite(means[best]) else None
 
 
+def _own(judge: Evaluator, space: SearchSpace, here: dict[str, int]) -> np.ndarray | None:
+    """#1's scores on every realisation of ``judge`` (None when it misses one)."""
+    o = _ride(judge, space, [here])[0]
+    if not o.ok or len(o.scores) != judge.realisations:
+        return None
+    return np.asarray(o.scores, dtype=float)
+
+
+def _judged(
+    judge: Evaluator, space: SearchSpace, points: list[dict[str, int]], own: np.ndarray
+) -> dict[tuple[tuple[str, int], ...], Comparison | None]:
+    """Each point against #1 (scores ``own``) on every realisation of ``judge``, ridden
+    ``LOOK`` realisations at a time: a point whose cost is over FLAT beyond doubt (a paired
+    interval at ``LOOK_CONFIDENCE``) after a look rides no more of them, nor does one that
+    misses a realisation (None for both)."""
+    n = judge.realisations
+    scale = abs(float(np.mean(own))) or 1.0
+    rode: dict[tuple[tuple[str, int], ...], list[float]] = {point_key(p): [] for p in points}
+    open_ = list(points)
+    for a in range(0, n, LOOK):
+        look = judge.part(a, min(a + LOOK, n)) if n > LOOK else judge
+        nxt = []
+        for p, o in zip(open_, _ride(look, space, open_), strict=True):
+            key = point_key(p)
+            if not o.ok or len(o.scores) != look.realisations:
+                rode[key] = []
+                continue
+            rode[key].extend(float(v) for v in o.scores)
+            m = len(rode[key])
+            _, low, _ = paired_interval(np.asarray(rode[key]) - own[:m], LOOK_CONFIDENCE)
+            if m == n or low / scale <= FLAT:
+                nxt.append(p)
+            else:
+                rode[key] = []  # dearer than FLAT beyond doubt: not as good
+        open_ = [p for p in nxt if len(rode[point_key(p)]) < n]
+        if not open_:
+            break
+    return {k: compare_scores(v, own.tolist()) if len(v) == n else None for k, v in rode.items()}
+
+
 def together(
     point: Mapping[str, int],
     room: Mapping[str, Mapping[str, Any]],
     space: SearchSpace,
     evaluator: Evaluator,
-    validation: int,
+    judge: Evaluator,
     steps: int = TOGETHER_STEPS,
 ) -> list[dict[str, Any]]:
     """The farthest setup as good as ``point`` (#1, whose leeway is ``room``) that each walk
@@ -105,8 +149,9 @@ def together(
     ``ranking.as_good`` gives its entries (``rank`` and ``trial`` None), with ``moved`` (the
     setting walked), ``steps`` (how many robustness steps past the band's end) and
     ``followed_by`` (the settings that moved with it); one entry per setup (two walks may end
-    on the same one). ``evaluator`` is the search's: these ride its study's selection and
-    validation sets."""
+    on the same one). ``evaluator`` is the search's, whose study's selection set chooses the
+    followers; ``judge`` rides that study's validation set (the caller's, its courses perhaps
+    kept)."""
     here = {k: int(v) for k, v in point.items()}
     walks = [
         _Walk(name, sign, {**here, name: int(band["low" if sign < 0 else "high"])})
@@ -118,6 +163,7 @@ def together(
         return []
     every = list(walks)
     choose = selection_evaluator(evaluator, CHOOSE).kept(CHOOSE_COURSES_BYTES)
+    own: np.ndarray | None = None  # #1's scores on the validation set
     chosen_on: dict[tuple[tuple[str, int], ...], Outcome] = {}  # rides on the choosing set
     for _ in range(steps):
         asked: list[tuple[_Walk, list[dict[str, int]]]] = []
@@ -137,20 +183,15 @@ def together(
         if not picks:
             break
         judged_points = list({point_key(q): q for _, q in picks}.values())
-        judged, ridden = validation_outcomes(
-            evaluator, [space.setup(p) for p in [here, *judged_points]], validation
-        )
-        own = judged[0]
-        if not own.ok:  # #1 itself rode none of them: nothing to judge against
-            break
-        on_validation = dict(zip([point_key(p) for p in judged_points], judged[1:], strict=True))
+        if own is None:  # #1 on the validation set, once
+            own = _own(judge, space, here)
+            if own is None:  # #1 itself did not ride every realisation: nothing to judge by
+                break
+        on_validation = _judged(judge, space, judged_points, own)
         going: list[_Walk] = []
         for w, q in picks:
-            o = on_validation[point_key(q)]
-            if not o.ok:
-                continue
-            vs = compare_scores(o.scores, own.scores)
-            if -vs.gain >= FLAT:
+            vs = on_validation[point_key(q)]
+            if vs is None or -vs.gain >= FLAT:
                 continue
             w.at, w.steps = q, w.steps + 1
             w.found = {
@@ -162,7 +203,7 @@ def together(
                 "cost": -vs.gain,
                 "cost_low": -vs.gain_high,
                 "cost_high": -vs.gain_low,
-                "realisations": ridden,
+                "realisations": vs.realisations,
                 "moved": w.setting,
                 "steps": w.steps,
                 "followed_by": sorted(k for k in q if k != w.setting and q[k] != here[k]),
