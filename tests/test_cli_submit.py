@@ -196,3 +196,11 @@ def test_a_folder_with_several_scenarios_asks_which(capsys: pytest.CaptureFixtur
     assert "trail_air.toml," not in err  # the wet loop's base is no choice of its own
     assert main(["submit", str(SCENARIOS), "--scenario-file", "nope.toml", "--api", NOWHERE]) == 2
     assert "--scenario-file: no file 'nope.toml'" in capsys.readouterr().err
+
+
+def test_the_validation_limit_is_the_services() -> None:
+    """tuneopt submit checks --validation against the API's own bound before sending (kept as
+    a number of its own so that the client does not load the simulator to read it)."""
+    from tuneopt.optimise.validation import MAX_VALIDATION
+
+    assert submit.MAX_VALIDATION == MAX_VALIDATION

@@ -269,14 +269,11 @@ def _with_refined_pick(
     order = [int(i) for i in np.argsort(np.where(np.isfinite(means), means, np.inf))]
     n = table.shape[1]
     # a move in doubt there rides as many further realisations of the selection set's stream
-    stream = selection_evaluator(evaluator, 2 * n)
     # the whole stream's courses kept when they fit (the second looks ride the further ones
-    # again in every round that reaches them), else the moves' own
-    whole = stream.kept(REFINE_COURSES_BYTES)
-    if whole is not stream:
-        stream, moves_on = whole, whole.first(n)
-    else:
-        moves_on = stream.first(n).kept(REFINE_COURSES_BYTES)
+    # again in every round that reaches them), else the moves' own (a part of a kept
+    # evaluator is kept already)
+    stream = selection_evaluator(evaluator, 2 * n).kept(REFINE_COURSES_BYTES)
+    moves_on = stream.first(n).kept(REFINE_COURSES_BYTES)
     for row in [i for i in order[:starts] if np.isfinite(means[i])]:
         start = entries[row]  # rows keep their place: a moved setup joins at the end
         if start.refined:  # an earlier start's moves ended here: no move gained from it
@@ -519,19 +516,17 @@ def rank_study(
                 REFINE_COURSES_BYTES
             )
             room = leeway(entries[0].indices, space, stream)
-        else:  # its first steps are the robustness steps of #1
+            # past the leeway's ends with another setting following: the setups as good as #1
+            # that settle the span of settings that trade
+            listed = {point_key(a["indices"]) for a in entries[0].as_good}
+            found = [f for f in together(entries[0].indices, room, space, evaluator,
+                                         stream.first(validation))
+                     if point_key(f["indices"]) not in listed]  # fmt: skip
+        else:  # its first steps are the robustness steps of #1; nothing to walk on from
             room = leeway(entries[0].indices, space,
                           evaluator.first(ROBUSTNESS_REALISATIONS), ridden)  # fmt: skip
-        entries[0] = _replace(entries[0], leeway=room)
-        if validate and not quick:
-            # past the leeway's ends with another setting following: the setups as good as #1
-            # that settle the span of settings that trade (a quick look's leeway walked on
-            # the search's realisations: nothing there to walk on from)
-            listed = {point_key(a["indices"]) for a in entries[0].as_good}
-            found = together(entries[0].indices, room, space, evaluator,
-                             stream.first(validation))  # fmt: skip
-            found = [f for f in found if point_key(f["indices"]) not in listed]
-            entries[0] = _replace(entries[0], as_good=[*entries[0].as_good, *found])
+            found = []
+        entries[0] = _replace(entries[0], leeway=room, as_good=[*entries[0].as_good, *found])
         entries = [
             _replace(
                 e,

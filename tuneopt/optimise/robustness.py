@@ -21,6 +21,8 @@ __all__ = [
     "LOOK_CONFIDENCE",
     "ROBUSTNESS_REALISATIONS",
     "leeway",
+    "looks",
+    "ride_points",
     "robustness_fields",
 ]
 
@@ -87,14 +89,16 @@ MAX_BATCH = 64
 Ridden = dict[tuple[tuple[str, int], ...], Outcome]
 
 
-def _ride(
+def ride_points(
     ev: Evaluator, space: SearchSpace, points: Sequence[dict[str, int]], ridden: Ridden
 ) -> list[Outcome]:
-    """Each point's outcome on ``ev``'s realisations, riding (in one batch) only those
-    ``ridden`` does not hold yet, and keeping them there."""
+    """Each point's outcome on ``ev``'s realisations, riding (in batches of at most
+    ``MAX_BATCH``) only those ``ridden`` does not hold yet, each once, and keeping them there."""
     new = list({point_key(p): p for p in points if point_key(p) not in ridden}.values())
-    for p, o in zip(new, ev.evaluate([space.setup(p) for p in new]), strict=True):
-        ridden[point_key(p)] = o
+    for a in range(0, len(new), MAX_BATCH):
+        batch = new[a : a + MAX_BATCH]
+        for p, o in zip(batch, ev.evaluate([space.setup(p) for p in batch]), strict=True):
+            ridden[point_key(p)] = o
     return [ridden[point_key(p)] for p in points]
 
 
@@ -117,7 +121,7 @@ def robustness_fields(
         jobs.extend((k, name, side, pt) for name, side, pt in _neighbours(space, idx))
         jobs.extend((k, f"trade:{end}", side, pt)
                     for end, side, pt in _spring_trades(space, idx, evaluator))  # fmt: skip
-    scored = iter(_ride(ev, space, [pt for *_, pt in jobs if pt is not None], ridden))
+    scored = iter(ride_points(ev, space, [pt for *_, pt in jobs if pt is not None], ridden))
     outcomes = [next(scored) if pt is not None else None for *_, pt in jobs]
     out: list[dict[str, Any] | None] = []
     for k in range(len(points)):
@@ -191,7 +195,7 @@ def _range_end(p: Parameter, sign: int) -> int:
     return 0 if sign < 0 else len(p.values) - 1
 
 
-def _looks(evaluator: Evaluator, ridden: Ridden | None) -> list[tuple[Evaluator, Ridden]]:
+def looks(evaluator: Evaluator, ridden: Ridden | None) -> list[tuple[Evaluator, Ridden]]:
     """``evaluator``'s realisations in runs of ``LOOK``, each with the outcomes ridden on it
     (``ridden`` holds those on all of them, when they make one run)."""
     n = evaluator.realisations
@@ -243,8 +247,8 @@ def leeway(
     window", "failed", "walk limit"), and ``realisations``, how many the walk could ride. Empty
     when the setup itself does not ride. Points ``ridden`` holds (outcomes on the same
     realisations) are not ridden again."""
-    looks = _looks(evaluator, ridden)
-    owns = [_ride(ev, space, [point], cache)[0] for ev, cache in looks]
+    parts = looks(evaluator, ridden)
+    owns = [ride_points(ev, space, [point], cache)[0] for ev, cache in parts]
     if not all(o.ok for o in owns):
         return {}
     own_scores = [np.asarray(o.scores, dtype=float) for o in owns]
@@ -255,8 +259,8 @@ def leeway(
         key: [None] * len(path) for key, path in walks.items()
     }
     rises: dict[tuple[tuple[str, int], int], list[np.ndarray]] = {}
-    for k, ((ev, cache), own) in enumerate(zip(looks, own_scores, strict=True)):
-        last = k == len(looks) - 1
+    for k, ((ev, cache), own) in enumerate(zip(parts, own_scores, strict=True)):
+        last = k == len(parts) - 1
         open_ = [
             (key, i) for key, steps in state.items()
             for i in range(_walk_end(steps)) if steps[i] is None
@@ -264,9 +268,7 @@ def leeway(
         if not open_:
             break
         points = [{**point, key[0]: walks[key][i]} for key, i in open_]
-        outs: list[Outcome] = []
-        for a in range(0, len(points), MAX_BATCH):
-            outs.extend(_ride(ev, space, points[a : a + MAX_BATCH], cache))
+        outs = ride_points(ev, space, points, cache)
         for (key, i), o in zip(open_, outs, strict=True):
             if not o.ok:
                 state[key][i] = _failure(o)

@@ -34,7 +34,7 @@ import numpy as np
 from tuneopt.optimise.evaluate import Evaluator, Outcome, paired_interval
 from tuneopt.optimise.polish import point_key
 from tuneopt.optimise.refine import end_of
-from tuneopt.optimise.robustness import FLAT, LOOK, LOOK_CONFIDENCE, MAX_BATCH
+from tuneopt.optimise.robustness import FLAT, LOOK_CONFIDENCE, Ridden, looks, ride_points
 from tuneopt.optimise.space import SearchSpace
 from tuneopt.optimise.validation import (
     Comparison,
@@ -80,25 +80,18 @@ def _followers(space: SearchSpace, point: dict[str, int], moved: str) -> list[di
     return out
 
 
-def _ride(ev: Evaluator, space: SearchSpace, points: list[dict[str, int]]) -> list[Outcome]:
-    out: list[Outcome] = []
-    for a in range(0, len(points), MAX_BATCH):
-        out.extend(ev.evaluate([space.setup(p) for p in points[a : a + MAX_BATCH]]))
-    return out
-
-
 def _chosen(outs: list[Outcome], n: int) -> int | None:
-    """The follower with the lowest mean score over all ``n`` choosing realisations."""
-    means = [
-        float(np.mean(o.scores)) if o.ok and len(o.scores) == n else np.inf for o in outs
-    ]
-    best = int(np.argmin(means)) if means else 0
-    return best if means and np.isfinite(means[best]) else None
+    """The follower with the lowest mean score over all ``n`` choosing realisations (None when
+    none rode them all)."""
+    means = [float(np.mean(o.scores)) if o.ok and len(o.scores) == n else np.inf for o in outs]
+    if not means or not np.isfinite(min(means)):
+        return None
+    return int(np.argmin(means))
 
 
 def _own(judge: Evaluator, space: SearchSpace, here: dict[str, int]) -> np.ndarray | None:
     """#1's scores on every realisation of ``judge`` (None when it misses one)."""
-    o = _ride(judge, space, [here])[0]
+    o = ride_points(judge, space, [here], {})[0]
     if not o.ok or len(o.scores) != judge.realisations:
         return None
     return np.asarray(o.scores, dtype=float)
@@ -107,30 +100,28 @@ def _own(judge: Evaluator, space: SearchSpace, here: dict[str, int]) -> np.ndarr
 def _judged(
     judge: Evaluator, space: SearchSpace, points: list[dict[str, int]], own: np.ndarray
 ) -> dict[tuple[tuple[str, int], ...], Comparison | None]:
-    """Each point against #1 (scores ``own``) on every realisation of ``judge``, ridden
-    ``LOOK`` realisations at a time: a point whose cost is over FLAT beyond doubt (a paired
-    interval at ``LOOK_CONFIDENCE``) after a look rides no more of them, nor does one that
-    misses a realisation (None for both)."""
+    """Each point against #1 (scores ``own``) on every realisation of ``judge``, ridden in the
+    leeway's looks (``robustness.looks``): a point whose cost is over FLAT beyond doubt (a
+    paired interval at ``LOOK_CONFIDENCE``) after a look rides no more of them, nor does one
+    that misses a realisation (None for both)."""
     n = judge.realisations
     scale = abs(float(np.mean(own))) or 1.0
     rode: dict[tuple[tuple[str, int], ...], list[float]] = {point_key(p): [] for p in points}
     open_ = list(points)
-    for a in range(0, n, LOOK):
-        look = judge.part(a, min(a + LOOK, n)) if n > LOOK else judge
-        nxt = []
-        for p, o in zip(open_, _ride(look, space, open_), strict=True):
-            key = point_key(p)
+    for look, _ in looks(judge, None):
+        kept = []
+        for p, o in zip(open_, ride_points(look, space, open_, {}), strict=True):
+            mine = rode[point_key(p)]
             if not o.ok or len(o.scores) != look.realisations:
-                rode[key] = []
+                mine.clear()
                 continue
-            rode[key].extend(float(v) for v in o.scores)
-            m = len(rode[key])
-            _, low, _ = paired_interval(np.asarray(rode[key]) - own[:m], LOOK_CONFIDENCE)
-            if m == n or low / scale <= FLAT:
-                nxt.append(p)
-            else:
-                rode[key] = []  # dearer than FLAT beyond doubt: not as good
-        open_ = [p for p in nxt if len(rode[point_key(p)]) < n]
+            mine.extend(float(v) for v in o.scores)
+            _, low, _ = paired_interval(np.asarray(mine) - own[: len(mine)], LOOK_CONFIDENCE)
+            if low / scale > FLAT:
+                mine.clear()  # dearer than FLAT beyond doubt: not as good
+                continue
+            kept.append(p)
+        open_ = kept
         if not open_:
             break
     return {k: compare_scores(v, own.tolist()) if len(v) == n else None for k, v in rode.items()}
@@ -164,17 +155,14 @@ def together(
     every = list(walks)
     choose = selection_evaluator(evaluator, CHOOSE).kept(CHOOSE_COURSES_BYTES)
     own: np.ndarray | None = None  # #1's scores on the validation set
-    chosen_on: dict[tuple[tuple[str, int], ...], Outcome] = {}  # rides on the choosing set
+    chosen_on: Ridden = {}  # rides on the choosing set, each point once
     for _ in range(steps):
         asked: list[tuple[_Walk, list[dict[str, int]]]] = []
         for w in walks:
             j = space[w.setting].stepped(w.at[w.setting], w.sign)
             if j != w.at[w.setting]:  # not at the range's end
                 asked.append((w, _followers(space, {**w.at, w.setting: j}, w.setting)))
-        new = list({point_key(q): q for _, cands in asked for q in cands
-                    if point_key(q) not in chosen_on}.values())  # fmt: skip
-        for q, o in zip(new, _ride(choose, space, new), strict=True):
-            chosen_on[point_key(q)] = o
+        ride_points(choose, space, [q for _, cands in asked for q in cands], chosen_on)
         picks = [
             (w, cands[k]) for w, cands in asked
             if cands and (k := _chosen([chosen_on[point_key(q)] for q in cands], CHOOSE))
